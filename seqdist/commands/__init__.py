@@ -1,0 +1,1 @@
+"""One module per sub-command; each provides ``register(subparsers, common)``."""

@@ -1,0 +1,482 @@
+"""Matrix files and safe output.
+
+Formats (see the outside contract):
+
+``tsv`` / ``csv``
+    A header row whose first cell is empty or a name, then the labels; then
+    one row per label: the label, then its values. Missing entries are an
+    empty cell, ``NA`` or ``nan``. Cells holding the separator or a quote are
+    quoted the usual CSV way.
+``square``
+    First line the number of taxa, then one line per taxon: its name, then
+    its distances, separated by white space.
+``lower``
+    The same with only the entries below the diagonal.
+
+The format is taken from an explicit option, else the extension (``.tsv``,
+``.csv``), else tsv. When reading a file with another extension whose first
+line is a lone integer, ``square`` or ``lower`` is recognised from its shape.
+
+Every file is written atomically: to a temporary file in the target folder,
+then renamed, so a failed command never leaves a partial file and never
+touches an existing one. ``-`` means standard input or output.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import csv
+import io
+import json
+import os
+import sys
+import tempfile
+from typing import Iterator, Sequence
+
+import numpy as np
+
+from .errors import InputError
+from .matrix import DistanceMatrix
+
+MATRIX_FORMATS = ("tsv", "csv", "square", "lower")
+_NA = {"", "na", "nan"}
+
+
+# ----------------------------------------------------------------- reading
+def read_text(path: str, what: str = "file") -> str:
+    """Whole text of a file (or standard input for ``-``), with clear errors."""
+    if path == "-":
+        data = sys.stdin.buffer.read()
+        name = "<stdin>"
+    else:
+        name = path
+        try:
+            with open(path, "rb") as fh:
+                data = fh.read()
+        except FileNotFoundError:
+            raise InputError(f"{path}: no such {what}") from None
+        except IsADirectoryError:
+            raise InputError(f"{path}: is a directory, not a {what}") from None
+        except PermissionError:
+            raise InputError(f"{path}: permission denied") from None
+        except OSError as exc:
+            raise InputError(f"{path}: cannot read ({exc.strerror})") from None
+    if b"\x00" in data[:65536]:
+        raise InputError(f"{name}: binary data, not a text {what}")
+    try:
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = data[: exc.start].count(b"\n") + 1
+        raise InputError(f"{name}: line {line}: not UTF-8 text") from None
+    return text
+
+
+def matrix_format(path: str, explicit: str | None = None) -> str:
+    """The matrix format for a path: the explicit choice, else by extension, else tsv."""
+    if explicit:
+        if explicit not in MATRIX_FORMATS:
+            raise InputError(f"unknown matrix format '{explicit}' (choose from {', '.join(MATRIX_FORMATS)})")
+        return explicit
+    ext = os.path.splitext(path)[1].lower()
+    return {".csv": "csv", ".tsv": "tsv"}.get(ext, "tsv")
+
+
+def _sniff_square(text: str) -> str | None:
+    first = text.lstrip("\n").split("\n", 1)[0].strip()
+    if not first.isdigit():
+        return None
+    n = int(first)
+    lines = [ln for ln in text.split("\n")[1:] if ln.strip()]
+    if lines and len(lines[0].split()) == 1:
+        return "lower"
+    return "square"
+
+
+def read_matrix(path: str, fmt: str | None = None) -> DistanceMatrix:
+    """Read and validate a distance matrix file.
+
+    Parameters
+    ----------
+    path : str
+        File path, or ``-`` for standard input.
+    fmt : {"tsv", "csv", "square", "lower"}, optional
+        Format; by default from the extension (see module docs).
+
+    Returns
+    -------
+    DistanceMatrix
+
+    Raises
+    ------
+    InputError
+        With the file, line and label or pair of the first problem.
+
+    Examples
+    --------
+    >>> import tempfile, os
+    >>> p = os.path.join(tempfile.mkdtemp(), "d.tsv")
+    >>> _ = open(p, "w").write("\\ta\\tb\\na\\t0\\t1.5\\nb\\t1.5\\t0\\n")
+    >>> read_matrix(p)["a", "b"]
+    1.5
+    """
+    text = read_text(path, "matrix file")
+    name = "<stdin>" if path == "-" else path
+    if not text.strip():
+        raise InputError(f"{name}: empty file")
+    if fmt is None and os.path.splitext(path)[1].lower() not in (".tsv", ".csv"):
+        fmt = _sniff_square(text)
+    fmt = matrix_format(path, fmt)
+    if fmt in ("tsv", "csv"):
+        return _read_delimited(text, name, "\t" if fmt == "tsv" else ",")
+    return _read_square(text, name, lower=(fmt == "lower"))
+
+
+def _parse_cell(cell: str, name: str, line: int, row_label: str, col_label: str) -> float:
+    c = cell.strip()
+    if c.lower() in _NA:
+        return np.nan
+    try:
+        return float(c)
+    except ValueError:
+        raise InputError(f"{name}: line {line}: non-numeric value '{c}' in row '{row_label}', "
+                         f"column '{col_label}'") from None
+
+
+def _read_delimited(text: str, name: str, sep: str) -> DistanceMatrix:
+    fast = _read_delimited_fast(text, name, sep)
+    if fast is not None:
+        return fast
+    return _read_delimited_careful(text, name, sep)
+
+
+def _read_delimited_fast(text: str, name: str, sep: str) -> DistanceMatrix | None:
+    """pandas' C parser for well-formed files; None sends odd files to the careful reader."""
+    import pandas as pd
+
+    try:
+        head, _, body = text.partition("\n")
+        header = next(csv.reader([head], delimiter=sep))
+        labels = [h.strip() for h in header[1:]]
+        if not labels or not body.strip() or '"' in body:
+            return None
+        # pandas pads short rows with NaN; a ragged row must be an error, so check the shape first.
+        n = len(labels)
+        if any(line.count(sep) != n for line in body.split("\n") if line.strip()):
+            return None
+        frame = pd.read_csv(io.StringIO(body), sep=sep, header=None, index_col=0, dtype={0: str},
+                            keep_default_na=False, na_values=["", "NA", "nan", "NaN", "na"],
+                            skip_blank_lines=True, engine="c")
+    except Exception:  # any oddity: the careful reader names it precisely
+        return None
+    from pandas.api.types import is_bool_dtype, is_numeric_dtype
+
+    if frame.shape != (len(labels), len(labels)) or not all(is_numeric_dtype(t) and not is_bool_dtype(t)
+                                                              for t in frame.dtypes):
+        return None
+    rows = [str(r).strip() for r in frame.index]
+    values = frame.to_numpy(dtype=np.float64)
+    if rows != labels:
+        if sorted(rows) != sorted(labels) or len(set(rows)) != len(rows):
+            return None
+        pos = {lab: j for j, lab in enumerate(labels)}
+        order = [pos[r] for r in rows]
+        values = values[:, order]
+        labels = rows
+    return DistanceMatrix.from_array(values, rows, col_labels=labels, source=name)
+
+
+def _read_delimited_careful(text: str, name: str, sep: str) -> DistanceMatrix:
+    reader = csv.reader(io.StringIO(text), delimiter=sep)
+    try:
+        raw = [(reader.line_num, row) for row in reader]
+    except csv.Error as exc:
+        raise InputError(f"{name}: line {reader.line_num}: {exc}") from None
+    rows = [(ln, r) for ln, r in raw if any(c.strip() for c in r)]
+    if not rows:
+        raise InputError(f"{name}: empty file")
+    head_line, header = rows[0]
+    labels = [h.strip() for h in header[1:]]
+    if not labels:
+        raise InputError(f"{name}: line {head_line}: the header holds no labels "
+                         f"(is this a {'tab' if sep == chr(9) else 'comma'}-separated matrix?)")
+    body = rows[1:]
+    n = len(labels)
+    if len(body) != n:
+        raise InputError(f"{name}: {n} column labels but {len(body)} data rows")
+    values = np.empty((n, n))
+    row_labels = []
+    for i, (ln, r) in enumerate(body):
+        if len(r) != n + 1:
+            raise InputError(f"{name}: line {ln}: ragged row '{r[0].strip()}': {len(r) - 1} values, "
+                             f"expected {n}")
+        row_labels.append(r[0].strip())
+        for j in range(n):
+            values[i, j] = _parse_cell(r[j + 1], name, ln, r[0].strip(), labels[j])
+    if row_labels != labels and sorted(row_labels) == sorted(labels) and len(set(labels)) == n:
+        pos = {lab: j for j, lab in enumerate(labels)}
+        values = values[:, [pos[r] for r in row_labels]]
+        labels = row_labels
+    return DistanceMatrix.from_array(values, row_labels, col_labels=labels, source=name)
+
+
+def _read_square(text: str, name: str, lower: bool) -> DistanceMatrix:
+    # Tokens with their line numbers; a row may wrap over several lines.
+    toks: list[tuple[str, int]] = []
+    for ln, line in enumerate(text.split("\n"), start=1):
+        toks.extend((t, ln) for t in line.split())
+    if not toks:
+        raise InputError(f"{name}: empty file")
+    first, ln0 = toks[0]
+    try:
+        n = int(first)
+    except ValueError:
+        raise InputError(f"{name}: line {ln0}: expected the number of taxa, found '{first}'") from None
+    if n < 1:
+        raise InputError(f"{name}: line {ln0}: number of taxa must be positive")
+    values = np.full((n, n), np.nan)
+    labels = []
+    pos = 1
+    for i in range(n):
+        if pos >= len(toks):
+            raise InputError(f"{name}: {n} taxa announced but only {i} rows found")
+        label, ln = toks[pos]
+        pos += 1
+        labels.append(label)
+        want = i if lower else n
+        got = toks[pos:pos + want]
+        if len(got) < want:
+            raise InputError(f"{name}: line {ln}: row '{label}' has {len(got)} values, expected {want}")
+        for j, (tok, tl) in enumerate(got):
+            if tl != ln and not _is_number(tok):
+                raise InputError(f"{name}: line {ln}: row '{label}' has {j} values, expected {want}")
+            values[i, j] = _parse_cell(tok, name, tl, label, f"position {j + 1}")
+        pos += want
+    if pos != len(toks):
+        tok, tl = toks[pos]
+        raise InputError(f"{name}: line {tl}: unexpected '{tok}' after {n} rows (ragged rows?)")
+    if lower:
+        iu = np.triu_indices(n, 1)
+        values[iu] = values.T[iu]
+        np.fill_diagonal(values, 0.0)
+    return DistanceMatrix.from_array(values, labels, source=name)
+
+
+def _is_number(tok: str) -> bool:
+    if tok.lower() in _NA:
+        return True
+    try:
+        float(tok)
+        return True
+    except ValueError:
+        return False
+
+
+def read_pairs(path: str, dm: DistanceMatrix, what: str = "pair file") -> np.ndarray:
+    """Read ``label<TAB>label`` lines into an (m, 2) array of indices into ``dm``.
+
+    Blank lines and lines starting with ``#`` are skipped. Each failure names
+    the line.
+    """
+    text = read_text(path, what)
+    name = "<stdin>" if path == "-" else path
+    idx = dm._index_map()
+    out = []
+    for ln, line in enumerate(text.split("\n"), start=1):
+        s = line.rstrip("\r")
+        if not s.strip() or s.lstrip().startswith("#"):
+            continue
+        parts = s.split("\t")
+        if len(parts) != 2:
+            raise InputError(f"{name}: line {ln}: expected 'label<TAB>label', found {s!r}")
+        a, b = parts[0].strip(), parts[1].strip()
+        for lab in (a, b):
+            if lab not in idx:
+                raise InputError(f"{name}: line {ln}: unknown label '{lab}'")
+        if a == b:
+            raise InputError(f"{name}: line {ln}: a pair needs two different labels ('{a}')")
+        out.append((idx[a], idx[b]))
+    return np.array(out, dtype=np.intp).reshape(-1, 2)
+
+
+# ----------------------------------------------------------------- writing
+def _fmt(v: float) -> str:
+    # repr is the shortest string that reads back to the same float: exact and deterministic.
+    return "NA" if v != v else repr(v)
+
+
+def format_matrix(dm: DistanceMatrix, fmt: str = "tsv") -> str:
+    """The text of a matrix file in one of :data:`MATRIX_FORMATS`.
+
+    Examples
+    --------
+    >>> dm = DistanceMatrix.from_array([[0, 1], [1, 0]], ["a", "b"])
+    >>> print(format_matrix(dm, "lower"), end="")
+    2
+    a
+    b 1.0
+    """
+    if fmt not in MATRIX_FORMATS:
+        raise InputError(f"unknown matrix format '{fmt}' (choose from {', '.join(MATRIX_FORMATS)})")
+    vals = dm.values.tolist()
+    labels = list(dm.labels)
+    buf = io.StringIO()
+    if fmt in ("tsv", "csv"):
+        sep = "\t" if fmt == "tsv" else ","
+        w = csv.writer(buf, delimiter=sep, lineterminator="\n")
+        w.writerow([""] + labels)
+        qlabels = [_quote_cell(lab, sep) for lab in labels]
+        for lab, row in zip(qlabels, vals):
+            buf.write(lab + sep + sep.join(map(_fmt, row)) + "\n")
+        return buf.getvalue()
+    for lab in labels:
+        if not lab or any(c.isspace() for c in lab):
+            raise InputError(f"label '{lab}' contains white space, which the {fmt} format cannot hold; "
+                             "use tsv or csv")
+    buf.write(f"{dm.n}\n")
+    for i, (lab, row) in enumerate(zip(labels, vals)):
+        cells = row[:i] if fmt == "lower" else row
+        buf.write(" ".join([lab] + [_fmt(v) for v in cells]) + "\n")
+    return buf.getvalue()
+
+
+def _quote_cell(cell: str, sep: str) -> str:
+    if any(c in cell for c in (sep, '"', "\n", "\r")) or cell != cell.strip():
+        return '"' + cell.replace('"', '""') + '"'
+    return cell
+
+
+class OutputSet:
+    """Stage several output files and publish them together.
+
+    Each file is written to a temporary file in its target folder; nothing
+    appears at a target path until :meth:`commit`, and on failure every
+    temporary file is removed, so existing files stay exactly as they were.
+    A path of ``-`` is written to standard output at commit.
+
+    Examples
+    --------
+    >>> import tempfile, os
+    >>> d = tempfile.mkdtemp()
+    >>> with OutputSet() as out:
+    ...     out.add_text(os.path.join(d, "a.txt"), "hello\\n")
+    >>> open(os.path.join(d, "a.txt")).read()
+    'hello\\n'
+    """
+
+    def __init__(self):
+        self._staged: list[tuple[str, str]] = []
+        self._stdout: list[str] = []
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, exc_type, exc, tb):
+        if exc_type is None:
+            self.commit()
+        else:
+            self.discard()
+        return False
+
+    def add_text(self, path: str, text: str) -> None:
+        """Stage ``text`` for ``path`` (``-`` for standard output)."""
+        if path == "-":
+            self._stdout.append(text)
+            return
+        folder = os.path.dirname(os.path.abspath(path))
+        if not os.path.isdir(folder):
+            raise InputError(f"{path}: output folder '{folder}' does not exist")
+        if os.path.isdir(path):
+            raise InputError(f"{path}: is a directory")
+        try:
+            fd, tmp = tempfile.mkstemp(prefix=".seqdist-", suffix=".part", dir=folder)
+        except OSError as exc:
+            raise InputError(f"{path}: cannot write ({exc.strerror})") from None
+        try:
+            with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
+                fh.write(text)
+            os.chmod(tmp, 0o666 & ~_umask())
+        except BaseException:
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+            raise
+        self._staged.append((tmp, path))
+
+    def add_matrix(self, path: str, dm: DistanceMatrix, fmt: str | None = None) -> None:
+        """Stage a matrix file (format by option, else extension, else tsv)."""
+        self.add_text(path, format_matrix(dm, matrix_format(path, fmt)))
+
+    def add_json(self, path: str, obj) -> None:
+        """Stage a JSON document (keys in insertion order, two-space indent)."""
+        self.add_text(path, json.dumps(to_jsonable(obj), indent=2, allow_nan=False) + "\n")
+
+    def commit(self) -> None:
+        for tmp, path in self._staged:
+            os.replace(tmp, path)
+        self._staged = []
+        for text in self._stdout:
+            sys.stdout.write(text)
+        sys.stdout.flush()
+        self._stdout = []
+
+    def discard(self) -> None:
+        for tmp, _ in self._staged:
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+        self._staged = []
+        self._stdout = []
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+def to_jsonable(obj):
+    """Convert numpy scalars/arrays (and NaN/inf, as None) for JSON output."""
+    if isinstance(obj, dict):
+        return {str(k): to_jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [to_jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return to_jsonable(obj.tolist())
+    if isinstance(obj, (np.bool_,)):
+        return bool(obj)
+    if isinstance(obj, np.integer):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        f = float(obj)
+        return f if np.isfinite(f) else None
+    return obj
+
+
+def write_matrix(path: str, dm: DistanceMatrix, fmt: str | None = None) -> None:
+    """Write one matrix file atomically (``-`` for standard output).
+
+    Examples
+    --------
+    >>> import tempfile, os
+    >>> p = os.path.join(tempfile.mkdtemp(), "d.csv")
+    >>> write_matrix(p, DistanceMatrix.from_array([[0, 2], [2, 0]], ["a", "b"]))
+    >>> open(p).read().splitlines()[1]
+    'a,0.0,2.0'
+    """
+    with OutputSet() as out:
+        out.add_matrix(path, dm, fmt)
+
+
+def write_text(path: str, text: str) -> None:
+    """Write one text file atomically (``-`` for standard output)."""
+    with OutputSet() as out:
+        out.add_text(path, text)
+
+
+def iter_nonblank(text: str) -> Iterator[tuple[int, str]]:
+    """(line number, line) for the non-blank, non-comment lines of a text."""
+    for ln, line in enumerate(text.split("\n"), start=1):
+        if line.strip() and not line.lstrip().startswith("#"):
+            yield ln, line.rstrip("\r")
+
+
+__all__: Sequence[str] = ["MATRIX_FORMATS", "read_matrix", "write_matrix", "format_matrix", "read_pairs",
+                          "read_text", "matrix_format", "OutputSet", "write_text", "to_jsonable"]

@@ -1,0 +1,39 @@
+"""Shared test helpers: run the command line in-process or as a subprocess."""
+
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+EXAMPLES = os.path.join(ROOT, "example_sequences")
+
+
+def run_cli(*args, input=None, timeout=600):
+    """Run ``seqdist`` as a user would (a separate process); returns CompletedProcess."""
+    cmd = [sys.executable, "-m", "seqdist.cli", *map(str, args)]
+    return subprocess.run(cmd, capture_output=True, text=True, input=input, timeout=timeout, cwd=ROOT)
+
+
+@pytest.fixture
+def cli():
+    return run_cli
+
+
+def write_tsv(path, labels, D):
+    """A plain tsv writer independent of seqdist.io (for tests of the reader)."""
+    with open(path, "w") as f:
+        f.write("\t" + "\t".join(labels) + "\n")
+        for lab, row in zip(labels, D):
+            f.write(lab + "\t" + "\t".join("" if np.isnan(v) else repr(float(v)) for v in row) + "\n")
+
+
+def euclidean(n, dim=2, seed=0):
+    """Distances between random points in the plane: a metric (common practice)."""
+    rng = np.random.default_rng(seed)
+    X = rng.uniform(0, 10, (n, dim))
+    return np.sqrt(((X[:, None] - X[None]) ** 2).sum(-1))

@@ -1,0 +1,150 @@
+"""The labelled matrix type and matrix files (foundation)."""
+
+from __future__ import annotations
+
+import os
+import string
+
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from seqdist import DistanceMatrix, InputError
+from seqdist.io import OutputSet, format_matrix, read_matrix, read_pairs, write_matrix
+
+# Labels with spaces and punctuation (tsv/csv can hold them); square/lower need no white space.
+LABEL_CHARS = string.ascii_letters + string.digits + " _-.,;:'\"()[]|/+*&%$#@!?"
+label_st = st.text(LABEL_CHARS, min_size=1, max_size=12).map(str.strip).filter(bool)
+plain_label_st = st.text(string.ascii_letters + string.digits + "_-.|/()", min_size=1, max_size=10)
+
+
+@st.composite
+def matrices(draw, labels=label_st, allow_missing=True):
+    n = draw(st.integers(1, 8))
+    labs = draw(st.lists(labels, min_size=n, max_size=n, unique=True))
+    vals = draw(st.lists(st.floats(0, 1e6, allow_nan=False, allow_subnormal=False), min_size=n * n,
+                         max_size=n * n))
+    a = np.array(vals).reshape(n, n)
+    a = np.triu(a, 1)
+    a = a + a.T
+    if allow_missing and n > 1:
+        holes = draw(st.lists(st.tuples(st.integers(0, n - 1), st.integers(0, n - 1)), max_size=3))
+        for i, j in holes:
+            if i != j:
+                a[i, j] = a[j, i] = np.nan
+    return DistanceMatrix.from_array(a, labs)
+
+
+@settings(max_examples=60, suppress_health_check=[HealthCheck.function_scoped_fixture], deadline=None)
+@given(dm=matrices(), fmt=st.sampled_from(["tsv", "csv"]))
+def test_round_trip_delimited(tmp_path, dm, fmt):
+    p = os.path.join(tmp_path, f"m.{fmt}")
+    write_matrix(p, dm)
+    back = read_matrix(p)
+    assert back.labels == dm.labels
+    # repr is exact, so the values survive bit for bit (beyond the required 12 digits)
+    assert np.array_equal(back.values, dm.values, equal_nan=True)
+
+
+@settings(max_examples=60, suppress_health_check=[HealthCheck.function_scoped_fixture], deadline=None)
+@given(dm=matrices(labels=plain_label_st), fmt=st.sampled_from(["square", "lower"]))
+def test_round_trip_square(tmp_path, dm, fmt):
+    p = os.path.join(tmp_path, "m.txt")
+    write_matrix(p, dm, fmt)
+    assert np.array_equal(read_matrix(p, fmt).values, dm.values, equal_nan=True)
+    back = read_matrix(p)  # recognised from its shape
+    assert back.labels == dm.labels
+    assert np.array_equal(back.values, dm.values, equal_nan=True)
+
+
+def test_twelve_significant_digits(tmp_path):
+    x = 0.123456789012345678
+    dm = DistanceMatrix.from_array([[0, x], [x, 0]], ["a", "b"])
+    for fmt in ["tsv", "csv", "square", "lower"]:
+        text = format_matrix(dm, fmt)
+        assert "0.12345678901234" in text
+
+
+def test_frame_and_condensed_conversions():
+    D = np.array([[0, 1, 2], [1, 0, 3], [2, 3, 0.0]])
+    dm = DistanceMatrix.from_array(D, ["a", "b", "c"])
+    f = dm.to_frame()
+    assert list(f.index) == ["a", "b", "c"] and f.loc["b", "c"] == 3
+    assert DistanceMatrix.from_frame(f).equals(dm)
+    # scipy's condensed layout is the reference for the vector form
+    from scipy.spatial.distance import squareform
+
+    assert np.array_equal(dm.condensed(), squareform(D))
+    assert DistanceMatrix.from_condensed(squareform(D), dm.labels).equals(dm)
+
+
+def test_zero_distance_is_real_and_missing_is_nan():
+    dm = DistanceMatrix.from_array([[0, 0, np.nan], [0, 0, 1], [np.nan, 1, 0]], ["a", "b", "c"])
+    assert dm["a", "b"] == 0.0
+    assert dm.missing_count() == 1 and dm.has_missing
+
+
+def test_values_read_only():
+    dm = DistanceMatrix.from_array([[0, 1], [1, 0]], ["a", "b"])
+    with pytest.raises(ValueError):
+        dm.values[0, 1] = 5
+
+
+def test_symmetric_within_tolerance_is_averaged():
+    dm = DistanceMatrix.from_array([[0, 1.0], [1.0 + 1e-13, 0]], ["a", "b"])
+    assert dm.values[0, 1] == dm.values[1, 0]
+
+
+@pytest.mark.parametrize("values,labels,needle", [
+    ([[0, 1, 2], [1, 0, 3]], ["a", "b"], "not square"),
+    ([[0, 1], [2, 0]], ["a", "b"], "asymmetric: (a, b)"),
+    ([[0, -1], [-1, 0]], ["a", "b"], "negative entry -1.0 at (a, b)"),
+    ([[1, 1], [1, 0]], ["a", "b"], "non-zero diagonal entry 1.0 for 'a'"),
+    ([[0, 1], [1, 0]], ["a", "a"], "duplicate label 'a'"),
+    ([[0, np.inf], [np.inf, 0]], ["a", "b"], "infinite"),
+    ([[0, np.nan], [1, 0]], ["a", "b"], "is missing"),
+])
+def test_validation_names_the_problem(values, labels, needle):
+    with pytest.raises(InputError) as e:
+        DistanceMatrix.from_array(values, labels, source="f.tsv")
+    assert needle in str(e.value) and str(e.value).startswith("f.tsv: ")
+
+
+def test_column_order_may_differ(tmp_path):
+    p = tmp_path / "m.tsv"
+    p.write_text("\ta\tb\tc\nc\t2\t3\t0\na\t0\t1\t2\nb\t1\t0\t3\n")
+    dm = read_matrix(str(p))
+    assert dm.labels == ("c", "a", "b") and dm["a", "c"] == 2 and dm["b", "c"] == 3
+
+
+def test_pandas_reads_our_tsv(tmp_path):
+    # pandas is the independent reader here
+    dm = DistanceMatrix.from_array([[0, 1.5], [1.5, 0]], ["x y", "z"])
+    p = str(tmp_path / "m.tsv")
+    write_matrix(p, dm)
+    f = pd.read_csv(p, sep="\t", index_col=0)
+    assert list(f.columns) == ["x y", "z"] and f.loc["z", "x y"] == 1.5
+
+
+def test_read_pairs(tmp_path):
+    dm = DistanceMatrix.from_array(np.zeros((3, 3)), ["a", "b", "c"])
+    p = tmp_path / "lock.txt"
+    p.write_text("# locked\na\tc\n\nb\ta\n")
+    assert read_pairs(str(p), dm).tolist() == [[0, 2], [1, 0]]
+    p.write_text("a\tzz\n")
+    with pytest.raises(InputError, match="line 1: unknown label 'zz'"):
+        read_pairs(str(p), dm)
+
+
+def test_output_set_is_all_or_nothing(tmp_path):
+    a, b = tmp_path / "a.txt", tmp_path / "b.txt"
+    a.write_text("old")
+    with pytest.raises(RuntimeError):
+        with OutputSet() as out:
+            out.add_text(str(a), "new")
+            out.add_text(str(b), "new")
+            raise RuntimeError("fail before commit")
+    assert a.read_text() == "old" and not b.exists()
+    assert [f for f in os.listdir(tmp_path) if f.startswith(".seqdist-")] == []

@@ -1,0 +1,73 @@
+"""Shared compiled kernels against plain references (scipy, obvious loops)."""
+
+from __future__ import annotations
+
+import itertools
+
+import numpy as np
+import scipy.sparse as sp
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy.sparse.csgraph import floyd_warshall
+
+from seqdist.metric import apsp, count_violations, is_metric, max_violation
+from conftest import euclidean
+
+
+def scipy_graph(D):
+    i, j = np.nonzero(~np.eye(len(D), dtype=bool) & ~np.isnan(D))
+    return sp.csr_matrix((D[i, j], (i, j)), shape=D.shape)
+
+
+def brute_count(D, tol):
+    c, w = 0, 0.0
+    for i, j, k in itertools.combinations(range(len(D)), 3):
+        s = [D[i, j], D[i, k], D[j, k]]
+        if any(np.isnan(s)):
+            continue
+        e = max(s) - (sum(s) - max(s))
+        if e > tol:
+            c += 1
+            w = max(w, e)
+    return c, w
+
+
+@st.composite
+def sym(draw, zeros=True, nan=False):
+    n = draw(st.integers(1, 9))
+    vals = draw(st.lists(st.sampled_from([0.0, 0.5, 1.0, 2.0, 3.0, 7.5]) if zeros
+                         else st.floats(0.01, 10), min_size=n * n, max_size=n * n))
+    a = np.triu(np.array(vals).reshape(n, n), 1)
+    a = a + a.T
+    if nan and n > 2:
+        a[0, n - 1] = a[n - 1, 0] = np.nan
+    return a
+
+
+@settings(max_examples=80, deadline=None)
+@given(sym(nan=True))
+def test_count_matches_brute_force(D):
+    assert count_violations(D, 1e-12) == brute_count(D, 1e-12)
+
+
+@settings(max_examples=80, deadline=None)
+@given(sym())
+def test_apsp_matches_scipy_with_zeros(D):
+    # scipy's dense input reads an off-diagonal 0 as "no edge"; a sparse graph with
+    # explicit zeros keeps them as edges (scipy.sparse.csgraph docs)
+    ref = floyd_warshall(scipy_graph(D), directed=False)
+    assert np.allclose(apsp(D), ref, atol=1e-12)
+
+
+@settings(max_examples=60, deadline=None)
+@given(sym())
+def test_max_violation_and_is_metric(D):
+    c, w = brute_count(D, 0.0)
+    assert np.isclose(max_violation(D), w)
+    assert is_metric(D, 1e-12) == (c == 0 or w <= 1e-12)
+    assert is_metric(apsp(D))
+
+
+def test_euclidean_is_metric():
+    D = euclidean(60)
+    assert count_violations(D)[0] == 0 and is_metric(D)
