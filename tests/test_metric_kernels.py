@@ -10,7 +10,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.sparse.csgraph import floyd_warshall
 
-from seqdist.metric import apsp, count_violations, is_metric, max_violation
+from seqdist.metric import count_violations, is_metric, max_violation
+from seqdist.paths import apsp
 from conftest import euclidean
 
 
