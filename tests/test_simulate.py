@@ -1,0 +1,406 @@
+"""The seeded simulator, its command and the demo data in example_sequences/.
+
+Outside references used here:
+* Jukes & Cantor (1969), "Evolution of protein molecules", in Mammalian Protein
+  Metabolism: P(different) = 3/4 (1 - exp(-4d/3)) for a path of d expected
+  substitutions per site.
+* Kimura (1980), "A simple method for estimating evolutionary rates of base
+  substitutions...", J. Mol. Evol. 16:111-120: transition and transversion
+  proportions P = 1/4 + 1/4 e^{-4bt} - 1/2 e^{-2(a+b)t}, Q = 1/2 - 1/2 e^{-4bt}
+  (a the transition rate, 2b the transversion rate, d = (a + 2b) t).
+* Jin & Nei (1990), Mol. Biol. Evol. 7:82-102: the JC69 distance with gamma
+  rates, d = 3/4 alpha [(1 - 4p/3)^(-1/alpha) - 1]; inverted here to
+  p = 3/4 [1 - (1 + 4d/(3 alpha))^(-alpha)] (the gamma moment generating function).
+* Yang (1994), J. Mol. Evol. 39:306-314: discrete gamma category means.
+* Biopython (Bio.Phylo, Bio.AlignIO) and dendropy as independent readers of the
+  Newick and Stockholm files; scipy.linalg.expm and scipy.integrate.quad as
+  plain references.
+"""
+
+from __future__ import annotations
+
+import filecmp
+import json
+import os
+import re
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from seqdist.simulate import (format_fasta, format_stockholm, gamma_rates, hky85, k80, make_model,
+                              plant_chimera, plant_gappy, plant_saturated_pair, protein_poisson,
+                              random_tree, simulate)
+
+from conftest import EXAMPLES, ROOT, run_cli
+
+DATA_FILES = ["dna_clean.fasta", "dna_clean.true.nwk", "dna_clean.sim.json",
+              "protein.fasta", "protein.true.nwk", "protein.sim.json", "protein_small.sto",
+              "dna_trouble.fasta", "dna_trouble.true.nwk", "dna_trouble.sim.json"]
+LABEL_RE = re.compile(r"^[A-Za-z0-9_]+$")
+
+
+# -------------------------------------------------------------- helpers (our own, independent of seqdist)
+def read_fasta(path):
+    recs, name, parts = [], None, []
+    with open(path) as fh:
+        for line in fh:
+            line = line.strip()
+            if line.startswith(">"):
+                if name is not None:
+                    recs.append((name, "".join(parts)))
+                name, parts = line[1:].split()[0], []
+            elif line:
+                parts.append(line)
+    if name is not None:
+        recs.append((name, "".join(parts)))
+    return recs
+
+
+def p_and_compared(a: str, b: str):
+    """Mismatches / compared columns over columns where both rows hold a residue (common practice)."""
+    both = [(x, y) for x, y in zip(a, b) if x != "-" and y != "-"]
+    return sum(x != y for x, y in both) / len(both), len(both)
+
+
+def ts_tv(a: str, b: str):
+    """Transition and transversion proportions (A<->G, C<->T are transitions; Kimura 1980)."""
+    purine = set("AG")
+    pairs = [(x, y) for x, y in zip(a, b) if x != "-" and y != "-"]
+    ts = sum(x != y and ((x in purine) == (y in purine)) for x, y in pairs)
+    tv = sum((x in purine) != (y in purine) for x, y in pairs)
+    return ts / len(pairs), tv / len(pairs), len(pairs)
+
+
+def as_matrix(records):
+    return np.array([np.frombuffer(s.encode(), dtype=np.uint8) for _, s in records])
+
+
+def biopython_leaves(newick_text):
+    import io
+
+    from Bio import Phylo
+
+    tree = Phylo.read(io.StringIO(newick_text), "newick")
+    return tree, [c.name for c in tree.get_terminals()]
+
+
+def dendropy_tree(path):
+    import dendropy
+
+    return dendropy.Tree.get(path=str(path), schema="newick", preserve_underscores=True)
+
+
+# -------------------------------------------------------------- determinism
+def test_same_seed_same_result_api():
+    kw = dict(alpha=0.5, gap_rate=0.02, kappa=3.0)
+    a, b = simulate(12, 300, "dna", seed=5, **kw), simulate(12, 300, "dna", seed=5, **kw)
+    assert a.records == b.records and a.tree.newick() == b.tree.newick()
+    assert format_fasta(a.records) == format_fasta(b.records)
+    c = simulate(12, 300, "dna", seed=6, **kw)
+    assert c.records != a.records and c.tree.newick() != a.tree.newick()
+
+
+def test_same_seed_identical_files_cli(tmp_path):
+    def go(folder, seed):
+        folder.mkdir()
+        p = run_cli("simulate", "-o", folder / "a.fasta", "--tree-out", folder / "t.nwk", "--taxa", 12,
+                    "--length", 200, "--seed", seed, "--alpha", 0.7, "--gap-rate", 0.02, "--gappy", "auto",
+                    "--chimera", "auto", "--saturate", "auto", "--stockholm-out", folder / "s.sto",
+                    "--summary-out", folder / "s.json")
+        assert p.returncode == 0, p.stderr
+        return folder
+
+    one, two, other = go(tmp_path / "one", 9), go(tmp_path / "two", 9), go(tmp_path / "other", 10)
+    names = ["a.fasta", "t.nwk", "s.sto", "s.json"]
+    for name in names:
+        assert (one / name).read_bytes() == (two / name).read_bytes(), name
+    assert (one / "a.fasta").read_bytes() != (other / "a.fasta").read_bytes()
+
+
+# -------------------------------------------------------------- tree and alignment shape
+@pytest.mark.parametrize("clock", [False, True])
+def test_tree_leaves_equal_ids_two_readers(tmp_path, clock):
+    sim = simulate(17, 150, "protein", seed=3, clock=clock, gap_rate=0.01, prefix="taxon_")
+    ids = [lab for lab, _ in sim.records]
+    path = tmp_path / "t.nwk"
+    path.write_text(sim.tree.newick())
+    _, bio = biopython_leaves(path.read_text())
+    assert sorted(bio) == sorted(ids) and len(set(bio)) == len(ids)
+    tree = dendropy_tree(path)
+    assert sorted(nd.taxon.label for nd in tree.leaf_node_iter()) == sorted(ids)
+    assert all(LABEL_RE.match(x) for x in ids)
+
+
+def test_path_lengths_agree_with_biopython_and_dendropy(tmp_path):
+    sim = simulate(15, 10, seed=8)
+    path = tmp_path / "t.nwk"
+    path.write_text(sim.tree.newick())
+    bio, _ = biopython_leaves(path.read_text())
+    D = sim.tree.path_lengths()
+    labels = sim.tree.labels
+    tree = dendropy_tree(path)
+    pdm = tree.phylogenetic_distance_matrix()
+    taxa = {t.label: t for t in tree.taxon_namespace}
+    for i in range(len(labels)):
+        for j in range(i + 1, len(labels)):
+            assert D[i, j] == pytest.approx(bio.distance(labels[i], labels[j]), abs=1e-9)
+            assert D[i, j] == pytest.approx(pdm.patristic_distance(taxa[labels[i]], taxa[labels[j]]), abs=1e-9)
+    assert bio.total_branch_length() == pytest.approx(sim.tree.total_length(), abs=1e-9)
+
+
+def test_clock_tree_is_ultrametric_and_scaled():
+    tr = random_tree(40, np.random.default_rng(1), scale=0.03, clock=True)
+    depth = np.zeros(len(tr.parent))
+    for node in range(len(tr.parent) - 2, -1, -1):
+        depth[node] = depth[tr.parent[node]] + tr.length[node]
+    leaf_depth = depth[:40]
+    assert leaf_depth.max() - leaf_depth.min() < 1e-4          # rounding to 6 decimals only
+    assert tr.length[:-1].mean() == pytest.approx(0.03, abs=1e-5)
+    assert tr.length[:-1].min() > 0
+
+
+@pytest.mark.parametrize("alphabet", ["dna", "protein"])
+def test_rows_same_length_gaps_as_runs(alphabet):
+    L = 800
+    sim = simulate(20, L, alphabet, seed=4, gap_rate=0.03, gap_length=4, alpha=1.0)
+    assert {len(s) for _, s in sim.records} == {L}
+    X = as_matrix(sim.records)
+    gap = X == ord("-")
+    assert gap.any() and not gap.all(axis=0).any()        # gaps exist; no column is gaps only
+    letters = set(("ACGT" if alphabet == "dna" else "ACDEFGHIKLMNPQRSTVWY") + "-")
+    assert set("".join(s for _, s in sim.records)) <= letters
+    # gaps come in runs: mean run length clearly above 1
+    runs = sum(int(np.sum(np.diff(np.concatenate([[0], g.astype(int), [0]])) == 1)) for g in gap)
+    assert gap.sum() / runs > 1.5
+    assert sim.site_rates.shape == (L,)
+
+
+# -------------------------------------------------------------- models against published formulas
+def test_models_are_normalised_and_reversible():
+    from scipy.linalg import expm
+
+    for m in (hky85(4.0, [0.1, 0.2, 0.3, 0.4]), k80(2.5), protein_poisson(), make_model("protein", "poisson-f")):
+        pi, Q = m.freqs, m.Q
+        assert -(pi * np.diag(Q)).sum() == pytest.approx(1.0, abs=1e-12)   # one substitution per unit time
+        assert np.allclose(Q.sum(axis=1), 0, atol=1e-12)
+        assert np.allclose(pi[:, None] * Q, (pi[:, None] * Q).T, atol=1e-12)  # detailed balance
+        P = expm(Q * 0.7)
+        assert np.allclose(pi @ P, pi, atol=1e-12)
+
+
+def test_eigen_rows_match_expm():
+    # The per-site route (eigendecomposition) against scipy.linalg.expm, a plain reference.
+    from scipy.linalg import expm
+
+    m = hky85(3.0, [0.35, 0.15, 0.2, 0.3])
+    rng = np.random.default_rng(0)
+    rates = rng.gamma(0.5, 2.0, size=50)
+    parents = rng.integers(4, size=50)
+    rows = m.transition_rows(0.4, rates, parents)
+    ref = np.array([expm(m.Q * r * 0.4)[a] for r, a in zip(rates, parents)])
+    assert np.allclose(rows, ref, atol=1e-12)
+    cats = m.transition_matrices(0.4, rates[:3])
+    assert np.allclose(cats[1], expm(m.Q * rates[1] * 0.4), atol=1e-14)
+
+
+def test_k80_jump_probabilities_match_kimura_1980():
+    from scipy.linalg import expm
+
+    kappa, d = 3.0, 0.37
+    m = k80(kappa)
+    P = expm(m.Q * d)
+    b = d / (kappa + 2)       # transversion rate x time (each of two transversions); a = kappa b
+    a = kappa * b
+    # From A: A->G is the transition; A->C and A->T the transversions (Kimura 1980).
+    assert P[0, 2] == pytest.approx(0.25 + 0.25 * np.exp(-4 * b) - 0.5 * np.exp(-2 * (a + b)), abs=1e-12)
+    assert P[0, 1] + P[0, 3] == pytest.approx(0.5 - 0.5 * np.exp(-4 * b), abs=1e-12)
+
+
+def test_gamma_category_rates():
+    # From memory: Yang (1994) table values for alpha = 0.5, four categories.
+    assert np.allclose(gamma_rates(0.5, 4), [0.0334, 0.2519, 0.8203, 2.8944], atol=6e-5)
+    # Plain reference: the category means by numerical integration of the gamma density.
+    from scipy import integrate, stats
+
+    for alpha, k in [(0.3, 5), (2.0, 4), (1.0, 8)]:
+        dist = stats.gamma(alpha, scale=1 / alpha)
+        cuts = np.concatenate([[0], dist.ppf(np.arange(1, k) / k), [np.inf]])
+        ref = [k * integrate.quad(lambda r: r * dist.pdf(r), lo, hi)[0] for lo, hi in zip(cuts[:-1], cuts[1:])]
+        assert np.allclose(gamma_rates(alpha, k), ref, rtol=1e-6)
+        assert gamma_rates(alpha, k).mean() == pytest.approx(1.0)
+
+
+def _observed_vs_path(sim):
+    D = sim.tree.path_lengths()
+    pos = {lab: i for i, lab in enumerate(sim.tree.labels)}
+    recs = dict(sim.records)
+    labs = sorted(recs)
+    for i, x in enumerate(labs):
+        for y in labs[i + 1:]:
+            yield recs[x], recs[y], D[pos[x], pos[y]]
+
+
+def test_p_distance_matches_jc69_for_true_path_length():
+    # JC69 (Jukes & Cantor 1969): P(different) = 3/4 (1 - exp(-4d/3)); K80 with kappa = 1 is JC69.
+    sim = simulate(5, 60000, "dna", seed=12, kappa=1.0, scale=0.15)
+    checked = 0
+    for a, b, d in _observed_vs_path(sim):
+        p, n = p_and_compared(a, b)
+        expect = 0.75 * (1 - np.exp(-4 * d / 3))
+        se = np.sqrt(expect * (1 - expect) / n)
+        assert abs(p - expect) < 4 * se, (p, expect, se)
+        checked += 1
+    assert checked == 10
+
+
+def test_transitions_and_transversions_match_k80():
+    kappa = 4.0
+    sim = simulate(4, 80000, "dna", seed=13, kappa=kappa, scale=0.2)
+    for a, b, d in _observed_vs_path(sim):
+        P, Q, n = ts_tv(a, b)
+        bt = d / (kappa + 2)
+        at = kappa * bt
+        eP = 0.25 + 0.25 * np.exp(-4 * bt) - 0.5 * np.exp(-2 * (at + bt))   # Kimura 1980
+        eQ = 0.5 - 0.5 * np.exp(-4 * bt)
+        assert abs(P - eP) < 4 * np.sqrt(eP * (1 - eP) / n)
+        assert abs(Q - eQ) < 4 * np.sqrt(eQ * (1 - eQ) / n)
+
+
+@pytest.mark.parametrize("categories", [0, 4])
+def test_gamma_rates_lower_p_as_predicted(categories):
+    alpha = 0.4
+    sim = simulate(4, 60000, "dna", seed=14, kappa=1.0, scale=0.5, alpha=alpha, rate_categories=categories)
+    flat = simulate(4, 60000, "dna", seed=14, kappa=1.0, scale=0.5)
+    assert sim.tree.newick() == flat.tree.newick()      # same tree: the tree is drawn first
+    rates = gamma_rates(alpha, 4)
+    for (a, b, d), (fa, fb, _) in zip(_observed_vs_path(sim), _observed_vs_path(flat)):
+        p, n = p_and_compared(a, b)
+        if categories == 0:
+            expect = 0.75 * (1 - (1 + 4 * d / (3 * alpha)) ** (-alpha))        # Jin & Nei 1990
+        else:
+            expect = 0.75 * (1 - np.mean(np.exp(-4 * d * rates / 3)))           # Yang 1994 categories
+        assert abs(p - expect) < 4 * np.sqrt(expect * (1 - expect) / n), (p, expect)
+        if d > 0.3:
+            # sanity: rate variation leaves more sites unchanged than equal rates do
+            assert p < p_and_compared(fa, fb)[0]
+
+
+# -------------------------------------------------------------- planted trouble
+def test_plants_do_what_they_say():
+    sim = simulate(12, 600, "dna", seed=21, gap_rate=0.01, alpha=1.0)
+    rng = np.random.default_rng(0)
+    sim = plant_gappy(sim, None, 0.7, rng=rng)
+    g = sim.planted[-1]["labels"][0]
+    assert sim.sequence(g).count("-") == round(0.7 * 600)
+    sim = plant_chimera(sim, rng=rng)
+    c, donor = sim.planted[-1]["label"], sim.planted[-1]["donor"]
+    assert g not in (c, donor)
+    D = sim.tree.path_lengths()
+    pos = {lab: i for i, lab in enumerate(sim.tree.labels)}
+    others = [x for x in sim.labels if x not in (g, c)]
+    assert D[pos[c], pos[donor]] == max(D[pos[c], pos[x]] for x in others)
+    assert sim.sequence(c)[300:] == sim.sequence(donor)[300:]
+    before = sim.tree.length.copy()
+    sim = plant_saturated_pair(sim, rng=rng, extra=50.0)
+    pair = sim.planted[-1]["labels"]
+    assert not set(pair) & {g, c, donor}
+    for lab in pair:
+        assert sim.tree.length[pos[lab]] == pytest.approx(before[pos[lab]] + 50.0)
+    p, _ = p_and_compared(sim.sequence(pair[0]), sim.sequence(pair[1]))
+    assert p == pytest.approx(sim.planted[-1]["p_distance"], abs=1e-6)
+    assert abs(p - 0.75) < 0.08       # random draws from equal frequencies: p near 3/4
+
+
+# -------------------------------------------------------------- the committed demo data
+def test_demo_files_regenerate_byte_for_byte(tmp_path):
+    env = dict(os.environ, SEQDIST=f"{sys.executable} -m seqdist.cli")
+    p = subprocess.run(["sh", os.path.join(EXAMPLES, "regenerate.sh"), str(tmp_path)], env=env, cwd=ROOT,
+                       capture_output=True, text=True, timeout=300)
+    assert p.returncode == 0, p.stderr
+    for name in DATA_FILES:
+        assert filecmp.cmp(os.path.join(EXAMPLES, name), tmp_path / name, shallow=False), name
+    total = sum(os.path.getsize(os.path.join(EXAMPLES, f)) for f in os.listdir(EXAMPLES))
+    assert total < 1_000_000
+
+
+@pytest.mark.parametrize("stem", ["dna_clean", "protein", "dna_trouble"])
+def test_demo_sets_shape(stem):
+    recs = read_fasta(os.path.join(EXAMPLES, stem + ".fasta"))
+    ids = [r[0] for r in recs]
+    assert all(LABEL_RE.match(x) for x in ids) and len(set(ids)) == len(ids)
+    assert len({len(s) for _, s in recs}) == 1
+    meta = json.load(open(os.path.join(EXAMPLES, stem + ".sim.json")))
+    assert (len(recs), len(recs[0][1])) == (meta["taxa"], meta["length"])
+    text = open(os.path.join(EXAMPLES, stem + ".true.nwk")).read()
+    _, bio = biopython_leaves(text)
+    assert sorted(bio) == sorted(ids)
+    tree = dendropy_tree(os.path.join(EXAMPLES, stem + ".true.nwk"))
+    assert sorted(nd.taxon.label for nd in tree.leaf_node_iter()) == sorted(ids)
+
+
+def test_clean_dna_set_is_clean():
+    recs = read_fasta(os.path.join(EXAMPLES, "dna_clean.fasta"))
+    assert (len(recs), len(recs[0][1])) == (30, 1200)
+    worst = max(p_and_compared(a, b)[0] for i, (_, a) in enumerate(recs) for _, b in recs[i + 1:])
+    assert worst < 0.5                                   # far from JC69 saturation (3/4)
+    assert max(s.count("-") for _, s in recs) < 0.2 * 1200
+
+
+def test_trouble_set_has_what_the_readme_says():
+    recs = dict(read_fasta(os.path.join(EXAMPLES, "dna_trouble.fasta")))
+    planted = {n["kind"]: n for n in json.load(open(os.path.join(EXAMPLES, "dna_trouble.sim.json")))["planted"]}
+    readme = open(os.path.join(EXAMPLES, "README.md")).read()
+    g = planted["gappy"]["labels"][0]
+    assert recs[g].count("-") >= 0.7 * 1200 and f"`{g}`" in readme
+    c, donor = planted["chimera"]["label"], planted["chimera"]["donor"]
+    assert recs[c][600:] == recs[donor][600:] and f"`{c}`" in readme and f"`{donor}`" in readme
+    x, y = planted["saturated_pair"]["labels"]
+    p, n = p_and_compared(recs[x], recs[y])
+    # JC69 (Jukes & Cantor 1969) is undefined when 1 - 4p/3 <= 0, i.e. p >= 3/4.
+    assert p >= 0.75 and n > 1000 and f"`{x}`" in readme and f"`{y}`" in readme
+    assert 1 - 4 * p / 3 <= 0
+
+
+def test_stockholm_copy_reads_back_with_biopython():
+    from Bio import AlignIO
+
+    aln = AlignIO.read(os.path.join(EXAMPLES, "protein_small.sto"), "stockholm")
+    fasta = read_fasta(os.path.join(EXAMPLES, "protein.fasta"))[:len(aln)]
+    assert [r.id for r in aln] == [r[0] for r in fasta]
+    X = as_matrix(fasta)
+    keep = ~(X == ord("-")).all(axis=0)
+    expect = [bytes(row[keep]).decode() for row in X]
+    got = [str(r.seq).replace(".", "-").upper() for r in aln]
+    assert got == expect
+    raw = open(os.path.join(EXAMPLES, "protein_small.sto")).read()
+    body = "".join(line.split()[1] for line in raw.splitlines() if line and not line.startswith(("#", "//")))
+    assert "." in body and any(ch.islower() for ch in body)      # insert columns are there
+
+
+def test_format_stockholm_marks_insert_columns():
+    text = format_stockholm([("a", "AC-DE"), ("b", "A--D-"), ("c", "A-GDE")], name="x")
+    rows = {line.split()[0]: line.split()[1] for line in text.splitlines()[2:5]}
+    assert rows == {"a": "Ac.DE", "b": "A..D-", "c": "A.gDE"}
+    assert text.splitlines()[5] == "#=GC RF x..xx" and text.endswith("\n//\n")
+
+
+# -------------------------------------------------------------- bad options
+@pytest.mark.parametrize("args, needle", [
+    (["--taxa", "2", "--length", "10"], "--taxa must be at least 3"),
+    (["--taxa", "5", "--length", "0"], "--length must be at least 1"),
+    (["--taxa", "5", "--length", "10", "--kappa", "-1"], "kappa must be a positive number"),
+    (["--taxa", "5", "--length", "10", "--gappy", "t99"], "no taxon labelled 't99'"),
+    (["--taxa", "4", "--length", "10", "--gappy", "auto", "--chimera", "auto", "--saturate", "auto"],
+     "needs at least 5 taxa"),
+    (["--taxa", "5", "--length", "10", "--alphabet", "protein", "--model", "k80"], "not a protein model"),
+    (["--taxa", "five", "--length", "10"], "invalid int value"),
+])
+def test_bad_options_exit_2_one_line(tmp_path, args, needle):
+    out = tmp_path / "a.fasta"
+    p = run_cli("simulate", "-o", out, "--tree-out", tmp_path / "t.nwk", *args)
+    assert p.returncode == 2
+    lines = p.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("seqdist: error: ") and needle in lines[0], p.stderr
+    assert list(tmp_path.iterdir()) == []
