@@ -1,0 +1,27 @@
+"""Distance trees: building, Newick text, comparison and the impact report.
+
+Public API
+----------
+:class:`Tree`, :class:`Node`
+    Our small tree type (``Tree.to_phylo()`` gives a Biopython tree).
+:func:`build_tree`, :func:`neighbor_joining`, :func:`bionj`, :func:`upgma`
+    Builders on a :class:`~seqdist.matrix.DistanceMatrix`.
+:func:`write_newick`, :func:`read_newick`, :func:`read_newick_file`
+    Newick text.
+:func:`compare_trees`, :func:`splits`, :func:`robinson_foulds`,
+:func:`branch_score`, :func:`cophenetic_correlation`
+    Comparison measures (see :mod:`seqdist.trees.compare`).
+
+Examples
+--------
+>>> from seqdist import DistanceMatrix
+>>> dm = DistanceMatrix.from_array([[0, 3, 4], [3, 0, 5], [4, 5, 0]], list("abc"))
+>>> build_tree(dm, "nj").to_newick()
+'(a:1.0,b:2.0,c:3.0);\\n'
+"""
+
+from .build import METHODS, bionj, build_tree, check_matrix, neighbor_joining, upgma  # noqa: F401
+from .compare import (branch_score, compare_trees, cophenetic_correlation, robinson_foulds,  # noqa: F401
+                      splits)
+from .newick import quote_label, read_newick, read_newick_file, write_newick  # noqa: F401
+from .tree import Node, Tree, rooted_for_drawing  # noqa: F401
