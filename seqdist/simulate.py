@@ -92,7 +92,9 @@ class Model:
         """
         from scipy.linalg import expm
 
-        return np.stack([expm(self.Q * (float(r) * float(t))) for r in np.asarray(rates, dtype=float)])
+        # One batched call (scipy >= 1.9 takes stacks of matrices): much cheaper than one call per rate.
+        scaled = np.asarray(rates, dtype=float).reshape(-1) * float(t)
+        return expm(self.Q[None, :, :] * scaled[:, None, None])
 
     def transition_rows(self, t: float, site_rates: np.ndarray, parent_states: np.ndarray) -> np.ndarray:
         """Rows ``P_s(t)[parent_s, :]`` for per-site rates, vectorised over sites.
@@ -609,14 +611,15 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
     k = len(m.letters)
     states = np.empty((2 * n - 1, n_cols), dtype=np.int8)
     states[tree.root] = rng.choice(k, size=n_cols, p=m.freqs)
-    for node in range(2 * n - 3, -1, -1):  # parents before children; vectorised over sites
-        par = states[tree.parent[node]]
-        if cat is not None:
-            P = m.transition_matrices(tree.length[node], rate_values)   # (categories, k, k)
-            rows = P[cat, par]
-        else:
-            rows = m.transition_rows(tree.length[node], site_rate, par)
-        states[node] = _draw(rows, rng)
+    with _one_blas_thread():
+        for node in range(2 * n - 3, -1, -1):  # parents before children; vectorised over sites
+            par = states[tree.parent[node]]
+            if cat is not None:
+                P = m.transition_matrices(tree.length[node], rate_values)   # (categories, k, k)
+                rows = P[cat, par]
+            else:
+                rows = m.transition_rows(tree.length[node], site_rate, par)
+            states[node] = _draw(rows, rng)
 
     cols = keep[:length]
     letters = np.frombuffer(m.letters.encode("ascii"), dtype=np.uint8)
@@ -629,6 +632,22 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
               "rate_categories": None if alpha is None else int(rate_categories),
               "scale": float(scale), "clock": bool(clock), "gap_rate": gap_rate, "gap_length": gap_length}
     return Simulation(records, tree, m, site_rate[cols].copy(), params, [])
+
+
+def _one_blas_thread():
+    """Limit BLAS to one thread while exponentiating many tiny matrices.
+
+    Measured here: ``expm`` of 4x4 matrices ran about 70x slower with
+    OpenBLAS's two threads on a loaded 2-core machine than with one. Uses
+    threadpoolctl when it is installed, else does nothing.
+    """
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # pragma: no cover - threadpoolctl is optional
+        import contextlib
+
+        return contextlib.nullcontext()
+    return threadpool_limits(1)
 
 
 def _draw(rows: np.ndarray, rng) -> np.ndarray:

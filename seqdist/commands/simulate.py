@@ -20,10 +20,12 @@ example:
 
 
 def _floats(text: str) -> list[float]:
+    import argparse
+
     try:
         return [float(x) for x in text.split(",") if x.strip()]
     except ValueError:
-        raise InputError(f"--freqs: expected comma-separated numbers, got '{text}'") from None
+        raise argparse.ArgumentTypeError(f"expected comma-separated numbers, got '{text}'") from None
 
 
 def register(subs, common):
