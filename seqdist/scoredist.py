@@ -113,25 +113,38 @@ def _init_worker(letters: str, values: np.ndarray, mode: str, gap_open: float, g
     _W.update(aligner=al, values=np.asarray(values, dtype=np.float64), seqs=list(seqs), formula=formula,
               mode=mode, codes=[code[np.frombuffer(s.encode("latin-1"), dtype=np.uint8)] for s in seqs],
               k=len(letters))
+    _W["comp"] = [np.bincount(c, minlength=len(letters)).astype(np.float64) for c in _W["codes"]]
 
 
-def _random_score(aln, ca: np.ndarray, cb: np.ndarray, s_ab: float) -> float:
-    """Feng & Doolittle's S_rand from one optimal alignment (see the module docs)."""
+def _random_score(aln, i: int, j: int, s_ab: float) -> float:
+    """Feng & Doolittle's S_rand from one optimal alignment (see the module docs).
+
+    Everything comes from the alignment's coordinate path (one numpy pass; Biopython's
+    ``aligned`` and ``length`` properties cost more than the formula itself).
+    """
     S, k = _W["values"], _W["k"]
-    coords = aln.coordinates
-    length = int(aln.length)
+    ca, cb = _W["codes"][i], _W["codes"][j]
+    c = np.asarray(aln.coordinates)
+    da, db = np.diff(c[0]), np.diff(c[1])
+    length = int(np.maximum(da, db).sum())  # a step is either aligned (da = db) or a gap
     if length <= 0:
         return math.nan
-    blocks = aln.aligned  # (2, nblocks, 2): [start, end) in a and in b
-    ia = np.concatenate([np.arange(s, e) for s, e in blocks[0]]) if len(blocks[0]) else np.empty(0, np.intp)
-    ib = np.concatenate([np.arange(s, e) for s, e in blocks[1]]) if len(blocks[1]) else np.empty(0, np.intp)
-    subst = float(S[ca[ia], cb[ib]].sum()) if ia.size else 0.0
+    m = (da > 0) & (db > 0)
+    runs = da[m]
+    total = int(runs.sum())
+    if total:
+        offs = np.arange(total) - np.repeat(np.cumsum(runs) - runs, runs)
+        ia = np.repeat(c[0, :-1][m], runs) + offs
+        ib = np.repeat(c[1, :-1][m], runs) + offs
+        subst = float(S[ca[ia], cb[ib]].sum())
+    else:
+        subst = 0.0
     gap_part = s_ab - subst  # what the gaps scored (<= 0)
     if _W["mode"] == "local":
-        ca = ca[int(coords[0, 0]):int(coords[0, -1])]
-        cb = cb[int(coords[1, 0]):int(coords[1, -1])]
-    na = np.bincount(ca, minlength=k).astype(np.float64)
-    nb = np.bincount(cb, minlength=k).astype(np.float64)
+        na = np.bincount(ca[int(c[0, 0]):int(c[0, -1])], minlength=k).astype(np.float64)
+        nb = np.bincount(cb[int(c[1, 0]):int(c[1, -1])], minlength=k).astype(np.float64)
+    else:
+        na, nb = _W["comp"][i], _W["comp"][j]
     return float(na @ S @ nb) / length + gap_part
 
 
@@ -152,7 +165,7 @@ def _score_chunk(pairs: np.ndarray) -> np.ndarray:
             except IndexError:  # local mode with nothing scoring above 0
                 out[r] = (s_ab, math.nan)
                 continue
-            out[r] = (s_ab, _random_score(aln, codes[i], codes[j], s_ab))
+            out[r] = (s_ab, _random_score(aln, i, j, s_ab))
         else:
             out[r, 0] = float(al.score(a, b))
     return out

@@ -179,3 +179,24 @@ def test_cli_stdout_and_options(tmp_path, cli):
     lines = r.stdout.splitlines()
     assert lines[0].split("\t")[1:] == list(PROTEINS) and len(lines) == 6
     assert cli("scoredist", fa, "-o", "-", "--mode", "semi").returncode == 2
+
+
+@pytest.mark.parametrize("mode", ["global", "local"])
+def test_random_score_against_a_plain_loop(mode):
+    # Plain reference for the vectorised S_rand: Biopython's own `aligned` blocks and
+    # `length`, summed in Python loops (Feng & Doolittle 1996 formula as in the module docs).
+    m = substitution_matrices.load("BLOSUM62")
+    al = PairwiseAligner(mode=mode, substitution_matrix=m, open_gap_score=-11, extend_gap_score=-1)
+    ids, seqs = list(PROTEINS), list(PROTEINS.values())
+    r = score_distances(ids, seqs, "BLOSUM62", mode=mode, progress=False)
+    for i in range(len(seqs)):
+        for j in range(i + 1, len(seqs)):
+            a, b = seqs[i], seqs[j]
+            aln = al.align(a, b)[0]
+            subst = sum(m[a[x], b[y]] for (s0, e0), (s1, _) in zip(*aln.aligned) for x, y in
+                        zip(range(s0, e0), range(s1, s1 + e0 - s0)))
+            c = aln.coordinates
+            sa, sb = (a, b) if mode == "global" else (a[c[0, 0]:c[0, -1]], b[c[1, 0]:c[1, -1]])
+            comp = sum(m[x, y] for x in sa for y in sb)
+            want = comp / aln.length + (aln.score - subst)
+            assert r.random_scores[i, j] == pytest.approx(want, rel=1e-12, abs=1e-9)
