@@ -43,6 +43,11 @@ class RepairProblem:
         Seed for any randomised step.
     options : dict
         Objective-specific options (e.g. ``{"stage2": "l1"}`` for fewest).
+    labels : tuple of str
+        Taxon labels (for messages; empty when the caller gave none).
+    deadline : float or None
+        ``time.perf_counter()`` value at which the time limit runs out
+        (set by the engine together with ``time_limit``).
     """
 
     D: np.ndarray
@@ -54,10 +59,29 @@ class RepairProblem:
     progress: Callable | None = None
     seed: int = 0
     options: dict = field(default_factory=dict)
+    labels: tuple = ()
+    deadline: float | None = None
 
     @property
     def n(self) -> int:
         return self.D.shape[0]
+
+    def label(self, i: int) -> str:
+        """The label of taxon ``i`` (``t{i}`` when no labels were given)."""
+        return self.labels[i] if self.labels else f"t{i}"
+
+    def remaining(self) -> float | None:
+        """Seconds left before the deadline (None without a time limit)."""
+        if self.deadline is None:
+            return None
+        import time
+
+        return max(0.0, self.deadline - time.perf_counter())
+
+    def report(self, fraction: float | None, note: str | None = None) -> None:
+        """Send progress to the engine's bar, if any."""
+        if self.progress is not None:
+            self.progress(fraction, note)
 
 
 @dataclass

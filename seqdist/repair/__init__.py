@@ -1,0 +1,84 @@
+"""Metric repair: a metric close to the input under a chosen objective.
+
+One public function, :func:`repair`, and one module per objective behind it:
+``seqdist.repair.<objective>`` exposes ``solve(problem) -> Solution``
+(:mod:`seqdist.repair.problem`) and is found by name, so every objective
+shares the engine (:mod:`seqdist.repair.engine`): input checks, weights,
+locks, missing entries, final verification and the report.
+
+Objectives: ``shrink`` (decrease only; the shortest-path closure),
+``grow`` (increase only; fewest increased entries, then least increase),
+``fewest`` (fewest changed entries, either direction), ``l1`` and ``l2``.
+See docs/repair.md for the algorithms, bounds and guarantees.
+
+A repaired matrix is altered data: report the objective and the list of
+changed entries with any result you publish.
+"""
+
+from __future__ import annotations
+
+from .engine import ALTERED_NOTE, OBJECTIVES, RepairResult, format_changes, load_objective
+
+
+def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, seed: int = 0,
+           **options) -> RepairResult:
+    """Return a metric close to ``dm`` under ``objective``.
+
+    Parameters
+    ----------
+    dm : DistanceMatrix or array_like
+        The input distances; NaN marks a missing entry (filled in the output
+        by shortest paths over the repaired observed entries).
+    objective : {"shrink", "grow", "fewest", "l1", "l2"}
+        What "close" means (see the module docs).
+    weights : DistanceMatrix or array_like, optional
+        Non-negative weight on the change of each entry (same labels);
+        0 means the entry is free. Default 1 everywhere.
+    lock : sequence of pairs, optional
+        Entries that must not change: pairs of labels or indices (e.g. from
+        :func:`seqdist.io.read_pairs`), or an (n, n) boolean mask.
+    tol : float, optional
+        Metric tolerance (default 1e-9 times the largest entry); an entry
+        counts as changed when it moves by more than ``tol``.
+    time_limit : float, optional
+        Seconds; when reached, the best verified answer so far is returned
+        with ``optimal`` False.
+    seed : int
+        Seed of any randomised step (results are deterministic for a seed).
+    **options
+        Objective-specific options, e.g. ``method="exact"`` or
+        ``method="heuristic"`` for fewest and grow; ``progress=False``
+        turns the progress bar off.
+
+    Returns
+    -------
+    RepairResult
+        ``matrix`` (a metric within ``tol``), ``changes`` (label, label,
+        before, after, change) and ``report`` (the contract's JSON keys:
+        objective, changed_entries, l1_change, l2_change, max_change,
+        violated_before, violated_after, objective_value, lower_bound,
+        optimal, seconds, and more).
+
+    Raises
+    ------
+    InputError
+        Unknown objective, bad weights or locks (exit code 2 on the command line).
+    InfeasibleError
+        Locks that no repair of this objective can keep (exit code 3).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> D = np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]])
+    >>> r = repair(D, "shrink", progress=False)
+    >>> r.matrix.values[0, 1], r.report["changed_entries"]
+    (2.0, 1)
+    >>> r.changes
+    [('t0', 't1', 5.0, 2.0, -3.0)]
+    """
+    from .engine import run
+
+    return run(dm, objective, weights=weights, lock=lock, tol=tol, time_limit=time_limit, seed=seed, **options)
+
+
+__all__ = ["repair", "RepairResult", "OBJECTIVES", "ALTERED_NOTE", "format_changes", "load_objective"]

@@ -1,0 +1,543 @@
+"""The repair engine that every objective shares.
+
+:func:`run` does the same steps for every objective:
+
+1. **Input.** The matrix (NaN = missing), weights (a matrix with the same
+   labels, non-negative, 0 = free; missing entries are free), locks (pairs of
+   labels; a lock is an infinite weight) and the tolerance become a
+   :class:`~seqdist.repair.problem.RepairProblem`.
+2. **Locks.** One all-pairs shortest-path run over the locked entries: a
+   locked entry longer than the shortest locked path between its ends (by
+   more than ``tol``) can never be kept, whatever the objective, and the
+   request fails with :class:`~seqdist.errors.InfeasibleError` naming the
+   entry and the path. ``shrink`` and ``grow`` have their own, stronger
+   conditions (see :func:`check_locks`).
+3. **Solve.** ``seqdist.repair.<objective>.solve(problem) -> Solution``,
+   found by name (:func:`load_objective`), so new objectives plug in
+   without changes here.
+4. **Finish.** Entries within ``tol`` of the input are set back to it
+   exactly; missing entries are filled by shortest paths over the repaired
+   observed entries (pairs in different connected groups of observed
+   entries: the largest of those shortest-path distances, which keeps the
+   matrix a metric); locks are checked; and the result is verified to be a
+   metric within ``tol``. A result that fails is never returned: that is an
+   internal error.
+5. **Report.** The contract's keys (objective, changed_entries, l1_change,
+   l2_change, max_change, violated_before, violated_after, objective_value,
+   lower_bound, optimal, seconds) and more, plus the list of changes.
+
+A repaired matrix is altered data: the report says so, and users should
+give the objective and the list of changes with any result they publish.
+"""
+
+from __future__ import annotations
+
+import importlib
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..errors import InfeasibleError, InputError
+from ..matrix import DistanceMatrix, default_tol
+from .problem import RepairProblem, Solution
+
+OBJECTIVES = ("shrink", "grow", "fewest", "l1", "l2")
+
+ALTERED_NOTE = ("A repaired matrix is altered data: report the objective and the list of changed "
+                "entries with any result you publish.")
+
+#: Above this size the metric test uses one shortest-path run (a sufficient
+#: test, see :func:`verify_metric`) before the triangle scan.
+_FAST_VERIFY_N = 400
+
+
+@dataclass
+class RepairResult:
+    """What :func:`seqdist.repair.repair` returns.
+
+    Attributes
+    ----------
+    matrix : DistanceMatrix
+        The repaired matrix (a metric within ``tol``; missing entries filled).
+    changes : list of tuple
+        ``(label, label, before, after, change)`` for every changed entry and
+        every filled missing entry (``before`` and ``change`` NaN there), in
+        row order of the upper triangle.
+    report : dict
+        The contract's JSON keys and more (see :func:`build_report`).
+    """
+
+    matrix: DistanceMatrix
+    changes: list = field(default_factory=list)
+    report: dict = field(default_factory=dict)
+
+
+# ------------------------------------------------------------- dispatch
+def load_objective(name: str):
+    """The ``solve`` function of objective ``name`` (module ``seqdist.repair.<name>``).
+
+    Raises
+    ------
+    InputError
+        Unknown objective, or one this installation does not provide.
+    """
+    if name not in OBJECTIVES:
+        raise InputError(f"unknown objective '{name}' (choose from {', '.join(OBJECTIVES)})")
+    modname = f"{__package__}.{name}"
+    try:
+        mod = importlib.import_module(modname)
+    except ModuleNotFoundError as exc:
+        if exc.name == modname:
+            raise InputError(f"objective '{name}' is not available in this installation") from None
+        raise
+    return mod.solve
+
+
+# ---------------------------------------------------------------- input
+def as_matrix(dm) -> DistanceMatrix:
+    """A :class:`DistanceMatrix` from a matrix or anything array-like (validated)."""
+    if isinstance(dm, DistanceMatrix):
+        return dm
+    return DistanceMatrix.from_array(dm)
+
+
+def weights_array(weights, dm: DistanceMatrix, observed: np.ndarray, source: str = "weights") -> np.ndarray:
+    """Validated per-entry weights (1 by default; 0 on missing entries and the diagonal).
+
+    ``weights`` may be None, a :class:`DistanceMatrix` with the same labels
+    (any order), or an (n, n) array. Weights must be finite and non-negative
+    on every observed entry; NaN is allowed only where the distance is
+    missing.
+    """
+    n = dm.n
+    if weights is None:
+        w = np.ones((n, n))
+    elif isinstance(weights, DistanceMatrix):
+        if weights.labels != dm.labels:
+            if sorted(weights.labels) != sorted(dm.labels):
+                extra = [lab for lab in weights.labels if lab not in dm._index_map()]
+                absent = [lab for lab in dm.labels if lab not in weights._index_map()]
+                what = f"label '{extra[0]}' is not in the matrix" if extra else f"label '{absent[0]}' is missing"
+                raise InputError(f"{source}: {what}; the weights need the same labels as the matrix")
+            weights = weights.subset(dm.labels)
+        w = np.array(weights.values, dtype=np.float64)
+    else:
+        try:
+            w = np.array(weights, dtype=np.float64)
+        except (TypeError, ValueError):
+            raise InputError(f"{source}: not numeric") from None
+        if w.shape != (n, n):
+            raise InputError(f"{source}: shape {w.shape} does not match the {n} x {n} matrix")
+    bad = observed & ~np.isfinite(w)
+    if bad.any():
+        i, j = np.argwhere(bad)[0]
+        raise InputError(f"{source}: entry ({dm.labels[i]}, {dm.labels[j]}) is missing or infinite, "
+                         "but the distance is observed")
+    neg = observed & (w < 0)
+    if neg.any():
+        i, j = np.argwhere(neg)[0]
+        raise InputError(f"{source}: negative weight {float(w[i, j])!r} at ({dm.labels[i]}, {dm.labels[j]})")
+    if np.abs(np.where(observed, w - w.T, 0.0)).max(initial=0.0) > 0:
+        i, j = np.argwhere(observed & (w != w.T))[0]
+        raise InputError(f"{source}: asymmetric at ({dm.labels[i]}, {dm.labels[j]})")
+    w = np.where(observed, w, 0.0)
+    return w
+
+
+def lock_mask(lock, dm: DistanceMatrix, observed: np.ndarray) -> np.ndarray:
+    """Symmetric boolean mask of locked entries.
+
+    ``lock`` may be None, an (n, n) boolean array, or a sequence of pairs of
+    labels or of indices (e.g. from :func:`seqdist.io.read_pairs`). Locking a
+    missing entry is an input error (there is no value to keep).
+    """
+    n = dm.n
+    mask = np.zeros((n, n), dtype=bool)
+    if lock is None:
+        return mask
+    arr = np.asarray(lock) if not isinstance(lock, (list, tuple)) else None
+    if arr is not None and arr.dtype == bool:
+        if arr.shape != (n, n):
+            raise InputError(f"lock mask of shape {arr.shape} does not match the {n} x {n} matrix")
+        mask = arr | arr.T
+    else:
+        for pair in lock:
+            a, b = pair
+            i = dm.index(a) if isinstance(a, str) else int(a)
+            j = dm.index(b) if isinstance(b, str) else int(b)
+            if not (0 <= i < n and 0 <= j < n):
+                raise InputError(f"locked pair ({a}, {b}) is outside the {n} x {n} matrix")
+            if i == j:
+                raise InputError(f"locked pair ({dm.labels[i]}, {dm.labels[j]}) needs two different labels")
+            mask[i, j] = mask[j, i] = True
+    np.fill_diagonal(mask, False)
+    bad = mask & ~observed
+    if bad.any():
+        i, j = np.argwhere(bad)[0]
+        raise InputError(f"locked pair ({dm.labels[i]}, {dm.labels[j]}) is a missing entry: there is no value to keep")
+    return mask
+
+
+def build_problem(dm: DistanceMatrix, weights=None, lock=None, tol=None, time_limit=None, seed=0,
+                  options=None, progress=None) -> RepairProblem:
+    """Turn user input into a :class:`RepairProblem` (validated)."""
+    D = np.array(dm.values, dtype=np.float64)
+    n = dm.n
+    observed = ~np.isnan(D)
+    np.fill_diagonal(observed, False)
+    if tol is None:
+        tol = default_tol(D)
+    tol = float(tol)
+    if not np.isfinite(tol) or tol < 0:
+        raise InputError(f"--tol must be a finite non-negative number, got {tol!r}")
+    if time_limit is not None:
+        time_limit = float(time_limit)
+        if not (time_limit > 0):
+            raise InputError(f"--time-limit must be a positive number of seconds, got {time_limit!r}")
+    w = weights_array(weights, dm, observed)
+    locked = lock_mask(lock, dm, observed)
+    w[locked] = np.inf
+    deadline = None if time_limit is None else time.perf_counter() + time_limit
+    return RepairProblem(D=D, weights=w, locked=locked, observed=observed, tol=tol, time_limit=time_limit,
+                         progress=progress, seed=int(seed), options=dict(options or {}), labels=dm.labels,
+                         deadline=deadline)
+
+
+# ---------------------------------------------------------------- locks
+def _graph(D: np.ndarray, mask: np.ndarray) -> np.ndarray:
+    W = np.where(mask, D, np.inf)
+    np.fill_diagonal(W, 0.0)
+    return W
+
+
+def describe_path(problem: RepairProblem, W: np.ndarray, i: int, j: int) -> str:
+    """``a - c - b (length 3.5)`` for one shortest path over ``W`` from i to j."""
+    from ._cycles import path_between
+
+    path = path_between(W, i, j)
+    if path is None:
+        return "(no path)"
+    length = sum(W[a, b] for a, b in zip(path[:-1], path[1:]))
+    return f"{' - '.join(problem.label(v) for v in path)} (length {length:.12g})"
+
+
+def _conflicts(bad: np.ndarray) -> list[tuple[int, int]]:
+    iu = np.argwhere(np.triu(bad, 1))
+    return [(int(a), int(b)) for a, b in iu]
+
+
+def check_locks(problem: RepairProblem, objective: str) -> None:
+    """Raise :class:`InfeasibleError` when no repair of ``objective`` can keep the locks.
+
+    * Any objective: a locked entry longer than the shortest path over the
+      other locked entries (by more than ``tol``). Otherwise the locked entries
+      alone satisfy every cycle inequality, and shortest paths over them (with
+      a huge length on every other pair) give a metric that keeps them.
+    * ``shrink`` (decrease only): the closure of the whole matrix is the
+      largest decrease-only metric, so the locks are feasible exactly when the
+      closure does not decrease a locked entry.
+    * ``grow`` (increase only): with ``U`` the shortest paths over the locked
+      entries, every metric keeping the locks has ``X <= U``, and growing
+      needs ``X >= D``; shortest paths with a huge length on every unlocked
+      pair reach ``U`` within each group of locked-connected taxa. So grow is
+      feasible exactly when every observed entry satisfies ``D <= U + tol``.
+    """
+    from ..paths import apsp
+
+    L = problem.locked
+    if not L.any():
+        return
+    D, tol = problem.D, problem.tol
+    WL = _graph(D, L)
+    UL = apsp(WL)
+    bad = L & (D > UL + tol)
+    if bad.any():
+        pairs = _conflicts(bad)
+        msgs = []
+        for i, j in pairs[:3]:
+            WLe = WL.copy()
+            WLe[i, j] = WLe[j, i] = np.inf
+            msgs.append(f"({problem.label(i)}, {problem.label(j)}) = {D[i, j]:.12g} is longer than the locked path "
+                        f"{describe_path(problem, WLe, i, j)}")
+        more = f" and {len(pairs) - 3} more" if len(pairs) > 3 else ""
+        raise InfeasibleError("locked entries conflict, no repair can keep them all: "
+                              + "; ".join(msgs) + more)
+    if objective == "shrink":
+        WD = _graph(D, problem.observed)
+        A = apsp(WD)
+        bad = L & (D > A + tol)
+        if bad.any():
+            pairs = _conflicts(bad)
+            msgs = []
+            for i, j in pairs[:3]:
+                WDe = WD.copy()
+                WDe[i, j] = WDe[j, i] = np.inf
+                msgs.append(f"locked ({problem.label(i)}, {problem.label(j)}) = {D[i, j]:.12g} is longer than the path "
+                            f"{describe_path(problem, WDe, i, j)}")
+            more = f" and {len(pairs) - 3} more" if len(pairs) > 3 else ""
+            raise InfeasibleError("shrink only decreases entries, so it cannot keep these locks: "
+                                  + "; ".join(msgs) + more + " (try --objective fewest or l1)")
+    elif objective == "grow":
+        bad = problem.observed & ~L & (D > UL + tol)
+        if bad.any():
+            pairs = _conflicts(bad)
+            msgs = []
+            for i, j in pairs[:3]:
+                msgs.append(f"({problem.label(i)}, {problem.label(j)}) = {D[i, j]:.12g} may not decrease but is longer "
+                            f"than the locked path {describe_path(problem, WL, i, j)}")
+            more = f" and {len(pairs) - 3} more" if len(pairs) > 3 else ""
+            raise InfeasibleError("grow only increases entries, so it cannot keep these locks: "
+                                  + "; ".join(msgs) + more + " (try --objective fewest or l1)")
+
+
+# --------------------------------------------------------------- finish
+def fill_missing(X: np.ndarray, observed: np.ndarray) -> tuple[np.ndarray, dict]:
+    """Fill missing entries by shortest paths over the observed entries of ``X``.
+
+    Pairs with no path (the observed entries fall into several connected
+    groups) get one value for all: the largest shortest-path distance within
+    the groups. Such a constant ``C`` at least as large as every within-group
+    distance keeps the matrix a metric (a triangle with sides from two or
+    three groups has two sides ``C``, or three). Returns the filled matrix and
+    a dict with ``filled_entries``, ``groups`` and ``between_groups_value``.
+    """
+    from ..paths import apsp
+
+    n = X.shape[0]
+    missing = ~observed.copy()
+    np.fill_diagonal(missing, False)
+    info = {"filled_entries": int(missing.sum() // 2), "groups": 1, "between_groups_value": None}
+    out = np.array(X, dtype=np.float64)
+    np.fill_diagonal(out, 0.0)
+    if not missing.any():
+        return out, info
+    A = apsp(np.where(observed, out, np.inf))
+    unreachable = ~np.isfinite(A)
+    if unreachable.any():
+        from scipy.sparse.csgraph import connected_components
+        from scipy.sparse import csr_matrix
+
+        ncomp, _ = connected_components(csr_matrix(np.isfinite(A) & ~np.eye(n, dtype=bool)), directed=False)
+        fin = A[np.isfinite(A)]
+        C = float(fin.max()) if fin.size else 0.0
+        A = np.where(unreachable, C, A)
+        info["groups"] = int(ncomp)
+        info["between_groups_value"] = C
+    out[missing] = A[missing]
+    return out, info
+
+
+def verify_metric(X: np.ndarray, tol: float) -> bool:
+    """The contract's metric test within ``tol``.
+
+    For n above a few hundred, one shortest-path run decides first: when no
+    entry exceeds the shortest path between its ends by more than ``tol``,
+    every triangle holds within ``tol`` (a sufficient condition, and
+    n^3/2 min-plus steps against the triangle scan's n^3/6 with heavier
+    steps). Otherwise, and always for small n, :func:`seqdist.metric.is_metric`
+    has the final word.
+    """
+    from ..metric import is_metric
+
+    d = np.asarray(X, dtype=np.float64)
+    if not np.isfinite(d).all() or (d < 0).any():
+        return False
+    if np.abs(np.diagonal(d)).max(initial=0.0) > tol or np.abs(d - d.T).max(initial=0.0) > tol:
+        return False
+    if d.shape[0] > _FAST_VERIFY_N:
+        from ..paths import apsp
+
+        if float((d - apsp(d)).max(initial=0.0)) <= tol:
+            return True
+    return is_metric(d, tol)
+
+
+def _finish(problem: RepairProblem, X: np.ndarray, snap: bool) -> tuple[np.ndarray, dict]:
+    D, obs, tol = problem.D, problem.observed, problem.tol
+    out = np.array(X, dtype=np.float64)
+    if snap:
+        close = obs & (np.abs(out - D) <= tol)
+        out[close] = D[close]
+    out[problem.locked] = D[problem.locked]
+    out = 0.5 * (out + out.T)  # exact symmetry (identical halves stay identical)
+    out, info = fill_missing(out, obs)
+    return out, info
+
+
+def finish(problem: RepairProblem, solution: Solution, objective: str) -> tuple[np.ndarray, dict]:
+    """Snap, fill, check locks and direction, verify; never return a non-metric."""
+    D, obs, tol = problem.D, problem.observed, problem.tol
+    X = np.asarray(solution.X, dtype=np.float64)
+    if X.shape != D.shape:
+        raise RuntimeError(f"objective {objective} returned shape {X.shape} for a {D.shape} problem")
+    if not np.isfinite(X[obs]).all():
+        raise RuntimeError(f"objective {objective} returned non-finite values on observed entries")
+    moved = problem.locked & (np.abs(X - D) > tol)
+    if moved.any():
+        i, j = np.argwhere(moved)[0]
+        raise RuntimeError(f"objective {objective} moved locked entry ({problem.label(i)}, {problem.label(j)})")
+    if objective == "shrink" and (obs & (X > D + tol)).any():
+        raise RuntimeError("shrink increased an entry")
+    if objective == "grow" and (obs & (X < D - tol)).any():
+        raise RuntimeError("grow decreased an entry")
+    for snap in (True, False):
+        out, info = _finish(problem, X, snap)
+        if verify_metric(out, tol):
+            info["snapped"] = snap
+            return out, info
+    raise RuntimeError(f"objective {objective} returned a matrix that is not a metric within tol = {tol:g}; "
+                       "nothing was written")
+
+
+# --------------------------------------------------------------- report
+def change_rows(labels, D: np.ndarray, X: np.ndarray, observed: np.ndarray, tol: float) -> list[tuple]:
+    """``(label, label, before, after, change)`` for changed and filled entries (upper triangle)."""
+    n = D.shape[0]
+    iu, ju = np.triu_indices(n, 1)
+    obs = observed[iu, ju]
+    before = D[iu, ju]
+    after = X[iu, ju]
+    keep = ~obs | (np.abs(after - before) > tol)
+    rows = []
+    for i, j, b, a, o in zip(iu[keep], ju[keep], before[keep], after[keep], obs[keep]):
+        rows.append((labels[i], labels[j], float(b) if o else float("nan"), float(a),
+                     float(a - b) if o else float("nan")))
+    return rows
+
+
+def format_changes(rows: list[tuple]) -> str:
+    """The ``--changes`` file: a tsv with one line per changed or filled entry.
+
+    Columns ``label_a, label_b, before, after, change``; a filled missing
+    entry has ``before`` and ``change`` written as ``NA``.
+
+    Examples
+    --------
+    >>> print(format_changes([("a", "b", 5.0, 2.0, -3.0)]), end="")
+    label_a	label_b	before	after	change
+    a	b	5.0	2.0	-3.0
+    """
+    from ..io import _quote_cell
+
+    def f(v):
+        return "NA" if v != v else repr(float(v))
+
+    lines = ["label_a\tlabel_b\tbefore\tafter\tchange"]
+    for a, b, before, after, change in rows:
+        lines.append("\t".join([_quote_cell(a, "\t"), _quote_cell(b, "\t"), f(before), f(after), f(change)]))
+    return "\n".join(lines) + "\n"
+
+
+def build_report(problem: RepairProblem, objective: str, X: np.ndarray, solution: Solution, fill: dict,
+                 seconds: float, violated_before: tuple[int, float], objective_value: float) -> dict:
+    """The report dict: the contract's keys first, then more."""
+    from ..metric import count_violations
+
+    D, obs, tol = problem.D, problem.observed, problem.tol
+    iu = np.triu(obs, 1)
+    diff = (X - D)[iu]
+    changed = np.abs(diff) > tol
+    ad = np.abs(diff)
+    w = problem.weights[iu]
+    # a verified metric has no violated triangle; counting again is a cheap double check for small n
+    violated_after = count_violations(X, tol)[0] if problem.n <= 1000 else 0
+    n = problem.n
+    rep = {
+        "objective": objective,
+        "changed_entries": int(changed.sum()),
+        "l1_change": float(ad.sum()),
+        "l2_change": float((diff ** 2).sum()),
+        "max_change": float(ad.max(initial=0.0)),
+        "violated_before": int(violated_before[0]),
+        "violated_after": int(violated_after),
+        "objective_value": float(objective_value),
+        "lower_bound": float(solution.lower_bound),
+        "optimal": bool(solution.optimal),
+        "seconds": round(float(seconds), 4),
+        "n": n,
+        "entries": n * (n - 1) // 2,
+        "observed_entries": int(iu.sum()),
+        "increased_entries": int((diff > tol).sum()),
+        "decreased_entries": int((diff < -tol).sum()),
+        "filled_entries": fill["filled_entries"],
+        "weighted_l1_change": _wsum(w[changed], ad[changed]),
+        "max_violation_before": float(violated_before[1]),
+        "gap": float(max(0.0, objective_value - solution.lower_bound)),
+        "tol": tol,
+        "time_limit": problem.time_limit,
+        "locked_entries": int(np.triu(problem.locked, 1).sum()),
+        "free_entries": int((np.triu(obs, 1) & (problem.weights == 0)).sum()),
+        "weights": "uniform" if bool(np.all(w[np.isfinite(w)] == 1)) else "given",
+        "observed_groups": fill["groups"],
+        "between_groups_value": fill["between_groups_value"],
+        "seed": problem.seed,
+        "details": dict(solution.details),
+        "note": ALTERED_NOTE,
+    }
+    if problem.n > 1000:
+        rep["violated_after_by"] = "verified metric (every triangle within tol)"
+    return rep
+
+
+def _wsum(w: np.ndarray, x: np.ndarray) -> float:
+    """sum(w * x) over changed entries (a locked entry never changes, so no inf * 0)."""
+    return float((w * x).sum()) if x.size else 0.0
+
+
+# ------------------------------------------------------------------ run
+class _Bar:
+    def __init__(self, objective: str):
+        from ..console import Progress
+
+        self.bar = Progress(f"repair ({objective})", total=1.0)
+
+    def __call__(self, fraction=None, note=None):
+        if fraction is not None:
+            self.bar.done = float(min(1.0, max(0.0, fraction)))
+        if self.bar.done > 0:  # no line (and no estimate) before the first real step
+            self.bar.update(0.0, note)
+
+    def close(self):
+        self.bar.close()
+
+
+def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, seed=0,
+        progress: bool = True, **options) -> RepairResult:
+    """Repair ``dm`` under ``objective``; see :func:`seqdist.repair.repair`."""
+    from ..metric import count_violations
+
+    t0 = time.perf_counter()
+    solve = load_objective(objective)
+    dm = as_matrix(dm)
+    bar = _Bar(objective) if progress else None
+    try:
+        problem = build_problem(dm, weights, lock, tol, time_limit, seed, options, bar)
+        check_locks(problem, objective)
+        before = count_violations(problem.D, problem.tol)
+        solution = solve(problem)
+        X, fill = finish(problem, solution, objective)
+    finally:
+        if bar is not None:
+            bar.close()
+    D, obs, tol = problem.D, problem.observed, problem.tol
+    iu = np.triu(obs, 1)
+    ad = np.abs(X - D)[iu]
+    w = problem.weights[iu]
+    if objective in ("fewest", "grow"):
+        # what the objective counts, measured on the delivered matrix
+        objective_value = float(w[ad > tol].sum())
+    elif objective == "shrink":
+        objective_value = _wsum(w[ad > tol], ad[ad > tol])
+    else:
+        objective_value = float(solution.objective_value)
+    lb = float(solution.lower_bound)
+    if lb > objective_value + 1e-9 * max(1.0, abs(objective_value)):
+        raise RuntimeError(f"objective {objective}: lower bound {lb} above the value {objective_value}")
+    seconds = time.perf_counter() - t0
+    rep = build_report(problem, objective, X, solution, fill, seconds, before, objective_value)
+    if solution.optimal and objective in ("fewest", "grow") and objective_value > lb + 1e-9 * max(1.0, lb):
+        rep["optimal"] = False
+    matrix = DistanceMatrix._trusted(X, dm.labels)
+    rows = change_rows(dm.labels, D, X, obs, tol)
+    return RepairResult(matrix=matrix, changes=rows, report=rep)

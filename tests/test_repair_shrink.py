@@ -1,0 +1,163 @@
+"""Shortest paths (seqdist.paths) and the shrink objective against scipy's shortest paths.
+
+References: scipy.sparse.csgraph (Dijkstra / Floyd-Warshall on a sparse graph
+with explicit zeros: its docs say the dense input reads 0 as "no edge", so a
+sparse matrix with stored zeros is the way to keep zero-length edges).
+The closure is the largest decrease-only metric (derivation in docs/repair.md).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import scipy.sparse as sp
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy.sparse.csgraph import shortest_path
+
+from conftest import euclidean
+from seqdist.metric import count_violations, is_metric
+from seqdist.paths import apsp, apsp_reference
+from seqdist.repair import repair
+
+
+def scipy_apsp(D):
+    """scipy reference: sparse graph with explicit zeros; NaN = absent edge."""
+    n = len(D)
+    i, j = np.nonzero(~np.eye(n, dtype=bool) & ~np.isnan(D))
+    g = sp.csr_matrix((D[i, j], (i, j)), shape=D.shape)
+    return shortest_path(g, method="D", directed=False)
+
+
+def random_sym(rng, n, zeros=0.1, missing=0.0, scale=10.0):
+    a = rng.uniform(0, scale, (n, n))
+    a[rng.random((n, n)) < zeros] = 0.0
+    if missing:
+        a[rng.random((n, n)) < missing] = np.nan
+    a = np.triu(a, 1)
+    a = a + a.T
+    np.fill_diagonal(a, 0.0)
+    return a
+
+
+@st.composite
+def sym(draw, nan=True):
+    n = draw(st.integers(2, 9))
+    # a few distinct values make zeros and ties common
+    vals = draw(st.lists(st.sampled_from([0.0, 0.5, 1.0, 1.0, 2.0, 3.0, 7.5]), min_size=n * n, max_size=n * n))
+    a = np.triu(np.array(vals).reshape(n, n), 1)
+    if nan and n > 2 and draw(st.booleans()):
+        a[0, n - 1] = np.nan
+    a = a + a.T
+    np.fill_diagonal(a, 0.0)
+    return a
+
+
+# ---------------------------------------------------------------- kernel
+def test_blocked_kernel_matches_scipy_across_block_edges():
+    rng = np.random.default_rng(1)
+    for n in [1, 2, 3, 7, 15, 16, 17, 33, 64, 65, 131]:
+        D = random_sym(rng, n, zeros=0.05, missing=0.3)
+        ref = scipy_apsp(D)
+        for block, tile in [(4, 8), (16, 16), (64, 512)]:
+            got = apsp(D, block=block, tile=tile)
+            assert np.array_equal(np.isinf(got), np.isinf(ref))
+            fin = np.isfinite(ref)
+            assert np.allclose(got[fin], ref[fin], rtol=1e-13, atol=1e-13), (n, block)
+            assert np.array_equal(got, got.T)
+        assert np.allclose(apsp_reference(D)[np.isfinite(ref)], ref[np.isfinite(ref)], rtol=1e-13)
+
+
+def test_zero_distances_are_edges():
+    # identical sequences: a 0 entry is a real edge (scipy dense would read it as absent)
+    D = np.array([[0, 0, 4.0], [0, 0, 1.0], [4.0, 1.0, 0]])
+    assert apsp(D)[0, 2] == 1.0
+
+
+def test_apsp_does_not_modify_input():
+    D = random_sym(np.random.default_rng(2), 20, missing=0.2)
+    before = D.copy()
+    apsp(D)
+    assert np.array_equal(D, before, equal_nan=True)
+
+
+@settings(max_examples=60, deadline=None)
+@given(sym())
+def test_apsp_property_matches_scipy(D):
+    ref = scipy_apsp(D)
+    got = apsp(D, block=2, tile=3)
+    fin = np.isfinite(ref)
+    assert np.array_equal(np.isinf(got), ~fin)
+    assert np.allclose(got[fin], ref[fin], atol=1e-12)
+
+
+# ---------------------------------------------------------------- shrink
+def test_shrink_equals_scipy_shortest_paths():
+    rng = np.random.default_rng(3)
+    D = random_sym(rng, 40, zeros=0.05)
+    r = repair(D, "shrink", progress=False, tol=0.0)
+    assert np.allclose(r.matrix.values, scipy_apsp(D), rtol=1e-13, atol=1e-13)
+    assert r.report["optimal"] and r.report["lower_bound"] == r.report["objective_value"]
+    assert r.report["violated_after"] == 0 and r.report["violated_before"] == count_violations(D, 0.0)[0]
+
+
+def test_shrink_changes_only_broken_entries_and_is_l1_least():
+    # a planted increase in a Euclidean metric (common practice: points in the plane)
+    D = euclidean(12, seed=4)
+    D[0, 1] = D[1, 0] = D[0, 1] * 3 + 5
+    r = repair(D, "shrink", progress=False)
+    X = r.matrix.values
+    assert r.report["changed_entries"] == 1 and X[0, 1] < D[0, 1]
+    assert r.changes[0][:2] == ("t0", "t1")
+    # every decrease-only metric is below the closure: the closure's L1 change is least
+    assert np.isclose(r.report["l1_change"], D[0, 1] - X[0, 1])
+
+
+def test_metric_input_comes_back_unchanged():
+    D = euclidean(30, seed=5)
+    r = repair(D, "shrink", progress=False)
+    assert np.array_equal(r.matrix.values, D)
+    assert r.changes == [] and r.report["changed_entries"] == 0
+
+
+def test_missing_entries_filled_by_shortest_paths():
+    D = euclidean(10, seed=6)
+    D[2, 7] = D[7, 2] = np.nan
+    D[0, 9] = D[9, 0] = np.nan
+    r = repair(D, "shrink", progress=False)
+    ref = scipy_apsp(D)
+    X = r.matrix.values
+    assert np.isclose(X[2, 7], ref[2, 7]) and np.isclose(X[0, 9], ref[0, 9])
+    assert r.report["filled_entries"] == 2
+    filled = [c for c in r.changes if np.isnan(c[2])]
+    assert {c[:2] for c in filled} == {("t2", "t7"), ("t0", "t9")}
+
+
+def test_disconnected_observed_entries_are_filled_as_a_metric():
+    # two groups {0,1,2} and {3,4} with no observed entry between them
+    D = np.full((5, 5), np.nan)
+    np.fill_diagonal(D, 0)
+    for (i, j, v) in [(0, 1, 1.0), (1, 2, 2.0), (0, 2, 2.5), (3, 4, 4.0)]:
+        D[i, j] = D[j, i] = v
+    r = repair(D, "shrink", progress=False)
+    X = r.matrix.values
+    assert is_metric(X) and r.report["observed_groups"] == 2
+    assert X[0, 3] == r.report["between_groups_value"] == 4.0
+
+
+@settings(max_examples=60, deadline=None)
+@given(sym())
+def test_shrink_output_is_metric_and_never_increases(D):
+    r = repair(D, "shrink", progress=False)
+    X = r.matrix.values
+    tol = r.report["tol"]
+    assert is_metric(X, tol)
+    obs = ~np.isnan(D)
+    assert (X[obs] <= D[obs] + tol).all()
+    assert r.report["lower_bound"] <= r.report["objective_value"] + 1e-12
+
+
+def test_shrink_with_feasible_lock_keeps_it():
+    D = euclidean(8, seed=7)
+    D[0, 1] = D[1, 0] = D[0, 1] * 4 + 3
+    r = repair(D, "shrink", lock=[("t2", "t3")], progress=False)
+    assert r.matrix.values[2, 3] == D[2, 3]
