@@ -332,14 +332,16 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix="BLOSUM62", 
     if procs < 1:
         raise InputError(f"--processes must be at least 1 (got {processes})")
     npairs = len(pairs)
-    if chunk_size is None:
+    auto_chunks = chunk_size is None
+    if auto_chunks:
         chunk_size = max(1, min(2000, -(-npairs // (max(procs, 1) * 16))))
     chunks = [pairs[k:k + chunk_size] for k in range(0, npairs, chunk_size)]
     results: list = [None] * len(chunks)
     with Progress("aligning pairs", total=npairs) as bar:
         if not progress:
             bar.min_seconds = float("inf")
-        if procs == 1 or len(chunks) < 2:
+        # Starting workers costs more than a few dozen alignments: small jobs stay in this process.
+        if procs == 1 or len(chunks) < 2 or (auto_chunks and npairs < 50):
             _init_worker(*init_args)
             self_res = _score_chunk(selfp)
             for c, chunk in enumerate(chunks):

@@ -556,10 +556,9 @@ def choose_background(sm: ScoreMatrix, spec: str = "auto", weighted: Sequence[st
     if not weighted:
         raise InputError(f"{sm.name}: no letters left to weight with background frequencies")
     widx = [sm.index(a) for a in weighted]
-    if spec not in BACKGROUND_CHOICES or os.path.exists(spec):
-        if spec not in BACKGROUND_CHOICES or os.path.isfile(spec):
-            freqs = read_background(spec, letters, weighted)
-            return Background(freqs, "file", f"read from {spec}")
+    if spec not in BACKGROUND_CHOICES or os.path.isfile(spec):  # an existing file wins over a keyword
+        freqs = read_background(spec, letters, weighted)
+        return Background(freqs, "file", f"read from {spec}")
 
     def full(sub: np.ndarray) -> np.ndarray:
         out = np.zeros(sm.n)
