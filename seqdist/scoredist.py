@@ -100,12 +100,14 @@ _W: dict = {}
 
 
 def _init_worker(letters: str, values: np.ndarray, mode: str, gap_open: float, gap_extend: float,
-                 seqs: Sequence[str], formula: str) -> None:
+                 seqs: Sequence[str], formula: str, free_end_gaps: bool = False) -> None:
     from Bio.Align import PairwiseAligner, substitution_matrices
 
     m = substitution_matrices.Array(alphabet=letters, dims=2, data=np.array(values, dtype=np.float64))
     al = PairwiseAligner(mode=mode, substitution_matrix=m, open_gap_score=-float(gap_open),
                          extend_gap_score=-float(gap_extend))
+    if free_end_gaps:
+        al.end_gap_score = 0.0  # overhangs at either end cost nothing (global mode)
     code = np.full(256, -1, dtype=np.intp)
     for i, a in enumerate(letters):
         code[ord(a)] = i
@@ -259,6 +261,7 @@ def default_processes() -> int:
 
 def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix="BLOSUM62", *, mode: str = "global",
                     gap_open: float = 11.0, gap_extend: float = 1.0, formula: str = "fd",
+                    free_end_gaps: bool = False,
                     processes: int | None = 1, chunk_size: int | None = None, progress: bool = True,
                     source: str | None = None, record_lines: Sequence[int] | None = None) -> ScoreDistances:
     """Alignment-score distances between all pairs of unaligned sequences.
@@ -275,7 +278,9 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix="BLOSUM62", 
     gap_open, gap_extend : float
         Gap costs (positive numbers): a gap of length k costs
         ``gap_open + (k - 1) * gap_extend`` (Biopython's convention). End
-        gaps cost the same as internal gaps.
+        gaps cost the same as internal gaps unless ``free_end_gaps``.
+    free_end_gaps : bool
+        Gaps at either end of a global alignment cost nothing (for fragments).
     formula : {"fd", "cosine"}
         See the module docs.
     processes : int or None
@@ -324,7 +329,7 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix="BLOSUM62", 
         except UnicodeEncodeError:  # pragma: no cover - caught above as a letter not in the matrix
             raise InputError(f"{where}record '{rid}': non-Latin characters") from None
     n = len(seqs)
-    init_args = (letters, np.array(S), mode, gap_open, gap_extend, list(seqs), formula)
+    init_args = (letters, np.array(S), mode, gap_open, gap_extend, list(seqs), formula, free_end_gaps)
     iu = np.triu_indices(n, 1)
     pairs = np.stack(iu, axis=1).astype(np.intp)
     selfp = np.stack([np.arange(n), np.arange(n)], axis=1).astype(np.intp)

@@ -200,3 +200,14 @@ def test_random_score_against_a_plain_loop(mode):
             comp = sum(m[x, y] for x in sa for y in sb)
             want = comp / aln.length + (aln.score - subst)
             assert r.random_scores[i, j] == pytest.approx(want, rel=1e-12, abs=1e-9)
+
+
+def test_free_end_gaps():
+    # MKV vs MKVL under BLOSUM62, gaps 11/1: with the overhang charged, S_ab = 5 + 5 + 4 - 11 = 3;
+    # free end gaps give S_ab = 14 (s(M,M) = 5, s(K,K) = 5, s(V,V) = 4; Henikoff & Henikoff 1992).
+    r = score_distances(["a", "b"], ["MKV", "MKVL"], "BLOSUM62", formula="cosine", progress=False)
+    assert r.scores[0, 1] == 3
+    r = score_distances(["a", "b"], ["MKV", "MKVL"], "BLOSUM62", formula="cosine", free_end_gaps=True,
+                        progress=False)
+    assert r.scores[0, 1] == 14 and r.scores[1, 1] == 18
+    assert r.dm["a", "b"] == pytest.approx(1 - 14 / math.sqrt(14 * 18))

@@ -19,7 +19,8 @@ formulas (--formula):
             sequences of the same composition, estimated from the alignment
   cosine  D = 1 - S_ab / sqrt(S_aa S_bb)   (score only; fastest)
 Identical sequences get 0; undefined values are written as missing entries and
-named in a warning. A gap of length k costs G + (k-1) E (end gaps included).
+named in a warning. A gap of length k costs G + (k-1) E (end gaps included,
+unless --free-end-gaps).
 Gaps ('-', '.') in the input are removed: the sequences are treated as unaligned.
 
 example:
@@ -42,6 +43,8 @@ def register(subs, common):
                    help="cost of the first position of a gap (default 11)")
     p.add_argument("--gap-extend", type=float, default=1.0, metavar="E",
                    help="cost of each further position of a gap (default 1)")
+    p.add_argument("--free-end-gaps", action="store_true",
+                   help="gaps at either end of a global alignment cost nothing (sequence fragments)")
     p.add_argument("--formula", choices=("fd", "cosine"), default="fd",
                    help="score-to-distance formula (default fd)")
     p.add_argument("--processes", type=int, default=None, metavar="P",
@@ -58,7 +61,8 @@ def _run(args) -> int:
     ids, seqs, lines = read_fasta(args.sequences)
     src = "<stdin>" if args.sequences == "-" else args.sequences
     res = score_distances(ids, seqs, args.matrix, mode=args.mode, gap_open=args.gap_open,
-                          gap_extend=args.gap_extend, formula=args.formula, processes=args.processes,
+                          gap_extend=args.gap_extend, formula=args.formula,
+                          free_end_gaps=args.free_end_gaps, processes=args.processes,
                           source=src, record_lines=lines)
     if res.missing:
         shown = "; ".join(f"{a}-{b} ({why})" for a, b, why in res.missing[:5])
@@ -73,7 +77,8 @@ def _run(args) -> int:
             n = len(ids)
             out.add_json(args.json, {
                 "n": n, "pairs": n * (n - 1) // 2, "matrix": args.matrix, "mode": args.mode,
-                "gap_open": args.gap_open, "gap_extend": args.gap_extend, "formula": args.formula,
+                "gap_open": args.gap_open, "gap_extend": args.gap_extend, "free_end_gaps": args.free_end_gaps,
+                "formula": args.formula,
                 "missing_pairs": [[a, b, why] for a, b, why in res.missing],
                 "clipped_pairs": [[a, b, v] for a, b, v in res.clipped],
                 "seconds": time.perf_counter() - t0,
