@@ -223,3 +223,46 @@ def test_tree_command_output_read_by_biopython(tmp_path, cli):
         out = tmp_path / f"{method}.nwk"
         assert cli("tree", m, "-o", out, "--method", method).returncode == 0
         assert sorted(c.name for c in Phylo.read(out, "newick").get_terminals()) == sorted(lab)
+
+
+def test_drop_incomplete(tmp_path, cli, pair):
+    # BEFORE with a missing entry: refused by default, with --drop-incomplete the
+    # taxon with the most missing entries is left out of the BEFORE tree and
+    # the trees are compared on the others
+    _, after = pair
+    D = tree_matrix(T1, LABELS)
+    D[0, 3] = D[3, 0] = D[0, 4] = D[4, 0] = np.nan
+    gappy = tmp_path / "gappy.tsv"
+    write_tsv(gappy, LABELS, D)
+    p = cli("impact", gappy, after)
+    assert p.returncode == 2 and "--drop-incomplete" in p.stderr
+    js = tmp_path / "i.json"
+    p = cli("impact", gappy, after, "--drop-incomplete", "--json", js, "--html", tmp_path / "i.html")
+    assert p.returncode == 0, p.stderr
+    r = json.loads(js.read_text())
+    assert r["dropped_taxa"] == ["a"] and r["n_compared"] == 5 and r["n"] == 6
+    assert r["entries_filled"] == 2
+    # on {b,c,d,e,f}: T1 pruned has split {b,c}|{d,e,f}, T2 pruned the same: RF 0
+    assert r["rf"] == 0
+    assert "a *" in (tmp_path / "i.html").read_text()
+
+
+def test_incomplete_taxa_greedy():
+    from seqdist.trees.impact import incomplete_taxa
+
+    D = np.ones((5, 5)) - np.eye(5)
+    for i, j in ((0, 1), (1, 2), (1, 3), (4, 3)):
+        D[i, j] = D[j, i] = np.nan
+    # b has 3 missing entries: drop it; then d-e remains: tie, first in label order (d)
+    assert incomplete_taxa(DistanceMatrix.from_array(D, list("abcde"))) == ["b", "d"]
+
+
+def test_prune_keeps_path_lengths():
+    from seqdist.trees.impact import prune
+
+    t = read_newick("((a:1,b:2):0.5,(c:1,x:3):0.25,(d:1,e:1):0.3);")
+    p = prune(t, {"a", "b", "c", "d", "e"})
+    full, kept = t.path_lengths(sorted(t.labels())), p.path_lengths(sorted(p.labels()))
+    keep = [k for k, lab in enumerate(sorted(t.labels())) if lab != "x"]
+    assert np.allclose(full[np.ix_(keep, keep)], kept)
+    assert sorted(p.labels()) == list("abcde")

@@ -32,6 +32,9 @@ def register(subs, common):
     add_tol(p)
     p.add_argument("--clamp-negative", action="store_true",
                    help="set negative branch lengths to zero in both trees (counted and reported)")
+    p.add_argument("--drop-incomplete", action="store_true",
+                   help="leave out taxa with missing entries (fewest first by count) instead of refusing; "
+                        "both trees are built on the other taxa and the dropped ones are listed")
     p.add_argument("--outgroup", metavar="LABEL", default=None,
                    help="taxon to root unrooted trees on for drawing (default: the first label in sorted order)")
     p.add_argument("--before-tree", metavar="FILE", default=None, help="also write the BEFORE tree as Newick")
@@ -50,11 +53,9 @@ def register(subs, common):
 
 
 def _run(args) -> int:
-    import sys
-
     from ..errors import InputError
     from ..io import OutputSet, read_matrix
-    from ..trees.impact import impact, summary_lines
+    from ..trees.impact import impact
     from ..trees.newick import read_newick_file
 
     if args.bootstrap < 0:
@@ -72,17 +73,35 @@ def _run(args) -> int:
     truth = read_newick_file(args.truth) if args.truth else None
     if truth is not None:
         truth.check_labels(args.truth)
-        missing = sorted(set(before.labels) - set(truth.labels()))
-        extra = sorted(set(truth.labels()) - set(before.labels))
-        if missing or extra:
-            parts = ([f"missing from the tree: {', '.join(missing[:5])}"] if missing else []) + \
-                    ([f"not in the matrices: {', '.join(extra[:5])}"] if extra else [])
-            raise InputError(f"{args.truth}: the reference tree's leaves differ from the matrix labels ("
-                             + "; ".join(parts) + ")")
+        truth = _checked_truth(truth, before, args)
     if args.outgroup is not None and args.outgroup not in before.labels:
         raise InputError(f"--outgroup '{args.outgroup}' is not a label of {args.before}")
     res = impact(before, after, args.method, truth=truth, tol=args.tol, clamp_negative=args.clamp_negative,
-                 names=(args.before, args.after))
+                 drop_incomplete=args.drop_incomplete, names=(args.before, args.after))
+    if args.outgroup is not None and args.outgroup in res.report["dropped_taxa"]:
+        raise InputError(f"--outgroup '{args.outgroup}' was left out (missing entries); choose another")
+    return _finish(args, res)
+
+
+def _checked_truth(truth, before, args):
+    from ..errors import InputError
+
+    missing = sorted(set(before.labels) - set(truth.labels()))
+    extra = sorted(set(truth.labels()) - set(before.labels))
+    if missing or extra:
+        parts = ([f"missing from the tree: {', '.join(missing[:5])}"] if missing else []) + \
+                ([f"not in the matrices: {', '.join(extra[:5])}"] if extra else [])
+        raise InputError(f"{args.truth}: the reference tree's leaves differ from the matrix labels ("
+                         + "; ".join(parts) + ")")
+    return truth
+
+
+def _finish(args, res) -> int:
+    import sys
+
+    from ..io import OutputSet
+    from ..trees.impact import summary_lines
+
     if args.bootstrap:
         from ..trees.support import add_support
 

@@ -53,7 +53,7 @@ from .tree import Node, Tree
 METHODS = ("nj", "bionj", "upgma")
 
 
-def check_matrix(dm: DistanceMatrix, source: str | None = None) -> None:
+def check_matrix(dm: DistanceMatrix, source: str | None = None, hint: str = "") -> None:
     """Raise :class:`InputError` when a matrix cannot give a tree.
 
     Missing entries (the builders need every distance) and fewer than 3
@@ -67,7 +67,7 @@ def check_matrix(dm: DistanceMatrix, source: str | None = None) -> None:
         k = dm.missing_count()
         raise InputError(f"{where}{k} missing entr{'y' if k == 1 else 'ies'} (first: {dm.labels[i]}, "
                          f"{dm.labels[j]}); tree building needs every distance: fill them first with "
-                         "'seqdist repair' (which fills missing entries; the result is altered data)")
+                         "'seqdist repair' (which fills missing entries; the result is altered data)" + hint)
 
 
 def nj_q_matrix(dm: DistanceMatrix) -> np.ndarray:

@@ -25,7 +25,6 @@ import zlib
 
 import numpy as np
 
-from .compare import nontrivial, split_labels, splits
 from .impact import CAUTION, ImpactResult, summary_lines
 from .tree import Tree, rooted_for_drawing
 
@@ -34,6 +33,7 @@ PLAIN = "#3a3a3a"
 NEG_RGB = np.array([33, 102, 172], float)
 MID_RGB = np.array([247, 247, 247], float)
 POS_RGB = np.array([178, 24, 43], float)
+FILLED_RGB = np.array([120, 120, 120], np.uint8)
 MAX_TREE_LEAVES = 1000
 MAX_LABELLED_LEAVES = 300
 MAX_RECT_HEATMAP = 80
@@ -142,15 +142,19 @@ def draw_tree(tree: Tree, taxa: list, highlight: set, support: dict | None = Non
         Split bitset -> fraction of replicates, printed as a percentage.
     """
     t = rooted_for_drawing(tree, outgroup if outgroup is not None else taxa[0])
+    # taxa left out of the comparison sort after the compared ones
     rank = {lab: k for k, lab in enumerate(taxa)}
+    for k, lab in enumerate(sorted(x for x in t.labels() if x not in rank)):
+        rank[lab] = len(taxa) + k
     _ladderised(t, rank)
+    n_all = len(rank)
     n = len(taxa)
     full = (1 << n) - 1
     pos = {lab: k for k, lab in enumerate(taxa)}
-    labelled = n <= MAX_LABELLED_LEAVES
-    dy = max(2.0, min(18.0, 900.0 / n)) if labelled else max(0.6, 900.0 / n)
+    labelled = n_all <= MAX_LABELLED_LEAVES
+    dy = max(2.0, min(18.0, 900.0 / n_all)) if labelled else max(0.6, 900.0 / n_all)
     font = max(6.0, min(12.0, dy * 0.8))
-    longest = max(len(lab) for lab in taxa)
+    longest = max(len(lab) + (2 if lab not in pos else 0) for lab in rank)
     label_w = min(260.0, 0.62 * font * longest + 12) if labelled else 6.0
     top, bottom, left = 10.0, 40.0, 12.0
     # depth (x) and row (y) of every node
@@ -165,7 +169,7 @@ def draw_tree(tree: Tree, taxa: list, highlight: set, support: dict | None = Non
         ys[id(leaf)] = top + (k + 0.5) * dy
     for node in t.postorder():
         if node.is_leaf:
-            masks[id(node)] = 1 << pos[node.name]
+            masks[id(node)] = 1 << pos[node.name] if node.name in pos else 0
         else:
             ys[id(node)] = 0.5 * (ys[id(node.children[0])] + ys[id(node.children[-1])])
             m = 0
@@ -181,7 +185,7 @@ def draw_tree(tree: Tree, taxa: list, highlight: set, support: dict | None = Non
     def X(v: float) -> float:
         return left + (v - lo) * sx
 
-    height = top + n * dy + bottom
+    height = top + n_all * dy + bottom
     parts = [f'<svg xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height:.0f}" '
              f'viewBox="0 0 {width} {height:.0f}" font-family="Helvetica,Arial,sans-serif">']
     lw = 1.6 if dy >= 4 else 1.0
@@ -210,11 +214,13 @@ def draw_tree(tree: Tree, taxa: list, highlight: set, support: dict | None = Non
             parts.append(f'<text x="{x1 - 2:.2f}" y="{y - 2:.2f}" font-size="{max(6.0, font - 2):.1f}" '
                          f'text-anchor="end" fill="#1b7837">{pct}</text>')
         if node.is_leaf and labelled:
-            parts.append(f'<text x="{x1 + 4:.2f}" y="{y + font * 0.35:.2f}" font-size="{font:.1f}" '
-                         f'fill="{PLAIN}">{_esc(node.name)}</text>')
+            odd = node.name not in pos  # not compared (left out of the other tree)
+            style = ' fill="#888" font-style="italic"' if odd else f' fill="{PLAIN}"'
+            parts.append(f'<text x="{x1 + 4:.2f}" y="{y + font * 0.35:.2f}" font-size="{font:.1f}"{style}>'
+                         f'{_esc(node.name)}{" *" if odd else ""}</text>')
     # scale bar
     step = _nice_step(span)
-    yb = top + n * dy + 22
+    yb = top + n_all * dy + 22
     parts.append(f'<line x1="{left:.2f}" y1="{yb:.2f}" x2="{left + step * sx:.2f}" y2="{yb:.2f}" '
                  f'stroke="#000" stroke-width="1.5"/>')
     parts.append(f'<text x="{left + step * sx + 6:.2f}" y="{yb + 4:.2f}" font-size="11">{_num(step)}</text>')
@@ -226,21 +232,26 @@ def draw_tree(tree: Tree, taxa: list, highlight: set, support: dict | None = Non
 def draw_heatmap(change: np.ndarray, labels: list, size: int = 560) -> str:
     """SVG heatmap of ``after - before`` with a diverging legend."""
     n = change.shape[0]
-    vmax = float(np.nanmax(np.abs(change))) if change.size else 0.0
+    filled = np.isnan(change)
+    np.fill_diagonal(filled, False)
+    change = np.where(np.isnan(change), 0.0, change)
+    vmax = float(np.abs(change).max()) if change.size else 0.0
     labelled = n <= MAX_RECT_HEATMAP
     font = max(5.0, min(11.0, size / n * 0.8)) if labelled else 0.0
     margin = (min(160.0, 0.6 * font * max(len(x) for x in labels) + 8)) if labelled else 10.0
     cell = size / n
-    legend_h = 70
+    legend_h = 70 + (22 if filled.any() else 0)
     W = margin + size + 20
     H = margin + size + legend_h
     parts = [f'<svg xmlns="http://www.w3.org/2000/svg" width="{W:.0f}" height="{H:.0f}" '
              f'viewBox="0 0 {W:.0f} {H:.0f}" font-family="Helvetica,Arial,sans-serif">']
     if labelled:
         cols = _colour(change, vmax)
+        cols[filled] = FILLED_RGB
         for i in range(n):
             for j in range(n):
-                title = (f"{labels[i]} - {labels[j]}: {change[i, j]:+.6g}" if i != j else labels[i])
+                title = (labels[i] if i == j else f"{labels[i]} - {labels[j]}: missing before, filled"
+                         if filled[i, j] else f"{labels[i]} - {labels[j]}: {change[i, j]:+.6g}")
                 parts.append(f'<rect x="{margin + j * cell:.2f}" y="{margin + i * cell:.2f}" width="{cell:.2f}" '
                              f'height="{cell:.2f}" fill="{_hex(cols[i, j])}"><title>{_esc(title)}</title></rect>')
         for i, lab in enumerate(labels):
@@ -259,7 +270,11 @@ def draw_heatmap(change: np.ndarray, labels: list, size: int = 560) -> str:
         pad[:n, :n] = change
         blocks = pad.reshape(m, k, m, k).transpose(0, 2, 1, 3).reshape(m, m, k * k)
         pick = np.take_along_axis(blocks, np.abs(blocks).argmax(axis=2)[..., None], axis=2)[..., 0]
-        data = base64.b64encode(png_bytes(_colour(pick, vmax))).decode("ascii")
+        fpad = np.zeros((m * k, m * k), dtype=bool)
+        fpad[:n, :n] = filled
+        rgb = _colour(pick, vmax)
+        rgb[fpad.reshape(m, k, m, k).any(axis=(1, 3))] = FILLED_RGB
+        data = base64.b64encode(png_bytes(rgb)).decode("ascii")
         parts.append(f'<image x="{margin}" y="{margin}" width="{size}" height="{size}" '
                      f'style="image-rendering:pixelated" preserveAspectRatio="none" '
                      f'href="data:image/png;base64,{data}"/>')
@@ -278,6 +293,9 @@ def draw_heatmap(change: np.ndarray, labels: list, size: int = 560) -> str:
     parts.append(f'<text x="{lx + 300:.1f}" y="{ly - 5:.1f}" font-size="11" text-anchor="end">increased</text>')
     parts.append(f'<text x="{lx + 150:.1f}" y="{ly + 44:.1f}" font-size="11" text-anchor="middle">'
                  'after - before (square-root colour scale)</text>')
+    if filled.any():
+        parts.append(f'<rect x="{lx:.1f}" y="{ly + 52:.1f}" width="12" height="12" fill="{_hex(FILLED_RGB)}"/>'
+                     f'<text x="{lx + 17:.1f}" y="{ly + 62:.1f}" font-size="11">missing before, filled after</text>')
     parts.append("</svg>")
     return "".join(parts)
 
@@ -316,8 +334,7 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
     r = res.report
     taxa = res.taxa
     n = len(taxa)
-    sb, sa = splits(res.tree_before, taxa), splits(res.tree_after, taxa)
-    nb, na = nontrivial(sb, n), nontrivial(sa, n)
+    nb, na = res.splits_before, res.splits_after
     sup = res.support
     sup_b = {m: v[0] for m, v in sup.items()} if sup else None
     sup_a = {m: v[1] for m, v in sup.items()} if sup else None
@@ -339,26 +356,34 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
                "branch length" + (" &middot; green numbers: % of bootstrap replicates with the split" if sup else "")
                + "</p>")
     if n <= MAX_TREE_LEAVES:
-        svg_b, order = draw_tree(res.tree_before, taxa, nb - na, sup_b, outgroup=outgroup)
-        svg_a, _ = draw_tree(res.tree_after, taxa, na - nb, sup_a, outgroup=outgroup)
+        svg_b, order_b = draw_tree(res.tree_before, taxa, nb - na, sup_b, outgroup=outgroup)
+        svg_a, order_a = draw_tree(res.tree_after, taxa, na - nb, sup_a, outgroup=outgroup)
+        order = order_b if len(order_b) >= len(order_a) else order_a
         out.append('<div class="pair">')
         for name, svg, only, tot in ((names[0], svg_b, len(nb - na), len(nb)), (names[1], svg_a, len(na - nb), len(na))):
             out.append(f'<div class="panel"><h3>{_esc(name)}: {tot} splits, {only} not in the other tree</h3>{svg}</div>')
         out.append("</div>")
         if n > MAX_LABELLED_LEAVES:
             out.append(f'<p class="note">Leaf labels are left out above {MAX_LABELLED_LEAVES} taxa.</p>')
+        left_out = r.get("dropped_taxa", []) + r.get("dropped_taxa_after", [])
+        if left_out:
+            out.append(f'<p class="note">* not compared: left out of the other tree because of missing entries '
+                       f'({_esc(", ".join(left_out))}).</p>')
     else:
-        order = res.tree_before.labels()
+        order = []
         out.append(f'<p class="note">Trees with more than {MAX_TREE_LEAVES:,} taxa are not drawn; '
                    "the differing splits are listed below.</p>")
 
     # heatmap
     out.append("<h2>Matrix change</h2>")
+    if n > MAX_TREE_LEAVES:
+        order = res.tree_before.labels()
+    order = order + sorted(set(res.before.labels) - set(order))
     idx = [res.before.index(lab) for lab in order]
     change = (np.asarray(res.after.values) - np.asarray(res.before.values))[np.ix_(idx, idx)]
-    out.append(f'<p class="note">after - before, rows and columns in the leaf order of the {_esc(names[0])} '
-               f'tree. {_num(r["entries_increased"])} entries increased, {_num(r["entries_decreased"])} '
-               f'decreased (by more than the tolerance); total absolute change {_num(r["l1_change"])}, '
+    out.append(f'<p class="note">after - before, rows and columns in the leaf order of the tree drawn above. '
+               f'{_num(r["entries_increased"])} entries increased, {_num(r["entries_decreased"])} '
+               f'decreased (by more than the tolerance), {_num(r["entries_filled"])} filled; total absolute change {_num(r["l1_change"])}, '
                f'largest {_num(r["max_change"])}.</p>')
     out.append(f'<div class="panel" style="display:inline-block">{draw_heatmap(change, order)}</div>')
 

@@ -23,7 +23,7 @@ import numpy as np
 from ..errors import InputError
 from ..matrix import DistanceMatrix, default_tol
 from .build import build_tree, check_matrix
-from .compare import _branch_score, common_taxa, nontrivial, sorted_splits, splits
+from .compare import _branch_score, nontrivial, sorted_splits, splits
 from .compare import cophenetic_correlation
 from .tree import Tree
 
@@ -41,8 +41,10 @@ class ImpactResult:
     tree_before: Tree
     tree_after: Tree
     truth: Tree | None = None
-    taxa: list = field(default_factory=list)  # sorted labels: the split bit order
+    taxa: list = field(default_factory=list)  # sorted compared labels: the split bit order
     support: dict | None = None  # split bitset -> (support before, support after)
+    splits_before: set = field(default_factory=set)  # non-trivial split bitsets over ``taxa``
+    splits_after: set = field(default_factory=set)
 
 
 def align(before: DistanceMatrix, after: DistanceMatrix, names=("BEFORE", "AFTER")) -> DistanceMatrix:
@@ -67,6 +69,31 @@ def align(before: DistanceMatrix, after: DistanceMatrix, names=("BEFORE", "AFTER
     if after.labels == before.labels:
         return after
     return after.subset(before.labels)
+
+
+def incomplete_taxa(*mats: DistanceMatrix) -> list[str]:
+    """Taxa to leave out so that every matrix is complete: repeatedly the
+    taxon with the most missing entries (ties: the first in label order).
+
+    Examples
+    --------
+    >>> D = np.array([[0, 1, np.nan], [1, 0, 2], [np.nan, 2, 0]])
+    >>> incomplete_taxa(DistanceMatrix.from_array(D, list("abc")))
+    ['a']
+    """
+    labels = list(mats[0].labels)
+    miss = np.zeros((len(labels), len(labels)), dtype=bool)
+    for m in mats:
+        miss |= np.isnan(m.subset(labels).values)
+    alive = np.ones(len(labels), dtype=bool)
+    dropped = []
+    while True:
+        counts = (miss & alive[None, :] & alive[:, None]).sum(axis=1)
+        if counts.max() == 0:
+            return dropped
+        k = int(np.argmax(counts))  # first maximum: label order breaks ties
+        alive[k] = False
+        dropped.append(labels[k])
 
 
 def matrix_change(before: DistanceMatrix, after: DistanceMatrix, tol: float, top: int = 10) -> dict:
@@ -96,7 +123,7 @@ def matrix_change(before: DistanceMatrix, after: DistanceMatrix, tol: float, top
 
 
 def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *, truth: Tree | None = None,
-           tol: float | None = None, clamp_negative: bool = False,
+           tol: float | None = None, clamp_negative: bool = False, drop_incomplete: bool = False,
            names: tuple[str, str] = ("BEFORE", "AFTER")) -> ImpactResult:
     """Build a tree from each matrix and report how they differ.
 
@@ -113,6 +140,13 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
         entry of either matrix.
     clamp_negative : bool
         Set negative branch lengths to zero in both trees (counted first).
+    drop_incomplete : bool
+        Instead of refusing a matrix with missing entries, build its tree
+        without the taxa that have them (see :func:`incomplete_taxa`; listed
+        as ``dropped_taxa``). A complete AFTER (e.g. repaired, which fills
+        missing entries) still gives a tree on every taxon; the two trees
+        are compared on the taxa both hold (``n_compared``), the other tree
+        pruned to them. Matrix figures are over all entries.
     names : (str, str)
         How to call the two matrices in messages (e.g. their file names).
 
@@ -133,25 +167,42 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
     from ..metric import count_violations, max_violation
 
     after = align(before, after, names)
-    check_matrix(before, source=names[0])
-    check_matrix(after, source=names[1])
+    hint = "" if drop_incomplete else ", or leave those taxa out with --drop-incomplete"
+    drop_b = incomplete_taxa(before) if drop_incomplete else []
+    drop_a = incomplete_taxa(after) if drop_incomplete else []
+    keep_b = [lab for lab in before.labels if lab not in set(drop_b)]
+    keep_a = [lab for lab in after.labels if lab not in set(drop_a)]
+    for name, keep in ((names[0], keep_b), (names[1], keep_a)):
+        if len(keep) < 3 <= before.n:
+            raise InputError(f"{name}: leaving out the taxa with missing entries leaves {len(keep)}; "
+                             "a tree needs at least 3")
+    mb, ma = before.subset(keep_b), after.subset(keep_a)
+    check_matrix(mb, source=names[0], hint=hint)
+    check_matrix(ma, source=names[1], hint=hint)
     if tol is None:
         tol = max(default_tol(before.values), default_tol(after.values))
-    t_before = build_tree(before, method)
-    t_after = build_tree(after, method)
+    t_before = build_tree(mb, method)
+    t_after = build_tree(ma, method)
     neg_b, neg_a = t_before.negative_branches(), t_after.negative_branches()
     clamped_b = t_before.clamp_negative() if clamp_negative else 0
     clamped_a = t_after.clamp_negative() if clamp_negative else 0
-    taxa = sorted(before.labels)
+    # Trees are compared on the taxa both have (all of them unless some were left out).
+    common = set(keep_b) & set(keep_a)
+    if len(common) < 3:
+        raise InputError("fewer than 3 taxa are left in both trees")
+    taxa = sorted(common)
     n = len(taxa)
-    sb, sa = splits(t_before, taxa), splits(t_after, taxa)
+    cb = t_before if len(keep_b) == n else prune(t_before, common)
+    ca = t_after if len(keep_a) == n else prune(t_after, common)
+    sb, sa = splits(cb, taxa), splits(ca, taxa)
     nb, na = nontrivial(sb, n), nontrivial(sa, n)
     rf = len(nb ^ na)
-    vb, wb = count_violations(before.values, tol)
-    va, wa = count_violations(after.values, tol)
-    change = matrix_change(before, after, tol)
+    vb, _ = count_violations(before.values, tol)
+    va, _ = count_violations(after.values, tol)
+    N = before.n
     report = {
-        "n": n,
+        "n": N,
+        "n_compared": n,
         "method": method,
         "tol": float(tol),
         "rf": rf,
@@ -169,21 +220,29 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
         "clamped_branches_after": clamped_a,
         "tree_length_before": t_before.total_length(),
         "tree_length_after": t_after.total_length(),
-        "cophenetic_before": cophenetic_correlation(t_before, before),
-        "cophenetic_after": cophenetic_correlation(t_after, after),
+        "cophenetic_before": cophenetic_correlation(t_before, mb),
+        "cophenetic_after": cophenetic_correlation(t_after, ma),
         "violated_triangles_before": vb,
         "violated_triangles_after": va,
         "max_violation_before": max(0.0, max_violation(before.values)),
         "max_violation_after": max(0.0, max_violation(after.values)),
-        "triangles": n * (n - 1) * (n - 2) // 6,
+        "triangles": N * (N - 1) * (N - 2) // 6,
+        "dropped_taxa": drop_b,
+        "dropped_taxa_after": drop_a,
     }
-    del wb, wa
-    report.update(change)
+    report.update(matrix_change(before, after, tol))
     if truth is not None:
-        common_taxa(truth, t_before, ("reference tree", "matrices"))
-        st = splits(truth, taxa)
+        leaves = set(truth.check_labels("reference tree"))
+        if leaves != set(before.labels):
+            missing, extra = sorted(set(before.labels) - leaves), sorted(leaves - set(before.labels))
+            raise InputError("the reference tree's leaves differ from the matrix labels ("
+                             + "; ".join(([f"missing from the tree: {', '.join(missing[:5])}"] if missing else [])
+                                         + ([f"not in the matrices: {', '.join(extra[:5])}"] if extra else []))
+                             + ")")
+        ct = truth if n == N else prune(truth, common)
+        st = splits(ct, taxa)
         nt = nontrivial(st, n)
-        has_lengths = all(x.length is not None for x in truth.branches())
+        has_lengths = all(x.length is not None for x in ct.branches())
         report.update({
             "rf_to_truth_before": len(nb ^ nt),
             "rf_to_truth_after": len(na ^ nt),
@@ -193,7 +252,33 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
             "branch_score_to_truth_after": _branch_score(sa, st) if has_lengths else None,
         })
     report["caution"] = CAUTION
-    return ImpactResult(report, before, after, t_before, t_after, truth, taxa)
+    return ImpactResult(report, before, after, t_before, t_after, truth, taxa, None, nb, na)
+
+
+def prune(tree: Tree, keep: set) -> Tree:
+    """A copy of ``tree`` with only the leaves in ``keep`` (nodes left with
+    one child are spliced out, their branch lengths added)."""
+    t = tree.copy()
+    for node in t.postorder():
+        if node.is_leaf and node is not t.root and node.name not in keep:
+            node.parent.children.remove(node)
+    for node in t.postorder():
+        if node is t.root:
+            continue
+        if not node.children and node.name is None:
+            node.parent.children.remove(node)
+        elif len(node.children) == 1:
+            only = node.children[0]
+            only.length = (only.length or 0.0) + (node.length or 0.0) if (only.length is not None or
+                                                                         node.length is not None) else None
+            up = node.parent
+            up.children[up.children.index(node)] = only
+            only.parent = up
+    while len(t.root.children) == 1:
+        t.root = t.root.children[0]
+        t.root.parent = None
+        t.root.length = None
+    return t
 
 
 def summary_lines(report: dict, names=("before", "after")) -> list[str]:
@@ -227,6 +312,10 @@ def summary_lines(report: dict, names=("before", "after")) -> list[str]:
                  f"Negative branches: {r['negative_branches_before']} {names[0]}, "
                  f"{r['negative_branches_after']} {names[1]}. "
                  f"Branch score distance {r['branch_score']:.4g}.")
+    for key, which in (("dropped_taxa", names[0]), ("dropped_taxa_after", names[1])):
+        if r.get(key):
+            lines.append(f"Left out of the {which} tree (missing entries): {', '.join(r[key])}; "
+                         f"the trees are compared on the other {r['n_compared']:,} taxa.")
     if "rf_to_truth_before" in r:
         lines.append(f"Against the reference tree: Robinson-Foulds {r['rf_to_truth_before']} {names[0]}, "
                      f"{r['rf_to_truth_after']} {names[1]}.")

@@ -1,0 +1,212 @@
+"""Split support before and after repair, by resampling alignment columns.
+
+For each of ``B`` replicates (Felsenstein 1985, "Confidence limits on
+phylogenies: an approach using the bootstrap", Evolution 39:783-791): draw
+the alignment's columns with replacement, compute the distances with the
+given model, build the "before" tree from them, repair them with the given
+objective and build the "after" tree. A split's support is the fraction of
+replicates whose tree contains it; every split of the two main trees gets
+its support among the before-replicates and among the after-replicates, so
+one can see whether a split that the repair removed (or created) was ever
+well supported.
+
+A replicate whose distances have missing entries (a pair saturated or with
+no shared column in that resample) has no "before" tree; it still has an
+"after" tree, because repair fills missing entries. Support before repair is
+then the fraction of the replicates that have a before tree (the count is
+reported).
+
+Replicates run in separate processes (``concurrent.futures``, "spawn"
+start, so no compiled-kernel thread pools are forked). Replicate ``k`` uses
+the ``k``-th child of ``numpy.random.SeedSequence(seed)`` both for the
+column draw and as the repair seed, so results do not depend on the number
+of worker processes.
+"""
+
+from __future__ import annotations
+
+import os
+
+import numpy as np
+
+from ..errors import InputError
+from .compare import nontrivial, split_labels, splits
+
+_STATE: dict = {}
+
+
+def _init(aln, options):
+    _STATE["aln"] = aln
+    _STATE["options"] = options
+
+
+def _replicate(key) -> tuple[list, list, bool]:
+    """One replicate: (splits of the before tree, of the after tree, had a before tree).
+
+    ``key`` is ``(entropy, *spawn_key)`` of the replicate's SeedSequence.
+    """
+    from ..distances import pairwise_distances
+    from ..repair import repair
+    from .build import build_tree
+
+    ss = np.random.SeedSequence(key[0], spawn_key=tuple(key[1:]))
+    aln = _STATE["aln"]
+    o = _STATE["options"]
+    rng = np.random.default_rng(ss)
+    cols = np.sort(rng.integers(0, aln.length, aln.length))  # column order does not matter to distances
+    dm = pairwise_distances(aln.take_columns(cols), o["model"], gamma=o["gamma"], gaps=o["gaps"],
+                            variance=False, progress=False, warn=False).matrix
+    taxa = o["taxa"]
+    n = len(taxa)
+    before: list = []
+    ok = not dm.has_missing
+    if ok:
+        before = sorted(nontrivial(splits(build_tree(dm, o["method"]), taxa), n))
+    fixed = repair(dm, o["objective"], seed=int(ss.generate_state(1)[0]), progress=False).matrix
+    after = sorted(nontrivial(splits(build_tree(fixed, o["method"]), taxa), n))
+    return before, after, ok
+
+
+def split_support(alignment, labels, *, replicates: int, model: str, objective: str, method: str = "nj",
+                  seed: int = 0, gamma: float | None = None, gaps: str = "pairwise",
+                  workers: int | None = None) -> tuple[dict, dict, int]:
+    """Count, over bootstrap replicates, how often each split appears.
+
+    Parameters
+    ----------
+    alignment : seqdist.alignment.Alignment
+    labels : sequence of str
+        The taxa (the alignment's record ids, any order).
+    replicates : int
+    model, objective, method : str
+        Distance model, repair objective and tree method of the replicates.
+    seed : int
+        Base seed.
+    workers : int, optional
+        Worker processes (default: the number of cores; 1 runs in this process).
+
+    Returns
+    -------
+    (before_counts, after_counts, n_before)
+        Split bitset (bit order: ``sorted(labels)``) -> number of replicates
+        containing it, for the before and after trees; ``n_before`` is the
+        number of replicates that had a before tree.
+    """
+    from ..console import Progress
+
+    taxa = sorted(labels)
+    aln = alignment.subset(list(labels))
+    options = {"model": model, "objective": objective, "method": method, "gamma": gamma, "gaps": gaps,
+               "taxa": taxa}
+    children = np.random.SeedSequence(seed).spawn(replicates)
+    keys = [(int(c.entropy), *c.spawn_key) for c in children]
+    cb: dict[int, int] = {}
+    ca: dict[int, int] = {}
+    n_before = 0
+    workers = workers or os.cpu_count() or 1
+    workers = max(1, min(workers, replicates))
+
+    def tally(result):
+        nonlocal n_before
+        before, after, ok = result
+        n_before += ok
+        for m in before:
+            cb[m] = cb.get(m, 0) + 1
+        for m in after:
+            ca[m] = ca.get(m, 0) + 1
+
+    with Progress("bootstrap replicates", total=replicates) as bar:
+        if workers == 1:
+            _init(aln, options)
+            try:
+                for key in keys:
+                    tally(_replicate(key))
+                    bar.update(1)
+            finally:
+                _STATE.clear()
+        else:
+            import multiprocessing
+            from concurrent.futures import ProcessPoolExecutor
+
+            ctx = multiprocessing.get_context("spawn")
+            with ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_init,
+                                     initargs=(aln, options)) as pool:
+                for result in pool.map(_replicate, keys, chunksize=max(1, replicates // (8 * workers))):
+                    tally(result)
+                    bar.update(1)
+    return cb, ca, n_before
+
+
+def add_support(res, alignment_path: str, *, replicates: int, model: str, objective: str, seed: int = 0,
+                gamma: float | None = None, gaps: str = "pairwise", workers: int | None = None,
+                clamp_negative: bool = False) -> None:
+    """Add split support to an :class:`~seqdist.trees.impact.ImpactResult` (in place).
+
+    Adds ``report["support"]`` (the settings and, for every split of the
+    two main trees, its support before and after repair), a one-line
+    ``report["support_summary"]`` and ``res.support`` (bitset -> (before,
+    after) fractions) for the html page.
+    """
+    from ..alignment import read_alignment
+    from ..console import warn
+    from ..distances import pairwise_distances
+
+    del clamp_negative  # lengths do not enter split support
+    aln = read_alignment(alignment_path)
+    la, lm = set(aln.labels), set(res.before.labels) | set(res.report.get("dropped_taxa", []))
+    if la != lm:
+        only_a, only_m = sorted(la - lm), sorted(lm - la)
+        parts = ([f"only in the alignment: {', '.join(only_a[:5])}"] if only_a else []) + \
+                ([f"only in the matrices: {', '.join(only_m[:5])}"] if only_m else [])
+        raise InputError(f"{alignment_path}: the record ids differ from the matrix labels (" + "; ".join(parts) + ")")
+    # The support refers to ALN + model: say so when BEFORE is not that matrix.
+    full = pairwise_distances(aln.subset(list(res.before.labels)), model, gamma=gamma, gaps=gaps, variance=False,
+                              progress=False, warn=False).matrix
+    a, b = np.asarray(full.values), np.asarray(res.before.values)
+    if not np.allclose(np.nan_to_num(a, nan=-1.0), np.nan_to_num(b, nan=-1.0), rtol=1e-6, atol=1e-9):
+        warn(f"the BEFORE matrix is not the {model} distances of {alignment_path}; the support values "
+             "describe the alignment under that model")
+    cb, ca, n_before = split_support(aln, res.before.labels, replicates=replicates, model=model,
+                                     objective=objective, method=res.report["method"], seed=seed, gamma=gamma,
+                                     gaps=gaps, workers=workers)
+    taxa = res.taxa
+    n = len(taxa)
+    sb = nontrivial(splits(res.tree_before, taxa), n)
+    sa = nontrivial(splits(res.tree_after, taxa), n)
+    support = {}
+    rows = []
+    for m in sorted(sb | sa, key=lambda m: (m.bit_count(), split_labels(m, taxa))):
+        fb = cb.get(m, 0) / n_before if n_before else 0.0
+        fa = ca.get(m, 0) / replicates
+        support[m] = (fb, fa)
+        rows.append({"taxa": split_labels(m, taxa), "in_before_tree": m in sb, "in_after_tree": m in sa,
+                     "support_before": fb, "support_after": fa})
+    res.support = support
+    res.report["support"] = {
+        "replicates": replicates,
+        "replicates_with_before_tree": n_before,
+        "model": model,
+        "gamma": gamma,
+        "gaps": gaps,
+        "objective": objective,
+        "seed": seed,
+        "splits": rows,
+    }
+
+    def pct(xs):
+        return ", ".join(f"{100 * x:.0f}%" for x in xs)
+
+    only_b = [support[m][0] for m in sorted(sb - sa, key=lambda m: -support[m][0])]
+    only_a = [support[m][1] for m in sorted(sa - sb, key=lambda m: -support[m][1])]
+    shared = sorted(sb & sa)
+    text = f"Bootstrap ({replicates} replicates, {n_before} with a before tree): "
+    if only_b or only_a:
+        text += (f"splits only in the before tree had support {pct(only_b) or 'none'} before repair; "
+                 f"splits only in the after tree had support {pct(only_a) or 'none'} after repair")
+    else:
+        text += "no split differs"
+    if shared:
+        mb = float(np.median([support[m][0] for m in shared]))
+        ma = float(np.median([support[m][1] for m in shared]))
+        text += f"; shared splits: median support {100 * mb:.0f}% before, {100 * ma:.0f}% after repair"
+    res.report["support_summary"] = text + "."
