@@ -1,0 +1,591 @@
+"""Audit of a distance matrix: broken triangles, where they are, how many
+entries a repair must change at least, and how tree-like the matrix is.
+
+The main entry point is :func:`audit`; it returns an :class:`AuditReport`
+whose :meth:`~AuditReport.to_dict` is the JSON document of ``seqdist audit``
+and whose :meth:`~AuditReport.summary` is the text report. Definitions,
+sources and the proofs of the lower bounds are in docs/audit.md.
+
+Work, for n taxa:
+
+* one fused pass over the C(n, 3) triangles (:func:`seqdist.audit_kernels.scan_triangles`)
+  and one more for the three-point (ultrametric) condition, both compiled,
+  tiled and parallel over row blocks; memory O(n^2);
+* the forcing violated triangles (up to ``collect_max``) for the packing and
+  linear-programming bounds; the LP only up to ``lp_max`` triangles;
+* four-point and delta statistics over all C(n, 4) quartets when that is at
+  most ``exact_quartets_max``, else over ``quartet_samples`` quartets drawn
+  uniformly (with replacement) with the seed.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import InputError
+from .matrix import DistanceMatrix, default_tol
+
+#: Histogram edges of violation sizes, relative to the largest entry. A
+#: violated triangle with excess e falls in bin k when
+#: edges[k] <= e / largest < edges[k+1] (the last bin includes 1; e never
+#: exceeds the largest entry).
+HIST_EDGES = (0.0, 1e-6, 1e-4, 1e-3, 1e-2, 0.05, 0.1, 0.2, 0.5, 1.0)
+
+#: Bins of the delta histogram (the delta plot of Holland et al. 2002): ten of width 0.1.
+DELTA_BINS = 10
+
+_EPS = np.finfo(np.float64).eps
+
+
+def _comb(n: int, k: int) -> int:
+    return math.comb(n, k) if n >= k else 0
+
+
+@dataclass
+class AuditReport:
+    """Everything :func:`audit` found. Arrays are indexed by taxon position.
+
+    Attributes of note: ``pair_counts`` / ``pair_excess`` / ``pair_longest``
+    (packed upper triangle, row by row, as scipy's condensed form) and the
+    (n, n) views ``entry_counts`` / ``entry_excess`` / ``entry_longest`` - per
+    entry, the violated triangles it is a side of, their summed excess, and in
+    how many of them it is the longest side;
+    ``taxon_counts`` / ``taxon_excess`` / ``taxon_checked`` (n,);
+    ``taxon_delta`` (n,) - mean delta over the examined quartets holding the
+    taxon (NaN when none).
+    """
+
+    labels: tuple
+    tol: float
+    largest: float
+    n: int
+    missing_entries: int
+    triangles: int
+    checked_triangles: int
+    violated: int
+    max_violation: float
+    worst_triangles: list
+    histogram: np.ndarray
+    pair_counts: np.ndarray
+    pair_excess: np.ndarray
+    pair_longest: np.ndarray
+    taxon_counts: np.ndarray
+    taxon_excess: np.ndarray
+    taxon_checked: np.ndarray
+    lower_bound: dict
+    four_point: dict
+    taxon_delta: np.ndarray
+    ultrametric: dict
+    values: np.ndarray = field(repr=False, default=None)
+    seconds: dict = field(default_factory=dict)
+
+    # -------------------------------------------------------------- views
+    @property
+    def min_changes_lower_bound(self) -> int:
+        return int(self.lower_bound["value"])
+
+    @property
+    def is_metric(self) -> bool:
+        """No violated triangle and no missing entry."""
+        return self.violated == 0 and self.missing_entries == 0
+
+    def _square(self, packed, dtype):
+        M = np.zeros((self.n, self.n), dtype)
+        iu = np.triu_indices(self.n, 1)
+        M[iu] = packed
+        M.T[iu] = packed
+        return M
+
+    @property
+    def entry_counts(self) -> np.ndarray:
+        """(n, n) violated triangles each entry is a side of."""
+        return self._square(self.pair_counts, np.int64)
+
+    @property
+    def entry_excess(self) -> np.ndarray:
+        """(n, n) summed excess of the violated triangles each entry is a side of."""
+        return self._square(self.pair_excess, np.float64)
+
+    @property
+    def entry_longest(self) -> np.ndarray:
+        """(n, n) violated triangles in which each entry is the longest side."""
+        return self._square(self.pair_longest, np.int64)
+
+    def ranked_entries(self, limit: int | None = None) -> list[dict]:
+        """Entries in violated triangles, most often first (then summed excess, then position)."""
+        c = self.pair_counts
+        nz = np.flatnonzero(c)
+        if nz.size == 0:
+            return []
+        if limit is not None and limit < nz.size:
+            if limit == 0:
+                return []
+            # only entries at least as frequent as the limit-th need sorting
+            kth = np.partition(c[nz], nz.size - limit)[nz.size - limit]
+            nz = nz[c[nz] >= kth]
+        ex = self.pair_excess[nz]
+        order = nz[np.lexsort((nz, -ex, -c[nz]))]
+        if limit is not None:
+            order = order[:limit]
+        ii, jj = _unpack_pairs(order, self.n)
+        out = []
+        for p, i, j in zip(order, ii, jj):
+            out.append({"pair": [self.labels[i], self.labels[j]], "value": float(self.values[i, j]),
+                        "violated_triangles": int(c[p]), "as_longest_side": int(self.pair_longest[p]),
+                        "summed_excess": _r12(self.pair_excess[p])})
+        return out
+
+    def ranked_taxa(self, limit: int | None = None) -> list[dict]:
+        """All taxa, most violated triangles first (then summed excess, then position)."""
+        idx = np.arange(self.n)
+        order = np.lexsort((idx, -self.taxon_excess, -self.taxon_counts))
+        if limit is not None:
+            order = order[:limit]
+        out = []
+        for t in order:
+            chk = int(self.taxon_checked[t])
+            dl = self.taxon_delta[t]
+            out.append({"taxon": self.labels[t], "violated_triangles": int(self.taxon_counts[t]),
+                        "checked_triangles": chk,
+                        "fraction": (int(self.taxon_counts[t]) / chk) if chk else 0.0,
+                        "summed_excess": _r12(self.taxon_excess[t]),
+                        "delta": None if dl != dl else _r12(dl)})
+        return out
+
+    def verdict(self) -> tuple[bool, str, list[str]]:
+        """(fit for distance tree methods, one line, the reasons)."""
+        reasons = []
+        if self.missing_entries:
+            reasons.append(f"{self.missing_entries} missing entr{'y' if self.missing_entries == 1 else 'ies'}: "
+                           "distance tree methods need every pair")
+        if self.violated:
+            pct = 100.0 * self.violated / max(self.checked_triangles, 1)
+            reasons.append(f"{self.violated} of {self.checked_triangles} checked triangles ({pct:.3g}%) break "
+                           f"the triangle inequality (largest excess {_g(self.max_violation)}, "
+                           f"{_pct(self.max_violation, self.largest)} of the largest entry)")
+        fit = not reasons
+        if fit:
+            line = "FIT for distance tree methods: the matrix is a metric (complete, no broken triangle)"
+        else:
+            line = "NOT FIT for distance tree methods as it is: " + "; ".join(reasons)
+        return fit, line, reasons
+
+    # -------------------------------------------------------------- output
+    def to_dict(self, list_max: int = 200) -> dict:
+        """The JSON document (contract keys first). ``list_max`` caps the entry list."""
+        fit, line, reasons = self.verdict()
+        lab = self.labels
+        hist = {"relative_edges": list(HIST_EDGES),
+                "edges": [_r12(e * self.largest) for e in HIST_EDGES],
+                "counts": [int(x) for x in self.histogram],
+                "definition": "violated triangles by excess / largest entry; bin k holds "
+                              "edges[k] <= ratio < edges[k+1], the last bin includes 1"}
+        worst = []
+        for (a, b, c, e) in self.worst_triangles:
+            worst.append(_triangle_json(self.values, lab, a, b, c, e))
+        fp = dict(self.four_point)
+        fp.pop("worst_idx", None)
+        um = dict(self.ultrametric)
+        um.pop("worst_idx", None)
+        return {
+            "n": self.n,
+            "triangles": self.triangles,
+            "violated_triangles": self.violated,
+            "max_violation": _r12(self.max_violation),
+            "min_changes_lower_bound": self.min_changes_lower_bound,
+            "tol": self.tol,
+            "largest_entry": self.largest,
+            "missing_entries": self.missing_entries,
+            "checked_triangles": self.checked_triangles,
+            "unchecked_triangles": self.triangles - self.checked_triangles,
+            "violated_fraction": (self.violated / self.checked_triangles) if self.checked_triangles else 0.0,
+            "max_violation_relative": (_r12(self.max_violation / self.largest) if self.largest > 0 else 0.0),
+            "is_metric": self.is_metric,
+            "fit_for_tree_methods": fit,
+            "verdict": line,
+            "reasons": reasons,
+            "violation_histogram": hist,
+            "worst_triangles": worst,
+            "entries_in_violated_triangles": int(np.count_nonzero(self.pair_counts)),
+            "worst_entries": self.ranked_entries(list_max),
+            "taxa": self.ranked_taxa(),
+            "lower_bound": self.lower_bound,
+            "four_point": fp,
+            "ultrametric": um,
+        }
+
+    def summary(self, top: int = 10, source: str | None = None) -> str:
+        """A readable report for standard output."""
+        L = []
+        lab = self.labels
+        fit, line, _ = self.verdict()
+        L.append(f"audit of {source}" if source else "audit")
+        miss = f"{self.missing_entries} missing" if self.missing_entries else "none missing"
+        unchecked = self.triangles - self.checked_triangles
+        chk = "all checked" if unchecked == 0 else f"{self.checked_triangles} checked, {unchecked} not checked (a side is missing)"
+        L.append(f"  {self.n} taxa, {_comb(self.n, 2)} entries ({miss}), {self.triangles} triangles ({chk})")
+        L.append(f"  tolerance {_g(self.tol)}; largest entry {_g(self.largest)}")
+        L.append("")
+        L.append(line + ".")
+        if self.violated:
+            L.append("")
+            L.append(f"Violation sizes (excess relative to the largest entry {_g(self.largest)}):")
+            for k in range(len(HIST_EDGES) - 1):
+                lo, hi = HIST_EDGES[k], HIST_EDGES[k + 1]
+                lo_s = "tol" if k == 0 else f"{lo:g}"
+                L.append(f"  {lo_s:>6} .. {hi:<6g} {int(self.histogram[k]):>12}")
+            L.append("")
+            L.append(f"Worst triangles (longest side minus the sum of the other two):")
+            for (a, b, c, e) in self.worst_triangles[:top]:
+                L.append("  " + _triangle_text(self.values, lab, a, b, c, e))
+            L.append("")
+            L.append("Worst entries (the first place to look for a bad value):")
+            L.append(f"  {'pair':<36} {'value':>12} {'violated':>9} {'longest':>8} {'summed excess':>14}")
+            for r in self.ranked_entries(top):
+                pair = f"{r['pair'][0]} - {r['pair'][1]}"
+                L.append(f"  {_clip(pair, 36):<36} {_g(r['value']):>12} {r['violated_triangles']:>9} "
+                         f"{r['as_longest_side']:>8} {_g(r['summed_excess']):>14}")
+            L.append("")
+            L.append("Worst taxa (the first place to look for a bad sequence):")
+            L.append(f"  {'taxon':<28} {'violated':>10} {'of checked':>11} {'fraction':>9} {'summed excess':>14}")
+            for r in self.ranked_taxa(top):
+                if r["violated_triangles"] == 0:
+                    break
+                L.append(f"  {_clip(r['taxon'], 28):<28} {r['violated_triangles']:>10} {r['checked_triangles']:>11} "
+                         f"{r['fraction']:>9.3g} {_g(r['summed_excess']):>14}")
+            L.append("")
+            lb = self.lower_bound
+            how = f"packing of {lb['packing']} entry-disjoint violated triangles"
+            if lb.get("lp_value") is not None:
+                how += f"; linear-programming bound {lb['lp_value']:.6g} over {lb['lp_triangles']} triangles"
+            if not lb.get("complete", True):
+                how += f"; from {lb['triangles_used']} of {lb['forcing_triangles']} forcing triangles"
+            L.append(f"Lower bound: any repair must change at least {lb['value']} "
+                     f"entr{'y' if lb['value'] == 1 else 'ies'} ({how}).")
+        L.append("")
+        fp = self.four_point
+        if fp["examined"]:
+            how = "all" if fp["exact"] else f"a sample of {fp['examined']} (seed {fp['seed']})"
+            L.append(f"Tree-likeness (four-point condition, {how} of {fp['quartets']} quartets):")
+            L.append(f"  quartets violating the four-point condition: {fp['violated']} "
+                     f"({100 * fp['violated_fraction']:.3g}%); relative deviation (L-M)/L mean "
+                     f"{fp['relative_deviation_mean']:.3g}, max {fp['relative_deviation_max']:.3g}")
+            dm = fp["delta_mean"]
+            L.append(f"  delta score (Holland et al. 2002; 0 = tree-like): mean "
+                     f"{'n/a' if dm is None else format(dm, '.3g')}")
+            td = [(self.taxon_delta[t], t) for t in range(self.n) if self.taxon_delta[t] == self.taxon_delta[t]]
+            td.sort(key=lambda x: (-x[0], x[1]))
+            if td:
+                L.append("  highest per-taxon delta: " + ", ".join(f"{_clip(lab[t], 24)} {v:.3g}" for v, t in td[:min(top, 5)]))
+        elif self.n >= 4:
+            L.append("Tree-likeness: no quartet could be examined (missing entries).")
+        um = self.ultrametric
+        if self.checked_triangles:
+            if um["ultrametric"]:
+                L.append(f"Ultrametric: yes within tol (largest deviation {_g(um['max_deviation'])}): "
+                         "UPGMA's equal-rates assumption fits.")
+            else:
+                w = um.get("worst_triangle")
+                where = f" in ({', '.join(w)})" if w else ""
+                L.append(f"Ultrametric: no (largest three-point deviation {_g(um['max_deviation'])}{where}, "
+                         f"{_pct(um['max_deviation'], self.largest)} of the largest entry; "
+                         f"{um['violated_triangles']} triangles beyond tol).")
+        return "\n".join(L) + "\n"
+
+
+# ------------------------------------------------------------------ helpers
+def _r12(x: float) -> float:
+    """Round to 12 significant digits: sums of many terms stay byte-stable."""
+    x = float(x)
+    if x == 0 or x != x or math.isinf(x):
+        return x
+    return float(f"{x:.12g}")
+
+
+def _g(x) -> str:
+    return "n/a" if x is None else f"{float(x):.6g}"
+
+
+def _pct(x: float, top: float) -> str:
+    return f"{100 * x / top:.3g}%" if top > 0 else "n/a"
+
+
+def _clip(s: str, w: int) -> str:
+    return s if len(s) <= w else s[: w - 1] + "~"
+
+
+def _longest(values, a, b, c):
+    sides = [((a, b), values[a, b]), ((a, c), values[a, c]), ((b, c), values[b, c])]
+    k = max(range(3), key=lambda t: (sides[t][1], -t))
+    return sides[k], [sides[t] for t in range(3) if t != k]
+
+
+def _triangle_json(values, lab, a, b, c, e):
+    (lp, lv), others = _longest(values, a, b, c)
+    return {"taxa": [lab[a], lab[b], lab[c]], "excess": _r12(e),
+            "longest": {"pair": [lab[lp[0]], lab[lp[1]]], "value": float(lv)},
+            "others": [{"pair": [lab[p[0]], lab[p[1]]], "value": float(v)} for p, v in others]}
+
+
+def _triangle_text(values, lab, a, b, c, e):
+    (lp, lv), others = _longest(values, a, b, c)
+    (p1, v1), (p2, v2) = others
+    return (f"excess {_g(e)}: d({lab[lp[0]]}, {lab[lp[1]]}) = {_g(lv)} > "
+            f"d({lab[p1[0]]}, {lab[p1[1]]}) + d({lab[p2[0]]}, {lab[p2[1]]}) = {_g(v1)} + {_g(v2)}")
+
+
+def _unpack_pairs(p: np.ndarray, n: int):
+    """Row and column of packed upper-triangle positions (inverse of i*(2n-i-1)/2 + j-i-1)."""
+    p = np.asarray(p, dtype=np.int64)
+    start = np.arange(n, dtype=np.int64) * (2 * n - np.arange(n, dtype=np.int64) - 1) // 2
+    i = np.searchsorted(start, p, side="right") - 1
+    j = p - start[i] + i + 1
+    return i.tolist(), j.tolist()
+
+
+def sample_quartets(n: int, size: int, seed: int) -> np.ndarray:
+    """``size`` quartets of distinct taxa drawn uniformly with replacement.
+
+    Each row is sorted, and the rows are sorted (for memory locality); the
+    result depends only on ``(n, size, seed)``.
+
+    Examples
+    --------
+    >>> q = sample_quartets(10, 5, seed=1)
+    >>> q.shape, bool((np.diff(q, axis=1) > 0).all())
+    ((5, 4), True)
+    """
+    rng = np.random.default_rng(seed)
+    parts = []
+    have = 0
+    while have < size:
+        want = size - have
+        q = rng.integers(0, n, size=(int(want * 1.2) + 64, 4))
+        q.sort(axis=1)
+        ok = (np.diff(q, axis=1) > 0).all(axis=1)
+        q = q[ok][:want]
+        parts.append(q)
+        have += len(q)
+    q = np.concatenate(parts)
+    order = np.lexsort(q.T[::-1])
+    return np.ascontiguousarray(q[order], dtype=np.int64)
+
+
+def _lp_bound(ids: np.ndarray, nent: int, time_limit: float | None):
+    """LP relaxation of the hitting set; returns (certified bound, status)."""
+    from scipy.optimize import linprog
+    from scipy.sparse import csr_matrix
+
+    m = len(ids)
+    A = csr_matrix((np.full(3 * m, -1.0), ids.ravel(), np.arange(0, 3 * m + 1, 3)), shape=(m, nent))
+    opts = {"presolve": True}
+    if time_limit:
+        opts["time_limit"] = float(time_limit)
+    res = linprog(np.ones(nent), A_ub=A, b_ub=-np.ones(m), bounds=(0, None), method="highs", options=opts)
+    marg = getattr(getattr(res, "ineqlin", None), "marginals", None)
+    if marg is None or len(marg) != m:
+        return None, str(res.message)
+    # y >= 0 is a fractional packing; scale it so that no entry carries more
+    # than 1; then sum(y) is a lower bound (weak duality) whatever the solver's
+    # accuracy was.
+    y = np.maximum(-np.asarray(marg, dtype=np.float64), 0.0)
+    load = np.bincount(ids.ravel(), weights=np.repeat(y, 3), minlength=nent)
+    s = max(1.0, float(load.max()) if load.size else 1.0)
+    return float(y.sum() / s), ("optimal" if res.status == 0 else str(res.message))
+
+
+def _lower_bound(d, n, hard, scan, collect_max, lp_max, lp_time_limit) -> dict:
+    from .audit_kernels import collect_triangles, greedy_packing
+
+    forcing = int(scan["row_hard"].sum())
+    out = {"value": 0, "method": "none", "forcing_triangles": forcing, "forcing_threshold": hard,
+           "triangles_used": 0, "complete": True, "packing": 0, "lp_value": None, "lp_triangles": 0,
+           "lp_status": None}
+    if forcing == 0:
+        return out
+    abc, _e = collect_triangles(d, hard, scan["pair_hard"], collect_max)
+    a, b, c = (abc[:, k].astype(np.int64) for k in range(3))
+    pid = np.stack([a * (2 * n - a - 1) // 2 + (b - a - 1), a * (2 * n - a - 1) // 2 + (c - a - 1),
+                    b * (2 * n - b - 1) // 2 + (c - b - 1)], axis=1)
+    uniq, inv = np.unique(pid, return_inverse=True)
+    ids = inv.reshape(-1, 3).astype(np.int64)
+    nent = len(uniq)
+    chosen = greedy_packing(ids, nent)
+    pack = int(chosen.sum())
+    out.update(value=pack, method="packing", triangles_used=len(ids), complete=len(ids) == forcing, packing=pack)
+    if not lp_max:
+        out["lp_status"] = "off"
+    elif len(ids) != forcing or len(ids) > lp_max:
+        # the LP is only worth its time over the complete set of forcing triangles
+        out["lp_status"] = f"skipped: {forcing} forcing triangles, more than the LP limit {min(lp_max, collect_max)}"
+    elif pack < nent:
+        val, status = _lp_bound(ids, nent, lp_time_limit)
+        out.update(lp_triangles=len(ids), lp_status=status)
+        if val is not None:
+            out["lp_value"] = _r12(val)
+            lp_int = int(math.ceil(val - 1e-6))
+            if lp_int > pack:
+                out.update(value=lp_int, method="lp")
+    return out
+
+
+# ------------------------------------------------------------------ the API
+def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
+          exact_quartets_max: int = 2_000_000, quartet_samples: int = 200_000,
+          collect_max: int = 300_000, lp_max: int = 20_000, lp_time_limit: float | None = 60.0,
+          bounds: bool = True) -> AuditReport:
+    """Audit a distance matrix.
+
+    Parameters
+    ----------
+    dm : DistanceMatrix or array_like (n, n)
+        The matrix (an array is validated and labelled ``t0 .. t{n-1}``).
+    tol : float, optional
+        Tolerance (default: 1e-9 times the largest entry). A triangle is
+        violated when its longest side exceeds the sum of the other two by
+        more than ``tol``.
+    top : int
+        Worst triangles kept.
+    seed : int
+        Seed of the quartet sample.
+    exact_quartets_max : int
+        All quartets are examined when there are at most this many.
+    quartet_samples : int
+        Quartets drawn beyond that.
+    collect_max, lp_max : int
+        Caps on the forcing triangles collected for the packing bound and on
+        the triangles given to the linear program (0 turns the LP off).
+    lp_time_limit : float or None
+        Seconds for the LP solver.
+    bounds : bool
+        Compute ``min_changes_lower_bound`` (else it is 0, method "none").
+
+    Returns
+    -------
+    AuditReport
+
+    Examples
+    --------
+    >>> r = audit([[0, 5, 1], [5, 0, 1], [1, 1, 0]])
+    >>> r.violated, r.max_violation, r.min_changes_lower_bound
+    (1, 3.0, 1)
+    >>> r.ranked_taxa(1)[0]["taxon"]
+    't0'
+    """
+    from .audit_kernels import quartet_stats, scan_triangles
+    from .metric import TILE, tile_starts
+
+    if not isinstance(dm, DistanceMatrix):
+        dm = DistanceMatrix.from_array(dm)
+    if top < 0:
+        raise InputError(f"--top must be non-negative (got {top})")
+    d = np.ascontiguousarray(dm.values, dtype=np.float64)
+    n = dm.n
+    finite = d[~np.isnan(d)]
+    largest = float(finite.max()) if finite.size else 0.0
+    if tol is None:
+        tol = default_tol(d)
+    tol = float(tol)
+    if not (tol >= 0) or math.isinf(tol):
+        raise InputError(f"tolerance must be a finite non-negative number (got {tol})")
+    secs = {}
+    t0 = time.perf_counter()
+    missing = dm.missing_count()
+    starts = tile_starts(n, TILE)
+    # A violated triangle whose excess is above 4 tol (plus a rounding guard)
+    # stays violated unless one of its entries moves by more than tol: see docs.
+    hard = 4.0 * tol + 16.0 * _EPS * largest
+    scan = scan_triangles(d, tol, hard, largest, np.array(HIST_EDGES), top, starts, TILE)
+    secs["triangles"] = time.perf_counter() - t0
+
+    violated = int(scan["row_viol"].sum())
+    cntp = scan["cnt"]
+    exp = scan["qex"].astype(np.float64) * (largest / 2.0 ** 40) if largest > 0 else np.zeros(len(cntp))
+    lngp = scan["lng"]
+    if violated:
+        iu0, iu1 = np.triu_indices(n, 1)
+        w = cntp.astype(np.float64)
+        taxon_counts = np.rint((np.bincount(iu0, w, n) + np.bincount(iu1, w, n)) / 2).astype(np.int64)
+        taxon_excess = (np.bincount(iu0, exp, n) + np.bincount(iu1, exp, n)) / 2.0
+        del iu0, iu1, w
+    else:
+        taxon_counts = np.zeros(n, np.int64)
+        taxon_excess = np.zeros(n)
+    # checked triangles per taxon: sum over b < c of O[t,b] O[t,c] O[b,c] (O = observed)
+    if missing:
+        O = (~np.isnan(d)).astype(np.float32)
+        np.fill_diagonal(O, 0.0)
+        taxon_checked = np.rint(((O @ O) * O).sum(axis=1, dtype=np.float64) / 2.0).astype(np.int64)
+        checked = int(taxon_checked.sum() // 3)
+    else:
+        taxon_checked = np.full(n, _comb(n - 1, 2), np.int64)
+        checked = _comb(n, 3)
+    # the worst triangles: the per-row top lists hold the global top
+    tv, tb, tc = scan["topv"], scan["topb"], scan["topc"]
+    rows = np.repeat(np.arange(n), tv.shape[1])
+    keep = tv.ravel() > 0
+    cand = np.stack([rows[keep], tb.ravel()[keep], tc.ravel()[keep]], axis=1)
+    cv = tv.ravel()[keep]
+    order = np.lexsort((cand[:, 2], cand[:, 1], cand[:, 0], -cv))[:top]
+    worst = [(int(cand[k, 0]), int(cand[k, 1]), int(cand[k, 2]), float(cv[k])) for k in order]
+    maxv = float(scan["row_max"].max()) if n else 0.0
+    secs["ranking"] = time.perf_counter() - t0 - secs["triangles"]
+
+    t1 = time.perf_counter()
+    if bounds:
+        lb = _lower_bound(d, n, hard, scan, collect_max, lp_max, lp_time_limit)
+    else:
+        lb = {"value": 0, "method": "none", "forcing_triangles": int(scan["row_hard"].sum()),
+              "forcing_threshold": hard, "triangles_used": 0, "complete": False, "packing": 0,
+              "lp_value": None, "lp_triangles": 0, "lp_status": None}
+    secs["lower_bound"] = time.perf_counter() - t1
+
+    t1 = time.perf_counter()
+    nq = _comb(n, 4)
+    exact = nq <= exact_quartets_max
+    if exact:
+        qs = quartet_stats(d, tol, None, DELTA_BINS)
+    else:
+        qs = quartet_stats(d, tol, sample_quartets(n, quartet_samples, seed), DELTA_BINS)
+    ex = qs["examined"]
+    dn = qs["taxon_delta_n"]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        taxon_delta = np.where(dn > 0, qs["taxon_delta_sum"] / np.maximum(dn, 1), np.nan)
+    lab = dm.labels
+    four = {
+        "quartets": nq, "exact": exact, "examined": ex, "sampled": not exact,
+        "sample_size": None if exact else quartet_samples, "seed": None if exact else seed,
+        "skipped_missing": qs["missing"],
+        "violated": qs["violated"], "violated_fraction": qs["violated"] / ex if ex else 0.0,
+        "relative_deviation_mean": _r12(qs["rel_sum"] / ex) if ex else 0.0,
+        "relative_deviation_max": _r12(qs["rel_max"]),
+        "worst_quartet": [lab[i] for i in qs["worst"]] if qs["worst"] and qs["rel_max"] > 0 else None,
+        "delta_mean": _r12(qs["delta_sum"] / qs["delta_n"]) if qs["delta_n"] else None,
+        "delta_quartets": qs["delta_n"], "delta_undefined": qs["star"],
+        "delta_histogram": {"edges": [round(k / DELTA_BINS, 10) for k in range(DELTA_BINS + 1)],
+                            "counts": [int(x) for x in qs["delta_hist"]]},
+        "definition": "sums S <= M <= L of the three pairings of a quartet; violated when L - M > tol; "
+                      "relative deviation (L - M) / L; delta (L - M) / (L - S), undefined when L - S <= tol",
+    }
+    secs["quartets"] = time.perf_counter() - t1
+
+    umax, ucount, uw = scan["umax"], scan["ucount"], scan["uworst"]
+    ultra = {"ultrametric": bool(checked) and ucount == 0 and violated == 0 and missing == 0,
+             "max_deviation": umax, "max_deviation_relative": (umax / largest) if largest > 0 else 0.0,
+             "violated_triangles": ucount,
+             "worst_triangle": [lab[i] for i in uw] if uw else None,
+             "definition": "three-point condition: in every triangle the two longest sides are equal; "
+                           "deviation = longest - middle; ultrametric when no deviation exceeds tol"}
+    secs["total"] = time.perf_counter() - t0
+
+    return AuditReport(labels=dm.labels, tol=tol, largest=largest, n=n, missing_entries=missing,
+                       triangles=_comb(n, 3), checked_triangles=checked, violated=violated,
+                       max_violation=maxv, worst_triangles=worst, histogram=scan["hist"],
+                       pair_counts=cntp, pair_excess=exp, pair_longest=lngp,
+                       taxon_counts=taxon_counts, taxon_excess=taxon_excess, taxon_checked=taxon_checked,
+                       lower_bound=lb, four_point=four, taxon_delta=taxon_delta, ultrametric=ultra,
+                       values=d, seconds=secs)
