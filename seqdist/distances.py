@@ -664,14 +664,16 @@ def _evaluate(st: dict, ctx: _Context):
         bad = np.broadcast_to(bad, shape)
         if ctx.need_var:
             var = _delta_var(grad, props, Sd)
-    d = np.array(d, dtype=np.float64) + 0.0  # + 0.0 turns -0.0 (from -ln 1) into 0.0
+    d = np.array(d, dtype=np.float64)
+    d += 0.0  # turns -0.0 (from -ln 1) into 0.0
     bad = bad | ~np.isfinite(d)
     reason[bad & ~extra_bad] = SATURATED
     reason[extra_bad] = UNDEFINED
     reason[~has] = NO_OVERLAP
     d[reason != 0] = np.nan
     if var is not None:
-        var = np.array(np.broadcast_to(var, shape), dtype=np.float64) + 0.0
+        var = np.array(np.broadcast_to(var, shape), dtype=np.float64)
+        var += 0.0
         var[reason != 0] = np.nan
         var[~np.isfinite(var)] = np.nan
     return d, var, reason
