@@ -318,8 +318,12 @@ def _split_rows(split_list, support, taxa, limit=60) -> str:
 
 
 def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"), title: str | None = None,
-                outgroup: str | None = None) -> str:
+                outgroup: str | None = None, preamble: str | None = None) -> str:
     """The whole page as text (see module docs).
+
+    ``preamble`` is trusted html placed after the summary and caution (the
+    whole-job report of ``seqdist run`` puts its data, audit and repair
+    section there).
 
     Examples
     --------
@@ -345,6 +349,8 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
                f'{_esc(r["method"].upper())} &middot; {n:,} taxa &middot; tolerance {_num(r["tol"], 3)}</p>')
     out.append('<div class="summary">' + "".join(f"<p>{_esc(x)}</p>" for x in summary_lines(r, names)) + "</div>")
     out.append(f'<div class="caution"><b>Caution.</b> {_esc(CAUTION)}</div>')
+    if preamble:
+        out.append(preamble)
 
     # trees
     out.append("<h2>Trees</h2>")
