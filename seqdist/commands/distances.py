@@ -114,35 +114,52 @@ def _pair_file(res) -> str:
 
 
 def format_matrix_fast(dm, fmt: str) -> str:
-    """The same text as :func:`seqdist.io.format_matrix`, faster for large matrices.
+    """The same text as :func:`seqdist.io.format_matrix`, much faster for large matrices.
 
-    Each distinct value is formatted once (distances computed from counts
-    repeat a lot), then rows are joined from the formatted cells. A local
-    stand-in until the shared writer does this itself; a test checks the
+    Each distinct value is formatted once (``repr``, as the shared writer
+    does; distances computed from counts repeat a lot), found by hashing
+    (pandas.factorize) rather than sorting; the rows are then assembled as
+    bytes from a fixed-width table of ``separator + cell`` strings. A local
+    stand-in until the shared writer does this itself; a test checks that the
     two agree byte for byte.
     """
+    import pandas as pd
+
     from ..io import _fmt, _quote_cell, format_matrix
 
     n = dm.n
     labels = list(dm.labels)
-    if n < 200 or fmt not in ("tsv", "csv", "square", "lower") or (
-            fmt in ("square", "lower") and any(not lab or any(c.isspace() for c in lab) for lab in labels)):
-        return format_matrix(dm, fmt)  # small, or the shared writer's error message
-    uniq, inv = np.unique(dm.values, return_inverse=True)
-    cells = np.array([_fmt(v) for v in uniq.tolist()], dtype=object)
-    inv = inv.reshape(n, n)
+    vals = dm.values
+    zero = vals == 0
+    if (n < 200 or fmt not in ("tsv", "csv", "square", "lower")
+            or (fmt in ("square", "lower") and any(not lab or any(c.isspace() for c in lab) for lab in labels))
+            or np.signbit(vals[zero]).any()):
+        return format_matrix(dm, fmt)  # small, an error message of the shared writer, or a -0.0 to keep
+    codes, uniq = pd.factorize(vals.ravel(), use_na_sentinel=True)  # NaN -> -1, the last table row below
+    cells = [_fmt(v) for v in np.asarray(uniq).tolist()] + ["NA"]
+    codes = codes.reshape(n, n)
+    sep = {"tsv": "\t", "csv": ","}.get(fmt, " ")
+    width = max(len(c) for c in cells) + 1
+    # Fixed-width rows of (separator + cell), padded with NUL bytes that are dropped after the gather.
+    table = np.frombuffer("".join((sep + c).ljust(width, "\0") for c in cells).encode("ascii"),
+                          dtype=np.uint8).reshape(len(cells), width)
     parts: list[str] = []
     if fmt in ("tsv", "csv"):
-        sep = "\t" if fmt == "tsv" else ","
         buf = io.StringIO()
         csv.writer(buf, delimiter=sep, lineterminator="\n").writerow([""] + labels)
         parts.append(buf.getvalue())
-        for i, lab in enumerate(labels):
-            parts.append(_quote_cell(lab, sep) + sep + sep.join(cells[inv[i]].tolist()) + "\n")
+        heads = [_quote_cell(lab, sep) for lab in labels]
     else:
         parts.append(f"{n}\n")
-        lower = fmt == "lower"
-        for i, lab in enumerate(labels):
-            row = cells[inv[i, :i]] if lower else cells[inv[i]]
-            parts.append(" ".join([lab] + row.tolist()) + "\n")
+        heads = labels
+    lower = fmt == "lower"
+    block = max(1, (16 << 20) // max(1, n * width))
+    for b0 in range(0, n, block):
+        b1 = min(n, b0 + block)
+        gathered = table[codes[b0:b1]]  # (rows, n, width)
+        for r in range(b1 - b0):
+            i = b0 + r
+            flat = gathered[r, :i].reshape(-1) if lower else gathered[r].reshape(-1)
+            parts.append(heads[i] + flat[flat != 0].tobytes().decode("ascii") + "\n")
+        del gathered
     return "".join(parts)
