@@ -411,3 +411,26 @@ def test_negative_branches_kept_and_clamped():
     assert k > 0
     c = neighbor_joining(dm, clamp_negative=True)
     assert c.negative_branches() == 0 and c.clamped == k
+
+
+# ------------------------------------------------ the two search strategies
+@settings(max_examples=40, deadline=None)
+@given(st.integers(3, 40), st.integers(0, 2**31 - 1), st.sampled_from(["float", "int", "few"]),
+       st.booleans())
+def test_sorted_search_equals_full_scan(n, seed, kind, use_bionj):
+    # The sorted-row search with early stop must pick exactly the pair the
+    # full scan picks at every step, ties included (integer and few-valued
+    # matrices have many exact ties).
+    rng = np.random.default_rng(seed)
+    if kind == "float":
+        X = rng.uniform(0, 1, (n, 3))
+        D = np.sqrt(((X[:, None] - X[None]) ** 2).sum(-1))
+    else:
+        hi = 20 if kind == "int" else 3
+        D = rng.integers(1, hi, (n, n)).astype(float)
+        D = np.triu(D, 1)
+        D = D + D.T
+    dm = DistanceMatrix.from_array(D, labels_for(n))
+    a = neighbor_joining(dm, bionj=use_bionj, search="sorted")
+    b = neighbor_joining(dm, bionj=use_bionj, search="full")
+    assert a.to_newick() == b.to_newick()

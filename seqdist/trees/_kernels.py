@@ -13,17 +13,42 @@ from numba import njit
 
 @njit(cache=True, fastmath={"nnan", "ninf"})
 def _row_q_min(row, R, a, c):  # pragma: no cover - compiled
-    # min over b < a of c * row[b] - R[b]; the same operations in the same
-    # order as the exact scan (no contraction), so the values agree bit for bit
+    # min over b < a of Q(a, b), with the same operations in the same order
+    # as the exact scan (no contraction), so the values agree bit for bit
     lo = np.inf
+    ra = R[a]
     for b in range(a):
-        q = c * row[b] - R[b]
+        q = c * row[b] - (ra + R[b])
         lo = min(lo, q)
     return lo
 
 
 @njit(cache=True)
-def nj_kernel(D, V, bionj):  # pragma: no cover - compiled
+def _better(q, best, lo, hi, k0, k1):  # pragma: no cover - compiled
+    # the documented order: smaller Q, then smaller (min key, max key)
+    return q < best or (q == best and (lo < k0 or (lo == k0 and hi < k1)))
+
+
+@njit(cache=True)
+def _sorted_row(vals, ids, out_v, out_i):  # pragma: no cover - compiled
+    order = np.argsort(vals)
+    for t in range(order.size):
+        out_v[t] = vals[order[t]]
+        out_i[t] = ids[order[t]]
+
+
+@njit(cache=True)
+def nj_kernel(D, V, bionj, sorted_rows):  # pragma: no cover - compiled
+    """Neighbor joining / BIONJ on the (n, n) array D (overwritten).
+
+    sorted_rows=False: every step scans the lower triangle (with a cheap
+    vectorised row minimum first). sorted_rows=True: each row also keeps its
+    distances in increasing order, and a row's scan stops as soon as
+    c d - (R_a + max R) exceeds the best Q so far; a pair is stored in the
+    row of its younger member (distances between surviving clusters never
+    change), entries of joined clusters are skipped and compacted away when
+    half of the clusters have gone. Both pick the same pair every step.
+    """
     n = D.shape[0]
     m = n
     ids = np.arange(n)
@@ -39,6 +64,28 @@ def nj_kernel(D, V, bionj):  # pragma: no cover - compiled
     lens = np.empty((steps, 2))
     newd = np.empty(n)
     newv = np.empty(n)
+    # sorted rows (storage row per slot), used when sorted_rows
+    ns = n if sorted_rows else 1
+    SV = np.empty((ns, ns))
+    SI = np.empty((ns, ns), dtype=np.int32)
+    length = np.zeros(ns, dtype=np.int64)
+    head = np.zeros(ns, dtype=np.int64)
+    store = np.arange(ns)
+    slot_of = np.full(2 * n, -1, dtype=np.int64)
+    slot_of[:n] = np.arange(n)
+    tmpv = np.empty(n)
+    tmpi = np.empty(n, dtype=np.int64)
+    if sorted_rows:
+        for a in range(n):
+            t = 0
+            for b in range(n):
+                if b != a:
+                    tmpv[t] = D[a, b]
+                    tmpi[t] = b
+                    t += 1
+            _sorted_row(tmpv[:t], tmpi[:t], SV[a], SI[a])
+            length[a] = t
+    compact_at = n // 2
     for step in range(steps):
         if step > 0 and step % 64 == 0:
             for a in range(m):
@@ -53,36 +100,89 @@ def nj_kernel(D, V, bionj):  # pragma: no cover - compiled
         bj = -1
         k0 = n
         k1 = n
-        for a in range(1, m):
-            row = D[a]
-            ra = R[a]
-            # cheap vectorised row minimum first; the exact scan with index
-            # and tie-break only runs for rows that can win
-            lo = _row_q_min(row, R, a, c)
-            if lo - ra > best:
-                continue
-            for b in range(a):
-                q = (c * row[b] - R[b]) - ra
-                if q < best:
-                    best = q
-                    bi = b
-                    bj = a
-                    if key[a] < key[b]:
-                        k0 = key[a]
-                        k1 = key[b]
-                    else:
-                        k0 = key[b]
-                        k1 = key[a]
-                elif q == best:
-                    ka = key[a]
-                    kb = key[b]
-                    if ka > kb:
-                        ka, kb = kb, ka
-                    if ka < k0 or (ka == k0 and kb < k1):
-                        bi = b
-                        bj = a
-                        k0 = ka
-                        k1 = kb
+        if not sorted_rows:
+            for a in range(1, m):
+                row = D[a]
+                ra = R[a]
+                # cheap vectorised row minimum first; the exact scan with
+                # index and tie-break only runs for rows that can win
+                if _row_q_min(row, R, a, c) > best:
+                    continue
+                ka = key[a]
+                for b in range(a):
+                    q = c * row[b] - (ra + R[b])
+                    if q <= best:
+                        kb = key[b]
+                        lo = min(ka, kb)
+                        hi = max(ka, kb)
+                        if _better(q, best, lo, hi, k0, k1):
+                            best = q
+                            bi = b
+                            bj = a
+                            k0 = lo
+                            k1 = hi
+        else:
+            if m <= compact_at:
+                # drop the entries of joined clusters (order is kept)
+                for a in range(m):
+                    st = store[a]
+                    t = 0
+                    for h in range(head[st], length[st]):
+                        if slot_of[SI[st, h]] >= 0:
+                            SV[st, t] = SV[st, h]
+                            SI[st, t] = SI[st, h]
+                            t += 1
+                    length[st] = t
+                    head[st] = 0
+                compact_at = m // 2
+            rmax = -np.inf
+            for a in range(m):
+                if R[a] > rmax:
+                    rmax = R[a]
+            # a first best from each row's nearest live entry
+            for a in range(m):
+                st = store[a]
+                h = head[st]
+                while h < length[st] and slot_of[SI[st, h]] < 0:
+                    h += 1
+                head[st] = h
+                if h < length[st]:
+                    b = slot_of[SI[st, h]]
+                    q = c * SV[st, h] - (R[a] + R[b])
+                    lo = min(key[a], key[b])
+                    hi = max(key[a], key[b])
+                    if _better(q, best, lo, hi, k0, k1):
+                        best = q
+                        bi = a
+                        bj = b
+                        k0 = lo
+                        k1 = hi
+            for a in range(m):
+                st = store[a]
+                ra = R[a]
+                base = ra + rmax
+                ka = key[a]
+                for h in range(head[st], length[st]):
+                    d = SV[st, h]
+                    # rounding is monotone: this bound never exceeds a computed Q
+                    if c * d - base > best:
+                        break
+                    b = slot_of[SI[st, h]]
+                    if b < 0:
+                        continue
+                    q = c * d - (ra + R[b])
+                    if q <= best:
+                        kb = key[b]
+                        lo = min(ka, kb)
+                        hi = max(ka, kb)
+                        if _better(q, best, lo, hi, k0, k1):
+                            best = q
+                            bi = a
+                            bj = b
+                            k0 = lo
+                            k1 = hi
+            if bi > bj:
+                bi, bj = bj, bi
         if bi < 0:  # every Q is NaN: cannot happen on a valid matrix
             bi = 0
             bj = 1
@@ -149,6 +249,10 @@ def nj_kernel(D, V, bionj):  # pragma: no cover - compiled
         D[i, j] = 0.0
         D[j, i] = 0.0
         R[i] = ru
+        if sorted_rows:
+            slot_of[ids[i]] = -1
+            slot_of[ids[j]] = -1
+            slot_of[n + step] = i
         ids[i] = n + step
         if key[j] < key[i]:
             key[i] = key[j]
@@ -169,7 +273,22 @@ def nj_kernel(D, V, bionj):  # pragma: no cover - compiled
             R[j] = R[last]
             ids[j] = ids[last]
             key[j] = key[last]
+            if sorted_rows:
+                store[j] = store[last]
+                slot_of[ids[j]] = j
         m -= 1
+        if sorted_rows:
+            # the new cluster's row: every other live cluster, sorted
+            t = 0
+            for k in range(m):
+                if k != i:
+                    tmpv[t] = D[i, k]
+                    tmpi[t] = ids[k]
+                    t += 1
+            st = store[i]
+            _sorted_row(tmpv[:t], tmpi[:t], SV[st], SI[st])
+            length[st] = t
+            head[st] = 0
     # the three that remain meet at one node (three-point formula)
     last3 = np.empty(3, dtype=np.int64)
     len3 = np.empty(3)
@@ -183,6 +302,7 @@ def nj_kernel(D, V, bionj):  # pragma: no cover - compiled
         for a in range(3):
             last3[a] = ids[a]
     return kids, lens, last3, len3
+
 
 @njit(cache=True)
 def _row_min(D, a, m, key):  # pragma: no cover - compiled
