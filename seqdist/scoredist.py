@@ -209,7 +209,7 @@ def distances_from_scores(scores: np.ndarray, random_scores: np.ndarray | None, 
     --------
     >>> S = np.array([[6., 2.], [2., 4.]])
     >>> D, _, _ = distances_from_scores(S, np.array([[0, -1.], [-1, 0]]), "fd")
-    >>> round(D[0, 1], 4)   # -100 ln((2 + 1) / (5 + 1))
+    >>> round(float(D[0, 1]), 4)   # -100 ln((2 + 1) / (5 + 1))
     69.3147
     """
     S = np.asarray(scores, dtype=np.float64)
