@@ -22,7 +22,7 @@ from . import __version__
 from .errors import SeqdistError
 
 # In the order of the contract's table; a module that is not there yet is skipped.
-COMMANDS = ["distances", "scores", "audit", "repair", "tree", "impact", "run", "convert", "simulate", "scoredist"]
+COMMANDS = ["distances", "scores", "audit", "repair", "tree", "impact", "run", "convert", "simulate", "pairscores"]
 
 
 class _Parser(argparse.ArgumentParser):

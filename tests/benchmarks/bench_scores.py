@@ -1,4 +1,4 @@
-"""Benchmark of ``seqdist scoredist`` and the side-by-side report of three standard matrices.
+"""Benchmark of ``seqdist pairscores`` and the side-by-side report of three standard matrices.
 
 Run from the project root:
 
@@ -30,7 +30,7 @@ sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspa
 
 from seqdist.scores import (AMINO20, ROBINSON_1991, TRANSFORMS, check_score_matrix,  # noqa: E402
                             load_score_matrix, score_statistics)
-from seqdist.scoredist import score_distances  # noqa: E402
+from seqdist.pairscores import score_distances  # noqa: E402
 
 
 def simulate(n: int, length: int, seed: int) -> list[str]:
@@ -96,7 +96,7 @@ def part1(n, length, seed):
     pairs = n * (n - 1) // 2
     mean_len = np.mean([len(s) for s in seqs])
     load = os.getloadavg()[0]
-    print(f"## scoredist: {n} sequences, mean length {mean_len:.0f}, {pairs} pairs, BLOSUM62, gaps 11/1, "
+    print(f"## pairscores: {n} sequences, mean length {mean_len:.0f}, {pairs} pairs, BLOSUM62, gaps 11/1, "
           f"global; {os.cpu_count()} CPUs, load average {load:.1f} at the start\n")
     blas = ", ".join(sorted({f"{i.get('internal_api')} {i.get('architecture', '')}".strip()
                              for i in threadpool_info()})) or "none loaded"
@@ -110,14 +110,14 @@ def part1(n, length, seed):
     ref = w
     for procs in (1, 2):
         w, c, _ = timed(ours("cosine", procs))
-        rows.append((f"seqdist scoredist --formula cosine, {procs} process(es)", w, c, ref))
+        rows.append((f"seqdist pairscores --formula cosine, {procs} process(es)", w, c, ref))
     w, c, _ = timed(lambda: reference(seqs, "global", True))
     rows.append(("Biopython aligner.align()[0], 1 process (reference for fd)", w, c, w))
     ref = w
     results = {}
     for procs in (1, 2):
         w, c, r = timed(ours("fd", procs))
-        rows.append((f"seqdist scoredist --formula fd, {procs} process(es)", w, c, ref))
+        rows.append((f"seqdist pairscores --formula fd, {procs} process(es)", w, c, ref))
         results[procs] = r.dm
     assert results[1].equals(results[2]), "1 and 2 processes disagree"
     print("| route | wall s | CPU s | pairs/s (wall) | wall / reference |")

@@ -1,4 +1,4 @@
-"""``seqdist scoredist``: distances between unaligned sequences from pairwise alignment scores."""
+"""``seqdist pairscores``: distances between unaligned sequences from pairwise alignment scores."""
 
 from __future__ import annotations
 
@@ -24,12 +24,12 @@ unless --free-end-gaps).
 Gaps ('-', '.') in the input are removed: the sequences are treated as unaligned.
 
 example:
-  seqdist scoredist proteins.fasta -o dist.tsv --matrix BLOSUM62 --mode global \\
+  seqdist pairscores proteins.fasta -o dist.tsv --matrix BLOSUM62 --mode global \\
       --gap-open 11 --gap-extend 1 --processes 2"""
 
 
 def register(subs, common):
-    p = add_subcommand(subs, common, "scoredist",
+    p = add_subcommand(subs, common, "pairscores",
                        "distances between unaligned sequences from pairwise alignment scores", _HELP)
     p.add_argument("sequences", metavar="SEQUENCES", help="FASTA file of unaligned sequences ('-' for standard input)")
     p.add_argument("-o", "--out", required=True, metavar="PATH",
@@ -55,7 +55,7 @@ def register(subs, common):
 
 def _run(args) -> int:
     from ..console import warn
-    from ..scoredist import read_fasta, score_distances
+    from ..pairscores import read_fasta, score_distances
 
     t0 = time.perf_counter()
     ids, seqs, lines = read_fasta(args.sequences)

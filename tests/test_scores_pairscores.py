@@ -1,4 +1,4 @@
-"""Alignment-score distances between unaligned sequences (``seqdist scoredist``)."""
+"""Alignment-score distances between unaligned sequences (``seqdist pairscores``)."""
 
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ import pytest
 from Bio.Align import PairwiseAligner, substitution_matrices
 
 from seqdist.errors import InputError
-from seqdist.scoredist import distances_from_scores, read_fasta, score_distances
+from seqdist.pairscores import distances_from_scores, read_fasta, score_distances
 from seqdist.scores import ScoreMatrix
 
 # A tiny matrix for hand computation: match +2, mismatch -1 over {A, C}.
@@ -117,8 +117,8 @@ def test_parallel_equals_serial_byte_for_byte(tmp_path, cli):
     fa = tmp_path / "s.fasta"
     write_fasta(fa, recs)
     a, b = tmp_path / "a.tsv", tmp_path / "b.tsv"
-    assert cli("scoredist", fa, "-o", a, "--processes", "1").returncode == 0
-    assert cli("scoredist", fa, "-o", b, "--processes", "2").returncode == 0
+    assert cli("pairscores", fa, "-o", a, "--processes", "1").returncode == 0
+    assert cli("pairscores", fa, "-o", b, "--processes", "2").returncode == 0
     assert a.read_bytes() == b.read_bytes()
 
 
@@ -130,7 +130,7 @@ def test_undefined_distance_is_missing_with_a_warning(tmp_path, cli):
     fa = tmp_path / "s.fasta"
     fa.write_text(">x\nAAAA\n>y\nCCCC\n>z\nAACA\n")
     out, js = tmp_path / "d.tsv", tmp_path / "d.json"
-    r = cli("scoredist", fa, "-o", out, "--matrix", mat, "--gap-open", "2", "--gap-extend", "2",
+    r = cli("pairscores", fa, "-o", out, "--matrix", mat, "--gap-open", "2", "--gap-extend", "2",
             "--json", js)
     assert r.returncode == 0, r.stderr
     assert "warning" in r.stderr and "x-y" in r.stderr and "S_ab <= S_rand" in r.stderr
@@ -157,7 +157,7 @@ def test_bad_sequences_exit_2(tmp_path, cli, text, msg):
 
     p = tmp_path / "s.fasta"
     p.write_text(text)
-    r = cli("scoredist", p, "-o", tmp_path / "d.tsv")
+    r = cli("pairscores", p, "-o", tmp_path / "d.tsv")
     assert r.returncode == 2, r.stderr
     lines = r.stderr.strip().splitlines()
     assert len(lines) == 1 and re.search(msg, lines[0]) and lines[0].startswith("seqdist: error:")
@@ -173,12 +173,12 @@ def test_asymmetric_matrix_refused(tmp_path):
 def test_cli_stdout_and_options(tmp_path, cli):
     fa = tmp_path / "p.fasta"
     write_fasta(fa, PROTEINS)
-    r = cli("scoredist", fa, "-o", "-", "--mode", "local", "--formula", "cosine", "--gap-open", "10",
+    r = cli("pairscores", fa, "-o", "-", "--mode", "local", "--formula", "cosine", "--gap-open", "10",
             "--gap-extend", "0.5", "--matrix", "blosum45", "--processes", "1")
     assert r.returncode == 0, r.stderr
     lines = r.stdout.splitlines()
     assert lines[0].split("\t")[1:] == list(PROTEINS) and len(lines) == 6
-    assert cli("scoredist", fa, "-o", "-", "--mode", "semi").returncode == 2
+    assert cli("pairscores", fa, "-o", "-", "--mode", "semi").returncode == 2
 
 
 @pytest.mark.parametrize("mode", ["global", "local"])
