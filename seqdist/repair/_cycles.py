@@ -189,3 +189,199 @@ def sweep_nearest(X: np.ndarray, ei, ej, target, lower, tol: float, max_sweeps: 
     if ei.size == 0:
         return 0
     return int(_sweep(X, ei, ej, target, lower, float(tol), int(max_sweeps)))
+
+
+# ------------------------------------------------- violated triangles
+@njit(cache=True)
+def _violated_triangles(D, tol, count_only, out):  # pragma: no cover - compiled
+    # All triples i < j < k with every side observed and the longest side
+    # longer than the sum of the other two by more than tol. out[t] = (i, j, k, h)
+    # with h the heavy side: 0 = (i, j), 1 = (i, k), 2 = (j, k).
+    n = D.shape[0]
+    t = 0
+    for i in range(n):
+        for j in range(i + 1, n):
+            dij = D[i, j]
+            if dij != dij:
+                continue
+            for k in range(j + 1, n):
+                dik = D[i, k]
+                djk = D[j, k]
+                if dik != dik or djk != djk:
+                    continue
+                h = -1
+                if dij > dik + djk + tol:
+                    h = 0
+                elif dik > dij + djk + tol:
+                    h = 1
+                elif djk > dij + dik + tol:
+                    h = 2
+                if h >= 0:
+                    if not count_only:
+                        out[t, 0] = i
+                        out[t, 1] = j
+                        out[t, 2] = k
+                        out[t, 3] = h
+                    t += 1
+    return t
+
+
+def violated_triangles(D: np.ndarray, tol: float) -> np.ndarray:
+    """(m, 4) int array of violated triangles ``(i, j, k, heavy)``, i < j < k.
+
+    ``heavy`` names the longest side: 0 = (i, j), 1 = (i, k), 2 = (j, k).
+    Triangles with a missing (NaN) side are skipped.
+
+    Examples
+    --------
+    >>> violated_triangles(np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]]), 1e-9).tolist()
+    [[0, 1, 2, 0]]
+    """
+    D = np.ascontiguousarray(D, dtype=np.float64)
+    dummy = np.empty((0, 4), dtype=np.int64)
+    m = _violated_triangles(D, float(tol), True, dummy)
+    out = np.empty((m, 4), dtype=np.int64)
+    _violated_triangles(D, float(tol), False, out)
+    return out
+
+
+def triangle_sides(tri: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The three sides of each triangle as (m, 2) arrays: heavy side first, then the two light ones."""
+    i, j, k, h = tri[:, 0], tri[:, 1], tri[:, 2], tri[:, 3]
+    s_ij = np.stack([i, j], 1)
+    s_ik = np.stack([i, k], 1)
+    s_jk = np.stack([j, k], 1)
+    heavy = np.where((h == 0)[:, None], s_ij, np.where((h == 1)[:, None], s_ik, s_jk))
+    l1 = np.where((h == 0)[:, None], s_ik, s_ij)
+    l2 = np.where((h == 2)[:, None], s_ik, s_jk)
+    return heavy, l1, l2
+
+
+# ------------------------------------------------------ greedy hitting
+@njit(cache=True)
+def _greedy_hit(n, tri, cand, w, alive, start_score):  # pragma: no cover - compiled
+    # Greedy weighted hitting set of the triangles' candidate sides.
+    # cand[t, s] (s = 0..2) is 1 when side s of triangle t may be picked
+    # (an unlocked side of the right kind); sides are (i,j), (i,k), (j,k).
+    # Picks the side in most unhit triangles per unit weight, until every
+    # triangle is hit. Returns the picked sides (as i*n+j) and their counts.
+    m = tri.shape[0]
+    cnt = np.zeros((n, n), dtype=np.int64)
+    # incidence: for each side, the triangles it is a candidate in
+    deg = np.zeros(n * n, dtype=np.int64)
+    for t in range(m):
+        i, j, k = tri[t, 0], tri[t, 1], tri[t, 2]
+        for s in range(3):
+            if cand[t, s]:
+                a = i if s < 2 else j
+                b = j if s == 0 else k
+                deg[a * n + b] += 1
+    ptr = np.zeros(n * n + 1, dtype=np.int64)
+    for e in range(n * n):
+        ptr[e + 1] = ptr[e] + deg[e]
+    fill = ptr[:-1].copy()
+    inc = np.empty(ptr[-1], dtype=np.int64)
+    for t in range(m):
+        i, j, k = tri[t, 0], tri[t, 1], tri[t, 2]
+        for s in range(3):
+            if cand[t, s]:
+                a = i if s < 2 else j
+                b = j if s == 0 else k
+                inc[fill[a * n + b]] = t
+                fill[a * n + b] += 1
+    hit = ~alive.copy()
+    for t in range(m):
+        if alive[t]:
+            i, j, k = tri[t, 0], tri[t, 1], tri[t, 2]
+            for s in range(3):
+                if cand[t, s]:
+                    a = i if s < 2 else j
+                    b = j if s == 0 else k
+                    cnt[a, b] += 1
+    picked = []
+    picked_cnt = []
+    score = np.empty((n, n))
+    while True:
+        best = 0.0
+        be = -1
+        for a in range(n):
+            for b in range(a + 1, n):
+                c = cnt[a, b]
+                if c > 0:
+                    ww = w[a, b]
+                    s = np.inf if ww == 0 else (c + start_score[a, b]) / ww
+                    if s > best:
+                        best = s
+                        be = a * n + b
+        if be < 0:
+            break
+        a = be // n
+        b = be % n
+        picked.append(be)
+        picked_cnt.append(cnt[a, b])
+        for q in range(ptr[be], ptr[be + 1]):
+            t = inc[q]
+            if hit[t]:
+                continue
+            hit[t] = True
+            i, j, k = tri[t, 0], tri[t, 1], tri[t, 2]
+            for s in range(3):
+                if cand[t, s]:
+                    x = i if s < 2 else j
+                    y = j if s == 0 else k
+                    cnt[x, y] -= 1
+    out = np.empty(len(picked), dtype=np.int64)
+    outc = np.empty(len(picked), dtype=np.int64)
+    for q in range(len(picked)):
+        out[q] = picked[q]
+        outc[q] = picked_cnt[q]
+    return out, outc
+
+
+def greedy_hitting(n: int, tri: np.ndarray, cand: np.ndarray, w: np.ndarray, alive=None, bias=None):
+    """Greedy weighted hitting set over triangles; returns (edge ids i*n+j, counts at pick time)."""
+    if alive is None:
+        alive = np.ones(tri.shape[0], dtype=np.bool_)
+    if bias is None:
+        bias = np.zeros((n, n))
+    return _greedy_hit(int(n), np.ascontiguousarray(tri, dtype=np.int64), np.ascontiguousarray(cand, dtype=np.bool_),
+                       np.ascontiguousarray(w, dtype=np.float64), np.ascontiguousarray(alive, dtype=np.bool_),
+                       np.ascontiguousarray(bias, dtype=np.float64))
+
+
+# ------------------------------------------------------- packing bound
+@njit(cache=True)
+def _packing(n, tri, cand, order, R):  # pragma: no cover - compiled
+    # Greedy fractional packing of triangles (dual of the hitting-set LP):
+    # y_t = least residual weight among the candidate sides; R -= y_t.
+    total = 0.0
+    for q in range(order.shape[0]):
+        t = order[q]
+        i, j, k = tri[t, 0], tri[t, 1], tri[t, 2]
+        y = np.inf
+        for s in range(3):
+            if cand[t, s]:
+                a = i if s < 2 else j
+                b = j if s == 0 else k
+                if R[a, b] < y:
+                    y = R[a, b]
+        if y > 0 and y < np.inf:
+            total += y
+            for s in range(3):
+                if cand[t, s]:
+                    a = i if s < 2 else j
+                    b = j if s == 0 else k
+                    R[a, b] -= y
+    return total
+
+
+def packing_bound(n: int, tri: np.ndarray, cand: np.ndarray, w: np.ndarray, order: np.ndarray) -> float:
+    """A lower bound on the weighted hitting set: a greedy packing of the triangles.
+
+    Any ``y >= 0`` with ``sum_{t containing e} y_t <= w_e`` for every
+    candidate side ``e`` is feasible for the dual of the hitting-set LP, so
+    ``sum y_t`` bounds every hitting set from below (weak duality).
+    """
+    R = np.array(w, dtype=np.float64)
+    return float(_packing(int(n), np.ascontiguousarray(tri, dtype=np.int64), np.ascontiguousarray(cand, dtype=np.bool_),
+                          np.ascontiguousarray(order, dtype=np.int64), R))

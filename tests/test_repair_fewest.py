@@ -1,0 +1,209 @@
+"""The fewest objective against a brute-force search that does not use our cycle theory.
+
+Reference: for each candidate change set S (smallest first), scipy's
+``linprog`` (HiGHS) decides whether some metric keeps every other entry
+exactly (all triangle inequalities of the complete matrix as rows; missing
+entries free). The smallest feasible S is the optimum. This checks the
+kept-set criterion of docs/repair.md (no kept entry longer than its
+shortest kept path) independently.
+"""
+
+from __future__ import annotations
+
+import itertools
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy.optimize import linprog
+
+from conftest import euclidean
+from seqdist.errors import InfeasibleError
+from seqdist.metric import is_metric
+from seqdist.repair import repair
+
+
+def feasible_lp(D, S, grow=False):
+    """Is there a metric X with X = D off S (observed entries), X >= D on S when grow?"""
+    n = len(D)
+    pairs = list(itertools.combinations(range(n), 2))
+    free = [p for p in pairs if p in S or np.isnan(D[p])]
+    if not free:
+        X = D
+        return all(X[i, j] <= X[i, k] + X[k, j] + 1e-9 for i, j in pairs for k in range(n) if k not in (i, j))
+    idx = {p: q for q, p in enumerate(free)}
+    rows, rhs = [], []
+    for i, j, k in itertools.permutations(range(n), 3):
+        if i > j:
+            continue
+        # x_ij - x_ik - x_kj <= 0 with fixed entries moved to the right-hand side
+        row = np.zeros(len(free))
+        b = 0.0
+        for (a, c), sgn in (((i, j), 1.0), ((min(i, k), max(i, k)), -1.0), ((min(k, j), max(k, j)), -1.0)):
+            if (a, c) in idx:
+                row[idx[(a, c)]] += sgn
+            else:
+                b -= sgn * D[a, c]
+        if row.any():
+            rows.append(row)
+            rhs.append(b)
+        elif b < -1e-9:
+            return False
+    lo = [D[p] if (grow and p in S) else 0.0 for p in free]
+    res = linprog(np.zeros(len(free)), A_ub=np.array(rows) if rows else None, b_ub=np.array(rhs) if rows else None,
+                  bounds=list(zip(lo, [None] * len(free))), method="highs")
+    return res.status == 0
+
+
+def brute_force(D, w=None, grow=False, locked=()):
+    n = len(D)
+    cand = [p for p in itertools.combinations(range(n), 2) if not np.isnan(D[p]) and p not in locked]
+    best = None
+    for s in range(len(cand) + 1):
+        for S in itertools.combinations(cand, s):
+            cost = len(S) if w is None else sum(w[p] for p in S)
+            if best is not None and cost >= best:
+                continue
+            if feasible_lp(D, set(S), grow):
+                best = cost
+        if w is None and best is not None:
+            break
+    return best
+
+
+def small_cases():
+    rng = np.random.default_rng(11)
+    out = []
+    for n in (4, 5, 5, 6):
+        D = euclidean(n, seed=int(rng.integers(1000)))
+        k = int(rng.integers(1, 3))
+        iu = np.triu_indices(n, 1)
+        for q in rng.choice(len(iu[0]), k, replace=False):
+            i, j = iu[0][q], iu[1][q]
+            D[i, j] = D[j, i] = D[i, j] * (4.0 if rng.random() < 0.5 else 0.1)
+        out.append(D)
+    # dense random values: many broken cycles, optimum of several entries
+    for n in (4, 5):
+        a = np.triu(rng.choice([0.0, 1.0, 2.0, 3.0, 6.0], (n, n)), 1)
+        out.append(a + a.T)
+    return out
+
+
+@pytest.mark.parametrize("case", range(6))
+def test_fewest_matches_brute_force(case):
+    D = small_cases()[case]
+    opt = brute_force(D)
+    r = repair(D, "fewest", method="exact", progress=False)
+    assert r.report["objective_value"] == opt
+    assert r.report["optimal"] and r.report["lower_bound"] == opt
+    assert is_metric(r.matrix.values, r.report["tol"])
+    h = repair(D, "fewest", method="heuristic", progress=False)
+    assert h.report["lower_bound"] <= opt <= h.report["objective_value"]
+
+
+def test_fewest_weighted_matches_brute_force():
+    rng = np.random.default_rng(5)
+    D = small_cases()[1]
+    W = np.triu(rng.choice([0.5, 1.0, 3.0], D.shape), 1)
+    W = W + W.T
+    opt = brute_force(D, w={p: W[p] for p in itertools.combinations(range(len(D)), 2)})
+    r = repair(D, "fewest", weights=W, method="exact", progress=False)
+    assert np.isclose(r.report["objective_value"], opt) and r.report["optimal"]
+
+
+def test_fewest_with_missing_entry_matches_brute_force():
+    D = small_cases()[2].copy()
+    D[0, 3] = D[3, 0] = np.nan
+    opt = brute_force(D)
+    r = repair(D, "fewest", method="exact", progress=False)
+    assert r.report["objective_value"] == opt and np.isfinite(r.matrix.values).all()
+
+
+def test_triangles_alone_are_not_enough():
+    # the 4-cycle example of docs/repair.md: a-b, b-c, c-d of length 1, a-d = 10, chords a-c = b-d = 2
+    a, b, c, d = range(4)
+    D = np.zeros((4, 4))
+    for (i, j, v) in [(a, b, 1), (b, c, 1), (c, d, 1), (a, d, 10), (a, c, 2), (b, d, 2)]:
+        D[i, j] = D[j, i] = v
+    from seqdist.repair._cycles import violated_triangles
+
+    tri = {tuple(t[:3]) for t in violated_triangles(D, 1e-9)}
+    assert tri == {(a, b, d), (a, c, d)}
+    # S = {a-c, b-d} meets both violated triangles, yet no metric keeps the rest (LP says so)
+    assert not feasible_lp(D, {(a, c), (b, d)})
+    assert feasible_lp(D, {(a, d)})
+    r = repair(D, "fewest", lock=[(a, d)], method="exact", progress=False)
+    assert r.report["objective_value"] == brute_force(D, locked={(a, d)}) == 2
+
+
+def test_planted_gross_errors_are_found_and_proven():
+    # planted corruption in a Euclidean metric (common practice for repair benchmarks)
+    rng = np.random.default_rng(2)
+    n = 40
+    D = euclidean(n, seed=3)
+    iu = np.triu_indices(n, 1)
+    sel = rng.choice(len(iu[0]), 20, replace=False)
+    for q in sel:
+        i, j = iu[0][q], iu[1][q]
+        D[i, j] = D[j, i] = D[i, j] * (3.0 if q % 2 else 0.1) + (1.0 if q % 2 else 0.0)
+    r = repair(D, "fewest", progress=False)
+    assert r.report["optimal"] and r.report["objective_value"] <= 20
+    assert r.report["lower_bound"] == r.report["objective_value"]
+
+
+def test_metric_input_unchanged():
+    D = euclidean(25, seed=8)
+    for obj in ("fewest", "grow"):
+        r = repair(D, obj, progress=False)
+        assert np.array_equal(r.matrix.values, D) and r.report["optimal"] and r.report["objective_value"] == 0
+
+
+def test_time_limit_returns_verified_answer():
+    rng = np.random.default_rng(4)
+    n = 30
+    D = euclidean(n, seed=4) * np.exp(rng.normal(0, 0.3, (n, n)))
+    D = np.triu(D, 1)
+    D = D + D.T
+    r = repair(D, "fewest", method="exact", time_limit=3, progress=False)
+    assert is_metric(r.matrix.values, r.report["tol"])
+    assert r.report["lower_bound"] <= r.report["objective_value"]
+    assert r.report["optimal"] == (r.report["lower_bound"] == r.report["objective_value"])
+
+
+@st.composite
+def sym(draw):
+    n = draw(st.integers(3, 8))
+    vals = draw(st.lists(st.sampled_from([0.0, 0.5, 1.0, 1.0, 2.0, 3.0, 7.5]), min_size=n * n, max_size=n * n))
+    a = np.triu(np.array(vals).reshape(n, n), 1)
+    if draw(st.booleans()):
+        a[0, n - 1] = np.nan
+    a = a + a.T
+    np.fill_diagonal(a, 0.0)
+    lock = draw(st.lists(st.tuples(st.integers(0, n - 1), st.integers(0, n - 1)).filter(lambda p: p[0] < p[1]
+                                                                                       and p != (0, n - 1)),
+                         max_size=3, unique=True))
+    return a, lock
+
+
+@settings(max_examples=40, deadline=None)
+@given(sym(), st.sampled_from(["fewest", "grow"]), st.sampled_from(["heuristic", "exact"]))
+def test_outputs_are_metrics_locks_hold_and_directions(case, obj, method):
+    D, lock = case
+    try:
+        r = repair(D, obj, lock=lock, method=method, progress=False)
+    except InfeasibleError:
+        # the engine refused: check that the LP agrees that no repair keeps the locks
+        S = {p for p in itertools.combinations(range(len(D)), 2) if p not in lock and not np.isnan(D[p])}
+        assert not feasible_lp(D, S, grow=(obj == "grow"))
+        return
+    X = r.matrix.values
+    tol = r.report["tol"]
+    assert is_metric(X, tol)
+    for i, j in lock:
+        assert X[i, j] == D[i, j]
+    obs = ~np.isnan(D)
+    if obj == "grow":
+        assert (X[obs] >= D[obs] - tol).all()
+    assert r.report["lower_bound"] <= r.report["objective_value"] + 1e-9
+    assert r.report["changed_entries"] == (r.report["objective_value"])
