@@ -35,6 +35,12 @@ from .matrix import DistanceMatrix, default_tol
 #: exceeds the largest entry).
 HIST_EDGES = (0.0, 1e-6, 1e-4, 1e-3, 1e-2, 0.05, 0.1, 0.2, 0.5, 1.0)
 
+#: Thresholds of the "minor violations" verdict (a convention of seqdist, not
+#: from a published source): at most this fraction of the checked triangles
+#: violated, and no excess above this fraction of the largest entry.
+MINOR_FRACTION = 0.01
+MINOR_EXCESS = 0.05
+
 #: Bins of the delta histogram (the delta plot of Holland et al. 2002): ten of width 0.1.
 DELTA_BINS = 10
 
@@ -76,6 +82,7 @@ class AuditReport:
     taxon_counts: np.ndarray
     taxon_excess: np.ndarray
     taxon_checked: np.ndarray
+    taxon_missing: np.ndarray
     lower_bound: dict
     four_point: dict
     taxon_delta: np.ndarray
@@ -150,29 +157,50 @@ class AuditReport:
             chk = int(self.taxon_checked[t])
             dl = self.taxon_delta[t]
             out.append({"taxon": self.labels[t], "violated_triangles": int(self.taxon_counts[t]),
-                        "checked_triangles": chk,
+                        "checked_triangles": chk, "missing_entries": int(self.taxon_missing[t]),
                         "fraction": (int(self.taxon_counts[t]) / chk) if chk else 0.0,
                         "summed_excess": _r12(self.taxon_excess[t]),
                         "delta": None if dl != dl else _r12(dl)})
         return out
 
+    @property
+    def level(self) -> str:
+        """``fit`` (a complete metric), ``minor`` (complete; few, small violations:
+        at most MINOR_FRACTION of the triangles, none above MINOR_EXCESS of the
+        largest entry) or ``not_fit``."""
+        if self.missing_entries:
+            return "not_fit"
+        if self.violated == 0:
+            return "fit"
+        frac = self.violated / max(self.checked_triangles, 1)
+        if frac <= MINOR_FRACTION and self.max_violation <= MINOR_EXCESS * self.largest:
+            return "minor"
+        return "not_fit"
+
     def verdict(self) -> tuple[bool, str, list[str]]:
         """(fit for distance tree methods, one line, the reasons)."""
         reasons = []
         if self.missing_entries:
-            reasons.append(f"{self.missing_entries} missing entr{'y' if self.missing_entries == 1 else 'ies'}: "
-                           "distance tree methods need every pair")
+            worst = np.argsort(-self.taxon_missing, kind="stable")[:3]
+            who = ", ".join(f"{self.labels[t]} ({int(self.taxon_missing[t])})" for t in worst
+                            if self.taxon_missing[t] > 0)
+            reasons.append(f"{self.missing_entries} missing entr{'y' if self.missing_entries == 1 else 'ies'} "
+                           f"(most in {who}): distance tree methods need every pair")
         if self.violated:
             pct = 100.0 * self.violated / max(self.checked_triangles, 1)
             reasons.append(f"{self.violated} of {self.checked_triangles} checked triangles ({pct:.3g}%) break "
                            f"the triangle inequality (largest excess {_g(self.max_violation)}, "
                            f"{_pct(self.max_violation, self.largest)} of the largest entry)")
-        fit = not reasons
-        if fit:
+        level = self.level
+        if level == "fit":
             line = "FIT for distance tree methods: the matrix is a metric (complete, no broken triangle)"
+        elif level == "minor":
+            line = ("FIT for distance tree methods, with minor violations: " + "; ".join(reasons)
+                    + f" (few and small: at most {100 * MINOR_FRACTION:g}% of the triangles, no excess above "
+                    f"{100 * MINOR_EXCESS:g}% of the largest entry)")
         else:
             line = "NOT FIT for distance tree methods as it is: " + "; ".join(reasons)
-        return fit, line, reasons
+        return level != "not_fit", line, reasons
 
     # -------------------------------------------------------------- output
     def to_dict(self, list_max: int = 200) -> dict:
@@ -206,6 +234,7 @@ class AuditReport:
             "max_violation_relative": (_r12(self.max_violation / self.largest) if self.largest > 0 else 0.0),
             "is_metric": self.is_metric,
             "fit_for_tree_methods": fit,
+            "verdict_level": self.level,
             "verdict": line,
             "reasons": reasons,
             "violation_histogram": hist,
@@ -312,6 +341,11 @@ def _g(x) -> str:
 
 def _pct(x: float, top: float) -> str:
     return f"{100 * x / top:.3g}%" if top > 0 else "n/a"
+
+
+def _pct4(f: float) -> str:
+    s = f"{100 * f:.4g}%"
+    return "<0.01%" if 0 < f < 1e-4 else (">99.99%" if 0.9999 < f < 1 else s)
 
 
 def _clip(s: str, w: int) -> str:
@@ -587,5 +621,6 @@ def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
                        max_violation=maxv, worst_triangles=worst, histogram=scan["hist"],
                        pair_counts=cntp, pair_excess=exp, pair_longest=lngp,
                        taxon_counts=taxon_counts, taxon_excess=taxon_excess, taxon_checked=taxon_checked,
+                       taxon_missing=np.isnan(d).sum(axis=1).astype(np.int64),
                        lower_bound=lb, four_point=four, taxon_delta=taxon_delta, ultrametric=ultra,
                        values=d, seconds=secs)

@@ -465,3 +465,20 @@ def test_json_document_is_deterministic_and_complete():
         assert key in doc
     assert len(doc["worst_triangles"]) == 5 and len(doc["taxa"]) == 20
     assert doc["worst_entries"][0]["pair"] == ["t2", "t3"]
+
+
+def test_verdict_levels():
+    D = euclidean(30, seed=12)
+    assert audit(D).level == "fit"
+    # one entry slightly too long: few, small violations (the seqdist "minor" convention)
+    i, j = np.unravel_index(np.argmax(D), D.shape)
+    E = D.copy()
+    E[i, j] = E[j, i] = D[i, j] * 1.02
+    r = audit(E)
+    assert 0 < r.violated <= 0.01 * r.checked_triangles and r.level == "minor" and r.verdict()[0]
+    E[i, j] = E[j, i] = D[i, j] * 3
+    assert audit(E).level == "not_fit"
+    F = D.copy()
+    F[0, 1] = F[1, 0] = np.nan
+    r = audit(F)
+    assert r.level == "not_fit" and "t0 (1)" in r.verdict()[1]
