@@ -13,7 +13,10 @@ Drawing conventions
     Children are ordered by their first taxon in sorted label order. A
     branch whose split is found only in that tree is drawn in colour;
     negative branch lengths are dashed. With split support, each internal
-    branch carries the percentage of replicates containing its split.
+    branch carries the percentage of replicates containing its split. A
+    branch longer than 3 times the 95th percentile of the tree's branch
+    lengths is drawn shortened to that length, with a break mark and its
+    true length written on it.
 """
 
 from __future__ import annotations
@@ -158,10 +161,20 @@ def draw_tree(tree: Tree, taxa: list, highlight: set, support: dict | None = Non
     label_w = min(260.0, 0.62 * font * longest + 12) if labelled else 6.0
     top, bottom, left = 10.0, 40.0, 12.0
     # depth (x) and row (y) of every node
+    # Display lengths: a branch far longer than the rest (e.g. a saturated
+    # taxon) would squash the drawing, so it is drawn shortened with a break
+    # mark and its true length written beside it.
+    lengths = np.array([abs(float(b.length or 0.0)) for b in t.branches()])
+    cap = 3.0 * float(np.quantile(lengths, 0.95)) if lengths.size else 0.0
+    broken: set[int] = set()
     depth: dict[int, float] = {id(t.root): 0.0}
     for node in t.preorder():
         for c in node.children:
-            depth[id(c)] = depth[id(node)] + float(c.length or 0.0)
+            ln = float(c.length or 0.0)
+            if cap > 0 and ln > cap:
+                broken.add(id(c))
+                ln = cap
+            depth[id(c)] = depth[id(node)] + ln
     leaves = t.leaves()
     ys: dict[int, float] = {}
     masks: dict[int, int] = {}
@@ -209,6 +222,15 @@ def draw_tree(tree: Tree, taxa: list, highlight: set, support: dict | None = Non
         parts.append(f'<line x1="{x0:.2f}" y1="{y:.2f}" x2="{x1:.2f}" y2="{y:.2f}" stroke="{colour}" '
                      f'stroke-width="{w}"{dash}><title>{_esc(node.name) if node.is_leaf else "branch"} '
                      f'length {_num(node.length, 6)}</title></line>')
+        if hl:
+            parts.append(f'<circle cx="{x1:.2f}" cy="{y:.2f}" r="3.5" fill="{HIGHLIGHT}"/>')
+        if id(node) in broken:
+            xm = 0.5 * (x0 + x1)
+            for dx in (-3.0, 3.0):
+                parts.append(f'<line x1="{xm + dx - 2:.2f}" y1="{y + 4:.2f}" x2="{xm + dx + 2:.2f}" '
+                             f'y2="{y - 4:.2f}" stroke="#000" stroke-width="1"/>')
+            parts.append(f'<text x="{xm:.2f}" y="{y - 3:.2f}" font-size="{max(6.0, font - 2):.1f}" '
+                         f'text-anchor="middle" fill="#555">{_num(node.length)}</text>')
         if support is not None and not node.is_leaf and 2 <= m.bit_count() <= n - 2 and m in support and labelled:
             pct = int(round(100 * support[m]))
             parts.append(f'<text x="{x1 - 2:.2f}" y="{y - 2:.2f}" font-size="{max(6.0, font - 2):.1f}" '
@@ -359,7 +381,7 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
                  "reference taxon, the same for both).")
     out.append(f'<p class="note">{root_note}<span class="key" style="border-color:{HIGHLIGHT}"></span>split '
                f'found only in this tree<span class="key dash" style="border-color:{PLAIN}"></span>negative '
-               "branch length" + (" &middot; green numbers: % of bootstrap replicates with the split" if sup else "")
+               "branch length &middot; // a very long branch drawn shortened (true length written on it)" + (" &middot; green numbers: % of bootstrap replicates with the split" if sup else "")
                + "</p>")
     if n <= MAX_TREE_LEAVES:
         svg_b, order_b = draw_tree(res.tree_before, taxa, nb - na, sup_b, outgroup=outgroup)

@@ -59,17 +59,27 @@ def _replicate(key) -> tuple[list, list, bool]:
     taxa = o["taxa"]
     n = len(taxa)
     before: list = []
-    ok = not dm.has_missing
+    sub = dm.subset(o["keep_before"])
+    ok = not sub.has_missing
     if ok:
-        before = sorted(nontrivial(splits(build_tree(dm, o["method"]), taxa), n))
+        before = sorted(nontrivial(splits(_on(build_tree(sub, o["method"]), taxa), taxa), n))
     fixed = repair(dm, o["objective"], seed=int(ss.generate_state(1)[0]), progress=False).matrix
-    after = sorted(nontrivial(splits(build_tree(fixed, o["method"]), taxa), n))
+    tree = build_tree(fixed.subset(o["keep_after"]), o["method"])
+    after = sorted(nontrivial(splits(_on(tree, taxa), taxa), n))
     return before, after, ok
+
+
+def _on(tree, taxa):
+    """The tree pruned to the compared taxa (itself when it has no others)."""
+    from .impact import prune
+
+    return tree if tree.n_leaves == len(taxa) else prune(tree, set(taxa))
 
 
 def split_support(alignment, labels, *, replicates: int, model: str, objective: str, method: str = "nj",
                   seed: int = 0, gamma: float | None = None, gaps: str = "pairwise",
-                  workers: int | None = None) -> tuple[dict, dict, int]:
+                  workers: int | None = None, keep_before=None, keep_after=None,
+                  compared=None) -> tuple[dict, dict, int]:
     """Count, over bootstrap replicates, how often each split appears.
 
     Parameters
@@ -77,6 +87,9 @@ def split_support(alignment, labels, *, replicates: int, model: str, objective: 
     alignment : seqdist.alignment.Alignment
     labels : sequence of str
         The taxa (the alignment's record ids, any order).
+    keep_before, keep_after, compared : sequence of str, optional
+        Taxa of the before and after trees and of the comparison (default:
+        all labels), as when some taxa were left out for missing entries.
     replicates : int
     model, objective, method : str
         Distance model, repair objective and tree method of the replicates.
@@ -94,10 +107,11 @@ def split_support(alignment, labels, *, replicates: int, model: str, objective: 
     """
     from ..console import Progress
 
-    taxa = sorted(labels)
+    taxa = sorted(compared if compared is not None else labels)
     aln = alignment.subset(list(labels))
     options = {"model": model, "objective": objective, "method": method, "gamma": gamma, "gaps": gaps,
-               "taxa": taxa}
+               "taxa": taxa, "keep_before": list(keep_before if keep_before is not None else labels),
+               "keep_after": list(keep_after if keep_after is not None else labels)}
     children = np.random.SeedSequence(seed).spawn(replicates)
     keys = [(int(c.entropy), *c.spawn_key) for c in children]
     cb: dict[int, int] = {}
@@ -153,7 +167,7 @@ def add_support(res, alignment_path: str, *, replicates: int, model: str, object
 
     del clamp_negative  # lengths do not enter split support
     aln = read_alignment(alignment_path)
-    la, lm = set(aln.labels), set(res.before.labels) | set(res.report.get("dropped_taxa", []))
+    la, lm = set(aln.labels), set(res.before.labels)
     if la != lm:
         only_a, only_m = sorted(la - lm), sorted(lm - la)
         parts = ([f"only in the alignment: {', '.join(only_a[:5])}"] if only_a else []) + \
@@ -168,11 +182,10 @@ def add_support(res, alignment_path: str, *, replicates: int, model: str, object
              "describe the alignment under that model")
     cb, ca, n_before = split_support(aln, res.before.labels, replicates=replicates, model=model,
                                      objective=objective, method=res.report["method"], seed=seed, gamma=gamma,
-                                     gaps=gaps, workers=workers)
+                                     gaps=gaps, workers=workers, keep_before=res.tree_before.labels(),
+                                     keep_after=res.tree_after.labels(), compared=res.taxa)
     taxa = res.taxa
-    n = len(taxa)
-    sb = nontrivial(splits(res.tree_before, taxa), n)
-    sa = nontrivial(splits(res.tree_after, taxa), n)
+    sb, sa = res.splits_before, res.splits_after
     support = {}
     rows = []
     for m in sorted(sb | sa, key=lambda m: (m.bit_count(), split_labels(m, taxa))):
