@@ -161,3 +161,24 @@ def test_shrink_with_feasible_lock_keeps_it():
     D[0, 1] = D[1, 0] = D[0, 1] * 4 + 3
     r = repair(D, "shrink", lock=[("t2", "t3")], progress=False)
     assert r.matrix.values[2, 3] == D[2, 3]
+
+
+def test_parallel_kernel_matches_reference():
+    rng = np.random.default_rng(9)
+    for n in [5, 70, 200]:
+        D = random_sym(rng, n, zeros=0.05, missing=0.2)
+        ref = apsp_reference(D)
+        for threads in (0, 2):
+            got = apsp(D, threads=threads, block=16, tile=32)
+            fin = np.isfinite(ref)
+            assert np.array_equal(np.isinf(got), ~fin)
+            assert np.allclose(got[fin], ref[fin], rtol=1e-13, atol=1e-13)
+
+
+def test_changes_text_matches_rows():
+    from seqdist.repair import format_changes
+
+    D = random_sym(np.random.default_rng(10), 12, zeros=0.1, missing=0.1)
+    r = repair(D, "shrink", progress=False)
+    assert r.changes_text() == format_changes(r.changes)
+    assert len(r.changes_text().splitlines()) == 1 + r.report["changed_entries"] + r.report["filled_entries"]

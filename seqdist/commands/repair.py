@@ -75,7 +75,7 @@ def _parse_options(items) -> dict:
 def _run(args) -> int:
     from ..console import info
     from ..io import OutputSet, read_matrix, read_pairs
-    from ..repair import format_changes, load_objective, repair
+    from ..repair import load_objective, repair
 
     load_objective(args.objective)  # an unknown objective fails before any reading
     dm = read_matrix(args.matrix, args.in_format)
@@ -91,7 +91,7 @@ def _run(args) -> int:
     with OutputSet() as out:
         out.add_matrix(args.out, res.matrix, args.out_format)
         if args.changes:
-            out.add_text(args.changes, format_changes(res.changes))
+            out.add_text(args.changes, res.changes_text())
         if args.json:
             out.add_json(args.json, rep)
     bound = "optimal" if rep["optimal"] else f"lower bound {rep['lower_bound']:.6g}"

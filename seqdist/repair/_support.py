@@ -288,7 +288,7 @@ def lazy_hitting_set(n, w, cuts, separate, incumbent, deadline: Deadline, progre
 
 
 def lp_bound(n: int, cuts_tri: np.ndarray, cand: np.ndarray, w: np.ndarray, deadline: Deadline,
-             max_rows: int = 300000) -> float | None:
+             max_rows: int = 300000, max_seconds: float = 30.0) -> float | None:
     """LP relaxation of the hitting set over the triangle rows (a lower bound), or None.
 
     ``cuts_tri`` holds (i, j, k) triangles and ``cand`` which of the sides
@@ -311,7 +311,7 @@ def lp_bound(n: int, cuts_tri: np.ndarray, cand: np.ndarray, w: np.ndarray, dead
     flat = ids.ravel()[cand.ravel()]
     cols, inv = np.unique(flat, return_inverse=True)
     A = sp.csr_matrix((-np.ones(len(flat)), (rows, inv)), shape=(m, len(cols)))
-    opts = {} if left is None else {"time_limit": max(1.0, 0.5 * left)}
+    opts = {"time_limit": max_seconds if left is None else max(1.0, min(max_seconds, 0.5 * left))}
     with quiet_stdout():
         res = linprog(w.ravel()[cols], A_ub=A, b_ub=-np.ones(m), bounds=(0, 1), method="highs", options=opts)
     if res.status != 0:

@@ -34,8 +34,6 @@ from __future__ import annotations
 
 import importlib
 import time
-from dataclasses import dataclass, field
-
 import numpy as np
 
 from ..errors import InfeasibleError, InputError
@@ -52,7 +50,6 @@ ALTERED_NOTE = ("A repaired matrix is altered data: report the objective and the
 _FAST_VERIFY_N = 400
 
 
-@dataclass
 class RepairResult:
     """What :func:`seqdist.repair.repair` returns.
 
@@ -63,14 +60,35 @@ class RepairResult:
     changes : list of tuple
         ``(label, label, before, after, change)`` for every changed entry and
         every filled missing entry (``before`` and ``change`` NaN there), in
-        row order of the upper triangle.
+        row order of the upper triangle (built on first use).
     report : dict
         The contract's JSON keys and more (see :func:`build_report`).
     """
 
-    matrix: DistanceMatrix
-    changes: list = field(default_factory=list)
-    report: dict = field(default_factory=dict)
+    def __init__(self, matrix: DistanceMatrix, report: dict, before: np.ndarray | None = None,
+                 observed: np.ndarray | None = None, tol: float = 0.0, changes: list | None = None):
+        self.matrix = matrix
+        self.report = report
+        self._before = before
+        self._observed = observed
+        self._tol = tol
+        self._changes = changes
+
+    @property
+    def changes(self) -> list:
+        if self._changes is None:
+            self._changes = change_rows(self.matrix.labels, self._before, self.matrix.values, self._observed, self._tol)
+        return self._changes
+
+    def changes_text(self) -> str:
+        """The ``--changes`` file (see :func:`format_changes`), built without Python tuples per entry."""
+        if self._changes is not None or self._before is None:
+            return format_changes(self.changes)
+        return _changes_text(self.matrix.labels, self._before, self.matrix.values, self._observed, self._tol)
+
+    def __repr__(self) -> str:
+        return (f"RepairResult(objective={self.report.get('objective')!r}, "
+                f"changed_entries={self.report.get('changed_entries')})")
 
 
 # ------------------------------------------------------------- dispatch
@@ -112,8 +130,8 @@ def weights_array(weights, dm: DistanceMatrix, observed: np.ndarray, source: str
     """
     n = dm.n
     if weights is None:
-        w = np.ones((n, n))
-    elif isinstance(weights, DistanceMatrix):
+        return observed.astype(np.float64)
+    if isinstance(weights, DistanceMatrix):
         if weights.labels != dm.labels:
             if sorted(weights.labels) != sorted(dm.labels):
                 extra = [lab for lab in weights.labels if lab not in dm._index_map()]
@@ -406,6 +424,25 @@ def change_rows(labels, D: np.ndarray, X: np.ndarray, observed: np.ndarray, tol:
     return rows
 
 
+def _changes_text(labels, D, X, observed, tol) -> str:
+    from ..io import _quote_cell
+
+    n = D.shape[0]
+    iu, ju = np.triu_indices(n, 1)
+    obs = observed[iu, ju]
+    before = D[iu, ju]
+    after = X[iu, ju]
+    keep = ~obs | (np.abs(after - before) > tol)
+    iu, ju, before, after, obs = iu[keep], ju[keep], before[keep], after[keep], obs[keep]
+    q = [_quote_cell(lab, "\t") for lab in labels]
+    b = ["NA" if not o else repr(v) for v, o in zip(before.tolist(), obs.tolist())]
+    a = list(map(repr, after.tolist()))
+    c = ["NA" if not o else repr(v) for v, o in zip((after - np.where(obs, before, 0.0)).tolist(), obs.tolist())]
+    lines = ["label_a\tlabel_b\tbefore\tafter\tchange"]
+    lines.extend(f"{q[i]}\t{q[j]}\t{x}\t{y}\t{z}" for i, j, x, y, z in zip(iu.tolist(), ju.tolist(), b, a, c))
+    return "\n".join(lines) + "\n"
+
+
 def format_changes(rows: list[tuple]) -> str:
     """The ``--changes`` file: a tsv with one line per changed or filled entry.
 
@@ -539,5 +576,4 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
     if solution.optimal and objective in ("fewest", "grow") and objective_value > lb + 1e-9 * max(1.0, lb):
         rep["optimal"] = False
     matrix = DistanceMatrix._trusted(X, dm.labels)
-    rows = change_rows(dm.labels, D, X, obs, tol)
-    return RepairResult(matrix=matrix, changes=rows, report=rep)
+    return RepairResult(matrix=matrix, report=rep, before=D, observed=obs, tol=tol)

@@ -206,7 +206,8 @@ def solve(problem: RepairProblem) -> Solution:
                "heuristic_seconds": round(time.perf_counter() - t0, 3)}
     optimal = value <= lb + 1e-9 * max(1.0, value)
     if not optimal and opts.get("lp_bound", True):
-        lpb = _support.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), deadline)
+        lpb = _support.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), deadline,
+                                    max_seconds=float(opts.get("lp_seconds", 30.0)))
         if lpb is not None:
             details["lp_bound"] = lpb
             lb = max(lb, min(value, lpb))
