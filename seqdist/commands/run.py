@@ -1,0 +1,61 @@
+"""``seqdist run``: the whole job on one alignment, into one folder."""
+
+from __future__ import annotations
+
+from ._shared import add_subcommand
+
+
+def register(subs, common):
+    p = add_subcommand(
+        subs, common, "run", "the whole job in one step: distances, audit, repair, trees, impact report",
+        "Computes distances (with compared columns and variances), audits them, repairs the\n"
+        "matrix, builds trees before and after, and writes an html report plus every\n"
+        "intermediate file and a manifest (version, options, seeds, checksums) into OUTDIR:\n\n"
+        "  distances.tsv sites.tsv variance.tsv distances.json   distances step\n"
+        "  audit.json audit.txt                                   audit\n"
+        "  repaired.tsv repair.json changes.tsv [weights.tsv]     repair (altered data!)\n"
+        "  tree_before.nwk tree_after.nwk impact.json report.html trees and report\n"
+        "  manifest.json                                          provenance\n\n"
+        "A true tree NAME.true.nwk or NAME.nwk beside the alignment is used as the reference\n"
+        "(--truth to name another, --no-truth to ignore it).\n\n"
+        "A repaired matrix is altered data: report the objective and changes.tsv with any result.\n\n"
+        "examples:\n"
+        "  seqdist run example_sequences/dna_trouble.fasta --outdir results/dna_trouble\n"
+        "  seqdist run aln.sto --outdir out --objective l2 --weighted --method bionj")
+    p.add_argument("alignment", help="alignment file (FASTA, Clustal, Stockholm, NEXUS, PHYLIP...)")
+    p.add_argument("--outdir", required=True, metavar="DIR", help="output folder (created if needed)")
+    p.add_argument("--in-format", default=None, help="alignment format (default: from the extension or content)")
+    p.add_argument("--alphabet", choices=("auto", "dna", "protein"), default="auto", help="default: auto")
+    p.add_argument("--model", default=None, help="distance model (default: k80 for DNA, poisson for protein)")
+    p.add_argument("--gamma", metavar="ALPHA", type=float, default=None, help="gamma shape for rate variation")
+    p.add_argument("--gaps", choices=("pairwise", "complete"), default="pairwise", help="default: pairwise")
+    p.add_argument("--objective", default="fewest", help="repair objective: shrink, grow, fewest, l1, l2 "
+                   "(default: fewest)")
+    p.add_argument("--weighted", action="store_true",
+                   help="weight the repair by the inverse variance of each distance")
+    p.add_argument("--method", choices=("nj", "bionj", "upgma"), default="nj", help="tree method (default: nj)")
+    g = p.add_mutually_exclusive_group()
+    g.add_argument("--truth", metavar="TREE.nwk", default="auto", help="reference tree to score both trees against")
+    g.add_argument("--no-truth", action="store_true", help="do not look for a reference tree")
+    p.add_argument("--time-limit", metavar="SECONDS", type=float, default=None, help="time limit of the repair")
+    p.add_argument("--seed", type=int, default=1, help="seed of every randomised step (default: 1)")
+    p.add_argument("--bootstrap", metavar="B", type=int, default=0,
+                   help="column resamples for split support before and after repair (default: 0)")
+    p.add_argument("--workers", type=int, default=None, help="worker processes for the bootstrap")
+    p.set_defaults(func=_run)
+
+
+def _run(args) -> int:
+    from ..console import is_quiet
+    from ..errors import InputError
+    from ..pipeline import run_job
+
+    if args.bootstrap < 0:
+        raise InputError("--bootstrap must be 0 or more")
+    if args.time_limit is not None and not args.time_limit > 0:
+        raise InputError("--time-limit must be positive")
+    run_job(args.alignment, args.outdir, in_format=args.in_format, alphabet=args.alphabet, model=args.model,
+            gamma=args.gamma, gaps=args.gaps, objective=args.objective, weighted=args.weighted,
+            method=args.method, truth=None if args.no_truth else args.truth, time_limit=args.time_limit,
+            seed=args.seed, bootstrap=args.bootstrap, workers=args.workers, progress=not is_quiet())
+    return 0

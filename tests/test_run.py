@@ -1,0 +1,115 @@
+"""The whole job: ``seqdist run`` end to end, determinism, and the Snakemake workflow."""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import subprocess
+import sys
+
+import pytest
+
+from conftest import EXAMPLES, ROOT
+
+ALIGNMENTS = ["dna_clean.fasta", "protein.fasta", "dna_trouble.fasta", "protein_small.sto"]
+EXPECTED = ["distances.tsv", "sites.tsv", "variance.tsv", "distances.json", "audit.json", "audit.txt",
+            "repaired.tsv", "repair.json", "changes.tsv", "tree_before.nwk", "tree_after.nwk", "impact.json",
+            "report.html", "manifest.json"]
+
+
+@pytest.fixture(scope="module")
+def runs(tmp_path_factory):
+    """One ``seqdist run`` per demo alignment (shared by the tests below)."""
+    from conftest import run_cli
+
+    out = {}
+    for name in ALIGNMENTS:
+        d = tmp_path_factory.mktemp(name.split(".")[0])
+        p = run_cli("run", os.path.join(EXAMPLES, name), "--outdir", d / "out")
+        out[name] = (p, d / "out")
+    return out
+
+
+@pytest.mark.parametrize("name", ALIGNMENTS)
+def test_run_end_to_end(runs, name):
+    p, out = runs[name]
+    assert p.returncode == 0, p.stderr
+    assert sorted(os.listdir(out)) == sorted(EXPECTED)
+    rep = json.load(open(out / "repair.json"))
+    assert rep["violated_after"] == 0 and rep["objective"] == "fewest"
+    audit = json.load(open(out / "audit.json"))
+    # the audit's bound is proven, so the repair can never beat it
+    assert rep["changed_entries"] >= audit["min_changes_lower_bound"]
+    page = (out / "report.html").read_text()
+    assert page.startswith("<!DOCTYPE html>") and "altered data" in page and "<script" not in page
+    man = json.load(open(out / "manifest.json"))
+    assert man["seqdist_version"] and man["options"]["objective"] == "fewest"
+    import hashlib
+
+    for fname, digest in man["outputs"].items():
+        assert hashlib.sha256((out / fname).read_bytes()).hexdigest() == digest, fname
+
+
+def test_planted_trouble_repair_does_not_hurt_the_tree(runs):
+    # The true tree is known (simulated data); Robinson-Foulds as in the contract.
+    p, out = runs["dna_trouble.fasta"]
+    imp = json.load(open(out / "impact.json"))
+    assert imp["rf_to_truth_after"] <= imp["rf_to_truth_before"]
+    audit = json.load(open(out / "audit.json"))
+    assert audit["violated_triangles"] > 0 and audit["missing_entries"] > 0
+
+
+def test_run_is_deterministic(runs, tmp_path):
+    from conftest import run_cli
+
+    p, first = runs["dna_trouble.fasta"]
+    p2 = run_cli("run", os.path.join(EXAMPLES, "dna_trouble.fasta"), "--outdir", tmp_path / "again", "--quiet")
+    assert p2.returncode == 0 and p2.stderr == ""
+    for fname in EXPECTED:
+        a, b = (first / fname).read_bytes(), (tmp_path / "again" / fname).read_bytes()
+        if fname == "manifest.json":
+            ja, jb = json.loads(a), json.loads(b)
+            ja.pop("seconds"), jb.pop("seconds"), ja.pop("step_times"), jb.pop("step_times")
+            ja["options"].pop("alignment"), jb["options"].pop("alignment")
+            assert ja == jb
+        else:
+            assert a == b, fname
+
+
+def test_run_bad_input(tmp_path):
+    from conftest import run_cli
+
+    bad = tmp_path / "bad.fasta"
+    bad.write_text(">a\nACGT\n>b\nACG\n>c\nACGT\n")
+    p = run_cli("run", bad, "--outdir", tmp_path / "out")
+    assert p.returncode == 2 and p.stderr.startswith("seqdist: error:") and "bad.fasta" in p.stderr
+    assert not (tmp_path / "out").exists() or os.listdir(tmp_path / "out") == []
+    p = run_cli("run", os.path.join(EXAMPLES, "dna_clean.fasta"), "--outdir", tmp_path / "o2", "--objective", "nope")
+    assert p.returncode == 2 and "nope" in p.stderr
+
+
+@pytest.mark.skipif(shutil.which("snakemake") is None and
+                    not os.path.exists(os.path.join(os.path.dirname(sys.executable), "snakemake")),
+                    reason="snakemake is in the test extra")
+def test_snakemake_workflow(tmp_path):
+    """The real workflow on the demo data, as the README runs it (separate rules, logs)."""
+    snake = shutil.which("snakemake") or os.path.join(os.path.dirname(sys.executable), "snakemake")
+    data = tmp_path / "data"
+    data.mkdir()
+    for f in ("dna_trouble.fasta", "dna_trouble.true.nwk", "protein_small.sto"):
+        shutil.copy(os.path.join(EXAMPLES, f), data / f)
+    env = dict(os.environ)
+    env["PATH"] = os.path.dirname(sys.executable) + os.pathsep + env.get("PATH", "")
+    cmd = [snake, "-s", os.path.join(ROOT, "workflows", "Snakefile"), "--cores", "2", "--quiet",
+           "--config", f"input_dir={data}", f"results={tmp_path / 'results'}"]
+    p = subprocess.run(cmd, capture_output=True, text=True, cwd=tmp_path, env=env, timeout=900)
+    assert p.returncode == 0, p.stdout[-3000:] + p.stderr[-3000:]
+    for name in ("dna_trouble", "protein_small"):
+        res = tmp_path / "results" / name
+        for f in ("distances.tsv", "audit.json", "repaired.tsv", "changes.tsv", "tree_measured.nwk",
+                  "tree_repaired.nwk", "impact.json", "report.html"):
+            assert (res / f).exists(), f"{name}/{f}"
+        assert (res / "logs" / "repair.log").exists()
+    imp = json.load(open(tmp_path / "results" / "dna_trouble" / "impact.json"))
+    assert "rf_to_truth_after" in imp
