@@ -102,9 +102,12 @@ def general_milp(D, objective, time_limit):
     from scipy.optimize import Bounds
 
     t = time.perf_counter()
-    res = milp(np.concatenate([np.zeros(m), np.ones(m)]), constraints=LinearConstraint(A, -np.inf, ub),
-               integrality=np.concatenate([np.zeros(m), np.ones(m)]), bounds=Bounds(bounds_lo, bounds_hi),
-               options={"time_limit": time_limit, "disp": False})
+    from seqdist.repair._support import quiet_stdout
+
+    with quiet_stdout():
+        res = milp(np.concatenate([np.zeros(m), np.ones(m)]), constraints=LinearConstraint(A, -np.inf, ub),
+                   integrality=np.concatenate([np.zeros(m), np.ones(m)]), bounds=Bounds(bounds_lo, bounds_hi),
+                   options={"time_limit": time_limit, "disp": False})
     dt = time.perf_counter() - t
     val = float(res.fun) if res.x is not None else float("nan")
     bound = getattr(res, "mip_dual_bound", float("nan"))
