@@ -339,7 +339,7 @@ def job_section(job: dict) -> str:
     n = job["n"]
     pairs = n * (n - 1) // 2
     rows = []
-    rows.append(f"<p><b>Data.</b> {_esc(job['alignment'])}: {n:,} {_esc(job['alphabet'])} sequences x "
+    rows.append(f"<p><b>Data.</b> {_esc(job['alignment'])}: {n:,} {'DNA' if job['alphabet'] == 'dna' else _esc(job['alphabet'])} sequences x "
                 f"{job['columns']:,} columns; model {_esc(job['model'].upper())}; "
                 f"{len(undefined):,} of {pairs:,} distances undefined")
     if undefined:
