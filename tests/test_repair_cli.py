@@ -180,3 +180,20 @@ def test_missing_entries_filled_in_output(tmp_path, cli):
         p = cli("repair", m, "-o", out, "--objective", obj)
         assert p.returncode == 0, p.stderr
         assert np.isfinite(read_out(out)).all()
+
+
+def test_solver_chatter_never_reaches_stdout(tmp_path, cli):
+    # HiGHS may print from C to file descriptor 1; with -o - that would corrupt the matrix
+    rng = np.random.default_rng(3)
+    n = 20
+    D = euclidean(n, seed=3) * np.exp(rng.normal(0, 0.3, (n, n)))
+    D = np.triu(D, 1)
+    D = D + D.T
+    m = tmp_path / "m.tsv"
+    write_tsv(m, labels(n), D)
+    for obj in ("fewest", "grow"):
+        p = cli("repair", m, "-o", "-", "--objective", obj, "--method", "exact", "--time-limit", "5")
+        assert p.returncode == 0, p.stderr
+        lines = p.stdout.splitlines()
+        assert len(lines) == n + 1 and lines[0].split("\t")[1:] == labels(n)
+        assert all(ln.split("\t")[0] == f"t{i}" for i, ln in enumerate(lines[1:]))

@@ -325,5 +325,5 @@ def round_bound(lb: float, w: np.ndarray) -> float:
     """With integer weights every change set has an integer cost: round the bound up."""
     vals = w[np.isfinite(w) & (w > 0)]
     if vals.size and np.all(vals == np.round(vals)):
-        return float(np.ceil(lb - 1e-6))
-    return lb
+        return max(0.0, float(np.ceil(lb - 1e-6)))
+    return max(0.0, lb)
