@@ -288,23 +288,26 @@ def lazy_hitting_set(n, w, cuts, separate, incumbent, deadline: Deadline, progre
 
 
 def lp_bound(n: int, cuts_tri: np.ndarray, cand: np.ndarray, w: np.ndarray, deadline: Deadline,
-             max_rows: int = 300000, max_seconds: float = 30.0) -> float | None:
+             max_rows: int = 300000, max_seconds: float = 30.0, return_x: bool = False):
     """LP relaxation of the hitting set over the triangle rows (a lower bound), or None.
 
     ``cuts_tri`` holds (i, j, k) triangles and ``cand`` which of the sides
     (i,j), (i,k), (j,k) may change. The rows are a subset of all cycle rows,
     so the relaxation's optimum bounds every repair from below. Skipped when
-    there are more than ``max_rows`` rows or no time is left.
+    there are more than ``max_rows`` rows or no time is left. With
+    ``return_x`` also the LP values as an (n, n) array (upper triangle; None
+    when skipped), which guide a second greedy pass (LP-guided rounding).
     """
     import scipy.sparse as sp
     from scipy.optimize import linprog
 
     m = len(cuts_tri)
     if m == 0 or m > max_rows:
-        return None if m else 0.0
+        out = None if m else 0.0
+        return (out, None) if return_x else out
     left = deadline.left()
     if left is not None and left < 1.0:
-        return None
+        return (None, None) if return_x else None
     i, j, k = cuts_tri[:, 0], cuts_tri[:, 1], cuts_tri[:, 2]
     ids = np.stack([i * n + j, i * n + k, j * n + k], 1)
     rows = np.repeat(np.arange(m), 3)[cand.ravel()]
@@ -315,10 +318,15 @@ def lp_bound(n: int, cuts_tri: np.ndarray, cand: np.ndarray, w: np.ndarray, dead
     with quiet_stdout():
         res = linprog(w.ravel()[cols], A_ub=A, b_ub=-np.ones(m), bounds=(0, 1), method="highs", options=opts)
     if res.status != 0:
-        return None
+        return (None, None) if return_x else None
     # the dual objective is the proven bound; it equals res.fun at optimality,
     # minus a solver tolerance we take off to stay on the safe side
-    return float(res.fun) * (1 - 1e-9) - 1e-7
+    bound = float(res.fun) * (1 - 1e-9) - 1e-7
+    if not return_x:
+        return bound
+    x = np.zeros(n * n)
+    x[cols] = np.clip(res.x, 0.0, 1.0)
+    return bound, x.reshape(n, n)
 
 
 def round_bound(lb: float, w: np.ndarray) -> float:

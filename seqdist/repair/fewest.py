@@ -54,14 +54,18 @@ def _var_mask(problem: RepairProblem) -> np.ndarray:
     return problem.observed & ~problem.locked
 
 
-def heuristic(problem: RepairProblem, tri=None, deadline=None):
-    """Greedy + repair + prune. Returns (S_edges (m,2), F mask, info)."""
+def heuristic(problem: RepairProblem, tri=None, deadline=None, greedy_weights=None):
+    """Greedy + repair + prune. Returns (S_edges (m,2), F mask, info).
+
+    ``greedy_weights`` replaces the weights in the greedy step only (the
+    LP-guided pass); repair and prune always use the true weights.
+    """
     D, tol, n = problem.D, problem.tol, problem.n
     var = _var_mask(problem)
     if tri is None:
         tri = _cycles.violated_triangles(D, tol)
     cand = _cand(tri, var)
-    picked, cnt = _cycles.greedy_hitting(n, tri, cand, problem.weights)
+    picked, cnt = _cycles.greedy_hitting(n, tri, cand, problem.weights if greedy_weights is None else greedy_weights)
     S = np.zeros((n, n), dtype=bool)
     S.flat[picked] = True
     keyval = np.zeros((n, n))
@@ -206,11 +210,20 @@ def solve(problem: RepairProblem) -> Solution:
                "heuristic_seconds": round(time.perf_counter() - t0, 3)}
     optimal = value <= lb + 1e-9 * max(1.0, value)
     if not optimal and opts.get("lp_bound", True):
-        lpb = _support.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), deadline,
-                                    max_seconds=float(opts.get("lp_seconds", 30.0)))
+        lpb, xlp = _support.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), deadline,
+                                     max_seconds=float(opts.get("lp_seconds", 30.0)), return_x=True)
         if lpb is not None:
             details["lp_bound"] = lpb
             lb = max(lb, min(value, lpb))
+        if xlp is not None and value > lb + 1e-9 * max(1.0, value):
+            # LP-guided rounding: a second greedy pass where entries the LP
+            # changes are cheap; keep whichever answer is better
+            gw = w * (1.05 - xlp)
+            S2, F2, h2 = heuristic(problem, tri, deadline.deadline, greedy_weights=gw)
+            v2 = float(w[S2[:, 0], S2[:, 1]].sum()) if len(S2) else 0.0
+            details["lp_guided_value"] = v2
+            if v2 < value - 1e-12:
+                S_edges, F, value = S2, F2, v2
             optimal = value <= lb + 1e-9 * max(1.0, value)
     problem.report(1.0 if value == 0 else max(0.2, lb / value), "heuristic done")
     nvar = int(np.triu(var, 1).sum())
