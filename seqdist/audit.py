@@ -372,6 +372,18 @@ def _triangle_text(values, lab, a, b, c, e):
             f"d({lab[p1[0]]}, {lab[p1[1]]}) + d({lab[p2[0]]}, {lab[p2[1]]}) = {_g(v1)} + {_g(v2)}")
 
 
+def _row_sums(packed: np.ndarray, n: int) -> np.ndarray:
+    """Row sums of the symmetric matrix whose upper triangle is ``packed`` (row by row)."""
+    out = np.zeros(n, dtype=packed.dtype)
+    start = 0
+    for i in range(n - 1):
+        seg = packed[start:start + n - i - 1]
+        out[i] += seg.sum()
+        out[i + 1:] += seg
+        start += n - i - 1
+    return out
+
+
 def _unpack_pairs(p: np.ndarray, n: int):
     """Row and column of packed upper-triangle positions (inverse of i*(2n-i-1)/2 + j-i-1)."""
     p = np.asarray(p, dtype=np.int64)
@@ -541,11 +553,8 @@ def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
     exp = scan["qex"].astype(np.float64) * (largest / 2.0 ** 40) if largest > 0 else np.zeros(len(cntp))
     lngp = scan["lng"]
     if violated:
-        iu0, iu1 = np.triu_indices(n, 1)
-        w = cntp.astype(np.float64)
-        taxon_counts = np.rint((np.bincount(iu0, w, n) + np.bincount(iu1, w, n)) / 2).astype(np.int64)
-        taxon_excess = (np.bincount(iu0, exp, n) + np.bincount(iu1, exp, n)) / 2.0
-        del iu0, iu1, w
+        taxon_counts = _row_sums(cntp, n) // 2
+        taxon_excess = _row_sums(exp, n) / 2.0
     else:
         taxon_counts = np.zeros(n, np.int64)
         taxon_excess = np.zeros(n)

@@ -357,9 +357,11 @@ def collect_triangles(d: np.ndarray, hard: float, pair_hard: np.ndarray, cap: in
     nz = np.flatnonzero(pair_hard)
     if nz.size == 0:
         return np.zeros((0, 3), np.int32), np.zeros(0)
-    iu = np.triu_indices(n, 1)
-    pa = iu[0][nz].astype(np.int64)
-    pb = iu[1][nz].astype(np.int64)
+    # rows and columns of the packed positions (inverse of i*(2n-i-1)/2 + j-i-1)
+    ar = np.arange(n, dtype=np.int64)
+    start = ar * (2 * n - ar - 1) // 2
+    pa = np.searchsorted(start, nz, side="right").astype(np.int64) - 1
+    pb = nz - start[pa] + pa + 1
     sizes = pair_hard[nz].astype(np.int64)
     total = int(sizes.sum())
     if total <= cap:
