@@ -97,7 +97,7 @@ def _run(args) -> int:
             out.add_text(args.undefined, _pair_file(res))
         if args.json:
             out.add_json(args.json, res.summary())
-    info(f"{aln.n} sequences x {aln.length} columns ({res.alphabet}), model {res.model}"
+    info(f"{aln.n} sequence{'s' if aln.n != 1 else ''} x {aln.length} columns ({res.alphabet}), model {res.model}"
          f"{f' gamma {res.gamma:g}' if res.gamma else ''}, {res.columns_used} columns used: "
          f"{len(res.undefined)} undefined pair{'s' if len(res.undefined) != 1 else ''}")
     return 0
@@ -114,33 +114,29 @@ def _pair_file(res) -> str:
 
 
 def format_matrix_fast(dm, fmt: str) -> str:
-    """The same text as :func:`seqdist.io.format_matrix`, much faster for large matrices.
+    """The same text as :func:`seqdist.io.format_matrix`, faster for large matrices.
 
-    Each distinct value is formatted once (``repr``, as the shared writer
-    does; distances computed from counts repeat a lot), found by hashing
-    (pandas.factorize) rather than sorting; the rows are then assembled as
-    bytes from a fixed-width table of ``separator + cell`` strings. A local
-    stand-in until the shared writer does this itself; a test checks that the
-    two agree byte for byte.
+    Formatting a float (``repr``: exact and shortest) is the slow part, and
+    distances computed from counts repeat a lot, so each distinct value is
+    formatted once (numpy.unique); rows are then assembled as bytes from a
+    fixed-width table of ``separator + cell`` strings padded with NUL bytes,
+    which are dropped after the gather. A local stand-in until the shared
+    writer does this itself; a test checks that the two agree byte for byte.
     """
-    import pandas as pd
-
     from ..io import _fmt, _quote_cell, format_matrix
 
     n = dm.n
     labels = list(dm.labels)
     vals = dm.values
-    zero = vals == 0
-    if (n < 200 or fmt not in ("tsv", "csv", "square", "lower")
+    if (n < 50 or fmt not in ("tsv", "csv", "square", "lower")
             or (fmt in ("square", "lower") and any(not lab or any(c.isspace() for c in lab) for lab in labels))
-            or np.signbit(vals[zero]).any()):
+            or np.signbit(vals[vals == 0]).any()):
         return format_matrix(dm, fmt)  # small, an error message of the shared writer, or a -0.0 to keep
-    codes, uniq = pd.factorize(vals.ravel(), use_na_sentinel=True)  # NaN -> -1, the last table row below
-    cells = [_fmt(v) for v in np.asarray(uniq).tolist()] + ["NA"]
-    codes = codes.reshape(n, n)
+    uniq, inv = np.unique(vals, return_inverse=True)  # NaNs collapse into one, last
+    cells = [_fmt(v) for v in uniq.tolist()]
+    inv = inv.reshape(n, n)
     sep = {"tsv": "\t", "csv": ","}.get(fmt, " ")
     width = max(len(c) for c in cells) + 1
-    # Fixed-width rows of (separator + cell), padded with NUL bytes that are dropped after the gather.
     table = np.frombuffer("".join((sep + c).ljust(width, "\0") for c in cells).encode("ascii"),
                           dtype=np.uint8).reshape(len(cells), width)
     parts: list[str] = []
@@ -153,13 +149,12 @@ def format_matrix_fast(dm, fmt: str) -> str:
         parts.append(f"{n}\n")
         heads = labels
     lower = fmt == "lower"
-    block = max(1, (16 << 20) // max(1, n * width))
+    block = max(1, (16 << 20) // (n * width))
     for b0 in range(0, n, block):
-        b1 = min(n, b0 + block)
-        gathered = table[codes[b0:b1]]  # (rows, n, width)
-        for r in range(b1 - b0):
+        gathered = table[inv[b0:b0 + block]]  # (rows, n, width)
+        for r in range(gathered.shape[0]):
             i = b0 + r
-            flat = gathered[r, :i].reshape(-1) if lower else gathered[r].reshape(-1)
+            flat = (gathered[r, :i] if lower else gathered[r]).reshape(-1)
             parts.append(heads[i] + flat[flat != 0].tobytes().decode("ascii") + "\n")
         del gathered
     return "".join(parts)
