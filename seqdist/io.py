@@ -307,6 +307,9 @@ def _fmt(v: float) -> str:
 def format_matrix(dm: DistanceMatrix, fmt: str = "tsv") -> str:
     """The text of a matrix file in one of :data:`MATRIX_FORMATS`.
 
+    Values are written with ``repr`` (the shortest text that reads back to
+    the same float: exact and deterministic); missing entries as ``NA``.
+
     Examples
     --------
     >>> dm = DistanceMatrix.from_array([[0, 1], [1, 0]], ["a", "b"])
@@ -317,26 +320,54 @@ def format_matrix(dm: DistanceMatrix, fmt: str = "tsv") -> str:
     """
     if fmt not in MATRIX_FORMATS:
         raise InputError(f"unknown matrix format '{fmt}' (choose from {', '.join(MATRIX_FORMATS)})")
-    vals = dm.values.tolist()
     labels = list(dm.labels)
-    buf = io.StringIO()
+    if fmt in ("square", "lower"):
+        for lab in labels:
+            if not lab or any(c.isspace() for c in lab):
+                raise InputError(f"label '{lab}' contains white space, which the {fmt} format cannot hold; "
+                                 "use tsv or csv")
+    sep = {"tsv": "\t", "csv": ","}.get(fmt, " ")
     if fmt in ("tsv", "csv"):
-        sep = "\t" if fmt == "tsv" else ","
-        w = csv.writer(buf, delimiter=sep, lineterminator="\n")
-        w.writerow([""] + labels)
-        qlabels = [_quote_cell(lab, sep) for lab in labels]
-        for lab, row in zip(qlabels, vals):
-            buf.write(lab + sep + sep.join(map(_fmt, row)) + "\n")
-        return buf.getvalue()
-    for lab in labels:
-        if not lab or any(c.isspace() for c in lab):
-            raise InputError(f"label '{lab}' contains white space, which the {fmt} format cannot hold; "
-                             "use tsv or csv")
-    buf.write(f"{dm.n}\n")
-    for i, (lab, row) in enumerate(zip(labels, vals)):
-        cells = row[:i] if fmt == "lower" else row
-        buf.write(" ".join([lab] + [_fmt(v) for v in cells]) + "\n")
-    return buf.getvalue()
+        buf = io.StringIO()
+        csv.writer(buf, delimiter=sep, lineterminator="\n").writerow([""] + labels)
+        parts = [buf.getvalue()]
+        heads = [_quote_cell(lab, sep) for lab in labels]
+    else:
+        parts = [f"{dm.n}\n"]
+        heads = labels
+    parts.extend(_rows_text(dm.values, heads, sep, lower=(fmt == "lower")))
+    return "".join(parts)
+
+
+def _rows_text(vals: np.ndarray, heads: list, sep: str, lower: bool) -> list:
+    """One text line per row: the head, then ``sep + value`` per cell.
+
+    Formatting floats is the slow part, and distances computed from counts
+    repeat a lot, so each distinct value is formatted once (numpy.unique) and
+    rows are assembled as bytes from a fixed-width table of ``sep + cell``
+    strings padded with NUL bytes, dropped after the gather.
+    """
+    n = vals.shape[0]
+    if n < 50 or np.signbit(vals[vals == 0]).any():  # small, or a -0.0 that unique would merge with 0.0
+        rows = vals.tolist()
+        return [h + "".join(sep + _fmt(v) for v in (row[:i] if lower else row)) + "\n"
+                for i, (h, row) in enumerate(zip(heads, rows))]
+    uniq, inv = np.unique(vals, return_inverse=True)  # NaNs collapse into one
+    cells = [_fmt(v) for v in uniq.tolist()]
+    inv = inv.reshape(n, n)
+    width = max(len(c) for c in cells) + len(sep)
+    table = np.frombuffer("".join((sep + c).ljust(width, "\0") for c in cells).encode("ascii"),
+                          dtype=np.uint8).reshape(len(cells), width)
+    out = []
+    block = max(1, (16 << 20) // (n * width))
+    for b0 in range(0, n, block):
+        gathered = table[inv[b0:b0 + block]]  # (rows, n, width)
+        for r in range(gathered.shape[0]):
+            i = b0 + r
+            flat = (gathered[r, :i] if lower else gathered[r]).reshape(-1)
+            out.append(heads[i] + flat[flat != 0].tobytes().decode("ascii") + "\n")
+        del gathered
+    return out
 
 
 def _quote_cell(cell: str, sep: str) -> str:
