@@ -148,3 +148,22 @@ def test_output_set_is_all_or_nothing(tmp_path):
             raise RuntimeError("fail before commit")
     assert a.read_text() == "old" and not b.exists()
     assert [f for f in os.listdir(tmp_path) if f.startswith(".seqdist-")] == []
+
+
+@pytest.mark.parametrize("fmt", ["tsv", "csv", "square", "lower"])
+def test_large_matrix_fast_writer_round_trips(tmp_path, fmt):
+    # n >= 50 takes the table-assembly path of the writer; repeated values, NaN and odd labels included
+    rng = np.random.default_rng(3)
+    n = 120
+    a = np.round(rng.random((n, n)), 3) + rng.integers(0, 2, (n, n)) * rng.random((n, n))
+    a = np.triu(a, 1)
+    a = a + a.T
+    a[4, 9] = a[9, 4] = np.nan
+    labels = [f"t{i}" for i in range(n)]
+    if fmt in ("tsv", "csv"):
+        labels[7] = 'odd, "label"\twith tab'
+    dm = DistanceMatrix.from_array(a, labels)
+    p = str(tmp_path / f"m.{fmt}")
+    write_matrix(p, dm, fmt)
+    back = read_matrix(p, fmt)
+    assert back.labels == dm.labels and np.array_equal(back.values, dm.values, equal_nan=True)
