@@ -104,8 +104,9 @@ def test_label_order_may_differ(tmp_path, cli, pair):
     shuffled = tmp_path / "shuffled.tsv"
     write_tsv(shuffled, [LABELS[k] for k in perm], D2[np.ix_(perm, perm)])
     a, b = tmp_path / "a.json", tmp_path / "b.json"
-    assert cli("impact", before, after, "--json", a).returncode == 0
-    assert cli("impact", before, shuffled, "--json", b).returncode == 0
+    for args in ((before, after, "--json", a), (before, shuffled, "--json", b)):
+        p = cli("impact", *args)
+        assert p.returncode == 0, p.stderr
     ra, rb = json.loads(a.read_text()), json.loads(b.read_text())
     ra.pop("after"), rb.pop("after")
     assert ra == rb
@@ -158,8 +159,9 @@ def test_failure_leaves_outputs_untouched(tmp_path, cli, pair):
 def test_html_self_contained_and_deterministic(tmp_path, cli, pair):
     before, after = pair
     a, b = tmp_path / "a.html", tmp_path / "b.html"
-    assert cli("impact", before, after, "--html", a).returncode == 0
-    assert cli("impact", before, after, "--html", b).returncode == 0
+    for page in (a, b):
+        p = cli("impact", before, after, "--html", page)
+        assert p.returncode == 0, p.stderr
     text = a.read_text()
     assert a.read_bytes() == b.read_bytes()
     assert "<script" not in text.lower()
