@@ -91,6 +91,9 @@ def test_support_option_errors(cli, inputs):
     assert p.returncode == 2 and "--alignment" in p.stderr
     p = cli("impact", before, after, "--alignment", aln, "--bootstrap", "5", "--model", "jc69")
     assert p.returncode == 2 and "--objective" in p.stderr
+    p = cli("impact", before, after, "--alignment", aln, "--bootstrap", "2", "--model", "jc69",
+            "--objective", "nonsense")
+    assert p.returncode == 2 and "unknown repair objective 'nonsense'" in p.stderr
     other = t / "other.fasta"
     other.write_text(">zz\nACGT\n>t01\nACGT\n>t02\nACGA\n")
     p = cli("impact", before, after, "--alignment", other, "--bootstrap", "2", "--model", "jc69",

@@ -165,7 +165,13 @@ def add_support(res, alignment_path: str, *, replicates: int, model: str, object
     from ..console import warn
     from ..distances import pairwise_distances
 
+    from ..repair import OBJECTIVES
+
     del clamp_negative  # lengths do not enter split support
+    if objective not in OBJECTIVES:
+        raise InputError(f"unknown repair objective '{objective}' (choose from {', '.join(OBJECTIVES)})")
+    if replicates < 1:
+        raise InputError("--bootstrap needs at least 1 replicate")
     aln = read_alignment(alignment_path)
     la, lm = set(aln.labels), set(res.before.labels)
     if la != lm:
