@@ -72,7 +72,7 @@ def _run(args) -> int:
     from ..console import info, warn
     from ..distances import pairwise_distances, undefined_message
     from ..errors import InputError
-    from ..io import OutputSet, matrix_format
+    from ..io import OutputSet, format_matrix, matrix_format
 
     if args.memory < 16:
         raise InputError("--memory must be at least 16 (MB)")
@@ -88,11 +88,11 @@ def _run(args) -> int:
         hint = "(--undefined FILE lists them all)" if args.undefined is None else f"(all in {args.undefined})"
         warn(undefined_message(res, hint=hint))
     with OutputSet() as out:
-        out.add_text(args.out, format_matrix_fast(res.matrix, fmt))
+        out.add_text(args.out, format_matrix(res.matrix, fmt))
         if args.sites:
-            out.add_text(args.sites, format_matrix_fast(res.sites, matrix_format(args.sites, None)))
+            out.add_text(args.sites, format_matrix(res.sites, matrix_format(args.sites, None)))
         if args.variance:
-            out.add_text(args.variance, format_matrix_fast(res.variance, matrix_format(args.variance, None)))
+            out.add_text(args.variance, format_matrix(res.variance, matrix_format(args.variance, None)))
         if args.undefined:
             out.add_text(args.undefined, _pair_file(res))
         if args.json:
@@ -112,49 +112,3 @@ def _pair_file(res) -> str:
             lines.extend(f"{a}\t{b}" for a, b in pairs)
     return "\n".join(lines) + "\n"
 
-
-def format_matrix_fast(dm, fmt: str) -> str:
-    """The same text as :func:`seqdist.io.format_matrix`, faster for large matrices.
-
-    Formatting a float (``repr``: exact and shortest) is the slow part, and
-    distances computed from counts repeat a lot, so each distinct value is
-    formatted once (numpy.unique); rows are then assembled as bytes from a
-    fixed-width table of ``separator + cell`` strings padded with NUL bytes,
-    which are dropped after the gather. A local stand-in until the shared
-    writer does this itself; a test checks that the two agree byte for byte.
-    """
-    from ..io import _fmt, _quote_cell, format_matrix
-
-    n = dm.n
-    labels = list(dm.labels)
-    vals = dm.values
-    if (n < 50 or fmt not in ("tsv", "csv", "square", "lower")
-            or (fmt in ("square", "lower") and any(not lab or any(c.isspace() for c in lab) for lab in labels))
-            or np.signbit(vals[vals == 0]).any()):
-        return format_matrix(dm, fmt)  # small, an error message of the shared writer, or a -0.0 to keep
-    uniq, inv = np.unique(vals, return_inverse=True)  # NaNs collapse into one, last
-    cells = [_fmt(v) for v in uniq.tolist()]
-    inv = inv.reshape(n, n)
-    sep = {"tsv": "\t", "csv": ","}.get(fmt, " ")
-    width = max(len(c) for c in cells) + 1
-    table = np.frombuffer("".join((sep + c).ljust(width, "\0") for c in cells).encode("ascii"),
-                          dtype=np.uint8).reshape(len(cells), width)
-    parts: list[str] = []
-    if fmt in ("tsv", "csv"):
-        buf = io.StringIO()
-        csv.writer(buf, delimiter=sep, lineterminator="\n").writerow([""] + labels)
-        parts.append(buf.getvalue())
-        heads = [_quote_cell(lab, sep) for lab in labels]
-    else:
-        parts.append(f"{n}\n")
-        heads = labels
-    lower = fmt == "lower"
-    block = max(1, (16 << 20) // (n * width))
-    for b0 in range(0, n, block):
-        gathered = table[inv[b0:b0 + block]]  # (rows, n, width)
-        for r in range(gathered.shape[0]):
-            i = b0 + r
-            flat = (gathered[r, :i] if lower else gathered[r]).reshape(-1)
-            parts.append(heads[i] + flat[flat != 0].tobytes().decode("ascii") + "\n")
-        del gathered
-    return "".join(parts)
