@@ -271,42 +271,38 @@ def check_locks(problem: RepairProblem, objective: str) -> None:
     UL = apsp(WL)
     bad = L & (D > UL + tol)
     if bad.any():
-        pairs = _conflicts(bad)
-        msgs = []
-        for i, j in pairs[:3]:
-            WLe = WL.copy()
-            WLe[i, j] = WLe[j, i] = np.inf
-            msgs.append(f"({problem.label(i)}, {problem.label(j)}) = {D[i, j]:.12g} is longer than the locked path "
-                        f"{describe_path(problem, WLe, i, j)}")
-        more = f" and {len(pairs) - 3} more" if len(pairs) > 3 else ""
-        raise InfeasibleError("locked entries conflict, no repair can keep them all: "
-                              + "; ".join(msgs) + more)
+        _raise_conflicts(problem, bad, WL, True, "{pair} is longer than the locked path {path}",
+                         "locked entries conflict, no repair can keep them all: ", "")
     if objective == "shrink":
         WD = _graph(D, problem.observed)
-        A = apsp(WD)
-        bad = L & (D > A + tol)
+        bad = L & (D > apsp(WD) + tol)
         if bad.any():
-            pairs = _conflicts(bad)
-            msgs = []
-            for i, j in pairs[:3]:
-                WDe = WD.copy()
-                WDe[i, j] = WDe[j, i] = np.inf
-                msgs.append(f"locked ({problem.label(i)}, {problem.label(j)}) = {D[i, j]:.12g} is longer than the path "
-                            f"{describe_path(problem, WDe, i, j)}")
-            more = f" and {len(pairs) - 3} more" if len(pairs) > 3 else ""
-            raise InfeasibleError("shrink only decreases entries, so it cannot keep these locks: "
-                                  + "; ".join(msgs) + more + " (try --objective fewest or l1)")
+            _raise_conflicts(problem, bad, WD, True, "locked {pair} is longer than the path {path}",
+                             "shrink only decreases entries, so it cannot keep these locks: ",
+                             " (try --objective fewest or l1)")
     elif objective == "grow":
         bad = problem.observed & ~L & (D > UL + tol)
         if bad.any():
-            pairs = _conflicts(bad)
-            msgs = []
-            for i, j in pairs[:3]:
-                msgs.append(f"({problem.label(i)}, {problem.label(j)}) = {D[i, j]:.12g} may not decrease but is longer "
-                            f"than the locked path {describe_path(problem, WL, i, j)}")
-            more = f" and {len(pairs) - 3} more" if len(pairs) > 3 else ""
-            raise InfeasibleError("grow only increases entries, so it cannot keep these locks: "
-                                  + "; ".join(msgs) + more + " (try --objective fewest or l1)")
+            _raise_conflicts(problem, bad, WL, False, "{pair} may not decrease but is longer than the locked path {path}",
+                             "grow only increases entries, so it cannot keep these locks: ",
+                             " (try --objective fewest or l1)")
+
+
+def _raise_conflicts(problem, bad, W, drop_edge: bool, each: str, lead: str, hint: str):
+    """Raise InfeasibleError naming up to three conflicting entries and the path
+    each is longer than (over ``W``; without the entry itself when ``drop_edge``)."""
+    D = problem.D
+    pairs = _conflicts(bad)
+    msgs = []
+    for i, j in pairs[:3]:
+        Wp = W
+        if drop_edge:
+            Wp = W.copy()
+            Wp[i, j] = Wp[j, i] = np.inf
+        msgs.append(each.format(pair=f"({problem.label(i)}, {problem.label(j)}) = {D[i, j]:.12g}",
+                                path=describe_path(problem, Wp, i, j)))
+    more = f" and {len(pairs) - 3} more" if len(pairs) > 3 else ""
+    raise InfeasibleError(lead + "; ".join(msgs) + more + hint)
 
 
 # --------------------------------------------------------------- finish
