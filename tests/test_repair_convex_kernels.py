@@ -1,0 +1,252 @@
+"""Compiled kernels of the convex repair objectives against plain references.
+
+Every kernel in seqdist/repair/_convex_kernels.py is checked here against a
+slow obvious loop, a dense matrix, scipy, or a brute-force search.
+"""
+
+from __future__ import annotations
+
+import itertools
+
+import numpy as np
+import pytest
+from scipy.optimize import minimize_scalar
+from scipy.sparse.csgraph import shortest_path
+
+from seqdist.metric import is_metric
+from seqdist.repair import _convex_kernels as K
+
+
+def rand_sym(rng, n, zeros=0.0):
+    D = rng.uniform(0, 1, (n, n))
+    D[rng.uniform(size=(n, n)) < zeros] = 0.0
+    D = np.triu(D, 1)
+    return D + D.T
+
+
+def ref_violated(x, gm, thr):
+    # plain loops over i < j < k and the three long sides
+    n = x.shape[0]
+    out = []
+    for i, j, k in itertools.combinations(range(n), 3):
+        if not (gm[i, j] and gm[i, k] and gm[j, k]):
+            continue
+        a, b, c = x[i, j], x[i, k], x[j, k]
+        for s, v in enumerate((a - b - c, b - a - c, c - a - b)):
+            if v > thr:
+                out.append((i << 42) | (j << 22) | (k << 2) | s)
+    return np.array(sorted(out), dtype=np.int64)
+
+
+@pytest.mark.parametrize("n", [3, 7, 30, 70])
+def test_violated_triangles_match_loops(n):
+    rng = np.random.default_rng(n)
+    x = np.triu(rand_sym(rng, n, zeros=0.1), 1)
+    full = np.ones((n, n), dtype=bool)
+    assert np.array_equal(K.violated_triangles(x, full, True, 0.0), ref_violated(x, full, 0.0))
+    gm = rand_sym(rng, n) > 0.2
+    gm = gm | gm.T
+    assert np.array_equal(K.violated_triangles(x, gm, False, 0.05), ref_violated(x, gm, 0.05))
+
+
+def test_encode_decode_roundtrip():
+    i, j, k, s = np.array([0, 5, 999]), np.array([1, 6, 1000]), np.array([2, 900, 1001]), np.array([0, 2, 1])
+    assert all(np.array_equal(a, b) for a, b in zip(K.decode(K.encode(i, j, k, s)), (i, j, k, s)))
+
+
+def test_merge_keeps_duals_and_forgets_zero_duals():
+    ka = np.array([1, 4, 6, 9], np.int64)
+    la = np.array([0.5, 0.0, 0.0, 2.0])
+    kb = np.array([2, 6, 10], np.int64)
+    ko, lo, added = K.merge_active(ka, la, kb)
+    # 4 (dual 0, no longer violated) is forgotten; 6 (dual 0 but violated) stays
+    assert ko.tolist() == [1, 2, 6, 9, 10]
+    assert lo.tolist() == [0.5, 0.0, 0.0, 2.0, 0.0]
+    assert added == 2
+
+
+def dense_A(keys, n):
+    # one row per constraint over the flat (i * n + j) upper-triangle entries
+    i, j, k, s = K.decode(keys)
+    A = np.zeros((keys.size, n * n))
+    for r, (a, b, c, t) in enumerate(zip(i, j, k, s)):
+        e = [a * n + b, a * n + c, b * n + c]
+        long_ = e.pop(t)
+        A[r, long_] = 1
+        A[r, e[0]] = A[r, e[1]] = -1
+    return A
+
+
+def test_accumulate_and_apply_match_a_dense_matrix():
+    rng = np.random.default_rng(1)
+    n = 9
+    x = np.triu(rand_sym(rng, n), 1)
+    keys = K.violated_triangles(x, np.ones((n, n), bool), True, -1.0)  # every constraint
+    A = dense_A(keys, n)
+    lam = rng.uniform(0, 1, keys.size)
+    c = np.zeros((n, n))
+    K.accumulate_tri(keys, lam, c)
+    assert np.allclose(c.reshape(-1), A.T @ lam)
+    assert np.allclose(K.apply_tri(keys, x), A @ x.reshape(-1))
+    winv = np.triu(rng.uniform(0.5, 2, (n, n)), 1)
+    assert np.allclose(K.denominators_tri(keys, winv), (A ** 2) @ winv.reshape(-1))
+    # the cycle versions on the same constraints written as cycles
+    i, j, k, s = K.decode(keys)
+    ptr = np.arange(0, 3 * keys.size + 1, 3, dtype=np.int64)
+    edges = dense_rows_as_cycles(A, n)
+    c2 = np.zeros((n, n))
+    K.accumulate_cyc(ptr, edges, lam, c2.reshape(-1))
+    assert np.allclose(c2, c)
+    assert np.allclose(K.apply_cyc(ptr, edges, x.reshape(-1)), A @ x.reshape(-1))
+
+
+def dense_rows_as_cycles(A, n):
+    out = []
+    for row in A:
+        out.append(int(np.flatnonzero(row == 1)[0]))
+        out.extend(int(e) for e in np.flatnonzero(row == -1))
+    return np.array(out, np.int64)
+
+
+def ref_hildreth_sweep(keys, lam, x, winv):
+    # Hildreth (1957): exact maximisation of the dual along one multiplier at a time
+    i, j, k, s = K.decode(keys)
+    for t in range(keys.size):
+        e = [(i[t], j[t]), (i[t], k[t]), (j[t], k[t])]
+        L = e.pop(s[t])
+        v = x[L] - x[e[0]] - x[e[1]]
+        den = winv[L] + winv[e[0]] + winv[e[1]]
+        if den == 0:
+            continue
+        new = max(0.0, lam[t] + v / den)
+        dl = new - lam[t]
+        lam[t] = new
+        x[L] -= dl * winv[L]
+        x[e[0]] += dl * winv[e[0]]
+        x[e[1]] += dl * winv[e[1]]
+
+
+def test_l2_sweep_matches_reference_and_keeps_the_primal_dual_link():
+    rng = np.random.default_rng(2)
+    n = 12
+    d = np.triu(rand_sym(rng, n), 1)
+    winv = np.triu(rng.uniform(0.2, 3, (n, n)), 1)
+    winv[0, 1] = 0.0  # a locked entry
+    keys = K.violated_triangles(d, np.ones((n, n), bool), True, 0.0)
+    lam1, x1 = np.zeros(keys.size), d.copy()
+    ref_hildreth_sweep(keys, lam1, x1, winv)
+    xw = np.stack([d, winv], axis=-1).copy()
+    lam2 = np.zeros(keys.size)
+    K.sweep_l2_tri(keys, lam2, xw, True, 1.0)
+    assert np.allclose(lam1, lam2) and np.allclose(x1, xw[:, :, 0])
+    # x = d - W^-1 A^T lam after any number of sweeps
+    for _ in range(5):
+        K.sweep_l2_tri(keys, lam2, xw, False, 1.0)
+    c = np.zeros((n, n))
+    K.accumulate_tri(keys, lam2, c)
+    assert np.allclose(xw[:, :, 0], d - winv * c)
+    assert xw[0, 1, 0] == d[0, 1]
+    # cycle sweep on the same constraints written as cycles gives the same result
+    A = dense_A(keys, n)
+    ptr = np.arange(0, 3 * keys.size + 1, 3, dtype=np.int64)
+    edges = dense_rows_as_cycles(A, n)
+    xw3 = np.stack([d, winv], axis=-1).copy()
+    lam3 = np.zeros(keys.size)
+    K.sweep_l2_cyc(ptr, edges, lam3, xw3.reshape(-1, 2), 1.0)
+    assert np.allclose(lam3, lam1) and np.allclose(xw3[:, :, 0], x1)
+
+
+def prox_dual_1d(t, cs, As, ds, iw, sg, h):
+    # the proximal-LP dual along one constraint, up to a constant: for each entry
+    # min_x w|x - d| + (w / 2h)(x - z)^2 + c x, with w = h / iw (entries with iw = 0 are fixed)
+    val = 0.0
+    for c0, a, d, wi, s in zip(cs, As, ds, iw, sg):
+        c = c0 + s * t
+        if wi == 0:
+            val += c * d
+            continue
+        w = h / wi
+        u = np.sign(a - c * wi) * max(abs(a - c * wi) - h, 0.0)
+        x = d + u
+        val += w * abs(u) + (w / (2 * h)) * (x - (d + a)) ** 2 + c * x
+    return val
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_l1_line_search_is_the_exact_maximiser(seed):
+    rng = np.random.default_rng(seed)
+    n = 3
+    d = np.triu(rand_sym(rng, n), 1)
+    d[0, 1] = 2.5  # violated
+    c = np.triu(rng.normal(0, 1, (n, n)), 1)
+    A = np.triu(rng.normal(0, 0.3, (n, n)), 1)
+    iw = np.triu(rng.uniform(0.1, 2, (n, n)), 1)
+    if seed % 4 == 3:
+        iw[0, 2] = 0.0  # a locked side
+    h = float(rng.uniform(0.1, 2))
+    keys = K.encode([0], [1], [2], [0])
+    lam0 = float(rng.uniform(0, 1)) if seed % 2 else 0.0
+    lam = np.array([lam0])
+    c_new = c.copy()
+    K.sweep_l1_tri(keys, lam, c_new, A, d, iw, h)
+    t_kernel = lam[0] - lam0
+    e = [(0, 1), (0, 2), (1, 2)]
+    args = ([c[a] for a in e], [A[a] for a in e], [d[a] for a in e], [iw[a] for a in e], [1, -1, -1], h)
+    r = minimize_scalar(lambda t: -prox_dual_1d(t, *args), bounds=(-lam0, 50), method="bounded",
+                        options={"xatol": 1e-10})
+    # same maximum value (the maximiser can be a flat segment)
+    assert prox_dual_1d(t_kernel, *args) >= prox_dual_1d(r.x, *args) - 1e-7
+    assert lam[0] >= 0
+
+
+def test_violated_cycles_are_shortest_paths():
+    rng = np.random.default_rng(5)
+    n = 14
+    x = rand_sym(rng, n)
+    W = np.where(rng.uniform(size=(n, n)) < 0.5, x, np.inf)
+    W = np.minimum(W, W.T)
+    np.fill_diagonal(W, 0.0)
+    ref = shortest_path(np.where(np.isfinite(W), W, 0.0), directed=False)  # scipy: 0 = no edge here
+    iu = np.argwhere(np.triu(np.isfinite(W), 1))
+    viol = [(i, j) for i, j in iu if W[i, j] > ref[i, j] + 1e-12]
+    assert viol
+    src = np.array([v[0] for v in viol], np.int64)
+    dst = np.array([v[1] for v in viol], np.int64)
+    ptr, edges = K.violated_cycles(W, src, dst, 2)
+    assert ptr.size - 1 == len(viol)
+    for t, (i, j) in enumerate(viol):
+        seg = edges[ptr[t]:ptr[t + 1]]
+        assert seg[0] == i * n + j
+        length = sum(W[e // n, e % n] for e in seg[1:])
+        assert np.isclose(length, ref[i, j])
+
+
+def test_blend_step_is_the_smallest_restoring_step():
+    rng = np.random.default_rng(7)
+    n = 8
+    P = rng.uniform(0, 1, (n, 2))
+    Z = np.sqrt(((P[:, None] - P[None]) ** 2).sum(-1))  # a metric (Euclidean)
+    Y = Z * rng.uniform(0.7, 1.3, (n, n))
+    Y = np.triu(Y, 1)
+    Y = Y + Y.T
+    t = K.blend_step(Y, Z)
+    assert 0 < t < 1
+    assert is_metric((1 - t) * Y + t * Z, tol=1e-12)
+    assert not is_metric((1 - 0.98 * t) * Y + 0.98 * t * Z, tol=1e-12)
+
+
+def test_clamp_free_moves_towards_target_and_keeps_a_metric():
+    rng = np.random.default_rng(8)
+    n = 10
+    P = rng.uniform(0, 1, (n, 2))
+    Y = np.sqrt(((P[:, None] - P[None]) ** 2).sum(-1))
+    fi = np.array([0, 2, 3], np.int64)
+    fj = np.array([1, 5, 9], np.int64)
+    target = np.array([10.0, 0.0, Y[3, 9] * 1.01])
+    before = Y.copy()
+    K.clamp_free(Y, fi, fj, target)
+    assert is_metric(Y, tol=1e-12)
+    # a too long target stops at the shortest two-step path, a zero at the largest difference
+    others = [k for k in range(n) if k not in (0, 1)]
+    assert np.isclose(Y[0, 1], min(before[0, k] + before[k, 1] for k in others))
+    assert Y[2, 5] >= 0 and Y[2, 5] < before[2, 5]
