@@ -8,8 +8,9 @@ import numpy as np
 import pytest
 
 from conftest import euclidean, write_tsv
+from seqdist.metric import is_metric
 
-OBJS = ["shrink", "fewest", "grow"]
+OBJS = ["shrink", "fewest", "grow", "l1", "l2"]
 
 
 def broken(n=8, seed=0):
@@ -74,6 +75,8 @@ def test_unknown_objective_exits_2_and_keeps_output(tmp_path, cli, mfile):
 
 @pytest.mark.parametrize("obj,lock,needle", [
     ("fewest", [("t0", "t2"), ("t2", "t3"), ("t0", "t3")], "locked entries conflict"),
+    ("l1", [("t0", "t2"), ("t2", "t3"), ("t0", "t3")], "locked entries conflict"),
+    ("l2", [("t0", "t2"), ("t2", "t3"), ("t0", "t3")], "locked entries conflict"),
     ("shrink", [("t0", "t1")], "shrink only decreases"),
     ("grow", [("t2", "t3"), ("t3", "t5")], "grow only increases"),
 ])
@@ -110,7 +113,7 @@ def test_locks_never_move(tmp_path, cli, mfile):
     lk = tmp_path / "lock.txt"
     lk.write_text("t0\tt1\n")  # the planted broken entry itself: others must give way
     out = tmp_path / "o.tsv"
-    for obj in ["fewest", "grow"]:
+    for obj in ["fewest", "grow", "l1", "l2"]:
         p = cli("repair", mfile, "-o", out, "--objective", obj, "--lock", lk)
         assert p.returncode == 0, p.stderr
         assert read_out(out)[0, 1] == broken()[0, 1]
@@ -191,9 +194,64 @@ def test_solver_chatter_never_reaches_stdout(tmp_path, cli):
     D = D + D.T
     m = tmp_path / "m.tsv"
     write_tsv(m, labels(n), D)
-    for obj in ("fewest", "grow"):
+    for obj in ("fewest", "grow", "l1"):
         p = cli("repair", m, "-o", "-", "--objective", obj, "--method", "exact", "--time-limit", "5")
         assert p.returncode == 0, p.stderr
         lines = p.stdout.splitlines()
         assert len(lines) == n + 1 and lines[0].split("\t")[1:] == labels(n)
         assert all(ln.split("\t")[0] == f"t{i}" for i, ln in enumerate(lines[1:]))
+
+
+def noisy_file(tmp_path, n, seed, sigma=0.3):
+    rng = np.random.default_rng(seed)
+    D = euclidean(n, seed=seed) * np.exp(rng.normal(0, sigma, (n, n)))
+    D = np.triu(D, 1)
+    D = D + D.T
+    m = tmp_path / f"noisy{n}.tsv"
+    write_tsv(m, labels(n), D)
+    return m, D
+
+
+@pytest.mark.parametrize("obj", ["l1", "l2"])
+def test_convex_objectives_report_a_certified_gap(tmp_path, cli, obj):
+    m, D = noisy_file(tmp_path, 25, 1)
+    out, js = tmp_path / "o.tsv", tmp_path / "r.json"
+    p = cli("repair", m, "-o", out, "--objective", obj, "--json", js)
+    assert p.returncode == 0, p.stderr
+    r = json.load(open(js))
+    assert r["optimal"] and r["violated_after"] == 0
+    assert 0 < r["lower_bound"] <= r["objective_value"]
+    assert r["relative_gap"] <= 1e-6
+    # the reported value is what the written matrix costs (unweighted here)
+    X = read_out(out)
+    iu = np.triu_indices(25, 1)
+    dev = (X - D)[iu]
+    want = np.abs(dev).sum() if obj == "l1" else (dev ** 2).sum()
+    assert np.isclose(r["objective_value"], want, rtol=1e-9)
+
+
+@pytest.mark.parametrize("obj", ["l1", "l2"])
+def test_cli_time_limit_reports_a_gap(tmp_path, cli, obj):
+    m, D = noisy_file(tmp_path, 300, 8)
+    out, js = tmp_path / "o.tsv", tmp_path / "r.json"
+    extra = ["--method", "heuristic"] if obj == "l1" else []
+    p = cli("repair", m, "-o", out, "--objective", obj, "--json", js, "--time-limit", "1", *extra)
+    assert p.returncode == 0, p.stderr
+    r = json.load(open(js))
+    assert r["optimal"] is False and r["violated_after"] == 0 and r["details"]["status"] == "time limit"
+    assert 0 <= r["lower_bound"] < r["objective_value"] and r["relative_gap"] > 1e-6
+    assert is_metric(read_out(out), r["tol"])
+
+
+@pytest.mark.parametrize("obj", ["l1", "l2"])
+def test_same_input_gives_byte_identical_files(tmp_path, cli, obj):
+    # the convex solvers' schedules follow work counts, not the clock
+    m, _ = noisy_file(tmp_path, 40, 2)
+    outs = []
+    for k in range(2):
+        out, ch = tmp_path / f"o{k}.tsv", tmp_path / f"c{k}.tsv"
+        extra = ["--method", "heuristic"] if obj == "l1" else []
+        p = cli("repair", m, "-o", out, "--objective", obj, "--changes", ch, *extra)
+        assert p.returncode == 0, p.stderr
+        outs.append((out.read_bytes(), ch.read_bytes()))
+    assert outs[0] == outs[1]

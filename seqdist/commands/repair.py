@@ -39,8 +39,9 @@ def register(subs, common):
                    help="return the best verified answer found by then (optimal: false when not proven)")
     p.add_argument("--seed", type=int, default=0, help="seed of randomised steps (default 0)")
     p.add_argument("--method", choices=("auto", "exact", "heuristic"), default=None,
-                   help="fewest and grow: exact integer program, the scalable heuristic, or "
-                        "choose by size (default auto)")
+                   help="fewest and grow: exact integer program or the scalable heuristic; "
+                        "l1: exact linear program or the projection method; auto "
+                        "chooses by size (default)")
     p.add_argument("--option", action="append", default=[], metavar="KEY=VALUE",
                    help="an objective-specific option (repeatable; see docs/repair.md)")
     p.set_defaults(func=_run)

@@ -497,6 +497,8 @@ def build_report(problem: RepairProblem, objective: str, X: np.ndarray, solution
         "weighted_l1_change": _wsum(w[changed], ad[changed]),
         "max_violation_before": float(violated_before[1]),
         "gap": float(max(0.0, objective_value - solution.lower_bound)),
+        "relative_gap": float(max(0.0, objective_value - solution.lower_bound) / objective_value)
+        if objective_value > 0 else 0.0,
         "tol": tol,
         "time_limit": problem.time_limit,
         "locked_entries": int(np.triu(problem.locked, 1).sum()),

@@ -350,7 +350,8 @@ def solve(problem: RepairProblem) -> Solution:
     if res is None:
         res = _solve_projection(problem, S, t0, deadline, gap_tol, max_rounds, log, opts)
         used = "proximal point with exact dual coordinate ascent"
-    p, g = float(res["p"]), float(res["g"])
+    # every objective value is >= 0, so 0 is always a valid bound
+    p, g = float(res["p"]), max(0.0, float(res["g"]))
     rel = C.relative_gap(p, g)
     g = min(g, p)
     details = {"method": used, "status": res["status"], "rounds": res["rounds"],

@@ -333,6 +333,7 @@ def solve(problem: RepairProblem) -> Solution:
         best_Y, _ = C.feasible_point(x, S)
         best_p = C.objective_l2(best_Y, S)
         best_g = max(best_g, C.bound_l2(pool.accumulate(), S))
+    best_g = max(best_g, 0.0)  # every objective value is >= 0
     rel = C.relative_gap(best_p, best_g)
     optimal = rel <= gap_tol
     best_g = min(best_g, best_p)
