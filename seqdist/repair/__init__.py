@@ -71,7 +71,7 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
     >>> import numpy as np
     >>> D = np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]])
     >>> r = repair(D, "shrink", progress=False)
-    >>> r.matrix.values[0, 1], r.report["changed_entries"]
+    >>> float(r.matrix.values[0, 1]), r.report["changed_entries"]
     (2.0, 1)
     >>> r.changes
     [('t0', 't1', 5.0, 2.0, -3.0)]

@@ -447,7 +447,7 @@ def format_changes(rows: list[tuple]) -> str:
 
     Examples
     --------
-    >>> print(format_changes([("a", "b", 5.0, 2.0, -3.0)]), end="")
+    >>> print(format_changes([("a", "b", 5.0, 2.0, -3.0)]), end="")  # doctest: +NORMALIZE_WHITESPACE
     label_a	label_b	before	after	change
     a	b	5.0	2.0	-3.0
     """

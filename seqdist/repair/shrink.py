@@ -38,7 +38,7 @@ def closure(D: np.ndarray, tol: float = 0.0) -> np.ndarray:
 
     Examples
     --------
-    >>> closure(np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]]))[0, 1]
+    >>> float(closure(np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]]))[0, 1])
     2.0
     """
     from ..paths import apsp
