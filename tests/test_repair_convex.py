@@ -267,12 +267,16 @@ def test_gap_closes_as_the_tolerance_tightens(kind):
 @pytest.mark.parametrize("kind", ["l1", "l2"])
 def test_time_limit_returns_a_feasible_point_with_a_gap(kind):
     D = noisy(150, 8)
-    opts = {"polish": False} if kind == "l2" else {"method": "projection"}
+    # a gap no run reaches in 0.3 s, so the clock is what stops it on any machine
+    opts = {"gap_tol": 1e-13} if kind == "l2" else {"method": "projection", "gap_tol": 1e-13}
     p = problem(D, **opts)
     p.time_limit = 0.3
     s = SOLVERS[kind](p)
     assert not s.optimal and s.details["status"] == "time limit"
-    assert 0 < s.lower_bound < s.objective_value
+    # l1's first proximal round may give a dual bound below 0, reported as 0
+    assert 0 <= s.lower_bound < s.objective_value
+    if kind == "l2":  # Hildreth's dual only rises from 0
+        assert s.lower_bound > 0
     assert is_metric(s.X, 1e-9 * D.max())
 
 
