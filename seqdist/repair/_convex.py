@@ -95,6 +95,29 @@ def sweeps_per_round(n: int, pool_size: int, max_sweeps: int = 256) -> int:
     return int(min(max_sweeps, max(2, round(SCAN_PER_SWEEP * triangles / max(pool_size, 1)))))
 
 
+def run_context(problem, name: str):
+    """Start-up shared by the convex solvers: ``(t0, options, deadline, log)``.
+
+    ``deadline`` comes from the engine, else from ``time_limit``; ``log``
+    prints a timed line on standard error when the ``verbose`` option is set.
+    """
+    import sys
+    import time
+
+    t0 = time.perf_counter()
+    opts = dict(problem.options or {})
+    deadline = problem.deadline
+    if deadline is None and problem.time_limit is not None:
+        deadline = t0 + float(problem.time_limit)
+    verbose = bool(opts.get("verbose", False))
+
+    def log(msg):
+        if verbose:
+            print(f"[{name} {time.perf_counter() - t0:7.2f}s] {msg}", file=sys.stderr, flush=True)
+
+    return t0, opts, deadline, log
+
+
 # ------------------------------------------------------------ constraints and duals
 @dataclass
 class Pool:

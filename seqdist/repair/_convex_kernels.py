@@ -25,6 +25,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
+from ._cycles import _dijkstra  # the one dense Dijkstra of the repair package
+
 _SI = 42
 _SJ = 22
 _SK = 2
@@ -457,34 +459,6 @@ def denominators_tri(keys, winv):  # pragma: no cover - compiled
 
 # ------------------------------------------------------------ cycles through absent entries
 @njit(cache=True)
-def _dijkstra_pred(W, s):  # pragma: no cover - compiled
-    # dense O(n^2) Dijkstra with predecessors; W symmetric, inf = no edge, zeros allowed
-    n = W.shape[0]
-    dist = np.full(n, np.inf)
-    pred = np.full(n, -1, np.int64)
-    done = np.zeros(n, np.bool_)
-    dist[s] = 0.0
-    for _ in range(n):
-        u = -1
-        best = np.inf
-        for v in range(n):
-            if not done[v] and dist[v] < best:
-                best = dist[v]
-                u = v
-        if u < 0:
-            break
-        done[u] = True
-        for v in range(n):
-            wv = W[u, v]
-            if not done[v] and wv < np.inf:
-                nd = best + wv
-                if nd < dist[v]:
-                    dist[v] = nd
-                    pred[v] = u
-    return dist, pred
-
-
-@njit(cache=True)
 def violated_cycles(W, src, dst, min_edges):  # pragma: no cover - compiled
     """Cycle constraints for the violated entries ``(src[q], dst[q])`` of the graph ``W``.
 
@@ -503,7 +477,7 @@ def violated_cycles(W, src, dst, min_edges):  # pragma: no cover - compiled
         s = src[q]
         t = dst[q]
         if s != cur:
-            _, pred = _dijkstra_pred(W, s)
+            _, pred = _dijkstra(W, s)
             cur = s
         # path t -> s
         path = [t]

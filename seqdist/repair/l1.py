@@ -315,8 +315,7 @@ def solve(problem: RepairProblem) -> Solution:
     >>> round(s.objective_value, 9)
     2.0
     """
-    t0 = time.perf_counter()
-    opts = dict(problem.options or {})
+    t0, opts, deadline, log = C.run_context(problem, "l1")
     gap_tol = float(opts.get("gap_tol", _DEFAULT_GAP))
     method = str(opts.get("method", "auto")).lower()
     if method in ("exact",):
@@ -329,17 +328,6 @@ def solve(problem: RepairProblem) -> Solution:
         raise InputError(f"l1: unknown method '{method}' (auto, lp or projection)")
     lp_max_n = int(opts.get("lp_max_n", _LP_MAX_N))
     max_rounds = int(opts.get("max_rounds", 100000))
-    verbose = bool(opts.get("verbose", False))
-    deadline = problem.deadline
-    if deadline is None and problem.time_limit is not None:
-        deadline = t0 + float(problem.time_limit)
-
-    def log(msg):
-        if verbose:
-            import sys
-
-            print(f"[l1 {time.perf_counter() - t0:7.2f}s] {msg}", file=sys.stderr, flush=True)
-
     S = C.setup(problem)
     if method == "auto":
         method = "lp" if S.n <= lp_max_n else "projection"

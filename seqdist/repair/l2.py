@@ -211,23 +211,11 @@ def solve(problem: RepairProblem) -> Solution:
     >>> round(s.objective_value, 9)  # move 4 down and both 1s up by 2/3
     1.333333333
     """
-    t0 = time.perf_counter()
-    opts = dict(problem.options or {})
+    t0, opts, deadline, log = C.run_context(problem, "l2")
     gap_tol = float(opts.get("gap_tol", _DEFAULT_GAP))
     max_rounds = int(opts.get("max_rounds", 100000))
     use_polish = bool(opts.get("polish", False))
     omega = float(opts.get("relax", 1.0))
-    verbose = bool(opts.get("verbose", False))
-    deadline = problem.deadline
-    if deadline is None and problem.time_limit is not None:
-        deadline = t0 + float(problem.time_limit)
-
-    def log(msg):
-        if verbose:
-            import sys
-
-            print(f"[l2 {time.perf_counter() - t0:7.2f}s] {msg}", file=sys.stderr, flush=True)
-
     S = C.setup(problem)
     n = S.n
     pool = C.Pool(n)
