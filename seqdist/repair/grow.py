@@ -55,15 +55,23 @@ def _cand_light(tri, var):
     return c
 
 
-def make_feasible(problem: RepairProblem, S, F, max_rounds: int = 200):
-    """Grow ``S`` until every observed entry is at most its shortest kept path."""
+def make_feasible(problem: RepairProblem, S, F):
+    """Grow ``S`` until every observed entry is at most its shortest kept path.
+
+    Each round: shortest paths over ``F``; one shortest kept path for every
+    entry longer than it; a greedy weighted hitting set of those paths'
+    unlocked entries leaves ``F``. Every round removes at least one kept
+    entry, so there are at most as many rounds as kept entries (a fixed round
+    cap once made feasible requests fail on dense matrices with a long locked
+    entry). The engine's lock check guarantees each path has an unlocked entry.
+    """
     D, tol, n = problem.D, problem.tol, problem.n
     S = S.copy()
     F = F.copy()
     obs = problem.observed
     var = obs & ~problem.locked
     added = 0
-    for _ in range(max_rounds):
+    while True:
         A = _support.kept_paths(D, F)
         bad = _support.broken_edges(D, A, obs, tol)
         if len(bad) == 0:
@@ -87,7 +95,6 @@ def make_feasible(problem: RepairProblem, S, F, max_rounds: int = 200):
             F[a, b] = F[b, a] = False
             added += 1
             alive = [q for q in alive if best not in sets[q]]
-    raise RuntimeError("grow: could not make the kept set feasible")  # pragma: no cover
 
 
 def heuristic(problem: RepairProblem, tri, cand, deadline=None, greedy_weights=None):
