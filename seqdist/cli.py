@@ -69,9 +69,10 @@ def main(argv: list[str] | None = None) -> int:
         parser = build_parser()
         args = parser.parse_args(argv)
         debug = bool(getattr(args, "debug", False))
-        from .console import set_quiet
+        from .console import install_warning_printer, set_quiet
 
         set_quiet(bool(getattr(args, "quiet", False)))
+        install_warning_printer()
         if not getattr(args, "func", None):
             parser.print_help(sys.stderr)
             return 2
@@ -82,7 +83,9 @@ def main(argv: list[str] | None = None) -> int:
             import traceback
 
             traceback.print_exc()
-        sys.stderr.write(f"seqdist: error: {exc}\n")
+        from .console import one_line
+
+        sys.stderr.write(f"seqdist: error: {one_line(exc)}\n")
         return exc.exit_code
     except KeyboardInterrupt:
         sys.stderr.write("seqdist: error: interrupted\n")
@@ -97,7 +100,9 @@ def main(argv: list[str] | None = None) -> int:
             import traceback
 
             traceback.print_exc()
-        sys.stderr.write(f"seqdist: internal error: {type(exc).__name__}: {exc} "
+        from .console import one_line
+
+        sys.stderr.write(f"seqdist: internal error: {type(exc).__name__}: {one_line(exc)} "
                          "(run with --debug for the traceback; please report it)\n")
         return 1
 

@@ -457,6 +457,38 @@ class OutputSet:
         self._stdout = []
 
 
+def check_distinct_outputs(outputs: dict) -> None:
+    """Refuse two outputs of one command that name the same file, before any work.
+
+    ``outputs`` maps what names each output (an option such as ``--json``)
+    to its path (None when not asked for). Paths are compared after
+    resolving links and ``..``; two outputs to standard output (``-``) are
+    refused too, since their texts would run together.
+
+    Raises
+    ------
+    InputError
+        Naming both options and the path.
+
+    Examples
+    --------
+    >>> check_distinct_outputs({"--out": "a.tsv", "--json": "b.json", "--changes": None})
+    >>> check_distinct_outputs({"--out": "a.tsv", "--json": "./a.tsv"})
+    Traceback (most recent call last):
+    ...
+    seqdist.errors.InputError: --out and --json both write to a.tsv: give each output its own file
+    """
+    seen: dict[str, str] = {}
+    for what, path in outputs.items():
+        if path is None:
+            continue
+        key = "-" if path == "-" else os.path.realpath(os.path.abspath(path))
+        if key in seen:
+            where = "standard output" if key == "-" else seen[key][1]
+            raise InputError(f"{seen[key][0]} and {what} both write to {where}: give each output its own file")
+        seen[key] = (what, path)
+
+
 def _umask() -> int:
     mask = os.umask(0)
     os.umask(mask)
@@ -510,4 +542,5 @@ def iter_nonblank(text: str) -> Iterator[tuple[int, str]]:
 
 
 __all__: Sequence[str] = ["MATRIX_FORMATS", "read_matrix", "write_matrix", "format_matrix", "read_pairs",
-                          "read_text", "matrix_format", "OutputSet", "write_text", "to_jsonable"]
+                          "read_text", "matrix_format", "OutputSet", "write_text", "to_jsonable",
+                          "check_distinct_outputs"]

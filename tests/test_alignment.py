@@ -200,6 +200,8 @@ def test_unicode_residue(tmp_path):
         read_alignment(path)
 
 
-def test_forced_dna_warns(capsys):
-    Alignment.from_sequences(["a", "b"], ["MKVLWQ", "MKVLWE"], alphabet="dna")
-    assert "not nucleotides" in capsys.readouterr().err
+def test_forced_dna_warns():
+    from seqdist.errors import DataWarning
+
+    with pytest.warns(DataWarning, match="not nucleotides"):
+        Alignment.from_sequences(["a", "b"], ["MKVLWQ", "MKVLWE"], alphabet="dna")

@@ -26,5 +26,65 @@ def add_matrix_out(p: argparse.ArgumentParser, required: bool = True) -> None:
 
 
 def add_tol(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--tol", type=float, default=None, metavar="T",
+    p.add_argument("--tol", type=nonneg_float, default=None, metavar="T",
                    help="tolerance (default: 1e-9 times the largest entry)")
+
+
+# ------------------------------------------------------------ option types
+# argparse calls these on the text of an option; an ArgumentTypeError becomes
+# one line "seqdist: error: argument --seed: ..." and exit 2.
+SEED_MAX = 2**32 - 1
+
+
+def _number(text: str, kind):
+    try:
+        value = kind(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected {'an integer' if kind is int else 'a number'}, "
+                                         f"got '{text}'") from None
+    return value
+
+
+def seed_type(text: str) -> int:
+    """A seed: an integer from 0 to 2**32 - 1."""
+    value = _number(text, int)
+    if not 0 <= value <= SEED_MAX:
+        raise argparse.ArgumentTypeError(f"a seed is an integer from 0 to {SEED_MAX}, got {text}")
+    return value
+
+
+def positive_int(text: str) -> int:
+    """An integer >= 1."""
+    value = _number(text, int)
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"must be a positive integer, got {text}")
+    return value
+
+
+def nonneg_int(text: str) -> int:
+    """An integer >= 0."""
+    value = _number(text, int)
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"must be 0 or a positive integer, got {text}")
+    return value
+
+
+def positive_float(text: str) -> float:
+    """A finite number > 0."""
+    value = _number(text, float)
+    if not (value > 0 and value != float("inf")):
+        raise argparse.ArgumentTypeError(f"must be a finite positive number, got {text}")
+    return value
+
+
+def nonneg_float(text: str) -> float:
+    """A finite number >= 0."""
+    value = _number(text, float)
+    if not (value >= 0 and value != float("inf")):
+        raise argparse.ArgumentTypeError(f"must be a finite number >= 0, got {text}")
+    return value
+
+
+def add_seed(p: argparse.ArgumentParser, default: int, help: str = "seed of every randomised step") -> None:
+    p.add_argument("--seed", type=seed_type, default=default, metavar="S",
+                   help=f"{help} (0 to {SEED_MAX}; default: {default})")

@@ -525,7 +525,8 @@ class _Bar:
     def __init__(self, objective: str):
         from ..console import Progress
 
-        self.bar = Progress(f"repair ({objective})", total=1.0)
+        # the solvers report phases, not equal units of work: elapsed time only, no estimate
+        self.bar = Progress(f"repair ({objective})", total=1.0, estimate=False)
 
     def __call__(self, fraction=None, note=None):
         if fraction is not None:
