@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import io
 import os
+import re
 from dataclasses import dataclass
 from typing import Sequence
 
@@ -363,21 +364,196 @@ def _parse_fasta(text: str, name: str):
     return labels, seqs, [(h, chunk) for h, chunk in zip(lines, chunks)]
 
 
+class _Truncated(ValueError):
+    """The parser asked for more lines after the end of the file."""
+
+
+class _EndGuard(io.StringIO):
+    """A text handle that fails, instead of returning '' forever, when a parser keeps reading past the end.
+
+    Biopython 1.8x's Clustal reader loops on ``readline()`` until it sees a
+    non-blank line, so a file with a header and no sequence block would spin
+    at 100% CPU for ever; every format is read through this guard.
+    """
+
+    _END_READS = 100
+
+    def __init__(self, text: str):
+        super().__init__(text)
+        self._ends = 0
+
+    def readline(self, size=-1):
+        line = super().readline(size)
+        if not line and size != 0:
+            self._ends += 1
+            if self._ends > self._END_READS:
+                raise _Truncated("the file ends before the alignment does (truncated?)")
+        return line
+
+
 def _parse_with_biopython(text: str, name: str, fmt: str):
     from Bio import AlignIO
 
+    _check_layout(text, name, fmt)
     tries = [fmt] if fmt != "phylip" else ["phylip-relaxed", "phylip"]
     err = None
     for f in tries:
         try:
-            msa = AlignIO.read(io.StringIO(text), f)
-            return [r.id for r in msa], [str(r.seq) for r in msa]
-        except (ValueError, IndexError, KeyError, AssertionError, TypeError, AttributeError) as exc:
+            msa = AlignIO.read(_EndGuard(text), f)
+            labels, seqs = [r.id for r in msa], [str(r.seq) for r in msa]
+        except MemoryError:
+            raise
+        except Exception as exc:  # a third-party parser failing on user input: the input is bad
             err = exc
+            continue
+        if f.startswith("phylip"):
+            _check_phylip(text, name, labels, seqs)
+        if f == "nexus":
+            _check_nexus_ids(text, name, labels)
+        return labels, seqs
+    if isinstance(err, _Truncated):
+        last = text.rstrip("\n").count("\n") + 1
+        raise InputError(f"{name}: line {last}: the file ends where the {fmt} alignment should go on "
+                         "(truncated, or a header with no sequences?)")
+    if fmt == "nexus":
+        hint = _nexus_error(text, name, err)
+        if hint:
+            raise InputError(hint)
     msg = " ".join(str(err).split())[:200] or type(err).__name__
+    if isinstance(err, RuntimeError) and "StopIteration" in msg:
+        msg = "the file ends before the alignment does (truncated?)"
     if "same length" in msg:
         msg = "sequences have unequal lengths, so this is not an alignment"
+    if "No records found" in msg:
+        msg = "no alignment found: the file is empty, truncated or in another format"
     raise InputError(f"{name}: not a readable {fmt} alignment ({msg})")
+
+
+def _check_layout(text: str, name: str, fmt: str) -> None:
+    """Truncation checks Biopython does not make, for formats that state where they end or how long a row is."""
+    if fmt == "stockholm" and not re.search(r"(?m)^//[ \t\r]*$", text):
+        last = text.rstrip("\n").count("\n") + 1
+        raise InputError(f"{name}: line {last}: the Stockholm alignment does not end with a '//' line "
+                         "(truncated?)")
+    if fmt == "maf":
+        for ln, line in enumerate(text.split("\n"), start=1):
+            if not line.startswith("s "):
+                continue
+            fields = line.split()
+            size = fields[3] if len(fields) == 7 else ""
+            if not size.isdigit():
+                raise InputError(f"{name}: line {ln}: a MAF 's' line needs 7 fields (s, source, start, size, "
+                                 "strand, source size, text); this one is incomplete (truncated?)")
+            held = len(fields[6]) - fields[6].count("-")
+            if held != int(size):
+                raise InputError(f"{name}: line {ln}: the 's' line gives size {size} but holds {held} residues "
+                                 "(truncated?)")
+
+
+def _check_phylip(text: str, name: str, labels: list, seqs: list) -> None:
+    head = text.lstrip().split("\n", 1)[0].split()
+    if len(head) >= 2 and head[0].isdigit() and head[1].isdigit():
+        ntax, nchar = int(head[0]), int(head[1])
+        if len(labels) != ntax or any(not lab for lab in labels) or any(len(s) != nchar for s in seqs):
+            raise InputError(f"{name}: line 1: the PHYLIP header announces {ntax} sequences of {nchar} columns, "
+                             "but the records that follow are missing or incomplete (truncated?)")
+
+
+# ----------------------------------------------------------------- NEXUS messages
+def _nexus_rows(text: str):
+    """(line, label, residues) for each line of the first MATRIX command; a best-effort scan for messages.
+
+    Comments in square brackets are blanked (keeping line breaks); a label
+    may be quoted. Non-interleaved rows that wrap over several lines are
+    misread, which is why this only serves error messages.
+    """
+    clean = re.sub(r"\[[^\]]*\]", lambda m: re.sub(r"[^\n]", " ", m.group(0)), text)
+    m = re.search(r"(?i)(^|;)\s*matrix\b", clean, flags=re.M)
+    if not m:
+        return None, []
+    start = m.end()
+    end = clean.find(";", start)
+    body = clean[start:] if end < 0 else clean[start:end]
+    first = clean.count("\n", 0, m.end()) + 1
+    rows = []
+    for off, line in enumerate(body.split("\n")):
+        line = line.strip()
+        if not line:
+            continue
+        q = re.match(r"'((?:[^']|'')*)'\s*(.*)$", line)
+        if q:
+            label, rest = q.group(1).replace("''", "'"), q.group(2)
+        else:
+            parts = line.split(None, 1)
+            label, rest = parts[0], parts[1] if len(parts) > 1 else ""
+        rows.append((first + off, label, "".join(rest.split())))
+    return first, rows
+
+
+def _nexus_dims(text: str):
+    """{'ntax': (value, line), 'nchar': (value, line)} from DIMENSIONS commands."""
+    out = {}
+    for m in re.finditer(r"(?i)\b(ntax|nchar)\s*=\s*(\d+)", text):
+        out.setdefault(m.group(1).lower(), (int(m.group(2)), text.count("\n", 0, m.start()) + 1))
+    return out
+
+
+def _nexus_error(text: str, name: str, err) -> str | None:
+    """A message naming the line for the NEXUS mistakes Biopython reports without one."""
+    msg = " ".join(str(err).split())
+    m = re.match(r"Unknown command: (\S+)", msg)
+    if m:
+        cmd = m.group(1)
+        hit = re.search(rf"(?i)(^|;)\s*({re.escape(cmd)})\b", text, flags=re.M)
+        where = f"line {text.count(chr(10), 0, hit.start(2)) + 1}: " if hit else ""
+        return (f"{name}: {where}unknown command '{cmd}' in the NEXUS DATA/CHARACTERS block "
+                "(not a readable nexus alignment)")
+    if msg.startswith("Unmatched ["):
+        pos = _unmatched_bracket(text)
+        where = f"line {text.count(chr(10), 0, pos) + 1}: " if pos is not None else ""
+        return f"{name}: {where}a comment opened with '[' is never closed (not a readable nexus alignment)"
+    dims = _nexus_dims(text)
+    _, rows = _nexus_rows(text)
+    totals: dict = {}
+    for ln, label, res in rows:
+        first_ln, total = totals.get(label, (ln, 0))
+        totals[label] = (first_ln, total + len(res))
+    if "taxa" in msg.lower() and "ntax" in dims:
+        k, dl = dims["ntax"]
+        found = f"the matrix has {len(totals)} rows" if totals else "the matrix does not match"
+        return f"{name}: line {dl}: the dimensions give ntax={k}, but {found} (not a readable nexus alignment)"
+    if "nchar" in dims and ("Nchar" in msg or isinstance(err, (RuntimeError, StopIteration))):
+        k, dl = dims["nchar"]
+        for label, (ln, total) in totals.items():
+            if total != k:
+                return (f"{name}: line {ln}: taxon '{label}' has {total} characters, but the dimensions "
+                        f"(line {dl}) give nchar={k} (not a readable nexus alignment)")
+        return (f"{name}: line {dl}: the matrix does not hold nchar={k} characters for every taxon "
+                "(not a readable nexus alignment)")
+    return None
+
+
+def _unmatched_bracket(text: str):
+    depth, pos = 0, None
+    for i, ch in enumerate(text):
+        if ch == "[":
+            if depth == 0:
+                pos = i
+            depth += 1
+        elif ch == "]" and depth:
+            depth -= 1
+    return pos if depth else None
+
+
+def _check_nexus_ids(text: str, name: str, labels: list) -> None:
+    # Biopython renames a repeated taxon 'x' to 'x.copy'; ids must be unique, so that is an error here.
+    have = set(labels)
+    for lab in labels:
+        if lab.endswith(".copy") and lab[:-5] in have and lab not in text:
+            _, rows = _nexus_rows(text)
+            lines = [ln for ln, label, _ in rows if label == lab[:-5]]
+            at = f" (lines {lines[0]} and {lines[1]})" if len(lines) >= 2 else ""
+            raise InputError(f"{name}: duplicate taxon '{lab[:-5]}' in the NEXUS matrix{at}; ids must be unique")
 
 
 def _where(labels, lines, i):

@@ -17,12 +17,20 @@ Poisson correction and the p-distance this is the published formula.
 A pair with no compared column, or whose correction is undefined
 (``x_k <= 0``: saturated; a zero base frequency or an absent residue for
 LogDet: undefined) gets NaN, a missing entry, and is named in one warning.
+Whether ``x_k > 0`` is decided exactly: counts are integers, so an argument
+that floating point puts within ``_NEAR`` (relative) of zero is recomputed
+in rational arithmetic from the integer counts (:func:`_exact_args`); a
+pair exactly at its limit (K80 with ``S = 2 P + Q`` in counts) is
+saturated, one count short of it is defined. Only counts that are not
+integers (frequencies given to :func:`distances_from_counts`) fall back on
+a relative margin, ``_MARGIN`` (docs/distances.md says why).
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from fractions import Fraction
 
 import numpy as np
 
@@ -61,6 +69,13 @@ REASONS = {NO_OVERLAP: "no shared column", SATURATED: "saturated", UNDEFINED: "u
 
 # Sub-chunks of pairs evaluated at once (bounded float64 temporaries).
 _EVAL_PAIRS = 1 << 19
+
+# Deciding whether a log (or power) argument x = 1 - sum_j a_j p_j is positive. Floating point gets
+# x to within a few units of 1e-16 times m = 1 + sum_j |a_j p_j|; where |x| <= _NEAR * m the sign
+# is recomputed exactly from the integer counts. Counts that are not integers (frequencies) cannot
+# be, and x <= _MARGIN * m counts as saturated there (docs/distances.md, "Undefined entries").
+_NEAR = 1e-8
+_MARGIN = 1e-12
 
 
 @dataclass(frozen=True, eq=False)
@@ -219,11 +234,17 @@ def pairwise_distances(aln: Alignment, model: str | None = None, *, gamma: float
         partial = False  # no ambiguity code survives complete deletion
     n, L = used.n, used.length
     K = used.n_states
+    counts = used.residue_counts(partial)
+    if not counts.sum() > 0:
+        what = "residue or partial ambiguity code" if partial else "unambiguous residue"
+        raise InputError(f"{aln.source}: no sequence holds a {what} ({used.states}), so no pair can be "
+                         "compared")
 
-    pi = None
+    pi = pi_counts = None
     if model in FREQ_MODELS and freqs == "alignment":
-        counts = used.residue_counts(partial)
         pi = counts / counts.sum()
+        # Partial weights are multiples of 1/6 (DNA) or 1/2 (protein): scaled, the counts are integers.
+        pi_counts = _integer_counts(counts * ((6.0 if used.alphabet == "dna" else 2.0) if partial else 1.0))
     level = _level(model, freqs)
     kern = _choose_kernel(kernel, used, level, partial)
 
@@ -234,8 +255,9 @@ def pairwise_distances(aln: Alignment, model: str | None = None, *, gamma: float
     bad_j: list[np.ndarray] = []
     bad_r: list[np.ndarray] = []
 
-    ctx = _Context(model=model, gamma=gamma, pi=pi, K=K, need_var=variance, complete=complete, L=L)
     engine = _Engine(used, level, kern, partial, complete, memory)
+    ctx = _Context(model=model, gamma=gamma, pi=pi, K=K, need_var=variance, complete=complete, L=L,
+                   scale=engine.scale ** 2, pi_counts=pi_counts)
     from .console import Progress
 
     with Progress(f"distances ({model}, {n} sequences)", total=engine.steps,
@@ -350,9 +372,21 @@ def distances_from_counts(N, model: str, *, gamma: float | None = None, base_fre
     alphabet = "dna" if K == 4 else "protein"
     model = check_options(alphabet, model, gamma, "pairwise", "alignment", "skip", "counts")
     pi = None if base_frequencies is None else np.asarray(base_frequencies, dtype=np.float64)
-    ctx = _Context(model=model, gamma=gamma, pi=pi, K=K, need_var=variance, complete=False, L=0)
+    # Integer counts let the saturation limits be decided exactly; frequencies get the margin.
+    whole = bool(np.all(np.isfinite(N)) and np.array_equal(N, np.rint(N)))
+    ctx = _Context(model=model, gamma=gamma, pi=pi, K=K, need_var=variance, complete=False, L=0,
+                   scale=1.0 if whole else None)
     st = _stats_from_N(N)
     return _evaluate(st, ctx)
+
+
+def _integer_counts(x) -> np.ndarray | None:
+    """``x`` as exact integers (int64) when every value is one, else None."""
+    x = np.asarray(x, dtype=np.float64)
+    r = np.rint(x)
+    if not (np.all(np.isfinite(x)) and np.all(np.abs(x - r) <= 1e-6) and np.all(np.abs(r) < 2 ** 62)):
+        return None
+    return r.astype(np.int64)
 
 
 # ----------------------------------------------------------------- count engine
@@ -538,30 +572,241 @@ class _Context:
     need_var: bool
     complete: bool
     L: int
+    scale: float | None = None  # counts times scale are integers (None: they are not)
+    pi_counts: np.ndarray | None = None  # integer residue counts behind pi (alignment frequencies)
 
 
-def _log_terms(terms, props, gamma):
-    """d = sum_k c_k L(x_k), x_k = 1 - sum_j a_kj p_j; returns d, gradient dict, bad mask."""
-    d = 0.0
-    grad = {k: 0.0 for k in props}
-    bad = False
+def _log_terms(terms, props, gamma, shape, decide):
+    """d = sum_k c_k L(x_k), x_k = 1 - sum_j a_kj p_j; returns d, gradient dict, bad mask.
+
+    ``decide(xs, ms)`` says where each x_k > 0 (``ms``: the size of its terms), and may replace
+    near-zero values in ``xs`` by their exact values.
+    """
+    xs, ms = [], []
     for c, coef in terms:
         x = 1.0
+        m = 1.0
         for k, a in coef.items():
             x = x - a * props[k]
-        ok = x > 0
-        bad = bad | ~ok
-        xs = np.where(ok, x, 1.0)
-        if gamma is None:
-            Lx = -np.log(xs)
-            dL = 1.0 / xs
-        else:
-            Lx = gamma * (xs ** (-1.0 / gamma) - 1.0)
-            dL = xs ** (-1.0 / gamma - 1.0)
-        d = d + c * Lx
-        for k, a in coef.items():
-            grad[k] = grad[k] + c * a * dL
+            m = m + np.abs(a * props[k])
+        xs.append(np.array(np.broadcast_to(x, shape), dtype=np.float64))
+        ms.append(np.broadcast_to(m, shape))
+    oks = decide(xs, ms)
+    d = 0.0
+    grad = {k: 0.0 for k in props}
+    bad = np.zeros(shape, dtype=bool)
+    # Near saturation x^(-1/a) overflows for small a; the result is then inf and the pair is marked
+    # saturated below, so numpy's overflow warning would only be noise.
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        for (c, coef), x, ok in zip(terms, xs, oks):
+            bad = bad | ~ok
+            xv = np.where(ok, x, 1.0)
+            if gamma is None:
+                Lx = -np.log(xv)
+                dL = 1.0 / xv
+            else:
+                Lx = gamma * (xv ** (-1.0 / gamma) - 1.0)
+                dL = xv ** (-1.0 / gamma - 1.0)
+            d = d + c * Lx
+            for k, a in coef.items():
+                grad[k] = grad[k] + c * a * dL
     return d, grad, bad
+
+
+def _decider(st: dict, ctx: "_Context", shape):
+    """``decide(xs, ms)`` for :func:`_log_terms`: where each argument x_k is > 0.
+
+    Far from 0 the floating-point sign is right. Where some ``|x_k| <= _NEAR * m_k`` the pair's
+    arguments are recomputed exactly from its integer counts (:func:`_exact_values`), and the
+    exact values (rounded once to float) replace those in ``xs``; without integer counts,
+    ``x_k <= _MARGIN * m_k`` counts as saturated.
+    """
+    def decide(xs, ms):
+        near = np.zeros(shape, dtype=bool)
+        for x, m in zip(xs, ms):
+            near |= np.abs(x) <= _NEAR * m
+        if not near.any():
+            return [x > 0 for x in xs]
+        nz = np.flatnonzero(near)
+        exact = _exact_values(st, ctx, nz, len(xs))
+        oks = []
+        for k, (x, m) in enumerate(zip(xs, ms)):
+            flat = x.reshape(-1)  # xs are fresh contiguous arrays: a view
+            if exact is None:
+                ok = flat > 0
+                ok[nz] = flat[nz] > _MARGIN * np.asarray(m).reshape(-1)[nz]
+            else:
+                flat[nz] = exact[k]
+                ok = flat > 0
+            oks.append(ok.reshape(shape))
+        return oks
+
+    return decide
+
+
+def _pair_counts(st: dict, ctx: "_Context", nz: np.ndarray):
+    """Integer counts of the pairs at flat positions ``nz`` (dict of int64 arrays), or None."""
+    if ctx.scale is None:
+        return None
+    out = {}
+    for key in ("S", "P", "Q", "P1", "P2", "mism"):
+        if key in st:
+            v = _integer_counts(np.asarray(st[key]).reshape(-1)[nz] * ctx.scale)
+            if v is None:
+                return None
+            out[key] = v
+    if "N" in st:
+        N = np.asarray(st["N"])
+        v = _integer_counts(N.reshape(-1, N.shape[-2], N.shape[-1])[nz] * ctx.scale)
+        if v is None:
+            return None
+        out["N"] = v
+    return out
+
+
+def _exact_values(st: dict, ctx: "_Context", nz: np.ndarray, nterms: int):
+    """For the pairs at flat positions ``nz``: a list (one per log term) of float arrays, the exact
+    x_k rounded once (so its sign is exact; 0.0 where the model is undefined for the pair).
+
+    None when the counts are not integers (or the base frequencies are not from integer counts).
+    """
+    model = ctx.model
+    if model in FREQ_MODELS and ctx.pi is not None and ctx.pi_counts is None:
+        return None  # frequencies given as numbers: no exact limit to compare with
+    c = _pair_counts(st, ctx, nz)
+    if c is None:
+        return None
+    S = c["S"].astype(object)  # Python integers: no overflow, whatever the column count
+    if "N" in c and model in ("jc69", "k80", "poisson", "kimura"):
+        N = c["N"].astype(object)
+        M = S - np.trace(N, axis1=-2, axis2=-1)
+        if ctx.K == 4:
+            P = N[:, 0, 2] + N[:, 2, 0] + N[:, 1, 3] + N[:, 3, 1]
+            Q = M - P
+    elif ctx.K == 4 and "P" in c:
+        P, Q = c["P"].astype(object), c["Q"].astype(object)
+        M = P + Q
+    elif "mism" in c:
+        M = c["mism"].astype(object)
+    # The count-only models: x_k as integer numerator / positive integer denominator (Python ints
+    # divide to the correctly rounded float, so the sign is exact).
+    def ratio(num, den):
+        return np.array([a / b if b else 0.0 for a, b in zip(num, den)], dtype=np.float64)
+
+    if model == "jc69":           # 1 - 4p/3 = (3S - 4M) / 3S   (Jukes & Cantor 1969)
+        return [ratio(3 * S - 4 * M, 3 * S)]
+    if model == "poisson":        # 1 - p = (S - M) / S
+        return [ratio(S - M, S)]
+    if model == "kimura":         # 1 - p - p^2/5 = (5S^2 - 5SM - M^2) / 5S^2   (Kimura 1983)
+        return [ratio(5 * S * S - 5 * S * M - M * M, 5 * S * S)]
+    if model == "k80":            # 1 - 2P - Q = (S - 2P - Q) / S, 1 - 2Q = (S - 2Q) / S   (Kimura 1980)
+        return [ratio(S - 2 * P - Q, S), ratio(S - 2 * Q, S)]
+    # Models with base frequencies, and LogDet: rational arithmetic pair by pair (only near-limit pairs).
+    pic = None if ctx.pi_counts is None else [int(v) for v in ctx.pi_counts]
+    out = [np.zeros(len(nz)) for _ in range(nterms)]
+    for r in range(len(nz)):
+        one = {k: (v[r].tolist() if k == "N" else int(v[r])) for k, v in c.items()}
+        if one["S"] == 0:  # no shared column (marked elsewhere)
+            continue
+        args = _exact_args(model, one, pic)
+        if args is None:  # undefined for another reason (marked elsewhere): keep it out
+            continue
+        if model == "logdet":
+            args = [Fraction(args[0], one["S"] ** 4)]  # det F = det N / S^4
+        for k in range(nterms):
+            out[k][r] = float(args[k])
+    return out
+
+
+def _exact_args(model: str, c: dict, pic):
+    """The log (power) arguments of one pair as exact fractions, in the order of the float terms.
+
+    ``c``: the pair's integer counts (``S`` and ``P``, ``Q``, ``P1``, ``P2`` or ``N``, a 4 x 4
+    list); ``pic``: integer residue counts of the alignment (alignment frequencies), or None for
+    frequencies from the pair itself. None when the model is undefined for the pair (a zero
+    frequency). For LogDet the one "argument" is det N, whose sign decides.
+
+    Examples
+    --------
+    >>> z = [0, 0, 0, 0]  # AAAA against ACGT, pair frequencies: B = 9/16, p = 3/4, 1 - p/B = -1/3
+    >>> _exact_args("f81", {"S": 4, "N": [[1, 1, 1, 1], z, z, z]}, None)
+    [Fraction(-1, 3)]
+    """
+    S = c["S"]
+    N = c.get("N")
+    if N is not None:
+        P1 = N[0][2] + N[2][0]
+        P2 = N[1][3] + N[3][1]
+        M = S - sum(N[i][i] for i in range(4))
+        Q = M - P1 - P2
+        rows = [sum(N[i]) for i in range(4)]
+        cols = [sum(N[i][j] for i in range(4)) for j in range(4)]
+    else:
+        P1, P2 = c.get("P1"), c.get("P2")
+        P = c["P"] if "P" in c else P1 + P2
+        Q = c["Q"]
+        M = P + Q
+    if model == "logdet":
+        return [_det4(N)]
+    if model == "t92" and pic is None:
+        # Tamura 1992 with the pair's GC contents theta1, theta2: h = theta1 + theta2 - 2 theta1 theta2.
+        t1 = Fraction(rows[1] + rows[2], S)
+        t2 = Fraction(cols[1] + cols[2], S)
+        h = t1 + t2 - 2 * t1 * t2
+    else:
+        if pic is not None:
+            T = sum(pic)
+            pi = [Fraction(v, T) for v in pic]
+        else:
+            pi = [Fraction(rows[i] + cols[i], 2 * S) for i in range(4)]
+        if model == "t92":
+            theta = pi[1] + pi[2]
+            h = 2 * theta * (1 - theta)
+    p = Fraction(M, S)
+    if model == "f81":
+        B = 1 - sum(x * x for x in pi)
+        return None if B <= 0 else [1 - p / B]
+    if model == "t92":
+        if h <= 0:
+            return None
+        P = Fraction(P1 + P2 if N is not None or "P" not in c else c["P"], S)
+        Qp = Fraction(Q, S)
+        return [1 - P / h - Qp, 1 - 2 * Qp]
+    if model == "tn84":
+        h = Fraction(0)
+        for i in range(4):
+            for j in range(i + 1, 4):
+                x = Fraction(N[i][j] + N[j][i], S)
+                if x > 0:
+                    if pi[i] * pi[j] == 0:
+                        return None
+                    h += x * x / (2 * pi[i] * pi[j])
+        b = (1 - sum(g * g for g in pi) + (p * p / h if h > 0 else 0)) / 2
+        return None if b <= 0 else [1 - p / b]
+    if model == "tn93":
+        pA, pC, pG, pT = pi
+        if min(pi) <= 0:
+            return None
+        pR, pY = pA + pG, pC + pT
+        Qp = Fraction(Q, S)
+        return [1 - pR * Fraction(P1, S) / (2 * pA * pG) - Qp / (2 * pR),
+                1 - pY * Fraction(P2, S) / (2 * pC * pT) - Qp / (2 * pY),
+                1 - Qp / (2 * pR * pY)]
+    raise AssertionError(model)  # pragma: no cover - the count-only models are handled by the caller
+
+
+def _det4(N) -> int:
+    """Exact determinant of a 4 x 4 integer matrix (Laplace expansion along the first row)."""
+    def det3(m):
+        return (m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
+                - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
+                + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0]))
+
+    total = 0
+    for j in range(4):
+        minor = [[N[r][k] for k in range(4) if k != j] for r in range(1, 4)]
+        total += (-1) ** j * N[0][j] * det3(minor)
+    return total
 
 
 def _delta_var(grad, props, S):
@@ -606,13 +851,14 @@ def _evaluate(st: dict, ctx: _Context):
         if ctx.need_var:
             var = p * (1 - p) / Sd
     elif model == "logdet":
-        d, var, sat, und = _logdet(st["N"], Sd, ctx.need_var)
+        d, var, sat, und = _logdet(st, Sd, ctx)
         bad = sat
         extra_bad = und
     elif model == "kimura":
         # Kimura 1983: d = -ln(1 - p - 0.2 p^2).
-        x = 1 - p - 0.2 * p * p
-        bad = ~(x > 0)
+        x = np.array(np.broadcast_to(1 - p - 0.2 * p * p, shape), dtype=np.float64)
+        ok = _decider(st, ctx, shape)([x], [np.broadcast_to(1 + p + 0.2 * p * p, shape)])[0]
+        bad = ~ok
         xs = np.where(bad, 1.0, x)
         d = -np.log(xs)
         if ctx.need_var:
@@ -659,11 +905,12 @@ def _evaluate(st: dict, ctx: _Context):
             extra_bad = extra_bad | und
         else:  # pragma: no cover - check_options guards this
             raise AssertionError(model)
-        d, grad, bad = _log_terms(terms, props, gamma)
+        d, grad, bad = _log_terms(terms, props, gamma, shape, _decider(st, ctx, shape))
         d = np.broadcast_to(np.asarray(d, dtype=np.float64), shape)
         bad = np.broadcast_to(bad, shape)
         if ctx.need_var:
-            var = _delta_var(grad, props, Sd)
+            with np.errstate(over="ignore", invalid="ignore"):  # inf where the derivative overflows: NaN below
+                var = _delta_var(grad, props, Sd)
     d = np.array(d, dtype=np.float64)
     d += 0.0  # turns -0.0 (from -ln 1) into 0.0
     bad = bad | ~np.isfinite(d)
@@ -757,19 +1004,25 @@ def _det_inv4(A, need_inv=True):
     return det, inv
 
 
-def _logdet(N, Sd, need_var):
+def _logdet(st, Sd, ctx):
     """Paralinear / LogDet: d = -1/4 [ln det F - 1/2 (ln det Pi_x + ln det Pi_y)] (Lake 1994)."""
+    N, need_var = st["N"], ctx.need_var
     F = N / Sd[..., None, None]
     fx = F.sum(axis=-1)
     fy = F.sum(axis=-2)
     und = ~((fx > 0).all(axis=-1) & (fy > 0).all(axis=-1))
     det, inv = _det_inv4(F, need_var)
-    sat = ~(det > 0) & ~und
+    # |det F| <= prod of the row sums (Hadamard), the scale of the rounding in det: near 0 on that
+    # scale, the sign comes from the exact integer determinant of the counts.
+    scale = np.where(und, 1.0, np.prod(fx, axis=-1))
+    det = np.array(np.broadcast_to(det, np.shape(Sd)), dtype=np.float64)
+    ok = _decider(st, ctx, np.shape(Sd))([det], [scale])[0]
+    sat = ~ok & ~und
     ok = ~(sat | und)
     with np.errstate(divide="ignore", invalid="ignore"):
         ldx = np.log(np.where(fx > 0, fx, 1.0)).sum(-1)
         ldy = np.log(np.where(fy > 0, fy, 1.0)).sum(-1)
-        d = -0.25 * (np.log(np.where(ok, det, 1.0)) - 0.5 * (ldx + ldy))
+        d = -0.25 * (np.log(np.where(ok & (det > 0), det, 1.0)) - 0.5 * (ldx + ldy))
     d = np.maximum(d, 0.0)  # exactly 0 in theory for identical sequences; clip rounding below it
     var = None
     if need_var:
