@@ -236,9 +236,9 @@ def pairwise_distances(aln: Alignment, model: str | None = None, *, gamma: float
     K = used.n_states
     counts = used.residue_counts(partial)
     if not counts.sum() > 0:
-        what = "residue or partial ambiguity code" if partial else "unambiguous residue"
-        raise InputError(f"{aln.source}: no sequence holds a {what} ({used.states}), so no pair can be "
-                         "compared")
+        what = "a residue or partial ambiguity code" if partial else "an unambiguous residue"
+        raise InputError(f"{aln.source}: no sequence holds {what} ({' '.join(used.states)}), so no pair "
+                         "can be compared")
 
     pi = pi_counts = None
     if model in FREQ_MODELS and freqs == "alignment":

@@ -205,3 +205,108 @@ def test_forced_dna_warns():
 
     with pytest.warns(DataWarning, match="not nucleotides"):
         Alignment.from_sequences(["a", "b"], ["MKVLWQ", "MKVLWE"], alphabet="dna")
+
+
+# ----------------------------------------------------------------- header-only, truncated, junk
+# A small valid file of each format (layouts from Biopython's AlignIO writers and the format
+# descriptions: Clustal, Stockholm (Sonnhammer et al. 1998), NEXUS (Maddison, Swofford & Maddison
+# 1997), PHYLIP, MSF, MAF; from memory).
+GOOD = {
+    "clustal": "CLUSTAL W (1.83) multiple sequence alignment\n\na      ACGTAC\nb      ACGTAA\nc      ACCTAA\n"
+               "       ***  *\n",
+    "stockholm": "# STOCKHOLM 1.0\na ACGTAC\nb ACGTAA\nc ACCTAA\n//\n",
+    "nexus": "#NEXUS\nbegin data;\ndimensions ntax=3 nchar=6;\nformat datatype=dna missing=? gap=-;\nmatrix\n"
+             "a ACGTAC\nb ACGTAA\nc ACCTAA\n;\nend;\n",
+    "phylip": " 3 6\na         ACGTAC\nb         ACGTAA\nc         ACCTAA\n",
+    "phylip-relaxed": " 3 6\na ACGTAC\nb ACGTAA\nc ACCTAA\n",
+    "msf": "!!NA_MULTIPLE_ALIGNMENT 1.0\n\n x.msf  MSF: 6  Type: N  Check: 0 ..\n\n"
+           " Name: a  Len: 6  Check: 0  Weight: 1.00\n Name: b  Len: 6  Check: 0  Weight: 1.00\n"
+           " Name: c  Len: 6  Check: 0  Weight: 1.00\n\n//\n\na ACGTAC\nb ACGTAA\nc ACCTAA\n",
+    "maf": "##maf version=1\n\na score=0\ns a 0 6 + 6 ACGTAC\ns b 0 6 + 6 ACGTAA\ns c 0 6 + 6 ACCTAA\n\n",
+}
+# Formats that say where the alignment ends or how long a row is, so any cut inside the data shows.
+SAYS_ITS_LENGTH = ("stockholm", "nexus", "phylip", "phylip-relaxed", "msf", "maf")
+
+
+@pytest.mark.parametrize("fmt", sorted(GOOD))
+def test_good_example_files_read(tmp_path, fmt):
+    aln = read_alignment(_write(tmp_path, "g.dat", GOOD[fmt]), fmt=fmt)
+    assert aln.labels == ("a", "b", "c") and aln.codes.shape == (3, 6)
+
+
+@pytest.mark.parametrize("fmt", sorted(set(GOOD) - {"clustal"}))  # Clustal: through the CLI with a timeout
+def test_header_only_files_are_input_errors(tmp_path, fmt):
+    first = GOOD[fmt].split("\n", 1)[0] + "\n"
+    for text in (first, first + "\n\n"):
+        path = _write(tmp_path, "h.dat", text)
+        with pytest.raises(InputError) as exc:
+            read_alignment(path, fmt=fmt)
+        assert str(exc.value).startswith(path + ": ")
+
+
+@pytest.mark.parametrize("fmt", SAYS_ITS_LENGTH)
+def test_truncated_files_are_input_errors(tmp_path, fmt):
+    text = GOOD[fmt]
+    body = text.index("ACGTAC")
+    # Every cut from the first residue on, short of the complete data: NEXUS up to its closing 'end;'
+    # (a file cut inside that last word still holds every row); MAF inside its 's' lines (a block
+    # cut between whole lines is a smaller valid block).
+    last = text.index("end;") if fmt == "nexus" else len(text.rstrip("\n"))
+    for cut in range(body, last):
+        if fmt == "maf" and "\n" in (text[cut - 1], text[cut]):
+            continue
+        path = _write(tmp_path, "t.dat", text[:cut])
+        try:
+            aln = read_alignment(path, fmt=fmt)
+        except InputError as exc:
+            assert str(exc).startswith(path + ": ")
+            continue
+        pytest.fail(f"{fmt} cut at {cut} read as {aln.n} x {aln.length}: {text[:cut]!r}")
+
+
+@pytest.mark.parametrize("fmt", sorted(GOOD))
+def test_junk_is_an_input_error(tmp_path, fmt):
+    p = tmp_path / "junk.dat"
+    p.write_bytes(bytes(range(256)) * 4)
+    with pytest.raises(InputError, match="binary"):
+        read_alignment(str(p), fmt=fmt)
+    rng = np.random.default_rng(7)
+    first = GOOD[fmt].split("\n", 1)[0]
+    for k in range(20):  # the right first line, then text junk: an error or a clean read, never a fault
+        junk = "".join(rng.choice(list("ACGT- \n;=#/[]'abcxyz0123456789"), 120))
+        path = _write(tmp_path, f"j{k}.dat", first + "\n" + junk)
+        try:
+            read_alignment(path, fmt=fmt)
+        except InputError as exc:
+            assert str(exc).startswith(path + ": ")
+
+
+# ----------------------------------------------------------------- malformed NEXUS
+NEXUS_HEAD = "#NEXUS\nbegin data;\ndimensions ntax={ntax} nchar={nchar};\nformat datatype=dna missing=? gap=-;\n"
+NEXUS_ROWS = "matrix\na ACGTAC\nb ACGTAA\nc ACCTAA\n;\nend;\n"
+BAD_NEXUS = [
+    # (name, text, message naming the line); NEXUS commands and their arguments: Maddison, Swofford &
+    # Maddison 1997 (from memory).
+    ("unknown_command", NEXUS_HEAD.format(ntax=3, nchar=6) + "foo bar=1;\n" + NEXUS_ROWS,
+     r"line 5: unknown command 'foo'"),
+    ("ntax_too_big", NEXUS_HEAD.format(ntax=4, nchar=6) + NEXUS_ROWS, r"line 3: the dimensions give ntax=4, but the matrix has 3 rows"),
+    ("ntax_too_small", NEXUS_HEAD.format(ntax=2, nchar=6) + NEXUS_ROWS, r"line 3: the dimensions give ntax=2, but the matrix has 3 rows"),
+    ("nchar_too_big", NEXUS_HEAD.format(ntax=3, nchar=7) + NEXUS_ROWS,
+     r"line 6: taxon 'a' has 6 characters, but the dimensions \(line 3\) give nchar=7"),
+    ("nchar_too_small", NEXUS_HEAD.format(ntax=3, nchar=5) + NEXUS_ROWS,
+     r"line 6: taxon 'a' has 6 characters, but the dimensions \(line 3\) give nchar=5"),
+    ("short_row", NEXUS_HEAD.format(ntax=3, nchar=6) + NEXUS_ROWS.replace("ACCTAA", "ACCTA"),
+     r"line 8: taxon 'c' has 5 characters"),
+    ("open_comment", "#NEXUS\n[a comment\nbegin data;\n", r"line 2: a comment opened with '\[' is never closed"),
+    ("duplicate_taxon", NEXUS_HEAD.format(ntax=3, nchar=6) + NEXUS_ROWS.replace("b ACGTAA", "a ACGTAA"),
+     r"duplicate taxon 'a' in the NEXUS matrix \(lines 6 and 7\)"),
+    ("no_end", NEXUS_HEAD.format(ntax=3, nchar=6) + NEXUS_ROWS.replace("end;\n", ""), "not a readable nexus"),
+]
+
+
+@pytest.mark.parametrize("name,text,msg", BAD_NEXUS, ids=[b[0] for b in BAD_NEXUS])
+def test_malformed_nexus(tmp_path, name, text, msg):
+    path = _write(tmp_path, name + ".nex", text)
+    with pytest.raises(InputError, match=msg) as exc:
+        read_alignment(path)
+    assert str(exc.value).startswith(path + ": ")

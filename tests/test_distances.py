@@ -23,6 +23,7 @@ gamma-distributed rates (scipy.integrate.quad_vec), and recover t.
 from __future__ import annotations
 
 import math
+import warnings
 
 import numpy as np
 import pytest
@@ -485,7 +486,7 @@ def alignments(draw, letters="ACGT-NR", alphabet="dna"):
     n = draw(st.integers(2, 6))
     L = draw(st.integers(1, 30))
     seqs = [draw(st.text(alphabet=letters, min_size=L, max_size=L)) for _ in range(n)]
-    if not any(c.isalpha() and c not in "N" for s in seqs for c in s):
+    if not any(c in "ACGT" for s in seqs for c in s):  # no unambiguous residue at all is an input error
         seqs[0] = "A" + seqs[0][1:]
     return Alignment.from_sequences([f"r{i}" for i in range(n)], seqs, alphabet=alphabet)
 
@@ -567,3 +568,74 @@ def test_deterministic():
     a = pairwise_distances(aln, "tn93", gamma=0.5, warn=False)
     b = pairwise_distances(aln, "tn93", gamma=0.5, warn=False, memory=5000)
     assert a.matrix.values.tobytes() == b.matrix.values.tobytes()
+
+
+# ----------------------------------------------------------------- degenerate input: no numpy warnings
+DEGENERATE = {
+    "all-gap column": ["A-CGT", "A-CGA", "T-CGT"],
+    "one sequence all gaps": ["ACGT", "----", "ACGA"],
+    "one sequence all N": ["ACGT", "NNNN", "ACGA"],
+    "constant sequences": ["AAAA", "AAAA", "AAAA"],
+    "two constant bases": ["AAAA", "CCCC", "AAAA"],
+    "single column": ["A", "C", "G"],
+    "ambiguity only": ["RRRR", "YYYY", "ACGT"],
+    "no residue at all": ["NNNN", "N-NN"],
+    "no shared column": ["A---", "---C"],
+    "saturated": ["ACGTACGTAC", "CATGCATGCA", "ACGTACGTAC"],
+}
+
+
+@pytest.mark.parametrize("case", sorted(DEGENERATE))
+def test_degenerate_alignments_raise_no_numpy_warning(case):
+    # Under warnings.simplefilter("error") a numpy RuntimeWarning becomes an exception; every outcome
+    # must be an honest one: a result (missing entries named in a DataWarning) or an InputError.
+    from seqdist.errors import InputError
+
+    aln = Alignment.from_sequences([f"s{i}" for i in range(len(DEGENERATE[case]))], DEGENERATE[case],
+                                   alphabet="dna")
+    outcomes = set()
+    for model in DNA_MODELS:
+        for gaps in ("pairwise", "complete"):
+            for freqs in ("alignment", "pair"):
+                for amb in ("skip", "partial"):
+                    for gam in ((None, 0.5, 1e-3) if model in GAMMA_MODELS else (None,)):
+                        with warnings.catch_warnings():
+                            warnings.simplefilter("error")
+                            warnings.simplefilter("ignore", DataWarning)
+                            try:
+                                r = pairwise_distances(aln, model, gamma=gam, gaps=gaps, freqs=freqs,
+                                                       ambiguity=amb, progress=False)
+                            except InputError as exc:
+                                outcomes.add("error")
+                                assert str(exc).startswith("<alignment>: ")
+                                continue
+                        D = r.matrix.values
+                        assert not np.isinf(D).any() and not (D < 0).any()
+                        iu = np.triu_indices(aln.n, 1)
+                        assert int(np.isnan(D[iu]).sum()) == len(r.undefined)
+                        outcomes.add("result")
+    if case == "no residue at all":
+        assert outcomes == {"error"}
+
+
+def test_counts_raise_no_numpy_warning():
+    # The same for distances_from_counts on degenerate count and frequency matrices, including gamma
+    # shapes so small that a (x^(-1/a) - 1) overflows (Jin & Nei 1990 form): missing, never inf.
+    near = np.diag([1.0, 1, 1, 1])
+    near[0, 1] = near[2, 3] = 20
+    cases = [np.zeros((4, 4)), np.diag([5.0, 0, 0, 0]), near, np.ones((4, 4)), np.ones((4, 4)) / 16]
+    for N in cases:
+        for model in DNA_MODELS:
+            for gam in ((None, 0.5, 1e-3) if model in GAMMA_MODELS else (None,)):
+                for bf in (None, [0.25] * 4, [1, 0, 0, 0], [0.5, 0.5, 0, 0]):
+                    with warnings.catch_warnings():
+                        warnings.simplefilter("error")
+                        d, v, r = distances_from_counts(N, model, gamma=gam, base_frequencies=bf)
+                    assert not np.isinf(d) and (np.isnan(d) == (r != 0))
+    for N in (np.zeros((20, 20)), np.ones((20, 20)) - np.eye(20)):
+        for model in PROTEIN_MODELS:
+            for gam in ((None, 0.5, 1e-3) if model in GAMMA_MODELS else (None,)):
+                with warnings.catch_warnings():
+                    warnings.simplefilter("error")
+                    d, v, r = distances_from_counts(N, model, gamma=gam)
+                assert not np.isinf(d)

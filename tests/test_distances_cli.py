@@ -145,3 +145,79 @@ def test_binary_and_missing_files(cli, tmp_path):
         assert p.returncode == 2 and p.stderr.startswith("seqdist: error: ") and msg in p.stderr
         assert len(p.stderr.strip().splitlines()) == 1
     assert not (tmp_path / "o.tsv").exists()
+
+
+# ----------------------------------------------------------------- no hang, no raw numpy warning
+CLUSTAL_HEAD = "CLUSTAL W (1.83) multiple sequence alignment\n"
+HEADER_ONLY = [
+    # Biopython 1.8x's Clustal reader loops for ever on a header with no block (measured: 100% CPU,
+    # never returns); the 20 s timeout only turns a hang into a test failure.
+    ("head.aln", CLUSTAL_HEAD),
+    ("head_blank.aln", CLUSTAL_HEAD + "\n\n\n"),
+    ("head_sniffed", CLUSTAL_HEAD + "\n"),                     # no extension: recognised by content
+    ("head.sto", "# STOCKHOLM 1.0\n"),
+    ("head.nex", "#NEXUS\n"),
+    ("head.phy", " 3 6\n"),
+    ("head.msf", "!!NA_MULTIPLE_ALIGNMENT 1.0\n"),
+    ("head.maf", "##maf version=1\n"),
+]
+
+
+@pytest.mark.parametrize("name,text", HEADER_ONLY, ids=[h[0] for h in HEADER_ONLY])
+def test_header_only_files_exit_2(cli, tmp_path, name, text):
+    path = tmp_path / name
+    path.write_text(text)
+    out = tmp_path / "o.tsv"
+    p = cli("distances", str(path), "-o", str(out), timeout=20)
+    assert p.returncode == 2, p.stderr
+    lines = p.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith(f"seqdist: error: {path}: "), p.stderr
+    assert not out.exists()
+
+
+NEXUS_BAD = [
+    # (name, what is wrong, the message part that names it); NEXUS layout: Maddison, Swofford &
+    # Maddison 1997 (from memory).
+    ("unknown.nex", "dimensions ntax=3 nchar=6;\nformat datatype=dna;\nfoo bar=1;\n", "line 5: unknown command 'foo'"),
+    ("ntax.nex", "dimensions ntax=4 nchar=6;\nformat datatype=dna;\n", "line 3: the dimensions give ntax=4"),
+    ("nchar.nex", "dimensions ntax=3 nchar=7;\nformat datatype=dna;\n", "give nchar=7"),
+    ("nchar5.nex", "dimensions ntax=3 nchar=5;\nformat datatype=dna;\n", "line 6: taxon 'a' has 6 characters"),
+]
+
+
+@pytest.mark.parametrize("name,head,msg", NEXUS_BAD, ids=[b[0] for b in NEXUS_BAD])
+def test_malformed_nexus_exits_2_naming_the_line(cli, tmp_path, name, head, msg):
+    path = tmp_path / name
+    path.write_text("#NEXUS\nbegin data;\n" + head + "matrix\na ACGTAC\nb ACGTAA\nc ACCTAA\n;\nend;\n")
+    out = tmp_path / "o.tsv"
+    p = cli("distances", str(path), "-o", str(out), timeout=60)
+    assert p.returncode == 2, p.stderr
+    lines = p.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith(f"seqdist: error: {path}: ") and msg in lines[0], p.stderr
+    assert "internal error" not in p.stderr and not out.exists()
+
+
+@pytest.mark.parametrize("quiet", [[], ["--quiet"]])
+def test_no_residue_at_all_is_an_error_not_a_numpy_warning(cli, tmp_path, quiet):
+    # An alignment of N and gaps only: base frequencies would be 0/0 (numpy's 'invalid value' warning,
+    # with a source path, even under --quiet). It is an input error naming the file.
+    path = _fasta(tmp_path / "n.fasta", ["a", "b", "c"], ["NNNN", "N-NN", "----"])
+    for model in ("f81", "tn93", "t92", "tn84", "k80", "logdet"):
+        p = cli("distances", path, "-o", str(tmp_path / "o.tsv"), "--model", model, *quiet)
+        assert p.returncode == 2, p.stderr
+        assert "RuntimeWarning" not in p.stderr and ".py:" not in p.stderr
+        assert p.stderr.startswith(f"seqdist: error: {path}: no sequence holds an unambiguous residue")
+        assert len(p.stderr.strip().splitlines()) == 1
+
+
+def test_gamma_overflow_is_a_missing_entry_not_a_numpy_warning(cli, tmp_path):
+    # a (x^(-1/a) - 1) overflows for a tiny shape a near saturation (Jin & Nei 1990 form): the entry is
+    # missing, named in the one warning, and numpy's overflow warning never reaches the user.
+    path = _fasta(tmp_path / "g.fasta", ["a", "b", "c"], ["ACGTACGTAC", "ACGTACGTAC", "CAGTACGAGC"])
+    p = cli("distances", path, "-o", str(tmp_path / "o.tsv"), "--model", "k80", "--gamma", "0.001")
+    assert p.returncode == 0, p.stderr
+    assert "RuntimeWarning" not in p.stderr and ".py:" not in p.stderr and "overflow" not in p.stderr
+    warn = [ln for ln in p.stderr.splitlines() if "warning" in ln]
+    assert len(warn) == 1 and "a-c (saturated)" in warn[0] and "b-c (saturated)" in warn[0]
+    D = read_matrix(str(tmp_path / "o.tsv"))
+    assert np.isnan(D["a", "c"]) and D["a", "b"] == 0
