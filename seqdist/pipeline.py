@@ -131,6 +131,89 @@ def _file_sha256(path: str) -> str:
     return h.hexdigest()
 
 
+def check_outdir(outdir: str) -> None:
+    """Refuse an output folder that cannot be made or written, before any work.
+
+    The folder itself, or the nearest folder above it that exists, must be a
+    folder we may write in.
+
+    Examples
+    --------
+    >>> check_outdir("/")  # doctest: +SKIP
+    """
+    path = os.path.abspath(outdir)
+    probe = path
+    while not os.path.exists(probe):
+        parent = os.path.dirname(probe)
+        if parent == probe:
+            break
+        probe = parent
+    if not os.path.isdir(probe):
+        what = "exists and is not a folder" if probe == path else f"cannot be made: {probe} is not a folder"
+        raise InputError(f"{outdir}: {what}")
+    if not os.access(probe, os.W_OK | os.X_OK):
+        what = "is not writable" if probe == path else f"cannot be made: {probe} is not writable"
+        raise InputError(f"{outdir}: {what}")
+
+
+def unmeasured_reasons(undefined, labels) -> dict:
+    """Why each taxon lacks distances: ``{label: "saturated against all 29 others"}``.
+
+    ``undefined`` is the distances step's list of ``(label, label, reason)``.
+
+    Examples
+    --------
+    >>> unmeasured_reasons([("a", "b", "saturated"), ("a", "c", "saturated")], ["a", "b", "c"])["a"]
+    'saturated against all 2 others'
+    """
+    n = len(labels)
+    per: dict = {}
+    for a, b, why in undefined:
+        for t in (a, b):
+            per.setdefault(t, {}).setdefault(why, 0)
+            per[t][why] += 1
+    out = {}
+    for t, counts in per.items():
+        parts = []
+        for why, k in sorted(counts.items(), key=lambda kv: -kv[1]):
+            every = "all " if k == n - 1 else ""
+            if why == "saturated":
+                parts.append(f"saturated against {every}{k} other{'s' if k != 1 else ''}")
+            elif why == "no shared column":
+                parts.append(f"no shared column with {every}{k} other{'s' if k != 1 else ''}")
+            else:
+                parts.append(f"{why} with {every}{k} other{'s' if k != 1 else ''}")
+        out[t] = ", ".join(parts)
+    return out
+
+
+def command_line(alignment: str, options: dict) -> str:
+    """The ``seqdist run`` command that gives the same files (for the report and the manifest).
+
+    Examples
+    --------
+    >>> command_line("a.fasta", {"model": "k80", "objective": "fewest", "seed": 1, "weighted": False})
+    'seqdist run a.fasta --outdir DIR --model k80 --objective fewest --seed 1'
+    """
+    import shlex
+
+    parts = ["seqdist", "run", alignment, "--outdir", "DIR"]
+    flags = {"in_format": "--in-format", "alphabet": "--alphabet", "model": "--model", "gamma": "--gamma",
+             "gaps": "--gaps", "objective": "--objective", "method": "--method", "truth": "--truth",
+             "time_limit": "--time-limit", "seed": "--seed", "bootstrap": "--bootstrap"}
+    for key, flag in flags.items():
+        v = options.get(key)
+        if v is None or (key == "alphabet" and v == "auto") or (key == "bootstrap" and not v):
+            continue
+        parts += [flag, str(v)]
+    for key, flag in (("weighted", "--weighted"), ("keep_unmeasured", "--keep-unmeasured")):
+        if options.get(key):
+            parts.append(flag)
+    if options.get("truth") is None and "truth" in options:
+        parts.append("--no-truth")
+    return " ".join(shlex.quote(x) if x != "DIR" else x for x in parts)
+
+
 def _find_truth(alignment_path: str) -> str | None:
     base = os.path.splitext(alignment_path)[0]
     for cand in (base + ".true.nwk", base + ".nwk"):
@@ -143,7 +226,8 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
             model: str | None = None, gamma: float | None = None, gaps: str = "pairwise",
             objective: str = "fewest", weighted: bool = False, method: str = "nj",
             truth: str | None = "auto", time_limit: float | None = None, seed: int = 1,
-            bootstrap: int = 0, workers: int | None = None, progress: bool = True) -> JobResult:
+            bootstrap: int = 0, workers: int | None = None, progress: bool = True,
+            keep_unmeasured: bool = False) -> JobResult:
     """Run the whole job on one alignment and write every file into ``outdir``.
 
     Parameters
@@ -173,6 +257,12 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         Seed of every randomised step (quartet sample, repair, bootstrap).
     bootstrap : int
         Column resamples for split support (0: none).
+    keep_unmeasured : bool
+        Keep taxa that no measured distance joins to the others (e.g.
+        saturated against every other sequence) in the repaired matrix and
+        the trees, with a made-up fill marked ``filled_without_evidence`` in
+        ``changes.tsv``. By default they are left out and named
+        (``left_out_taxa`` in repair.json and impact.json).
 
     Returns
     -------
@@ -190,15 +280,19 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     from .distances import pairwise_distances, undefined_message
     from .io import OutputSet, format_matrix
     from .repair import repair
-    from .repair.engine import format_changes
     from .trees.html import render_html
     from .trees.impact import impact
     from .trees.newick import read_newick_file
 
     t_all = time.perf_counter()
     seconds = {}
-    if os.path.exists(outdir) and not os.path.isdir(outdir):
-        raise InputError(f"{outdir}: exists and is not a folder")
+    check_outdir(outdir)
+    if seed is None or not 0 <= int(seed) <= 2**32 - 1:
+        raise InputError(f"seed must be an integer from 0 to {2**32 - 1}, got {seed!r}")
+    if workers is not None and int(workers) < 1:
+        raise InputError(f"workers must be a positive integer, got {workers!r}")
+    if bootstrap < 0:
+        raise InputError(f"bootstrap must be 0 or more, got {bootstrap!r}")
     if truth == "auto":
         truth = _find_truth(alignment)
     say = info if progress else (lambda *_: None)
@@ -216,7 +310,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     if dres.undefined:
         from .console import warn
 
-        warn(undefined_message(dres, hint="; they stay missing in distances.tsv and the repair fills them"))
+        warn(undefined_message(dres, hint="; they stay missing in distances.tsv"))
     dm = dres.matrix
     seconds["distances"] = time.perf_counter() - t
     say(f"      {dm.n} sequences x {aln.length} columns, model {dres.model}, "
@@ -239,10 +333,15 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
             raise InputError(f"model {dres.model} has no variance formula; run without --weighted")
         weights = inverse_variance_weights(dres.variance, dm)
     say(f"[3/5] repair: objective {objective}{' (inverse-variance weights)' if weighted else ''}")
-    rres = repair(dm, objective, weights=weights, time_limit=time_limit, seed=seed, progress=progress)
+    rres = repair(dm, objective, weights=weights, time_limit=time_limit, seed=seed, progress=progress,
+                  keep_unmeasured=keep_unmeasured, unmeasured_reasons=unmeasured_reasons(dres.undefined, dm.labels),
+                  source=FILES["distances"])
     rep, repair_times = split_times(dict(rres.report))
     seconds["repair"] = time.perf_counter() - t
-    say(f"      {rep['changed_entries']} entries changed, {rep.get('filled_entries', 0)} missing filled, "
+    left = f", {len(rep['left_out_taxa'])} taxa left out" if rep["left_out_taxa"] else ""
+    made_up = (f" ({rep['filled_without_evidence']} without evidence)" if rep["filled_without_evidence"] else "")
+    say(f"      {rep['changed_entries']} of {rep['observed_entries']} measured entries changed, "
+        f"{rep['filled_entries']} missing filled{made_up}{left}, "
         f"{'optimal' if rep['optimal'] else 'not proven optimal'} ({seconds['repair']:.2f} s)")
 
     t = time.perf_counter()
@@ -253,20 +352,24 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         truth_tree.check_labels(truth)
         if set(truth_tree.labels()) != set(dm.labels):
             raise InputError(f"{truth}: the reference tree's leaves differ from the alignment's ids")
+    reasons = {lab: (f"kept by the repair with a made-up value, {why}" if keep_unmeasured
+                     else f"left out by the repair, {why}") for lab, why in rep["unmeasured_taxa"].items()}
     ires = impact(dm, rres.matrix, method, truth=truth_tree, drop_incomplete=True,
-                  names=("measured", "repaired"))
+                  names=("measured", "repaired"), reasons=reasons)
     if bootstrap:
         from .trees.support import add_support
 
-        add_support(ires, alignment, replicates=bootstrap, model=dres.model, objective=objective, seed=seed,
-                    gamma=gamma, gaps=gaps, workers=workers)
+        add_support(ires, aln, replicates=bootstrap, model=dres.model, objective=objective, seed=seed,
+                    gamma=gamma, gaps=gaps, workers=workers, keep_unmeasured=keep_unmeasured)
     seconds["trees"] = time.perf_counter() - t
 
     t = time.perf_counter()
     say("[5/5] report")
     options = {"alignment": alignment, "in_format": in_format, "alphabet": dres.alphabet, "model": dres.model,
                "gamma": gamma, "gaps": gaps, "objective": objective, "weighted": weighted, "method": method,
-               "truth": truth, "time_limit": time_limit, "seed": seed, "bootstrap": bootstrap}
+               "truth": truth, "time_limit": time_limit, "seed": seed, "bootstrap": bootstrap,
+               "keep_unmeasured": keep_unmeasured}
+    command = command_line(alignment, options)
     irep, impact_times = split_times(dict(ires.report))
     texts = {}
     texts["distances"] = format_matrix(dm, "tsv")
@@ -286,7 +389,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     rep_out = dict(rep)
     rep_out["input"] = FILES["distances"]
     texts["repair_json"] = js(rep_out)
-    texts["changes"] = format_changes(rres.changes)
+    texts["changes"] = rres.changes_text()
     if weights is not None:
         texts["weights"] = format_matrix(weights, "tsv")
     texts["tree_before"] = ires.tree_before.to_newick()
@@ -295,15 +398,18 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     job = {"alignment": os.path.basename(alignment), "n": dm.n, "columns": aln.length, "alphabet": dres.alphabet,
            "model": dres.model, "undefined": list(dres.undefined), "audit": audit_dict, "repair": rep,
            "objective": objective, "weighted": weighted}
+    made_up_pairs = [(c[0], c[1]) for c in rres.changes if c[5] == "filled_without_evidence"]
     texts["report"] = render_html(ires, names=("measured", "repaired"),
                                   title=f"seqdist report: {os.path.basename(alignment)}",
-                                  preamble=job_section(job))
+                                  preamble=job_section(job), reference=truth, command=command,
+                                  made_up_pairs=made_up_pairs, lead=left_out_section(rep))
     seconds["report"] = time.perf_counter() - t
     seconds["total"] = time.perf_counter() - t_all
 
     manifest = {
         "seqdist_version": __version__,
         "command": "run",
+        "command_line": command,
         "options": options,
         "seeds": {"audit_quartets": seed, "repair": seed, "bootstrap": seed if bootstrap else None},
         "inputs": {alignment: _file_sha256(alignment), **({truth: _file_sha256(truth)} if truth else {})},
@@ -314,7 +420,10 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         "note": "repaired.tsv is altered data: report the objective and changes.tsv with any published result",
     }
     texts["manifest"] = js(manifest)
-    os.makedirs(outdir, exist_ok=True)
+    try:
+        os.makedirs(outdir, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"{outdir}: cannot make the output folder ({exc.strerror})") from None
     paths = {}
     with OutputSet() as out:
         for key, text in texts.items():
@@ -331,41 +440,88 @@ def _esc(x) -> str:
     return html.escape(str(x), quote=True)
 
 
+def _names(labels, limit: int = 8) -> str:
+    shown = ", ".join(_esc(x) for x in labels[:limit])
+    return shown + (f" and {len(labels) - limit} more" if len(labels) > limit else "")
+
+
+def left_out_section(rep: dict) -> str:
+    """The html box, first on the page, naming taxa left out or kept with made-up values."""
+    why = rep.get("unmeasured_taxa") or {}
+    if not why:
+        return ""
+    labels = list(why)
+    detail = "; ".join(f"{_esc(lab)}: {_esc(why[lab])}" for lab in labels[:8])
+    if rep.get("left_out_taxa"):
+        rest = rep["n"]
+        return (f'<div class="caution"><b>Left out: {_names(labels)}.</b> No measured distance joins '
+                f"{'it' if len(labels) == 1 else 'them'} to the other {rest:,} taxa ({detail}), so nothing "
+                "can be said of where they belong. They are not in <code>repaired.tsv</code> nor in the trees, "
+                f"and every figure below is on the other {rest:,} taxa. (<code>--keep-unmeasured</code> keeps them "
+                "with a made-up value instead.)</div>")
+    return (f'<div class="caution"><b>Made-up values: {_names(labels)}.</b> No measured distance joins '
+            f"{'it' if len(labels) == 1 else 'them'} to the other taxa ({detail}). Kept on request "
+            f"(<code>--keep-unmeasured</code>), their {rep.get('filled_without_evidence', 0):,} distances to the rest "
+            f"are one made-up value ({rep.get('between_groups_value') or 0:.6g}), not evidence, marked "
+            "<code>filled_without_evidence</code> in <code>changes.tsv</code> and drawn black in the heatmap. "
+            "Where they sit in the repaired tree says nothing about the data.</div>")
+
+
 def job_section(job: dict) -> str:
-    """The html section on the steps before the trees: data, audit and repair."""
+    """The html section on the steps before the trees: data, audit and repair.
+
+    Counts and denominators are the ones the JSON files hold: ``audit.json``
+    for the measured matrix (checked triangles: all three sides measured),
+    ``repair.json`` for the repair (on the taxa it kept).
+    """
     a = job["audit"]
     r = job["repair"]
     undefined = job["undefined"]
     n = job["n"]
     pairs = n * (n - 1) // 2
+    alphabet = {"dna": "DNA", "protein": "protein"}.get(job["alphabet"], job["alphabet"])
     rows = []
-    rows.append(f"<p><b>Data.</b> {_esc(job['alignment'])}: {n:,} {'DNA' if job['alphabet'] == 'dna' else _esc(job['alphabet'])} sequences x "
-                f"{job['columns']:,} columns; model {_esc(job['model'].upper())}; "
+    rows.append(f"<p><b>Data.</b> {_esc(job['alignment'])}: {n:,} {_esc(alphabet)} sequences x "
+                f"{job['columns']:,} columns; model <code>{_esc(job['model'])}</code>; "
                 f"{len(undefined):,} of {pairs:,} distances undefined")
     if undefined:
-        shown = ", ".join(f"{_esc(p)}-{_esc(q)}" for p, q, _ in undefined[:8])
-        rows.append(f" ({shown}{', ...' if len(undefined) > 8 else ''}: saturated or without shared columns; "
-                    "left missing, then filled by the repair)")
+        shown = ", ".join(f"{_esc(p)}-{_esc(q)} ({_esc(why)})" for p, q, why in undefined[:6])
+        rows.append(f" ({shown}{', ...' if len(undefined) > 6 else ''}; left missing in <code>distances.tsv</code>, "
+                    "listed in <code>distances.json</code>)")
     rows.append(".</p>")
     viol = a.get("violated_triangles", 0)
-    tri = a.get("checked_triangles", a.get("triangles", 0))
+    tri = a.get("triangles", 0)
+    checked = a.get("checked_triangles", tri)
     lb = a.get("min_changes_lower_bound", 0)
-    rows.append(f"<p><b>Audit.</b> {viol:,} of {tri:,} checked triangles break the triangle inequality "
-                f"(largest excess {a.get('max_violation', 0):.4g}); any repair must change at least "
-                f"{lb:,} entr{'y' if lb == 1 else 'ies'}.")
-    worst = a.get("worst_taxa") or a.get("taxa") or []
-    if isinstance(worst, list) and worst and isinstance(worst[0], dict) and viol:
-        names = [w.get("label") for w in worst[:5] if w.get("violated_triangles", w.get("count", 1))]
-        names = [x for x in names if x]
+    unchecked = f" ({tri - checked:,} of {tri:,} not checked: a side is missing)" if checked < tri else ""
+    if viol:
+        rows.append(f"<p><b>Audit.</b> {viol:,} of {checked:,} checked triangles break the triangle inequality"
+                    f"{unchecked}; largest excess {a.get('max_violation', 0):.4g}; any repair must change at "
+                    f"least {lb:,} entr{'y' if lb == 1 else 'ies'}.")
+        worst = a.get("taxa") or []
+        names = [w.get("taxon") for w in worst[:5] if isinstance(w, dict) and w.get("violated_triangles")]
         if names:
             rows.append(f" Taxa most involved: {', '.join(_esc(x) for x in names)}.")
-    rows.append("</p>")
+        rows.append("</p>")
+    else:
+        rows.append(f"<p><b>Audit.</b> None of the {checked:,} checked triangles breaks the triangle inequality"
+                    f"{unchecked}: the measured entries need no repair.</p>")
     bound = "proven optimal" if r.get("optimal") else f"lower bound {r.get('lower_bound', 0):.6g}, not proven optimal"
+    filled = r.get("filled_entries", 0)
+    how = []
+    if r.get("filled_by_path"):
+        how.append(f"{r['filled_by_path']:,} by shortest paths through measured entries")
+    if r.get("filled_without_evidence"):
+        how.append(f"{r['filled_without_evidence']:,} without evidence (one made-up value)")
+    filled_text = f"{filled:,} missing entries filled" + (f" ({'; '.join(how)})" if how else "")
+    left = r.get("left_out_taxa") or []
+    left_text = (f" {_names(left)} left out (no measured distance to the others); the repair is on the "
+                 f"other {r.get('n', 0):,} taxa." if left else "")
+    r_tri = r.get("n", 0) * (r.get("n", 0) - 1) * (r.get("n", 0) - 2) // 6
     rows.append(f"<p><b>Repair.</b> Objective <code>{_esc(job['objective'])}</code>"
-                f"{' weighted by inverse variance' if job['weighted'] else ''}: "
-                f"{r.get('changed_entries', 0):,} of {r.get('observed_entries', pairs):,} entries changed, "
-                f"{r.get('filled_entries', 0):,} missing entries filled; objective value "
-                f"{r.get('objective_value', 0):.6g} ({bound}); violated triangles "
-                f"{r.get('violated_before', 0):,} before, {r.get('violated_after', 0):,} after. "
-                "The changed entries are listed in <code>changes.tsv</code>.</p>")
+                f"{' weighted by inverse variance' if job['weighted'] else ''}:{left_text} "
+                f"{r.get('changed_entries', 0):,} of {r.get('observed_entries', pairs):,} measured entries changed, "
+                f"{filled_text}; objective value {r.get('objective_value', 0):.6g} ({bound}); violated triangles "
+                f"{r.get('violated_before', 0):,} before, {r.get('violated_after', 0):,} after (of {r_tri:,}). "
+                "Each changed or filled entry is listed in <code>changes.tsv</code>, with how it was made.</p>")
     return '<h2>From alignment to metric</h2><div class="summary">' + "".join(rows) + "</div>"

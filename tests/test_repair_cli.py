@@ -48,14 +48,14 @@ def test_outputs_and_report(tmp_path, cli, mfile, obj):
     assert r["violated_after"] == 0 and r["lower_bound"] <= r["objective_value"]
     assert "altered data" in r["note"] and "altered data" in p.stderr
     lines = open(ch).read().splitlines()
-    assert lines[0] == "label_a\tlabel_b\tbefore\tafter\tchange"
+    assert lines[0] == "label_a\tlabel_b\tbefore\tafter\tchange\thow"
     assert len(lines) - 1 == r["changed_entries"]
     X = read_out(out)
     D = broken()
     for ln in lines[1:]:
-        a, b, before, after, change = ln.split("\t")
+        a, b, before, after, change, how = ln.split("\t")
         i, j = int(a[1:]), int(b[1:])
-        assert float(before) == D[i, j] and float(after) == X[i, j]
+        assert float(before) == D[i, j] and float(after) == X[i, j] and how == "changed"
 
 
 def test_stdout_carries_only_the_matrix(tmp_path, cli, mfile):

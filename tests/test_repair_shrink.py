@@ -9,6 +9,7 @@ The closure is the largest decrease-only metric (derivation in docs/repair.md).
 from __future__ import annotations
 
 import numpy as np
+import pytest
 import scipy.sparse as sp
 from hypothesis import given, settings
 from hypothesis import strategies as st
@@ -132,16 +133,28 @@ def test_missing_entries_filled_by_shortest_paths():
     assert {c[:2] for c in filled} == {("t2", "t7"), ("t0", "t9")}
 
 
-def test_disconnected_observed_entries_are_filled_as_a_metric():
-    # two groups {0,1,2} and {3,4} with no observed entry between them
+def test_disconnected_observed_entries_are_left_out_or_filled_as_a_metric():
+    # two groups {0,1,2} and {3,4} with no observed entry between them: no
+    # distance between the groups can be inferred, so the smaller group is
+    # left out by default and named; kept on request with one made-up value
+    # that keeps a metric, marked as such in the changes.
+    from seqdist.errors import DataWarning
+
     D = np.full((5, 5), np.nan)
     np.fill_diagonal(D, 0)
     for (i, j, v) in [(0, 1, 1.0), (1, 2, 2.0), (0, 2, 2.5), (3, 4, 4.0)]:
         D[i, j] = D[j, i] = v
-    r = repair(D, "shrink", progress=False)
+    with pytest.warns(DataWarning, match="t3.*t4"):
+        r = repair(D, "shrink", progress=False)
+    assert r.matrix.labels == ("t0", "t1", "t2") and r.report["left_out_taxa"] == ["t3", "t4"]
+    assert r.report["filled_entries"] == 0 and r.changes == []
+    with pytest.warns(DataWarning, match="made-up"):
+        r = repair(D, "shrink", progress=False, keep_unmeasured=True)
     X = r.matrix.values
-    assert is_metric(X) and r.report["observed_groups"] == 2
+    assert is_metric(X) and r.report["observed_groups"] == 2 and r.report["left_out_taxa"] == []
     assert X[0, 3] == r.report["between_groups_value"] == 4.0
+    assert r.report["filled_without_evidence"] == 6 and r.report["filled_by_path"] == 0
+    assert {c[5] for c in r.changes} == {"filled_without_evidence"} and len(r.changes) == 6
 
 
 @settings(max_examples=60, deadline=None)

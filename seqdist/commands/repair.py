@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ._shared import add_matrix_in, add_matrix_out, add_subcommand, add_tol
+from ._shared import add_matrix_in, add_matrix_out, add_seed, add_subcommand, add_tol, positive_float
 
 _OBJECTIVES = "shrink, grow, fewest, l1, l2"
 
@@ -17,10 +17,13 @@ def register(subs, common):
         "  fewest   change as few entries as possible, in either direction\n"
         "  l1       least total absolute change\n"
         "  l2       least sum of squared changes (the nearest metric)\n\n"
-        "Missing entries are filled by shortest paths over the repaired entries. The output\n"
-        "is verified to be a metric before anything is written. A repaired matrix is\n"
-        "altered data: report the objective and the changes (--changes) with any result\n"
-        "you publish.\n\n"
+        "Missing entries are filled by shortest paths over the repaired measured entries.\n"
+        "Taxa that no path of measured entries joins to the others (e.g. saturated against\n"
+        "every other sequence) have no evidence for any distance to the rest: they are left\n"
+        "out of the output and named, unless --keep-unmeasured keeps them with one made-up\n"
+        "value, marked 'filled_without_evidence' in --changes. The output is verified to be\n"
+        "a metric before anything is written. A repaired matrix is altered data: report the\n"
+        "objective and the changes (--changes) with any result you publish.\n\n"
         "exit codes: 0 done, 2 bad input or options, 3 infeasible (e.g. conflicting --lock)\n\n"
         "example:\n  seqdist repair dist.tsv -o fixed.tsv --objective fewest --changes changes.tsv --json report.json")
     p.add_argument("matrix", help="input matrix file ('-' for standard input)")
@@ -33,11 +36,16 @@ def register(subs, common):
     p.add_argument("--lock", metavar="FILE", help="pairs that must not change: 'label<TAB>label' lines")
     add_tol(p)
     p.add_argument("--changes", metavar="FILE", help="write every changed (and filled) entry: "
-                                                     "label_a, label_b, before, after, change (tsv)")
+                                                     "label_a, label_b, before, after, change, how (tsv)")
+    p.add_argument("--keep-unmeasured", action="store_true",
+                   help="keep taxa with no measured distance to the others, with a made-up fill "
+                        "(default: leave them out and name them)")
     p.add_argument("--json", metavar="FILE", help="write the report as JSON")
-    p.add_argument("--time-limit", type=float, default=None, metavar="SECONDS",
-                   help="return the best verified answer found by then (optimal: false when not proven)")
-    p.add_argument("--seed", type=int, default=0, help="seed of randomised steps (default 0)")
+    p.add_argument("--time-limit", type=positive_float, default=None, metavar="SECONDS",
+                   help="a work budget of about that many seconds (counted in work, not read from the "
+                        "clock, so reruns give the same bytes); the best verified answer by then is "
+                        "returned (optimal: false when not proven)")
+    add_seed(p, 0, "seed of randomised steps")
     p.add_argument("--method", choices=("auto", "exact", "heuristic"), default=None,
                    help="fewest and grow: exact integer program or the scalable heuristic; "
                         "l1: exact linear program or the projection method; auto "
@@ -75,20 +83,23 @@ def _parse_options(items) -> dict:
 
 def _run(args) -> int:
     from ..console import info
-    from ..io import OutputSet, read_matrix, read_pairs
+    from ..io import OutputSet, check_distinct_outputs, read_matrix, read_pairs
     from ..repair import load_objective, repair
 
     load_objective(args.objective)  # an unknown objective fails before any reading
+    check_distinct_outputs({"--out": args.out, "--changes": args.changes, "--json": args.json})
     dm = read_matrix(args.matrix, args.in_format)
     weights = read_matrix(args.weights) if args.weights else None
     lock = read_pairs(args.lock, dm, "lock file") if args.lock else None
     options = _parse_options(args.option)
     if args.method:
         options["method"] = args.method
+    source = "<stdin>" if args.matrix == "-" else args.matrix
     res = repair(dm, args.objective, weights=weights, lock=lock, tol=args.tol, time_limit=args.time_limit,
-                 seed=args.seed, **options)
+                 seed=args.seed, keep_unmeasured=args.keep_unmeasured, source=source,
+                 weights_source=args.weights, **options)
     rep = dict(res.report)
-    rep["input"] = "<stdin>" if args.matrix == "-" else args.matrix
+    rep["input"] = source
     with OutputSet() as out:
         out.add_matrix(args.out, res.matrix, args.out_format)
         if args.changes:
@@ -97,6 +108,10 @@ def _run(args) -> int:
             out.add_json(args.json, rep)
     bound = "optimal" if rep["optimal"] else f"lower bound {rep['lower_bound']:.6g}"
     filled = f", {rep['filled_entries']} missing filled" if rep["filled_entries"] else ""
+    if rep["filled_without_evidence"]:
+        filled += f" ({rep['filled_without_evidence']} without evidence: one made-up value)"
+    if rep["left_out_taxa"]:
+        filled += f"; {len(rep['left_out_taxa'])} taxa left out (no measured distance to the others)"
     info(f"repair ({args.objective}): {rep['changed_entries']} of {rep['observed_entries']} entries changed"
          f"{filled}; {rep['violated_before']} violated triangles before, {rep['violated_after']} after; "
          f"objective {rep['objective_value']:.6g} ({bound}); {rep['seconds']:.2f} s")

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ._shared import add_subcommand
+from ._shared import add_seed, add_subcommand, nonneg_int, positive_float, positive_int
 
 
 def register(subs, common):
@@ -18,6 +18,10 @@ def register(subs, common):
         "  manifest.json                                          provenance\n\n"
         "A true tree NAME.true.nwk or NAME.nwk beside the alignment is used as the reference\n"
         "(--truth to name another, --no-truth to ignore it).\n\n"
+        "Taxa that no measured distance joins to the others (saturated against, or sharing no\n"
+        "column with, every other sequence) are left out of the repaired matrix and the trees\n"
+        "and named; --keep-unmeasured keeps them with a made-up value instead, marked\n"
+        "'filled_without_evidence' in changes.tsv and in the report.\n\n"
         "A repaired matrix is altered data: report the objective and changes.tsv with any result.\n\n"
         "examples:\n"
         "  seqdist run example_sequences/dna_trouble.fasta --outdir results/dna_trouble\n"
@@ -27,7 +31,8 @@ def register(subs, common):
     p.add_argument("--in-format", default=None, help="alignment format (default: from the extension or content)")
     p.add_argument("--alphabet", choices=("auto", "dna", "protein"), default="auto", help="default: auto")
     p.add_argument("--model", default=None, help="distance model (default: k80 for DNA, poisson for protein)")
-    p.add_argument("--gamma", metavar="ALPHA", type=float, default=None, help="gamma shape for rate variation")
+    p.add_argument("--gamma", metavar="ALPHA", type=positive_float, default=None,
+                   help="gamma shape for rate variation")
     p.add_argument("--gaps", choices=("pairwise", "complete"), default="pairwise", help="default: pairwise")
     p.add_argument("--objective", default="fewest", help="repair objective: shrink, grow, fewest, l1, l2 "
                    "(default: fewest)")
@@ -37,25 +42,26 @@ def register(subs, common):
     g = p.add_mutually_exclusive_group()
     g.add_argument("--truth", metavar="TREE.nwk", default="auto", help="reference tree to score both trees against")
     g.add_argument("--no-truth", action="store_true", help="do not look for a reference tree")
-    p.add_argument("--time-limit", metavar="SECONDS", type=float, default=None, help="time limit of the repair")
-    p.add_argument("--seed", type=int, default=1, help="seed of every randomised step (default: 1)")
-    p.add_argument("--bootstrap", metavar="B", type=int, default=0,
+    p.add_argument("--keep-unmeasured", action="store_true",
+                   help="keep taxa with no measured distance to the others, with a made-up fill "
+                        "(default: leave them out and name them)")
+    p.add_argument("--time-limit", metavar="SECONDS", type=positive_float, default=None,
+                   help="work budget of the repair, in about seconds (reruns give the same bytes)")
+    add_seed(p, 1)
+    p.add_argument("--bootstrap", metavar="B", type=nonneg_int, default=0,
                    help="column resamples for split support before and after repair (default: 0)")
-    p.add_argument("--workers", type=int, default=None, help="worker processes for the bootstrap")
+    p.add_argument("--workers", type=positive_int, default=None, metavar="P",
+                   help="worker processes for the bootstrap (default: the number of cores)")
     p.set_defaults(func=_run)
 
 
 def _run(args) -> int:
     from ..console import is_quiet
-    from ..errors import InputError
     from ..pipeline import run_job
 
-    if args.bootstrap < 0:
-        raise InputError("--bootstrap must be 0 or more")
-    if args.time_limit is not None and not args.time_limit > 0:
-        raise InputError("--time-limit must be positive")
     run_job(args.alignment, args.outdir, in_format=args.in_format, alphabet=args.alphabet, model=args.model,
             gamma=args.gamma, gaps=args.gaps, objective=args.objective, weighted=args.weighted,
             method=args.method, truth=None if args.no_truth else args.truth, time_limit=args.time_limit,
-            seed=args.seed, bootstrap=args.bootstrap, workers=args.workers, progress=not is_quiet())
+            seed=args.seed, bootstrap=args.bootstrap, workers=args.workers, progress=not is_quiet(),
+            keep_unmeasured=args.keep_unmeasured)
     return 0

@@ -17,11 +17,12 @@ changed entries with any result you publish.
 
 from __future__ import annotations
 
-from .engine import ALTERED_NOTE, OBJECTIVES, RepairResult, format_changes, load_objective
+from .engine import ALTERED_NOTE, OBJECTIVES, RepairResult, format_changes, load_objective, unmeasured_taxa
 
 
 def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, seed: int = 0,
-           **options) -> RepairResult:
+           keep_unmeasured: bool = False, unmeasured_reasons: dict | None = None, source: str | None = None,
+           weights_source: str | None = None, **options) -> RepairResult:
     """Return a metric close to ``dm`` under ``objective``.
 
     Parameters
@@ -45,6 +46,21 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
         with ``optimal`` False.
     seed : int
         Seed of any randomised step (results are deterministic for a seed).
+    keep_unmeasured : bool
+        Taxa with no measured distance to the largest group of measured taxa
+        (no path of measured entries joins them to it) have no evidence for
+        any distance to the rest. By default they are left out of the output
+        (``report["left_out_taxa"]``) and named in a
+        :class:`~seqdist.errors.DataWarning`. With True they are kept, and
+        their distances to the rest are one made-up value (the largest
+        within-group distance, which keeps a metric), marked
+        ``filled_without_evidence`` in :attr:`RepairResult.changes`.
+    unmeasured_reasons : dict, optional
+        ``{label: reason}`` saying why a taxon has no measured distance
+        (e.g. "saturated against all 29 others", from the distances step);
+        used in the warning and the report instead of the generic reason.
+    source, weights_source : str, optional
+        File names of the matrix and the weights, for error messages.
     **options
         Objective-specific options, e.g. ``method="exact"`` or
         ``method="heuristic"`` for fewest and grow; ``progress=False``
@@ -53,8 +69,8 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
     Returns
     -------
     RepairResult
-        ``matrix`` (a metric within ``tol``), ``changes`` (label, label,
-        before, after, change) and ``report`` (the contract's JSON keys:
+        ``matrix`` (a metric within ``tol``, without the left-out taxa),
+        ``changes`` (label, label, before, after, change, how) and ``report`` (the contract's JSON keys:
         objective, changed_entries, l1_change, l2_change, max_change,
         violated_before, violated_after, objective_value, lower_bound,
         optimal, seconds, and more).
@@ -74,11 +90,14 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
     >>> float(r.matrix.values[0, 1]), r.report["changed_entries"]
     (2.0, 1)
     >>> r.changes
-    [('t0', 't1', 5.0, 2.0, -3.0)]
+    [('t0', 't1', 5.0, 2.0, -3.0, 'changed')]
     """
     from .engine import run
 
-    return run(dm, objective, weights=weights, lock=lock, tol=tol, time_limit=time_limit, seed=seed, **options)
+    return run(dm, objective, weights=weights, lock=lock, tol=tol, time_limit=time_limit, seed=seed,
+               keep_unmeasured=keep_unmeasured, unmeasured_reasons=unmeasured_reasons, source=source,
+               weights_source=weights_source, **options)
 
 
-__all__ = ["repair", "RepairResult", "OBJECTIVES", "ALTERED_NOTE", "format_changes", "load_objective"]
+__all__ = ["repair", "RepairResult", "OBJECTIVES", "ALTERED_NOTE", "format_changes", "load_objective",
+           "unmeasured_taxa"]

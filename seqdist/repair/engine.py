@@ -58,33 +58,39 @@ class RepairResult:
     matrix : DistanceMatrix
         The repaired matrix (a metric within ``tol``; missing entries filled).
     changes : list of tuple
-        ``(label, label, before, after, change)`` for every changed entry and
-        every filled missing entry (``before`` and ``change`` NaN there), in
-        row order of the upper triangle (built on first use).
+        ``(label, label, before, after, change, how)`` for every changed entry
+        and every filled missing entry (``before`` and ``change`` NaN there),
+        in row order of the upper triangle (built on first use); ``how`` says
+        how the entry was made (see :func:`change_rows`).
     report : dict
-        The contract's JSON keys and more (see :func:`build_report`).
+        The contract's JSON keys and more (see :func:`build_report`),
+        including ``left_out_taxa``.
     """
 
     def __init__(self, matrix: DistanceMatrix, report: dict, before: np.ndarray | None = None,
-                 observed: np.ndarray | None = None, tol: float = 0.0, changes: list | None = None):
+                 observed: np.ndarray | None = None, tol: float = 0.0, changes: list | None = None,
+                 no_evidence: np.ndarray | None = None):
         self.matrix = matrix
         self.report = report
         self._before = before
         self._observed = observed
         self._tol = tol
         self._changes = changes
+        self._no_evidence = no_evidence
 
     @property
     def changes(self) -> list:
         if self._changes is None:
-            self._changes = change_rows(self.matrix.labels, self._before, self.matrix.values, self._observed, self._tol)
+            self._changes = change_rows(self.matrix.labels, self._before, self.matrix.values, self._observed,
+                                        self._tol, self._no_evidence)
         return self._changes
 
     def changes_text(self) -> str:
         """The ``--changes`` file (see :func:`format_changes`), built without Python tuples per entry."""
         if self._changes is not None or self._before is None:
             return format_changes(self.changes)
-        return _changes_text(self.matrix.labels, self._before, self.matrix.values, self._observed, self._tol)
+        return _changes_text(self.matrix.labels, self._before, self.matrix.values, self._observed, self._tol,
+                             self._no_evidence)
 
     def __repr__(self) -> str:
         return (f"RepairResult(objective={self.report.get('objective')!r}, "
@@ -198,7 +204,7 @@ def lock_mask(lock, dm: DistanceMatrix, observed: np.ndarray) -> np.ndarray:
 
 
 def build_problem(dm: DistanceMatrix, weights=None, lock=None, tol=None, time_limit=None, seed=0,
-                  options=None, progress=None) -> RepairProblem:
+                  options=None, progress=None, weights_source: str = "weights") -> RepairProblem:
     """Turn user input into a :class:`RepairProblem` (validated)."""
     D = np.array(dm.values, dtype=np.float64)
     n = dm.n
@@ -213,7 +219,7 @@ def build_problem(dm: DistanceMatrix, weights=None, lock=None, tol=None, time_li
         time_limit = float(time_limit)
         if not (time_limit > 0):
             raise InputError(f"--time-limit must be a positive number of seconds, got {time_limit!r}")
-    w = weights_array(weights, dm, observed)
+    w = weights_array(weights, dm, observed, weights_source)
     locked = lock_mask(lock, dm, observed)
     w[locked] = np.inf
     deadline = None if time_limit is None else time.perf_counter() + time_limit
@@ -309,19 +315,27 @@ def _raise_conflicts(problem, bad, W, drop_edge: bool, each: str, lead: str, hin
 def fill_missing(X: np.ndarray, observed: np.ndarray) -> tuple[np.ndarray, dict]:
     """Fill missing entries by shortest paths over the observed entries of ``X``.
 
-    Pairs with no path (the observed entries fall into several connected
-    groups) get one value for all: the largest shortest-path distance within
-    the groups. Such a constant ``C`` at least as large as every within-group
-    distance keeps the matrix a metric (a triangle with sides from two or
-    three groups has two sides ``C``, or three). Returns the filled matrix and
-    a dict with ``filled_entries``, ``groups`` and ``between_groups_value``.
+    A missing entry whose two taxa are joined by a path of observed entries
+    is filled from evidence: the length of the shortest such path. Pairs with
+    no such path (the observed entries fall into several connected groups)
+    have no evidence at all; they get one value for all, the largest
+    shortest-path distance within the groups. Such a constant ``C`` at least
+    as large as every within-group distance keeps the matrix a metric (a
+    triangle with sides from two or three groups has two sides ``C``, or
+    three), but it is made up, not measured: the engine leaves such taxa out
+    unless asked to keep them (see :func:`measured_groups`). Returns the
+    filled matrix and a dict with ``filled_entries``, ``filled_by_path``,
+    ``filled_without_evidence``, ``groups``, ``between_groups_value`` and
+    ``no_evidence`` (a boolean mask of the entries filled without evidence).
     """
     from ..paths import apsp
 
     n = X.shape[0]
     missing = ~observed.copy()
     np.fill_diagonal(missing, False)
-    info = {"filled_entries": int(missing.sum() // 2), "groups": 1, "between_groups_value": None}
+    none = np.zeros((n, n), dtype=bool)
+    info = {"filled_entries": int(missing.sum() // 2), "filled_by_path": int(missing.sum() // 2),
+            "filled_without_evidence": 0, "groups": 1, "between_groups_value": None, "no_evidence": none}
     out = np.array(X, dtype=np.float64)
     np.fill_diagonal(out, 0.0)
     if not missing.any():
@@ -329,17 +343,81 @@ def fill_missing(X: np.ndarray, observed: np.ndarray) -> tuple[np.ndarray, dict]
     A = apsp(np.where(observed, out, np.inf))
     unreachable = ~np.isfinite(A)
     if unreachable.any():
-        from scipy.sparse.csgraph import connected_components
-        from scipy.sparse import csr_matrix
-
-        ncomp, _ = connected_components(csr_matrix(np.isfinite(A) & ~np.eye(n, dtype=bool)), directed=False)
         fin = A[np.isfinite(A)]
         C = float(fin.max()) if fin.size else 0.0
         A = np.where(unreachable, C, A)
-        info["groups"] = int(ncomp)
+        info["groups"] = len(measured_groups(observed))
         info["between_groups_value"] = C
+        info["no_evidence"] = unreachable & missing
+        info["filled_without_evidence"] = int(np.triu(unreachable & missing, 1).sum())
+        info["filled_by_path"] = info["filled_entries"] - info["filled_without_evidence"]
     out[missing] = A[missing]
     return out, info
+
+
+def measured_groups(observed: np.ndarray) -> list[np.ndarray]:
+    """Groups of taxa joined by paths of measured entries, largest first.
+
+    Between two groups there is no measured distance at all, so no distance
+    between them can be inferred. Ties in size go to the group holding the
+    earlier taxon.
+
+    Parameters
+    ----------
+    observed : ndarray (n, n) of bool
+        True where the distance was measured (the diagonal is ignored).
+
+    Returns
+    -------
+    list of ndarray
+        Index arrays (sorted), the largest group first.
+
+    Examples
+    --------
+    >>> obs = np.zeros((4, 4), dtype=bool)
+    >>> obs[0, 2] = obs[2, 0] = True
+    >>> [g.tolist() for g in measured_groups(obs)]
+    [[0, 2], [1], [3]]
+    """
+    from scipy.sparse import csr_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    obs = np.array(observed, dtype=bool)
+    np.fill_diagonal(obs, False)
+    _, comp = connected_components(csr_matrix(obs), directed=False)
+    groups = [np.flatnonzero(comp == c) for c in np.unique(comp)]
+    groups.sort(key=lambda g: (-g.size, int(g[0])))
+    return groups
+
+
+def unmeasured_taxa(dm: DistanceMatrix) -> dict:
+    """Taxa with no measured distance to the largest group of measured taxa, and why.
+
+    Returns ``{label: reason}`` in label order; empty when every taxon is
+    joined to every other by a path of measured entries.
+
+    Examples
+    --------
+    >>> D = np.array([[0, 1, 2, np.nan], [1, 0, 1.5, np.nan], [2, 1.5, 0, np.nan], [np.nan] * 3 + [0]])
+    >>> unmeasured_taxa(DistanceMatrix.from_array(D, ["a", "b", "c", "d"]))
+    {'d': 'no measured distance to any other taxon'}
+    """
+    observed = ~np.isnan(dm.values)
+    groups = measured_groups(observed)
+    out = {}
+    if len(groups) < 2:
+        return out
+    main = len(groups[0])
+    for g in groups[1:]:
+        for i in g:
+            if g.size == 1:
+                why = "no measured distance to any other taxon"
+            else:
+                others = ", ".join(dm.labels[j] for j in g if j != i)
+                why = (f"measured only against {others} (a group of {g.size} with no measured distance "
+                       f"to the other {main} taxa)")
+            out[dm.labels[int(i)]] = why
+    return {lab: out[lab] for lab in dm.labels if lab in out}
 
 
 def verify_metric(X: np.ndarray, tol: float) -> bool:
@@ -405,24 +483,13 @@ def finish(problem: RepairProblem, solution: Solution, objective: str) -> tuple[
 
 
 # --------------------------------------------------------------- report
-def change_rows(labels, D: np.ndarray, X: np.ndarray, observed: np.ndarray, tol: float) -> list[tuple]:
-    """``(label, label, before, after, change)`` for changed and filled entries (upper triangle)."""
-    n = D.shape[0]
-    iu, ju = np.triu_indices(n, 1)
-    obs = observed[iu, ju]
-    before = D[iu, ju]
-    after = X[iu, ju]
-    keep = ~obs | (np.abs(after - before) > tol)
-    rows = []
-    for i, j, b, a, o in zip(iu[keep], ju[keep], before[keep], after[keep], obs[keep]):
-        rows.append((labels[i], labels[j], float(b) if o else float("nan"), float(a),
-                     float(a - b) if o else float("nan")))
-    return rows
+#: How an entry of the output was made (the ``how`` column of the changes file).
+HOW_CHANGED = "changed"                      # measured, moved by the repair
+HOW_BY_PATH = "filled_by_path"               # missing; a path of measured entries gives its value
+HOW_NO_EVIDENCE = "filled_without_evidence"  # missing; no path: a made-up value that keeps a metric
 
 
-def _changes_text(labels, D, X, observed, tol) -> str:
-    from ..io import _quote_cell
-
+def _change_arrays(D, X, observed, tol, no_evidence):
     n = D.shape[0]
     iu, ju = np.triu_indices(n, 1)
     obs = observed[iu, ju]
@@ -430,35 +497,66 @@ def _changes_text(labels, D, X, observed, tol) -> str:
     after = X[iu, ju]
     keep = ~obs | (np.abs(after - before) > tol)
     iu, ju, before, after, obs = iu[keep], ju[keep], before[keep], after[keep], obs[keep]
+    nothing = np.zeros(iu.size, dtype=bool) if no_evidence is None else no_evidence[iu, ju]
+    how = np.where(obs, HOW_CHANGED, np.where(nothing, HOW_NO_EVIDENCE, HOW_BY_PATH))
+    return iu, ju, before, after, obs, how
+
+
+def change_rows(labels, D: np.ndarray, X: np.ndarray, observed: np.ndarray, tol: float,
+                no_evidence: np.ndarray | None = None) -> list[tuple]:
+    """``(label, label, before, after, change, how)`` for changed and filled entries (upper triangle).
+
+    ``how`` is ``changed`` (a measured entry the repair moved),
+    ``filled_by_path`` (a missing entry given the length of a path of
+    measured entries) or ``filled_without_evidence`` (a missing entry with no
+    such path: a made-up value).
+    """
+    iu, ju, before, after, obs, how = _change_arrays(D, X, observed, tol, no_evidence)
+    return [(labels[i], labels[j], float(b) if o else float("nan"), float(a),
+             float(a - b) if o else float("nan"), str(h))
+            for i, j, b, a, o, h in zip(iu.tolist(), ju.tolist(), before.tolist(), after.tolist(),
+                                        obs.tolist(), how.tolist())]
+
+
+CHANGES_HEADER = "label_a\tlabel_b\tbefore\tafter\tchange\thow"
+
+
+def _changes_text(labels, D, X, observed, tol, no_evidence=None) -> str:
+    from ..io import _quote_cell
+
+    iu, ju, before, after, obs, how = _change_arrays(D, X, observed, tol, no_evidence)
     q = [_quote_cell(lab, "\t") for lab in labels]
     b = ["NA" if not o else repr(v) for v, o in zip(before.tolist(), obs.tolist())]
     a = list(map(repr, after.tolist()))
     c = ["NA" if not o else repr(v) for v, o in zip((after - np.where(obs, before, 0.0)).tolist(), obs.tolist())]
-    lines = ["label_a\tlabel_b\tbefore\tafter\tchange"]
-    lines.extend(f"{q[i]}\t{q[j]}\t{x}\t{y}\t{z}" for i, j, x, y, z in zip(iu.tolist(), ju.tolist(), b, a, c))
+    lines = [CHANGES_HEADER]
+    lines.extend(f"{q[i]}\t{q[j]}\t{x}\t{y}\t{z}\t{h}"
+                 for i, j, x, y, z, h in zip(iu.tolist(), ju.tolist(), b, a, c, how.tolist()))
     return "\n".join(lines) + "\n"
 
 
 def format_changes(rows: list[tuple]) -> str:
     """The ``--changes`` file: a tsv with one line per changed or filled entry.
 
-    Columns ``label_a, label_b, before, after, change``; a filled missing
-    entry has ``before`` and ``change`` written as ``NA``.
+    Columns ``label_a, label_b, before, after, change, how``; a filled
+    missing entry has ``before`` and ``change`` written as ``NA``, and
+    ``how`` says how each entry was made (``changed``, ``filled_by_path``,
+    ``filled_without_evidence``; see :func:`change_rows`).
 
     Examples
     --------
-    >>> print(format_changes([("a", "b", 5.0, 2.0, -3.0)]), end="")  # doctest: +NORMALIZE_WHITESPACE
-    label_a	label_b	before	after	change
-    a	b	5.0	2.0	-3.0
+    >>> print(format_changes([("a", "b", 5.0, 2.0, -3.0, "changed")]), end="")  # doctest: +NORMALIZE_WHITESPACE
+    label_a	label_b	before	after	change	how
+    a	b	5.0	2.0	-3.0	changed
     """
     from ..io import _quote_cell
 
     def f(v):
         return "NA" if v != v else repr(float(v))
 
-    lines = ["label_a\tlabel_b\tbefore\tafter\tchange"]
-    for a, b, before, after, change in rows:
-        lines.append("\t".join([_quote_cell(a, "\t"), _quote_cell(b, "\t"), f(before), f(after), f(change)]))
+    lines = [CHANGES_HEADER]
+    for a, b, before, after, change, how in rows:
+        lines.append("\t".join([_quote_cell(a, "\t"), _quote_cell(b, "\t"), f(before), f(after), f(change), how]))
     return "\n".join(lines) + "\n"
 
 
@@ -494,6 +592,8 @@ def build_report(problem: RepairProblem, objective: str, X: np.ndarray, solution
         "increased_entries": int((diff > tol).sum()),
         "decreased_entries": int((diff < -tol).sum()),
         "filled_entries": fill["filled_entries"],
+        "filled_by_path": fill["filled_by_path"],
+        "filled_without_evidence": fill["filled_without_evidence"],
         "weighted_l1_change": _wsum(w[changed], ad[changed]),
         "max_violation_before": float(violated_before[1]),
         "gap": float(max(0.0, objective_value - solution.lower_bound)),
@@ -538,9 +638,52 @@ class _Bar:
         self.bar.close()
 
 
+def _leave_out(problem: RepairProblem, keep: np.ndarray) -> RepairProblem:
+    """The same problem on the taxa ``keep`` only (locks on the others are an input error)."""
+    import dataclasses
+
+    drop = np.setdiff1d(np.arange(problem.n), keep)
+    locked = problem.locked
+    if locked[drop].any():
+        i = int(drop[np.flatnonzero(locked[drop].any(axis=1))[0]])
+        j = int(np.flatnonzero(locked[i])[0])
+        raise InputError(f"locked pair ({problem.label(i)}, {problem.label(j)}) involves {problem.label(i)}, "
+                         "which is left out (no measured distance to the other taxa); "
+                         "keep such taxa (keep_unmeasured) or drop the lock")
+    ix = np.ix_(keep, keep)
+    return dataclasses.replace(problem, D=problem.D[ix].copy(), weights=problem.weights[ix].copy(),
+                               locked=locked[ix].copy(), observed=problem.observed[ix].copy(),
+                               labels=tuple(problem.labels[k] for k in keep))
+
+
+def check_magnitude(D: np.ndarray, weights: np.ndarray, source: str | None = None) -> None:
+    """Refuse entries so large that the repair's sums of changes would overflow.
+
+    The objectives add up to n(n-1)/2 weighted absolute or squared changes,
+    each at most the largest entry; the largest entry ``M`` and weight ``W``
+    must keep ``W * M**2`` times the number of entries finite with room to
+    spare (1e300), whatever the objective.
+    """
+    n = D.shape[0]
+    entries = max(1, n * (n - 1) // 2)
+    fin = D[np.isfinite(D)]
+    M = float(np.abs(fin).max()) if fin.size else 0.0
+    wf = weights[np.isfinite(weights)]
+    W = max(1.0, float(wf.max()) if wf.size else 1.0)
+    limit = float(np.sqrt(1e300 / (entries * W)))
+    if M > limit:
+        where = f"{source}: " if source else ""
+        power = int(np.ceil(np.log10(M / limit))) + 1
+        raise InputError(f"{where}entries up to {M:.3g} are too large for the repair's sums of changes "
+                         f"(at most {limit:.3g} for {n} taxa{' and these weights' if W > 1 else ''}); "
+                         f"rescale the matrix, e.g. divide every entry by 1e{power}")
+
+
 def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, seed=0,
-        progress: bool = True, **options) -> RepairResult:
+        progress: bool = True, keep_unmeasured: bool = False, unmeasured_reasons: dict | None = None,
+        source: str | None = None, weights_source: str | None = None, **options) -> RepairResult:
     """Repair ``dm`` under ``objective``; see :func:`seqdist.repair.repair`."""
+    from ..console import warn
     from ..metric import count_violations
 
     t0 = time.perf_counter()
@@ -548,7 +691,30 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
     dm = as_matrix(dm)
     bar = _Bar(objective) if progress else None
     try:
-        problem = build_problem(dm, weights, lock, tol, time_limit, seed, options, bar)
+        problem = build_problem(dm, weights, lock, tol, time_limit, seed, options, bar,
+                                weights_source=weights_source or "weights")
+        check_magnitude(problem.D, problem.weights, source)
+        unmeasured = unmeasured_taxa(dm)
+        if unmeasured_reasons:
+            unmeasured = {lab: unmeasured_reasons.get(lab, why) for lab, why in unmeasured.items()}
+        left_out = [] if keep_unmeasured else list(unmeasured)
+        if left_out:
+            keep = measured_groups(problem.observed)[0]
+            if keep.size < 3:
+                where = f"{source}: " if source else ""
+                raise InputError(f"{where}measured distances join at most {keep.size} taxa; "
+                                 "a repair needs at least 3 joined by measured distances")
+            problem = _leave_out(problem, keep)
+        if unmeasured:
+            shown = "; ".join(f"{lab} ({why})" for lab, why in list(unmeasured.items())[:5])
+            more = f"; and {len(unmeasured) - 5} more" if len(unmeasured) > 5 else ""
+            if left_out:
+                warn(f"{len(unmeasured)} taxa left out of the repaired matrix, since no measured distance "
+                     f"joins them to the others: {shown}{more}", stacklevel=3)
+            else:
+                warn(f"{len(unmeasured)} taxa kept although no measured distance joins them to the others; "
+                     f"their distances to the rest are one made-up value, not evidence: {shown}{more}",
+                     stacklevel=3)
         check_locks(problem, objective)
         before = count_violations(problem.D, problem.tol)
         solution = solve(problem)
@@ -574,5 +740,9 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
     rep = build_report(problem, objective, X, solution, fill, seconds, before, objective_value)
     if solution.optimal and objective in ("fewest", "grow") and objective_value > lb + 1e-9 * max(1.0, lb):
         rep["optimal"] = False
-    matrix = DistanceMatrix._trusted(X, dm.labels)
-    return RepairResult(matrix=matrix, report=rep, before=D, observed=obs, tol=tol)
+    rep["n_input"] = dm.n
+    rep["left_out_taxa"] = left_out
+    rep["unmeasured_taxa"] = {lab: why for lab, why in unmeasured.items()}
+    rep["kept_unmeasured"] = bool(keep_unmeasured and unmeasured)
+    matrix = DistanceMatrix._trusted(X, problem.labels)
+    return RepairResult(matrix=matrix, report=rep, before=D, observed=obs, tol=tol, no_evidence=fill["no_evidence"])

@@ -28,6 +28,7 @@ import zlib
 
 import numpy as np
 
+from .compare import nontrivial, splits
 from .impact import CAUTION, ImpactResult, summary_lines
 from .tree import Tree, rooted_for_drawing
 
@@ -37,6 +38,7 @@ NEG_RGB = np.array([33, 102, 172], float)
 MID_RGB = np.array([247, 247, 247], float)
 POS_RGB = np.array([178, 24, 43], float)
 FILLED_RGB = np.array([120, 120, 120], np.uint8)
+MADE_UP_RGB = np.array([20, 20, 20], np.uint8)
 MAX_TREE_LEAVES = 1000
 MAX_LABELLED_LEAVES = 300
 MAX_RECT_HEATMAP = 80
@@ -251,18 +253,24 @@ def draw_tree(tree: Tree, taxa: list, highlight: set, support: dict | None = Non
 
 
 # ------------------------------------------------------------------ heatmap
-def draw_heatmap(change: np.ndarray, labels: list, size: int = 560) -> str:
-    """SVG heatmap of ``after - before`` with a diverging legend."""
+def draw_heatmap(change: np.ndarray, labels: list, size: int = 560, made_up: np.ndarray | None = None) -> str:
+    """SVG heatmap of ``after - before`` with a diverging legend.
+
+    NaN cells are missing before and filled after: grey when filled from
+    evidence, black where ``made_up`` is true (filled without evidence).
+    """
     n = change.shape[0]
     filled = np.isnan(change)
     np.fill_diagonal(filled, False)
+    made_up = np.zeros_like(filled) if made_up is None else (np.asarray(made_up, dtype=bool) & filled)
+    filled_ev = filled & ~made_up
     change = np.where(np.isnan(change), 0.0, change)
     vmax = float(np.abs(change).max()) if change.size else 0.0
     labelled = n <= MAX_RECT_HEATMAP
     font = max(5.0, min(11.0, size / n * 0.8)) if labelled else 0.0
     margin = (min(160.0, 0.6 * font * max(len(x) for x in labels) + 8)) if labelled else 10.0
     cell = size / n
-    legend_h = 70 + (22 if filled.any() else 0)
+    legend_h = 70 + 22 * (int(filled_ev.any()) + int(made_up.any()))
     W = margin + size + 20
     H = margin + size + legend_h
     parts = [f'<svg xmlns="http://www.w3.org/2000/svg" width="{W:.0f}" height="{H:.0f}" '
@@ -270,9 +278,11 @@ def draw_heatmap(change: np.ndarray, labels: list, size: int = 560) -> str:
     if labelled:
         cols = _colour(change, vmax)
         cols[filled] = FILLED_RGB
+        cols[made_up] = MADE_UP_RGB
         for i in range(n):
             for j in range(n):
-                title = (labels[i] if i == j else f"{labels[i]} - {labels[j]}: missing before, filled"
+                title = (labels[i] if i == j else f"{labels[i]} - {labels[j]}: missing before, filled without evidence"
+                         if made_up[i, j] else f"{labels[i]} - {labels[j]}: missing before, filled by a path"
                          if filled[i, j] else f"{labels[i]} - {labels[j]}: {change[i, j]:+.6g}")
                 parts.append(f'<rect x="{margin + j * cell:.2f}" y="{margin + i * cell:.2f}" width="{cell:.2f}" '
                              f'height="{cell:.2f}" fill="{_hex(cols[i, j])}"><title>{_esc(title)}</title></rect>')
@@ -296,6 +306,9 @@ def draw_heatmap(change: np.ndarray, labels: list, size: int = 560) -> str:
         fpad[:n, :n] = filled
         rgb = _colour(pick, vmax)
         rgb[fpad.reshape(m, k, m, k).any(axis=(1, 3))] = FILLED_RGB
+        mpad = np.zeros((m * k, m * k), dtype=bool)
+        mpad[:n, :n] = made_up
+        rgb[mpad.reshape(m, k, m, k).any(axis=(1, 3))] = MADE_UP_RGB
         data = base64.b64encode(png_bytes(rgb)).decode("ascii")
         parts.append(f'<image x="{margin}" y="{margin}" width="{size}" height="{size}" '
                      f'style="image-rendering:pixelated" preserveAspectRatio="none" '
@@ -304,20 +317,28 @@ def draw_heatmap(change: np.ndarray, labels: list, size: int = 560) -> str:
     # legend
     ly = margin + size + 22
     lx = margin + size / 2 - 150
-    parts.append('<defs><linearGradient id="div" x1="0" x2="1" y1="0" y2="0">'
-                 f'<stop offset="0" stop-color="{_hex(NEG_RGB)}"/><stop offset="0.5" stop-color="{_hex(MID_RGB)}"/>'
-                 f'<stop offset="1" stop-color="{_hex(POS_RGB)}"/></linearGradient></defs>')
-    parts.append(f'<rect x="{lx:.1f}" y="{ly:.1f}" width="300" height="12" fill="url(#div)" stroke="#999"/>')
-    for frac, val in ((0.0, -vmax), (0.25, -vmax / 4), (0.5, 0.0), (0.75, vmax / 4), (1.0, vmax)):
-        parts.append(f'<text x="{lx + 300 * frac:.1f}" y="{ly + 28:.1f}" font-size="11" '
-                     f'text-anchor="middle">{_num(val) if val else "0"}</text>')
-    parts.append(f'<text x="{lx:.1f}" y="{ly - 5:.1f}" font-size="11">decreased</text>')
-    parts.append(f'<text x="{lx + 300:.1f}" y="{ly - 5:.1f}" font-size="11" text-anchor="end">increased</text>')
-    parts.append(f'<text x="{lx + 150:.1f}" y="{ly + 44:.1f}" font-size="11" text-anchor="middle">'
-                 'after - before (square-root colour scale)</text>')
-    if filled.any():
-        parts.append(f'<rect x="{lx:.1f}" y="{ly + 52:.1f}" width="12" height="12" fill="{_hex(FILLED_RGB)}"/>'
-                     f'<text x="{lx + 17:.1f}" y="{ly + 62:.1f}" font-size="11">missing before, filled after</text>')
+    if vmax > 0:
+        parts.append('<defs><linearGradient id="div" x1="0" x2="1" y1="0" y2="0">'
+                     f'<stop offset="0" stop-color="{_hex(NEG_RGB)}"/><stop offset="0.5" stop-color="{_hex(MID_RGB)}"/>'
+                     f'<stop offset="1" stop-color="{_hex(POS_RGB)}"/></linearGradient></defs>')
+        parts.append(f'<rect x="{lx:.1f}" y="{ly:.1f}" width="300" height="12" fill="url(#div)" stroke="#999"/>')
+        for frac, val in ((0.0, -vmax), (0.25, -vmax / 4), (0.5, 0.0), (0.75, vmax / 4), (1.0, vmax)):
+            parts.append(f'<text x="{lx + 300 * frac:.1f}" y="{ly + 28:.1f}" font-size="11" '
+                         f'text-anchor="middle">{_num(val) if val else "0"}</text>')
+        parts.append(f'<text x="{lx:.1f}" y="{ly - 5:.1f}" font-size="11">decreased</text>')
+        parts.append(f'<text x="{lx + 300:.1f}" y="{ly - 5:.1f}" font-size="11" text-anchor="end">increased</text>')
+        parts.append(f'<text x="{lx + 150:.1f}" y="{ly + 44:.1f}" font-size="11" text-anchor="middle">'
+                     'after - before (square-root colour scale)</text>')
+    else:
+        parts.append(f'<text x="{lx + 150:.1f}" y="{ly + 12:.1f}" font-size="12" text-anchor="middle">'
+                     'no measured entry changed</text>')
+    y = ly + 52
+    for mask, rgb, text in ((filled_ev, FILLED_RGB, "missing before, filled by a path of measured entries"),
+                            (made_up, MADE_UP_RGB, "missing before, filled without evidence (a made-up value)")):
+        if mask.any():
+            parts.append(f'<rect x="{lx:.1f}" y="{y:.1f}" width="12" height="12" fill="{_hex(rgb)}"/>'
+                         f'<text x="{lx + 17:.1f}" y="{y + 10:.1f}" font-size="11">{text}</text>')
+            y += 22
     parts.append("</svg>")
     return "".join(parts)
 
@@ -340,12 +361,17 @@ def _split_rows(split_list, support, taxa, limit=60) -> str:
 
 
 def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"), title: str | None = None,
-                outgroup: str | None = None, preamble: str | None = None) -> str:
+                outgroup: str | None = None, preamble: str | None = None, reference: str | None = None,
+                command: str | None = None, made_up_pairs=None, lead: str | None = None) -> str:
     """The whole page as text (see module docs).
 
     ``preamble`` is trusted html placed after the summary and caution (the
     whole-job report of ``seqdist run`` puts its data, audit and repair
-    section there).
+    section there); ``lead`` is trusted html placed before the summary.
+    ``reference`` names the reference tree's file and ``command`` the
+    command that made the page (both shown on it). ``made_up_pairs`` holds
+    ``(label, label)`` pairs filled without evidence (drawn apart in the
+    heatmap).
 
     Examples
     --------
@@ -367,8 +393,13 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
     out = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
            f"<title>{_esc(title or 'seqdist tree impact report')}</title>", f"<style>{CSS}</style></head><body>"]
     out.append("<h1>How the matrix change affects the tree</h1>")
+    ref = f" &middot; reference tree {_esc(reference)}" if reference and "rf_to_truth_before" in r else ""
+    of_all = f" (of {r['n']:,})" if r.get("n", n) != n else ""
     out.append(f'<p class="files">{_esc(names[0])} &rarr; {_esc(names[1])} &middot; method '
-               f'{_esc(r["method"].upper())} &middot; {n:,} taxa &middot; tolerance {_num(r["tol"], 3)}</p>')
+               f'{_esc(r["method"].upper())} &middot; trees compared on {n:,} taxa{of_all}{ref} &middot; '
+               f'tolerance {_num(r["tol"], 3)}</p>')
+    if lead:
+        out.append(lead)
     out.append('<div class="summary">' + "".join(f"<p>{_esc(x)}</p>" for x in summary_lines(r, names)) + "</div>")
     out.append(f'<div class="caution"><b>Caution.</b> {_esc(CAUTION)}</div>')
     if preamble:
@@ -388,15 +419,22 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
         svg_a, order_a = draw_tree(res.tree_after, taxa, na - nb, sup_a, outgroup=outgroup)
         order = order_b if len(order_b) >= len(order_a) else order_a
         out.append('<div class="pair">')
-        for name, svg, only, tot in ((names[0], svg_b, len(nb - na), len(nb)), (names[1], svg_a, len(na - nb), len(na))):
-            out.append(f'<div class="panel"><h3>{_esc(name)}: {tot} splits, {only} not in the other tree</h3>{svg}</div>')
+        for name, tree, svg, only in ((names[0], res.tree_before, svg_b, len(nb - na)),
+                                      (names[1], res.tree_after, svg_a, len(na - nb))):
+            leaves = tree.labels()
+            own = len(nontrivial(splits(tree, sorted(leaves)), len(leaves)))
+            cmp = "" if len(leaves) == n else f" on the {n:,} compared taxa"
+            out.append(f'<div class="panel"><h3>{_esc(name)}: {len(leaves):,} taxa, {own:,} splits; '
+                       f'{only} of its splits{cmp} not in the other tree</h3>{svg}</div>')
         out.append("</div>")
         if n > MAX_LABELLED_LEAVES:
             out.append(f'<p class="note">Leaf labels are left out above {MAX_LABELLED_LEAVES} taxa.</p>')
-        left_out = r.get("dropped_taxa", []) + r.get("dropped_taxa_after", [])
-        if left_out:
-            out.append(f'<p class="note">* not compared: left out of the other tree because of missing entries '
-                       f'({_esc(", ".join(left_out))}).</p>')
+        odd = sorted((set(res.tree_before.labels()) | set(res.tree_after.labels())) - set(taxa))
+        if odd:
+            reasons = r.get("left_out_reasons", {})
+            out.append('<p class="note">* in one tree only, so not compared: '
+                       + _esc("; ".join(f"{lab}" + (f" ({reasons[lab]})" if reasons.get(lab) else "") for lab in odd))
+                       + ".</p>")
     else:
         order = []
         out.append(f'<p class="note">Trees with more than {MAX_TREE_LEAVES:,} taxa are not drawn; '
@@ -406,14 +444,26 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
     out.append("<h2>Matrix change</h2>")
     if n > MAX_TREE_LEAVES:
         order = res.tree_before.labels()
-    order = order + sorted(set(res.before.labels) - set(order))
+    order = [lab for lab in order if lab in set(res.before.labels)]
+    order = order + [lab for lab in res.before.labels if lab not in set(order)]
     idx = [res.before.index(lab) for lab in order]
     change = (np.asarray(res.after.values) - np.asarray(res.before.values))[np.ix_(idx, idx)]
-    out.append(f'<p class="note">after - before, rows and columns in the leaf order of the tree drawn above. '
-               f'{_num(r["entries_increased"])} entries increased, {_num(r["entries_decreased"])} '
-               f'decreased (by more than the tolerance), {_num(r["entries_filled"])} filled; total absolute change {_num(r["l1_change"])}, '
-               f'largest {_num(r["max_change"])}.</p>')
-    out.append(f'<div class="panel" style="display:inline-block">{draw_heatmap(change, order)}</div>')
+    made_up = None
+    if made_up_pairs:
+        pos_o = {lab: k for k, lab in enumerate(order)}
+        made_up = np.zeros(change.shape, dtype=bool)
+        for a, b in made_up_pairs:
+            if a in pos_o and b in pos_o:
+                made_up[pos_o[a], pos_o[b]] = made_up[pos_o[b], pos_o[a]] = True
+    n_made_up = int(np.triu(made_up, 1).sum()) if made_up is not None else 0
+    filled_note = (f'{_num(r["entries_filled"])} missing entries filled'
+                   + (f" ({n_made_up:,} of them without evidence)" if n_made_up else ""))
+    out.append(f'<p class="note">after - before on the {len(order):,} taxa of both matrices, rows and columns '
+               f'in the leaf order of the tree drawn above. Of {_num(r.get("entries_measured", r["entries"]))} '
+               f'measured entries, {_num(r["entries_increased"])} increased and {_num(r["entries_decreased"])} '
+               f'decreased (by more than the tolerance); {filled_note}; total absolute change '
+               f'{_num(r["l1_change"])}, largest {_num(r["max_change"])}.</p>')
+    out.append(f'<div class="panel" style="display:inline-block">{draw_heatmap(change, order, made_up=made_up)}</div>')
 
     # triangles and measures
     out.append("<h2>Triangle inequality and measures</h2>")
@@ -443,6 +493,8 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
         out_b, out_a = _num(r[kb], digits), _num(r[ka], digits)
         rows.append(f'<tr><td class="l">{label}</td><td class="l">{out_b}{extra_b}</td>'
                     f'<td class="l">{out_a}{extra_a}</td></tr>')
+    out.append(f'<p class="note">On the {n:,} taxa both trees hold ({r["triangles"]:,} triangles, every one '
+               'checked); tree lengths and correlations of the trees restricted to them.</p>')
     out.append(f'<table><tr><th class="l"></th><th class="l">{_esc(names[0])}</th><th class="l">{_esc(names[1])}'
                f'</th></tr>{"".join(rows)}</table>')
     out.append(f'<p class="note">Robinson-Foulds distance between the trees: {r["rf"]} of at most {r["rf_max"]} '
@@ -474,7 +526,8 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
                    f"<th>change</th></tr>{rows}</table>")
     from .. import __version__
 
-    out.append(f'<p class="note" style="margin-top:30px">seqdist {__version__} &middot; seqdist impact; '
-               "definitions in docs/trees.md.</p>")
+    made_by = f" &middot; made by <code>{_esc(command)}</code>" if command else ""
+    out.append(f'<p class="note" style="margin-top:30px">seqdist {__version__}{made_by}. Definitions and '
+               "sources: the seqdist documentation (docs/trees.md in its source repository).</p>")
     out.append("</body></html>\n")
     return "\n".join(out)

@@ -60,15 +60,42 @@ def align(before: DistanceMatrix, after: DistanceMatrix, names=("BEFORE", "AFTER
     """
     la, lb = set(before.labels), set(after.labels)
     if la != lb:
-        parts = []
-        for name, only in ((names[0], sorted(la - lb)), (names[1], sorted(lb - la))):
-            if only:
-                more = f" and {len(only) - 5} more" if len(only) > 5 else ""
-                parts.append(f"only in {name}: {', '.join(only[:5])}{more}")
-        raise InputError(f"{names[0]} and {names[1]} must have the same labels (" + "; ".join(parts) + ")")
+        raise InputError(_label_mismatch(before, after, names))
     if after.labels == before.labels:
         return after
     return after.subset(before.labels)
+
+
+def _label_mismatch(before, after, names) -> str:
+    la, lb = set(before.labels), set(after.labels)
+    parts = []
+    for name, only in ((names[0], sorted(la - lb)), (names[1], sorted(lb - la))):
+        if only:
+            more = f" and {len(only) - 5} more" if len(only) > 5 else ""
+            parts.append(f"only in {name}: {', '.join(only[:5])}{more}")
+    return f"{names[0]} and {names[1]} must have the same labels (" + "; ".join(parts) + ")"
+
+
+def shared_labels(before: DistanceMatrix, after: DistanceMatrix, names=("BEFORE", "AFTER")) -> tuple[list, dict]:
+    """The labels of both matrices (in ``before``'s order) and the ones left out, with why.
+
+    One matrix may lack taxa of the other (a repair leaves out taxa with no
+    measured distance to the rest); anything else (labels found only in
+    each of them) is an :class:`InputError`.
+
+    Examples
+    --------
+    >>> a = DistanceMatrix.from_array(np.ones((3, 3)) - np.eye(3), ["x", "y", "z"])
+    >>> shared_labels(a, a.subset(["y", "x"]))
+    (['x', 'y'], {'z': 'not in AFTER'})
+    """
+    la, lb = set(before.labels), set(after.labels)
+    if (la - lb) and (lb - la):
+        raise InputError(_label_mismatch(before, after, names))
+    shared = [lab for lab in before.labels if lab in lb]
+    why = {lab: f"not in {names[1]}" for lab in before.labels if lab not in lb}
+    why.update({lab: f"not in {names[0]}" for lab in after.labels if lab not in la})
+    return shared, why
 
 
 def incomplete_taxa(*mats: DistanceMatrix) -> list[str]:
@@ -97,21 +124,25 @@ def incomplete_taxa(*mats: DistanceMatrix) -> list[str]:
 
 
 def matrix_change(before: DistanceMatrix, after: DistanceMatrix, tol: float, top: int = 10) -> dict:
-    """Entries changed (``|after - before| > tol``) and their sizes.
+    """Measured entries changed (``|after - before| > tol``), missing ones filled, and their sizes.
 
-    Missing entries of ``before`` filled in ``after`` count as changed.
+    ``before`` and ``after`` have the same labels in the same order.
+    ``entries_changed`` counts measured entries only (the repair's
+    ``changed_entries``); a missing entry of ``before`` given a value in
+    ``after`` counts in ``entries_filled``.
     """
     n = before.n
     iu = np.triu_indices(n, 1)
     b, a = before.values[iu], after.values[iu]
     filled = np.isnan(b) & ~np.isnan(a)
     diff = np.where(np.isnan(b) | np.isnan(a), 0.0, a - b)
-    changed = (np.abs(diff) > tol) | filled
+    changed = np.abs(diff) > tol
     order = np.argsort(-np.abs(diff), kind="stable")[:top]
     largest = [{"a": before.labels[iu[0][k]], "b": before.labels[iu[1][k]], "before": float(b[k]),
-                "after": float(a[k]), "change": float(diff[k])} for k in order if changed[k] and diff[k] != 0]
+                "after": float(a[k]), "change": float(diff[k])} for k in order if changed[k]]
     return {
         "entries": int(b.size),
+        "entries_measured": int((~np.isnan(b)).sum()),
         "entries_changed": int(changed.sum()),
         "entries_increased": int((diff > tol).sum()),
         "entries_decreased": int((diff < -tol).sum()),
@@ -124,16 +155,23 @@ def matrix_change(before: DistanceMatrix, after: DistanceMatrix, tol: float, top
 
 def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *, truth: Tree | None = None,
            tol: float | None = None, clamp_negative: bool = False, drop_incomplete: bool = False,
-           names: tuple[str, str] = ("BEFORE", "AFTER")) -> ImpactResult:
-    """Build a tree from each matrix and report how they differ.
+           names: tuple[str, str] = ("BEFORE", "AFTER"), reasons: dict | None = None) -> ImpactResult:
+    """Build a tree from each matrix and report how they differ, on one set of taxa.
+
+    Every comparison (Robinson-Foulds, "same topology", branch score, tree
+    lengths, cophenetic correlations, violated triangles, entries changed) is
+    made on the same taxa, ``n_compared`` of them; ``left_out_taxa`` lists
+    the others with ``left_out_reasons``.
 
     Parameters
     ----------
     before, after : DistanceMatrix
-        The same labels (any order; ``after`` is aligned by label).
+        The same labels (any order; ``after`` is aligned by label), or one
+        lacking some taxa of the other (a repair that left taxa out); those
+        are left out of the comparison.
     method : {"nj", "bionj", "upgma"}
     truth : Tree, optional
-        A reference tree on the same labels to score both trees against.
+        A reference tree on the labels of ``before`` to score both trees against.
     tol : float, optional
         An entry counts as changed when ``|after - before| > tol``; also the
         triangle tolerance. Default: the contract's 1e-9 times the largest
@@ -143,12 +181,14 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
     drop_incomplete : bool
         Instead of refusing a matrix with missing entries, build its tree
         without the taxa that have them (see :func:`incomplete_taxa`; listed
-        as ``dropped_taxa``). A complete AFTER (e.g. repaired, which fills
-        missing entries) still gives a tree on every taxon; the two trees
-        are compared on the taxa both hold (``n_compared``), the other tree
-        pruned to them. Matrix figures are over all entries.
+        as ``dropped_taxa``). A complete AFTER (e.g. repaired with the
+        made-up fill kept) still gives a tree on those taxa; the trees are
+        compared on the taxa both hold, the other tree pruned to them.
     names : (str, str)
         How to call the two matrices in messages (e.g. their file names).
+    reasons : dict, optional
+        ``{label: why}`` for taxa one matrix lacks (e.g. the repair's reason
+        for leaving them out), used in ``left_out_reasons``.
 
     Returns
     -------
@@ -161,22 +201,28 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
     >>> a = DistanceMatrix.from_array(D, list("abcd"))
     >>> E = D.copy(); E[0, 1] = E[1, 0] = 9.0
     >>> r = impact(a, DistanceMatrix.from_array(E, list("abcd"))).report
-    >>> r["entries_changed"], r["rf"]
-    (1, 2)
+    >>> r["entries_changed"], r["rf"], r["n_compared"]
+    (1, 2, 4)
     """
     from ..metric import count_violations, max_violation
 
-    after = align(before, after, names)
+    for name, m in zip(names, (before, after)):
+        if m.n < 3:
+            raise InputError(f"{name}: {m.n} taxa; a tree needs at least 3 taxa")
+    shared, why = shared_labels(before, after, names)
+    if len(shared) < 3:
+        raise InputError(f"{names[0]} and {names[1]} share {len(shared)} taxa; a comparison needs at least 3 taxa")
+    b_all, a_all = before.subset(shared), after.subset(shared)
     hint = "" if drop_incomplete else ", or leave those taxa out with --drop-incomplete"
-    drop_b = incomplete_taxa(before) if drop_incomplete else []
-    drop_a = incomplete_taxa(after) if drop_incomplete else []
-    keep_b = [lab for lab in before.labels if lab not in set(drop_b)]
-    keep_a = [lab for lab in after.labels if lab not in set(drop_a)]
+    drop_b = incomplete_taxa(b_all) if drop_incomplete else []
+    drop_a = incomplete_taxa(a_all) if drop_incomplete else []
+    keep_b = [lab for lab in shared if lab not in set(drop_b)]
+    keep_a = [lab for lab in shared if lab not in set(drop_a)]
     for name, keep in ((names[0], keep_b), (names[1], keep_a)):
-        if len(keep) < 3 <= before.n:
+        if len(keep) < 3:
             raise InputError(f"{name}: leaving out the taxa with missing entries leaves {len(keep)}; "
                              "a tree needs at least 3")
-    mb, ma = before.subset(keep_b), after.subset(keep_a)
+    mb, ma = b_all.subset(keep_b), a_all.subset(keep_a)
     check_matrix(mb, source=names[0], hint=hint)
     check_matrix(ma, source=names[1], hint=hint)
     if tol is None:
@@ -186,10 +232,17 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
     neg_b, neg_a = t_before.negative_branches(), t_after.negative_branches()
     clamped_b = t_before.clamp_negative() if clamp_negative else 0
     clamped_a = t_after.clamp_negative() if clamp_negative else 0
-    # Trees are compared on the taxa both have (all of them unless some were left out).
+    # Everything is compared on the taxa both trees hold.
     common = set(keep_b) & set(keep_a)
     if len(common) < 3:
         raise InputError("fewer than 3 taxa are left in both trees")
+    compared = [lab for lab in shared if lab in common]
+    for lab in drop_b:
+        why.setdefault(lab, f"missing entries in {names[0]}")
+    for lab in drop_a:
+        why.setdefault(lab, f"missing entries in {names[1]}")
+    left_out = [lab for lab in list(before.labels) + [x for x in after.labels if x not in set(before.labels)]
+                if lab not in common]
     taxa = sorted(common)
     n = len(taxa)
     cb = t_before if len(keep_b) == n else prune(t_before, common)
@@ -197,12 +250,16 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
     sb, sa = splits(cb, taxa), splits(ca, taxa)
     nb, na = nontrivial(sb, n), nontrivial(sa, n)
     rf = len(nb ^ na)
-    vb, _ = count_violations(before.values, tol)
-    va, _ = count_violations(after.values, tol)
-    N = before.n
+    cmp_b, cmp_a = b_all.subset(compared), a_all.subset(compared)
+    vb, _ = count_violations(cmp_b.values, tol)
+    va, _ = count_violations(cmp_a.values, tol)
     report = {
-        "n": N,
+        "n": before.n,
         "n_compared": n,
+        "left_out_taxa": left_out,
+        "left_out_reasons": {lab: (reasons or {}).get(lab) or why.get(lab, "") for lab in left_out},
+        "n_tree_before": len(keep_b),
+        "n_tree_after": len(keep_a),
         "method": method,
         "tol": float(tol),
         "rf": rf,
@@ -218,19 +275,23 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
         "negative_branches_after": neg_a,
         "clamped_branches_before": clamped_b,
         "clamped_branches_after": clamped_a,
-        "tree_length_before": t_before.total_length(),
-        "tree_length_after": t_after.total_length(),
-        "cophenetic_before": cophenetic_correlation(t_before, mb),
-        "cophenetic_after": cophenetic_correlation(t_after, ma),
+        "tree_length_before": cb.total_length(),
+        "tree_length_after": ca.total_length(),
+        "cophenetic_before": cophenetic_correlation(cb, cmp_b),
+        "cophenetic_after": cophenetic_correlation(ca, cmp_a),
         "violated_triangles_before": vb,
         "violated_triangles_after": va,
-        "max_violation_before": max(0.0, max_violation(before.values)),
-        "max_violation_after": max(0.0, max_violation(after.values)),
-        "triangles": N * (N - 1) * (N - 2) // 6,
+        "max_violation_before": max(0.0, max_violation(cmp_b.values)),
+        "max_violation_after": max(0.0, max_violation(cmp_a.values)),
+        "triangles": n * (n - 1) * (n - 2) // 6,
         "dropped_taxa": drop_b,
         "dropped_taxa_after": drop_a,
     }
-    report.update(matrix_change(before, after, tol))
+    # The matrix change is a fact about the matrices: counted over every taxon
+    # both hold (n_shared), so that filled entries of left-out-of-the-tree
+    # taxa are counted too (the same figures as the repair's report).
+    report["n_shared"] = len(shared)
+    report.update(matrix_change(b_all, a_all, tol))
     if truth is not None:
         leaves = set(truth.check_labels("reference tree"))
         if leaves != set(before.labels):
@@ -239,7 +300,7 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
                              + "; ".join(([f"missing from the tree: {', '.join(missing[:5])}"] if missing else [])
                                          + ([f"not in the matrices: {', '.join(extra[:5])}"] if extra else []))
                              + ")")
-        ct = truth if n == N else prune(truth, common)
+        ct = truth if n == len(leaves) else prune(truth, common)
         st = splits(ct, taxa)
         nt = nontrivial(st, n)
         has_lengths = all(x.length is not None for x in ct.branches())
@@ -251,8 +312,18 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
             "branch_score_to_truth_before": _branch_score(sb, st) if has_lengths else None,
             "branch_score_to_truth_after": _branch_score(sa, st) if has_lengths else None,
         })
+        # A tree holding more taxa than were compared (e.g. kept with a made-up
+        # fill) is also scored on all of its own taxa, so that what the extra
+        # taxa do to it is not hidden.
+        for side, tree, keep in (("before", t_before, keep_b), ("after", t_after, keep_a)):
+            if len(keep) > n and set(keep) <= leaves:
+                own = sorted(keep)
+                so = nontrivial(splits(tree, own), len(own))
+                sto = nontrivial(splits(prune(truth, set(own)), own), len(own))
+                report[f"rf_to_truth_{side}_own_taxa"] = len(so ^ sto)
+                report[f"n_tree_{side}_scored"] = len(own)
     report["caution"] = CAUTION
-    return ImpactResult(report, before, after, t_before, t_after, truth, taxa, None, nb, na)
+    return ImpactResult(report, b_all, a_all, t_before, t_after, truth, taxa, None, nb, na)
 
 
 def prune(tree: Tree, keep: set) -> Tree:
@@ -284,41 +355,61 @@ def prune(tree: Tree, keep: set) -> Tree:
 def summary_lines(report: dict, names=("before", "after")) -> list[str]:
     """A short plain-language summary (for standard output and the html page).
 
+    Every figure is on the ``n_compared`` taxa both trees hold; taxa left
+    out are named with why.
+
     Examples
     --------
-    >>> summary_lines({"entries": 10, "entries_changed": 1, "rf": 2, "rf_max": 4, "n": 5,
+    >>> summary_lines({"entries": 10, "entries_measured": 10, "entries_changed": 1, "entries_filled": 0,
+    ...                "rf": 2, "rf_max": 4, "n": 5, "n_compared": 5, "triangles": 10,
     ...                "splits_only_before": [["a", "b"]], "splits_only_after": [["a", "c"]],
     ...                "violated_triangles_before": 3, "violated_triangles_after": 0,
     ...                "negative_branches_before": 0, "negative_branches_after": 0,
     ...                "branch_score": 0.5, "max_change": 1.0})[0]
-    '1 of 10 entries changed (largest change 1); 1 split differs (Robinson-Foulds 2 of at most 4).'
+    'On the 5 taxa of both matrices: 1 of 10 measured entries changed (largest change 1).'
     """
     r = report
     ob, oa = len(r["splits_only_before"]), len(r["splits_only_after"])
     nsplit = max(ob, oa)
     lines = []
-    first = f"{r['entries_changed']:,} of {r['entries']:,} entries changed"
+    measured = r.get("entries_measured", r["entries"])
+    scope = r.get("n_shared", r["n_compared"])
+    first = f"On the {scope:,} taxa of both matrices: {r['entries_changed']:,} of {measured:,} measured entries changed"
     if r["entries_changed"]:
         first += f" (largest change {r['max_change']:.4g})"
+    if r.get("entries_filled"):
+        first += f", {r['entries_filled']:,} missing entries filled"
+    lines.append(first + ".")
+    second = f"On the {r['n_compared']:,} taxa both trees hold: "
     if r["rf"] == 0:
-        first += "; the two trees have the same topology."
+        second += "the two trees have the same topology."
     else:
         detail = "" if ob == oa else f"{ob} only {names[0]}, {oa} only {names[1]}; "
-        first += (f"; {nsplit:,} split{'s differ' if nsplit != 1 else ' differs'} "
-                  f"({detail}Robinson-Foulds {r['rf']:,} of at most {r['rf_max']:,}).")
-    lines.append(first)
+        second += (f"{nsplit:,} split{'s differ' if nsplit != 1 else ' differs'} "
+                   f"({detail}Robinson-Foulds {r['rf']:,} of at most {r['rf_max']:,}).")
+    lines.append(second)
     lines.append(f"Violated triangles: {r['violated_triangles_before']:,} {names[0]}, "
-                 f"{r['violated_triangles_after']:,} {names[1]}. "
+                 f"{r['violated_triangles_after']:,} {names[1]} (of {r['triangles']:,}). "
                  f"Negative branches: {r['negative_branches_before']} {names[0]}, "
                  f"{r['negative_branches_after']} {names[1]}. "
                  f"Branch score distance {r['branch_score']:.4g}.")
-    for key, which in (("dropped_taxa", names[0]), ("dropped_taxa_after", names[1])):
-        if r.get(key):
-            lines.append(f"Left out of the {which} tree (missing entries): {', '.join(r[key])}; "
-                         f"the trees are compared on the other {r['n_compared']:,} taxa.")
+    left = r.get("left_out_taxa") or []
+    if left:
+        reasons = r.get("left_out_reasons") or {}
+        groups: dict[str, list] = {}
+        for lab in left:
+            groups.setdefault(reasons.get(lab, ""), []).append(lab)
+        parts = [f"{', '.join(labs[:8])}{f' and {len(labs) - 8} more' if len(labs) > 8 else ''}"
+                 + (f" ({why})" if why else "") for why, labs in groups.items()]
+        lines.append(f"Left out of the comparison: {'; '.join(parts)}.")
     if "rf_to_truth_before" in r:
-        lines.append(f"Against the reference tree: Robinson-Foulds {r['rf_to_truth_before']} {names[0]}, "
-                     f"{r['rf_to_truth_after']} {names[1]}.")
+        lines.append(f"Against the reference tree, on the same {r['n_compared']:,} taxa: Robinson-Foulds "
+                     f"{r['rf_to_truth_before']} {names[0]}, {r['rf_to_truth_after']} {names[1]}.")
+        for side, name in (("before", names[0]), ("after", names[1])):
+            key = f"rf_to_truth_{side}_own_taxa"
+            if key in r:
+                lines.append(f"The {name} tree holds {r[f'n_tree_{side}_scored']:,} taxa; on all of them its "
+                             f"Robinson-Foulds distance to the reference tree is {r[key]}.")
     if "support_summary" in r:
         lines.append(r["support_summary"])
     return lines

@@ -10,11 +10,13 @@ its support among the before-replicates and among the after-replicates, so
 one can see whether a split that the repair removed (or created) was ever
 well supported.
 
-A replicate whose distances have missing entries (a pair saturated or with
-no shared column in that resample) has no "before" tree; it still has an
-"after" tree, because repair fills missing entries. Support before repair is
-then the fraction of the replicates that have a before tree (the count is
-reported).
+A replicate whose distances have missing entries among the taxa of the
+before tree (a pair saturated or with no shared column in that resample) has
+no "before" tree; it still has an "after" tree when the repair fills them
+from evidence (a path of measured entries). A replicate in which the repair
+leaves out a taxon of the after tree (no measured distance joins it to the
+others in that resample) has no "after" tree. Support is the fraction of the
+replicates that have the tree (both counts are reported).
 
 Replicates run in separate processes (``concurrent.futures``, "spawn"
 start, so no compiled-kernel thread pools are forked). Replicate ``k`` uses
@@ -40,8 +42,8 @@ def _init(aln, options):
     _STATE["options"] = options
 
 
-def _replicate(key) -> tuple[list, list, bool]:
-    """One replicate: (splits of the before tree, of the after tree, had a before tree).
+def _replicate(key) -> tuple[list, list, bool, bool]:
+    """One replicate: (splits of the before tree, of the after tree, had a before tree, had an after tree).
 
     ``key`` is ``(entropy, *spawn_key)`` of the replicate's SeedSequence.
     """
@@ -63,10 +65,19 @@ def _replicate(key) -> tuple[list, list, bool]:
     ok = not sub.has_missing
     if ok:
         before = sorted(nontrivial(splits(_on(build_tree(sub, o["method"]), taxa), taxa), n))
-    fixed = repair(dm, o["objective"], seed=int(ss.generate_state(1)[0]), progress=False).matrix
+    import warnings
+
+    from ..errors import DataWarning
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DataWarning)  # one per replicate would drown the log
+        fixed = repair(dm.subset(o["keep_after"]), o["objective"], seed=int(ss.generate_state(1)[0]),
+                       progress=False, keep_unmeasured=o["keep_unmeasured"]).matrix
+    if fixed.n < len(o["keep_after"]):
+        return before, [], ok, False
     tree = build_tree(fixed.subset(o["keep_after"]), o["method"])
     after = sorted(nontrivial(splits(_on(tree, taxa), taxa), n))
-    return before, after, ok
+    return before, after, ok, True
 
 
 def _on(tree, taxa):
@@ -79,7 +90,7 @@ def _on(tree, taxa):
 def split_support(alignment, labels, *, replicates: int, model: str, objective: str, method: str = "nj",
                   seed: int = 0, gamma: float | None = None, gaps: str = "pairwise",
                   workers: int | None = None, keep_before=None, keep_after=None,
-                  compared=None) -> tuple[dict, dict, int]:
+                  compared=None, keep_unmeasured: bool = False) -> tuple[dict, dict, int, int]:
     """Count, over bootstrap replicates, how often each split appears.
 
     Parameters
@@ -97,13 +108,16 @@ def split_support(alignment, labels, *, replicates: int, model: str, objective: 
         Base seed.
     workers : int, optional
         Worker processes (default: the number of cores; 1 runs in this process).
+    keep_unmeasured : bool
+        As for :func:`seqdist.repair.repair`, for the repair of each replicate.
 
     Returns
     -------
-    (before_counts, after_counts, n_before)
+    (before_counts, after_counts, n_before, n_after)
         Split bitset (bit order: ``sorted(labels)``) -> number of replicates
-        containing it, for the before and after trees; ``n_before`` is the
-        number of replicates that had a before tree.
+        containing it, for the before and after trees; ``n_before`` and
+        ``n_after`` are the numbers of replicates that had a before and an
+        after tree.
     """
     from ..console import Progress
 
@@ -111,19 +125,21 @@ def split_support(alignment, labels, *, replicates: int, model: str, objective: 
     aln = alignment.subset(list(labels))
     options = {"model": model, "objective": objective, "method": method, "gamma": gamma, "gaps": gaps,
                "taxa": taxa, "keep_before": list(keep_before if keep_before is not None else labels),
-               "keep_after": list(keep_after if keep_after is not None else labels)}
+               "keep_after": list(keep_after if keep_after is not None else labels),
+               "keep_unmeasured": bool(keep_unmeasured)}
     children = np.random.SeedSequence(seed).spawn(replicates)
     keys = [(int(c.entropy), *c.spawn_key) for c in children]
     cb: dict[int, int] = {}
     ca: dict[int, int] = {}
-    n_before = 0
+    n_before = n_after = 0
     workers = workers or os.cpu_count() or 1
     workers = max(1, min(workers, replicates))
 
     def tally(result):
-        nonlocal n_before
-        before, after, ok = result
+        nonlocal n_before, n_after
+        before, after, ok, ok_after = result
         n_before += ok
+        n_after += ok_after
         for m in before:
             cb[m] = cb.get(m, 0) + 1
         for m in after:
@@ -148,18 +164,20 @@ def split_support(alignment, labels, *, replicates: int, model: str, objective: 
                 for result in pool.map(_replicate, keys, chunksize=max(1, replicates // (8 * workers))):
                     tally(result)
                     bar.update(1)
-    return cb, ca, n_before
+    return cb, ca, n_before, n_after
 
 
-def add_support(res, alignment_path: str, *, replicates: int, model: str, objective: str, seed: int = 0,
+def add_support(res, alignment, *, replicates: int, model: str, objective: str, seed: int = 0,
                 gamma: float | None = None, gaps: str = "pairwise", workers: int | None = None,
-                clamp_negative: bool = False) -> None:
+                clamp_negative: bool = False, keep_unmeasured: bool = False) -> None:
     """Add split support to an :class:`~seqdist.trees.impact.ImpactResult` (in place).
 
     Adds ``report["support"]`` (the settings and, for every split of the
     two main trees, its support before and after repair), a one-line
     ``report["support_summary"]`` and ``res.support`` (bitset -> (before,
-    after) fractions) for the html page.
+    after) fractions) for the html page. ``alignment`` is an
+    :class:`~seqdist.alignment.Alignment` (as read for the distances, with
+    the same format and alphabet) or a file path read with the defaults.
     """
     from ..alignment import read_alignment
     from ..console import warn
@@ -172,13 +190,16 @@ def add_support(res, alignment_path: str, *, replicates: int, model: str, object
         raise InputError(f"unknown repair objective '{objective}' (choose from {', '.join(OBJECTIVES)})")
     if replicates < 1:
         raise InputError("--bootstrap needs at least 1 replicate")
-    aln = read_alignment(alignment_path)
+    if isinstance(alignment, str):
+        alignment_path, aln = alignment, read_alignment(alignment)
+    else:
+        aln = alignment
+        alignment_path = getattr(aln, "source", None) or "the alignment"
     la, lm = set(aln.labels), set(res.before.labels)
-    if la != lm:
-        only_a, only_m = sorted(la - lm), sorted(lm - la)
-        parts = ([f"only in the alignment: {', '.join(only_a[:5])}"] if only_a else []) + \
-                ([f"only in the matrices: {', '.join(only_m[:5])}"] if only_m else [])
-        raise InputError(f"{alignment_path}: the record ids differ from the matrix labels (" + "; ".join(parts) + ")")
+    if not lm <= la:
+        only_m = sorted(lm - la)
+        raise InputError(f"{alignment_path}: the record ids differ from the matrix labels "
+                         f"(only in the matrices: {', '.join(only_m[:5])})")
     # The support refers to ALN + model: say so when BEFORE is not that matrix.
     full = pairwise_distances(aln.subset(list(res.before.labels)), model, gamma=gamma, gaps=gaps, variance=False,
                               progress=False, warn=False).matrix
@@ -186,17 +207,19 @@ def add_support(res, alignment_path: str, *, replicates: int, model: str, object
     if not np.allclose(np.nan_to_num(a, nan=-1.0), np.nan_to_num(b, nan=-1.0), rtol=1e-6, atol=1e-9):
         warn(f"the BEFORE matrix is not the {model} distances of {alignment_path}; the support values "
              "describe the alignment under that model")
-    cb, ca, n_before = split_support(aln, res.before.labels, replicates=replicates, model=model,
-                                     objective=objective, method=res.report["method"], seed=seed, gamma=gamma,
-                                     gaps=gaps, workers=workers, keep_before=res.tree_before.labels(),
-                                     keep_after=res.tree_after.labels(), compared=res.taxa)
+    cb, ca, n_before, n_after = split_support(aln, res.before.labels, replicates=replicates, model=model,
+                                              objective=objective, method=res.report["method"], seed=seed,
+                                              gamma=gamma, gaps=gaps, workers=workers,
+                                              keep_before=res.tree_before.labels(),
+                                              keep_after=res.tree_after.labels(), compared=res.taxa,
+                                              keep_unmeasured=keep_unmeasured)
     taxa = res.taxa
     sb, sa = res.splits_before, res.splits_after
     support = {}
     rows = []
     for m in sorted(sb | sa, key=lambda m: (m.bit_count(), split_labels(m, taxa))):
         fb = cb.get(m, 0) / n_before if n_before else 0.0
-        fa = ca.get(m, 0) / replicates
+        fa = ca.get(m, 0) / n_after if n_after else 0.0
         support[m] = (fb, fa)
         rows.append({"taxa": split_labels(m, taxa), "in_before_tree": m in sb, "in_after_tree": m in sa,
                      "support_before": fb, "support_after": fa})
@@ -204,6 +227,7 @@ def add_support(res, alignment_path: str, *, replicates: int, model: str, object
     res.report["support"] = {
         "replicates": replicates,
         "replicates_with_before_tree": n_before,
+        "replicates_with_after_tree": n_after,
         "model": model,
         "gamma": gamma,
         "gaps": gaps,
@@ -218,7 +242,7 @@ def add_support(res, alignment_path: str, *, replicates: int, model: str, object
     only_b = [support[m][0] for m in sorted(sb - sa, key=lambda m: -support[m][0])]
     only_a = [support[m][1] for m in sorted(sa - sb, key=lambda m: -support[m][1])]
     shared = sorted(sb & sa)
-    text = f"Bootstrap ({replicates} replicates, {n_before} with a before tree): "
+    text = f"Bootstrap ({replicates} replicates, {n_before} with a before tree, {n_after} with an after tree): "
     if only_b or only_a:
         text += (f"splits only in the before tree had support {pct(only_b) or 'none'} before repair; "
                  f"splits only in the after tree had support {pct(only_a) or 'none'} after repair")
