@@ -608,7 +608,7 @@ def _encode(labels: list, seqs: list, alphabet: str, name: str, lines) -> Alignm
         raise InputError(f"{name}: no residues, only gap symbols")
     nuc = int(hist[_NUC_LETTERS].sum())
     if alphabet == "auto":
-        alphabet = "dna" if nuc >= 0.9 * letters else "protein"
+        alphabet = _alphabet_from_hist(hist)
     elif alphabet == "dna" and nuc < 0.5 * letters:
         from .console import warn
 
@@ -617,6 +617,28 @@ def _encode(labels: list, seqs: list, alphabet: str, name: str, lines) -> Alignm
     codes = _LUT[alphabet][raw]
     codes.setflags(write=False)
     return Alignment(tuple(str(x) for x in labels), codes, alphabet, name)
+
+
+def _alphabet_from_hist(hist: np.ndarray) -> str:
+    # DNA when at least 90% of the letters are A C G T U N (common practice).
+    return "dna" if int(hist[_NUC_LETTERS].sum()) >= 0.9 * int(hist[_LETTERS].sum()) else "protein"
+
+
+def guess_alphabet(sequences: Sequence[str]) -> str:
+    """``"dna"`` when at least 90% of the letters are ``A C G T U N`` (case ignored), else ``"protein"``.
+
+    The rule :func:`read_alignment` applies with ``alphabet="auto"`` (common
+    practice); gaps and other symbols are not letters and do not count.
+
+    Examples
+    --------
+    >>> guess_alphabet(["ACGTN-", "acgu"]), guess_alphabet(["MKVLW"])
+    ('dna', 'protein')
+    """
+    hist = np.zeros(256, dtype=np.int64)
+    for s in sequences:
+        hist += np.bincount(np.frombuffer(s.encode("utf-8", "replace"), dtype=np.uint8), minlength=256)
+    return _alphabet_from_hist(hist)
 
 
 def _fasta_line(seqs, lines, i, k):

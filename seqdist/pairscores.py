@@ -29,6 +29,14 @@ a non-positive self-score, an empty local alignment) become missing entries
 named in a warning; negative values (S_ab above S_max) are set to 0, also
 with a warning.
 
+The substitution matrix must suit the sequences: the alphabet is detected as
+for alignments (:func:`seqdist.alignment.guess_alphabet`: DNA when at least
+90% of the letters are A C G T U N), and without a matrix given, DNA is
+aligned under ``NUC.4.4`` (+5 match, -4 mismatch, IUPAC codes scored) and
+protein under ``BLOSUM62``. A given matrix must hold every letter of the
+sequences (else an error names the file, record and first letter it lacks);
+a protein matrix given for DNA sequences (or the reverse) gives a warning.
+
 Pairs are spread over worker processes in chunks; results are put back by
 pair index, so the output does not depend on the number of processes.
 """
@@ -46,6 +54,9 @@ from .errors import InputError
 
 FORMULAS = ("fd", "cosine")
 MODES = ("global", "local")
+ALPHABETS = ("auto", "dna", "protein")
+# Default matrix by alphabet: both ship with Biopython (NUC.4.4: +5/-4 with the IUPAC codes).
+DEFAULT_MATRIX = {"dna": "NUC.4.4", "protein": "BLOSUM62"}
 
 
 # ----------------------------------------------------------------- input
@@ -183,6 +194,8 @@ class ScoreDistances:
     random_scores: np.ndarray   # (n, n) S_rand for formula fd (NaN otherwise)
     missing: list               # [(id_a, id_b, reason)]
     clipped: list               # [(id_a, id_b, value)]
+    matrix: str = ""            # name of the substitution matrix used
+    alphabet: str = ""          # "dna" or "protein" (detected or forced)
 
 
 def distances_from_scores(scores: np.ndarray, random_scores: np.ndarray | None, formula: str,
@@ -259,9 +272,21 @@ def default_processes() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix="BLOSUM62", *, mode: str = "global",
+def _matrix_kind(letters) -> str | None:
+    """"protein" when the matrix scores all 20 amino acids, "dna" when it holds only nucleotide codes."""
+    from .alignment import DNA_AMBIGUITY, PROTEIN_STATES
+
+    have = {a.upper() for a in letters}
+    if set(PROTEIN_STATES) <= have:
+        return "protein"
+    if set("ACGT") <= have and have <= set("ACGTUN") | set(DNA_AMBIGUITY) | set("X*-"):
+        return "dna"
+    return None
+
+
+def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix=None, *, mode: str = "global",
                     gap_open: float = 11.0, gap_extend: float = 1.0, formula: str = "fd",
-                    free_end_gaps: bool = False,
+                    free_end_gaps: bool = False, alphabet: str = "auto",
                     processes: int | None = 1, chunk_size: int | None = None, progress: bool = True,
                     source: str | None = None, record_lines: Sequence[int] | None = None) -> ScoreDistances:
     """Alignment-score distances between all pairs of unaligned sequences.
@@ -270,10 +295,15 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix="BLOSUM62", 
     ----------
     ids, seqs : sequences of str
         Record ids (labels) and sequences (upper case, no gaps).
-    matrix : str or ScoreMatrix
+    matrix : str or ScoreMatrix, optional
         A standard matrix name, a score matrix file, or a loaded
         :class:`~seqdist.scores.ScoreMatrix`; must be symmetric with
-        one-character letters.
+        one-character letters and hold every letter of the sequences.
+        Default: ``NUC.4.4`` for DNA, ``BLOSUM62`` for protein.
+    alphabet : {"auto", "dna", "protein"}
+        ``auto`` calls the sequences DNA when at least 90% of their letters
+        are A C G T U N (as for alignments). For DNA, ``U`` is read as ``T``
+        when the matrix has ``T`` but no ``U``.
     mode : {"global", "local"}
     gap_open, gap_extend : float
         Gap costs (positive numbers): a gap of length k costs
@@ -293,8 +323,10 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix="BLOSUM62", 
     Examples
     --------
     >>> r = score_distances(["a", "b"], ["MKVLA", "MKVLA"], progress=False)
-    >>> r.dm["a", "b"]
-    0.0
+    >>> r.dm["a", "b"], r.matrix
+    (0.0, 'BLOSUM62')
+    >>> score_distances(["a", "b"], ["ACGTAC", "ACGTTC"], progress=False).matrix
+    'NUC.4.4'
     """
     from .console import Progress
     from .matrix import DistanceMatrix
@@ -307,7 +339,27 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix="BLOSUM62", 
     for what, v in (("--gap-open", gap_open), ("--gap-extend", gap_extend)):
         if not math.isfinite(v) or v < 0:
             raise InputError(f"{what} must be a non-negative number of score units (got {v})")
+    from .alignment import guess_alphabet
+
+    if alphabet not in ALPHABETS:
+        raise InputError(f"unknown alphabet '{alphabet}' (choose from {', '.join(ALPHABETS)})")
+    if processes is not None and (isinstance(processes, bool) or int(processes) != processes or processes < 1):
+        raise InputError(f"--processes must be a whole number of at least 1 (got {processes})")
+    where = f"{source}: " if source else ""
+    kind = guess_alphabet(seqs) if alphabet == "auto" else alphabet
+    if matrix is None:
+        matrix = DEFAULT_MATRIX[kind]
     sm = matrix if isinstance(matrix, ScoreMatrix) else load_score_matrix(str(matrix))
+    mkind = _matrix_kind(sm.letters)
+    if mkind is not None and mkind != kind:
+        from .console import warn
+
+        how = "detected" if alphabet == "auto" else "forced with --alphabet"
+        warn(f"{where}the sequences are {'DNA' if kind == 'dna' else 'protein'} ({how}), but {sm.name} is a "
+             f"{'nucleotide' if mkind == 'dna' else 'protein'} matrix; the default for "
+             f"{'DNA' if kind == 'dna' else 'protein'} is {DEFAULT_MATRIX[kind]}")
+    if kind == "dna" and "T" in sm.letters and "U" not in sm.letters and any("U" in s for s in seqs):
+        seqs = [s.replace("U", "T") for s in seqs]  # RNA read as DNA, as in alignments
     if any(len(a) != 1 for a in sm.letters):
         raise InputError(f"{sm.name}: sequence alignment needs one-character letters")
     S = sm.values
@@ -316,14 +368,15 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix="BLOSUM62", 
                          "depend on the order of the pair")
     letters = "".join(sm.letters)
     ok = set(letters)
-    where = f"{source}: " if source else ""
     for k, (rid, s) in enumerate(zip(ids, seqs)):
         bad = set(s) - ok
         if bad:
             first = min(bad, key=s.index)
             at = f" (line {record_lines[k]})" if record_lines is not None else ""
             raise InputError(f"{where}record '{rid}'{at}: letter '{first}' (position {s.index(first) + 1}) "
-                             f"is not in score matrix {sm.name} (letters: {letters})")
+                             f"is not in score matrix {sm.name} (letters: {letters}); the sequences read as "
+                             f"{'DNA' if kind == 'dna' else 'protein'}: give a matrix that covers every letter "
+                             "with --matrix")
         try:
             s.encode("latin-1")
         except UnicodeEncodeError:  # pragma: no cover - caught above as a letter not in the matrix
@@ -334,8 +387,6 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix="BLOSUM62", 
     pairs = np.stack(iu, axis=1).astype(np.intp)
     selfp = np.stack([np.arange(n), np.arange(n)], axis=1).astype(np.intp)
     procs = default_processes() if processes is None else int(processes)
-    if procs < 1:
-        raise InputError(f"--processes must be at least 1 (got {processes})")
     npairs = len(pairs)
     auto_chunks = chunk_size is None
     if auto_chunks:
@@ -383,8 +434,8 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix="BLOSUM62", 
     missing = [(ids[i], ids[j], why) for (i, j), why in sorted(reasons.items())]
     clip = [(ids[i], ids[j], v) for (i, j), v in sorted(clipped.items())]
     dm = DistanceMatrix.from_array(D, list(ids), source=source)
-    return ScoreDistances(dm, scores, rand, missing, clip)
+    return ScoreDistances(dm, scores, rand, missing, clip, matrix=sm.name, alphabet=kind)
 
 
 __all__ = ["read_fasta", "score_distances", "distances_from_scores", "ScoreDistances", "FORMULAS", "MODES",
-           "default_processes"]
+           "ALPHABETS", "DEFAULT_MATRIX", "default_processes"]

@@ -211,3 +211,84 @@ def test_free_end_gaps():
                         progress=False)
     assert r.scores[0, 1] == 14 and r.scores[1, 1] == 18
     assert r.dm["a", "b"] == pytest.approx(1 - 14 / math.sqrt(14 * 18))
+
+
+# ----------------------------------------------------------------- alphabet and default matrix
+DNA = {"d1": "ACGTACGTTAGCCGATAGCT", "d2": "ACGTACGTTAGCCGTTAGCT", "d3": "ACGAACGTTAGGCGATAGC", "d4": "TTGTACCTTAGCCGA"}
+
+
+def test_dna_gets_a_nucleotide_matrix_by_default():
+    # DNA is detected as for alignments (>= 90% A C G T U N, common practice) and aligned under
+    # NUC.4.4 (+5/-4, shipped with Biopython); reference: Biopython's PairwiseAligner with that matrix.
+    m = substitution_matrices.load("NUC.4.4")
+    ids, seqs = list(DNA), list(DNA.values())
+    r = score_distances(ids, seqs, progress=False)
+    assert r.matrix == "NUC.4.4" and r.alphabet == "dna"
+    al = PairwiseAligner(mode="global", substitution_matrix=m, open_gap_score=-11, extend_gap_score=-1)
+    for i in range(len(ids)):
+        for j in range(len(ids)):
+            assert r.scores[i, j] == al.score(seqs[i], seqs[j])
+    # Proteins keep BLOSUM62; RNA reads U as T under the nucleotide matrix.
+    assert score_distances(list(PROTEINS), list(PROTEINS.values()), progress=False).matrix == "BLOSUM62"
+    rna = score_distances(["a", "b"], ["ACGUACGU", "ACGUACGA"], progress=False)
+    dna = score_distances(["a", "b"], ["ACGTACGT", "ACGTACGA"], progress=False)
+    assert rna.matrix == "NUC.4.4" and rna.dm.equals(dna.dm)
+    # Forcing the alphabet picks the other default.
+    assert score_distances(ids, seqs, alphabet="protein", progress=False).matrix == "BLOSUM62"
+
+
+def test_protein_matrix_for_dna_warns():
+    from seqdist.errors import DataWarning
+
+    with pytest.warns(DataWarning, match=r"s\.fa: the sequences are DNA .*BLOSUM62 is a protein matrix.*NUC\.4\.4"):
+        r = score_distances(list(DNA), list(DNA.values()), "BLOSUM62", source="s.fa", progress=False)
+    assert r.matrix == "BLOSUM62"
+
+
+def test_matrix_must_cover_every_letter_and_processes_must_be_positive():
+    with pytest.raises(InputError, match=r"s\.fa: record 'b' \(line 3\): letter 'G' \(position 3\) is not in "
+                                         r"score matrix tiny .*--matrix"):
+        score_distances(["a", "b"], ["ACCA", "ACGA"], TINY, source="s.fa", record_lines=[1, 3], progress=False)
+    for bad in (0, -1, 1.5):
+        with pytest.raises(InputError, match="--processes"):
+            score_distances(["a", "b"], ["MKV", "MKL"], processes=bad, progress=False)
+
+
+def test_cli_dna_default_matrix_json_and_help(tmp_path, cli):
+    fa = tmp_path / "d.fasta"
+    write_fasta(fa, DNA)
+    out, js = tmp_path / "d.tsv", tmp_path / "d.json"
+    r = cli("pairscores", fa, "-o", out, "--json", js, "--processes", "1")
+    assert r.returncode == 0, r.stderr
+    info = json.load(open(js))
+    assert info["matrix"] == "NUC.4.4" and info["alphabet"] == "dna" and "warning" not in r.stderr
+    first = (out.read_bytes(), js.read_bytes())
+    assert cli("pairscores", fa, "-o", out, "--json", js, "--processes", "1").returncode == 0
+    assert (out.read_bytes(), js.read_bytes()) == first  # byte-identical, JSON included (no run time in it)
+    r = cli("pairscores", fa, "-o", out, "--matrix", "BLOSUM62")
+    assert r.returncode == 0 and [ln for ln in r.stderr.splitlines() if "warning" in ln] == [
+        f"seqdist: warning: {fa}: the sequences are DNA (detected), but BLOSUM62 is a protein matrix; "
+        "the default for DNA is NUC.4.4"]
+    h = cli("pairscores", "--help").stdout
+    assert "NUC.4.4" in h and "--alphabet" in h
+
+
+@pytest.mark.parametrize("value", ["0", "-1", "two"])
+def test_cli_processes_must_be_positive(tmp_path, cli, value):
+    fa = tmp_path / "p.fasta"
+    write_fasta(fa, PROTEINS)
+    r = cli("pairscores", fa, "-o", tmp_path / "d.tsv", "--processes", value)
+    assert r.returncode == 2
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("seqdist: error: argument --processes: ")
+    assert not (tmp_path / "d.tsv").exists()
+
+
+def test_cli_letter_not_covered_names_file_and_letter(tmp_path, cli):
+    fa = tmp_path / "x.fasta"
+    fa.write_text(">a\nACGTACGTAC\n>b\nACGTAXGTAC\n")
+    r = cli("pairscores", fa, "-o", tmp_path / "d.tsv")
+    assert r.returncode == 2
+    line = r.stderr.strip()
+    assert line.startswith(f"seqdist: error: {fa}: record 'b' (line 3): letter 'X' (position 6) is not in "
+                           "score matrix NUC.4.4") and "--matrix" in line
