@@ -23,7 +23,9 @@ models:
 A pair is compared over the columns where both sequences hold an unambiguous
 residue (--gaps pairwise), or over the columns unambiguous in every sequence
 (--gaps complete). A pair with no shared column, or whose correction is
-undefined (saturated), is a missing entry (NA), named in one warning.
+undefined (saturated), is a missing entry (NA), named in one warning. The limit
+is decided exactly from the integer counts: a pair exactly at it (k80: columns
+= 2 transitions + transversions) is missing, one count short of it is defined.
 Formulas and sources: docs/distances.md.
 
 examples:
