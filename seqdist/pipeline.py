@@ -66,7 +66,7 @@ def inverse_variance_weights(variance, matrix):
     >>> from seqdist import DistanceMatrix
     >>> v = DistanceMatrix.from_array([[0, .01, .04], [.01, 0, .01], [.04, .01, 0]], list("abc"))
     >>> w = inverse_variance_weights(v, v)
-    >>> round(w.values[0, 1] / w.values[0, 2], 6)
+    >>> round(float(w.values[0, 1] / w.values[0, 2]), 6)
     4.0
     """
     from .matrix import DistanceMatrix
@@ -517,11 +517,14 @@ def job_section(job: dict) -> str:
     left = r.get("left_out_taxa") or []
     left_text = (f" {_names(left)} left out (no measured distance to the others); the repair is on the "
                  f"other {r.get('n', 0):,} taxa." if left else "")
-    r_tri = r.get("n", 0) * (r.get("n", 0) - 1) * (r.get("n", 0) - 2) // 6
+    r_tri = r.get("triangles", 0)
+    r_checked = r.get("checked_triangles_before", r_tri)
+    before_of = f" of {r_checked:,} checked" if r_checked < r_tri else ""
     rows.append(f"<p><b>Repair.</b> Objective <code>{_esc(job['objective'])}</code>"
                 f"{' weighted by inverse variance' if job['weighted'] else ''}:{left_text} "
                 f"{r.get('changed_entries', 0):,} of {r.get('observed_entries', pairs):,} measured entries changed, "
                 f"{filled_text}; objective value {r.get('objective_value', 0):.6g} ({bound}); violated triangles "
-                f"{r.get('violated_before', 0):,} before, {r.get('violated_after', 0):,} after (of {r_tri:,}). "
+                f"{r.get('violated_before', 0):,}{before_of} before, {r.get('violated_after', 0):,} after "
+                f"(of {r_tri:,}). "
                 "Each changed or filled entry is listed in <code>changes.tsv</code>, with how it was made.</p>")
     return '<h2>From alignment to metric</h2><div class="summary">' + "".join(rows) + "</div>"

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ._shared import add_matrix_in, add_subcommand, add_tol
+from ._shared import add_matrix_in, add_seed, add_subcommand, add_tol, nonneg_int, positive_float, positive_int
 
 
 def register(subs, common):
@@ -12,7 +12,10 @@ def register(subs, common):
         "Robinson-Foulds distance (unrooted, non-trivial splits in one tree and not the other,\n"
         "summed over both), branch score distance, the splits found in only one tree, negative\n"
         "branches, tree lengths, cophenetic correlations, entries changed and violated triangles.\n"
-        "The two matrices must have the same labels (the order may differ).\n\n"
+        "The two matrices must have the same labels (the order may differ), or one may lack\n"
+        "some taxa of the other (a repair leaves out taxa with no measured distance to the\n"
+        "rest); every comparison is made on the taxa both trees hold, and the report names\n"
+        "the others (left_out_taxa) and says how many were compared (n_compared).\n\n"
         "With --alignment ALN --bootstrap B (plus --model, --objective, --seed), the alignment's\n"
         "columns are resampled B times; each replicate's distances are computed, repaired, and both\n"
         "trees rebuilt, giving every split its support before and after repair.\n\n"
@@ -41,33 +44,35 @@ def register(subs, common):
     p.add_argument("--after-tree", metavar="FILE", default=None, help="also write the AFTER tree as Newick")
     g = p.add_argument_group("split support (bootstrap)")
     g.add_argument("--alignment", metavar="ALN", default=None, help="the alignment the BEFORE matrix came from")
-    g.add_argument("--bootstrap", metavar="B", type=int, default=0, help="number of column resamples (e.g. 100)")
+    g.add_argument("--bootstrap", metavar="B", type=nonneg_int, default=0,
+                   help="number of column resamples (e.g. 100)")
     g.add_argument("--model", default=None, help="distance model for the replicates (as for 'seqdist distances')")
-    g.add_argument("--gamma", metavar="ALPHA", type=float, default=None, help="gamma shape for the model")
+    g.add_argument("--gamma", metavar="ALPHA", type=positive_float, default=None, help="gamma shape for the model")
     g.add_argument("--gaps", choices=("pairwise", "complete"), default="pairwise",
                    help="gap handling for the replicates (default: pairwise)")
     g.add_argument("--objective", default=None, help="repair objective for the replicates (as for 'seqdist repair')")
-    g.add_argument("--seed", type=int, default=0, help="base seed of the resampling (default: 0)")
-    g.add_argument("--workers", type=int, default=None, help="worker processes (default: the number of cores)")
+    add_seed(g, 0, "base seed of the resampling")
+    g.add_argument("--workers", type=positive_int, default=None, metavar="P",
+                   help="worker processes (default: the number of cores)")
+    g.add_argument("--keep-unmeasured", action="store_true",
+                   help="repair the replicates keeping taxa with no measured distance (as for 'seqdist repair')")
     p.set_defaults(func=_run)
 
 
 def _run(args) -> int:
     from ..errors import InputError
-    from ..io import OutputSet, read_matrix
+    from ..io import check_distinct_outputs, read_matrix
     from ..trees.impact import impact
     from ..trees.newick import read_newick_file
 
-    if args.bootstrap < 0:
-        raise InputError("--bootstrap must be a positive number of replicates")
+    check_distinct_outputs({"--json": args.json, "--html": args.html, "--before-tree": args.before_tree,
+                            "--after-tree": args.after_tree})
     if args.bootstrap and not args.alignment:
         raise InputError("--bootstrap needs --alignment ALN (the alignment the BEFORE matrix came from)")
     if args.alignment and not args.bootstrap:
         raise InputError("--alignment is only used with --bootstrap B")
     if args.bootstrap and (not args.model or not args.objective):
         raise InputError("--bootstrap needs --model (distance model) and --objective (repair objective)")
-    if args.workers is not None and args.workers < 1:
-        raise InputError("--workers must be at least 1")
     before = read_matrix(args.before, args.in_format)
     after = read_matrix(args.after, args.in_format)
     truth = read_newick_file(args.truth) if args.truth else None
@@ -78,8 +83,9 @@ def _run(args) -> int:
         raise InputError(f"--outgroup '{args.outgroup}' is not a label of {args.before}")
     res = impact(before, after, args.method, truth=truth, tol=args.tol, clamp_negative=args.clamp_negative,
                  drop_incomplete=args.drop_incomplete, names=(args.before, args.after))
-    if args.outgroup is not None and args.outgroup in res.report["dropped_taxa"]:
-        raise InputError(f"--outgroup '{args.outgroup}' was left out (missing entries); choose another")
+    if args.outgroup is not None and args.outgroup not in res.taxa:
+        why = res.report["left_out_reasons"].get(args.outgroup, "not compared")
+        raise InputError(f"--outgroup '{args.outgroup}' was left out ({why}); choose another")
     return _finish(args, res)
 
 
@@ -107,7 +113,7 @@ def _finish(args, res) -> int:
 
         add_support(res, args.alignment, replicates=args.bootstrap, model=args.model, objective=args.objective,
                     seed=args.seed, gamma=args.gamma, gaps=args.gaps, workers=args.workers,
-                    clamp_negative=args.clamp_negative)
+                    clamp_negative=args.clamp_negative, keep_unmeasured=args.keep_unmeasured)
     report = dict(res.report)
     report["before"] = args.before
     report["after"] = args.after
@@ -117,7 +123,8 @@ def _finish(args, res) -> int:
         if args.html:
             from ..trees.html import render_html
 
-            out.add_text(args.html, render_html(res, names=("before", "after"), outgroup=args.outgroup))
+            out.add_text(args.html, render_html(res, names=("before", "after"), outgroup=args.outgroup,
+                                                reference=args.truth, command=_command(args)))
         if args.before_tree:
             out.add_text(args.before_tree, res.tree_before.to_newick())
         if args.after_tree:
@@ -134,3 +141,25 @@ def _finish(args, res) -> int:
                   f"before, {report['clamped_branches_after']} after.", file=stream)
         print("Caution: " + report["caution"], file=stream)
     return 0
+
+
+def _command(args) -> str:
+    """The command that made the page, without its output paths (they do not change the page)."""
+    import shlex
+
+    parts = ["seqdist", "impact", args.before, args.after, "--method", args.method]
+    for flag, value in (("--in-format", args.in_format), ("--truth", args.truth), ("--tol", args.tol),
+                        ("--outgroup", args.outgroup)):
+        if value is not None:
+            parts += [flag, str(value)]
+    for flag, on in (("--clamp-negative", args.clamp_negative), ("--drop-incomplete", args.drop_incomplete)):
+        if on:
+            parts.append(flag)
+    if args.bootstrap:
+        parts += ["--alignment", args.alignment, "--bootstrap", str(args.bootstrap), "--model", args.model,
+                  "--objective", args.objective, "--seed", str(args.seed), "--gaps", args.gaps]
+        if args.gamma is not None:
+            parts += ["--gamma", str(args.gamma)]
+        if args.keep_unmeasured:
+            parts.append("--keep-unmeasured")
+    return shlex.join(parts)

@@ -582,6 +582,8 @@ def build_report(problem: RepairProblem, objective: str, X: np.ndarray, solution
         "max_change": float(ad.max(initial=0.0)),
         "violated_before": int(violated_before[0]),
         "violated_after": int(violated_after),
+        "triangles": n * (n - 1) * (n - 2) // 6,
+        "checked_triangles_before": checked_triangles(obs),
         "objective_value": float(objective_value),
         "lower_bound": float(solution.lower_bound),
         "optimal": bool(solution.optimal),
@@ -613,6 +615,24 @@ def build_report(problem: RepairProblem, objective: str, X: np.ndarray, solution
     if problem.n > 1000:
         rep["violated_after_by"] = "verified metric (every triangle within tol)"
     return rep
+
+
+def checked_triangles(observed: np.ndarray) -> int:
+    """Triangles whose three sides are all measured (the ones a violation count can see).
+
+    Examples
+    --------
+    >>> obs = ~np.eye(4, dtype=bool); obs[0, 1] = obs[1, 0] = False
+    >>> checked_triangles(obs)
+    2
+    """
+    n = observed.shape[0]
+    A = np.array(observed, dtype=np.float64)
+    np.fill_diagonal(A, 0.0)
+    if A.sum() == n * (n - 1):
+        return n * (n - 1) * (n - 2) // 6
+    # common measured neighbours of each measured pair, each triangle counted 6 times
+    return int(round(float(((A @ A) * A).sum()) / 6.0))
 
 
 def _wsum(w: np.ndarray, x: np.ndarray) -> float:

@@ -457,7 +457,7 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
                 made_up[pos_o[a], pos_o[b]] = made_up[pos_o[b], pos_o[a]] = True
     n_made_up = int(np.triu(made_up, 1).sum()) if made_up is not None else 0
     filled_note = (f'{_num(r["entries_filled"])} missing entries filled'
-                   + (f" ({n_made_up:,} of them without evidence)" if n_made_up else ""))
+                   + (f" ({n_made_up:,} of them filled without evidence)" if n_made_up else ""))
     out.append(f'<p class="note">after - before on the {len(order):,} taxa of both matrices, rows and columns '
                f'in the leaf order of the tree drawn above. Of {_num(r.get("entries_measured", r["entries"]))} '
                f'measured entries, {_num(r["entries_increased"])} increased and {_num(r["entries_decreased"])} '
