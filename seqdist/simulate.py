@@ -44,6 +44,27 @@ PROTEIN_MODELS = ("poisson", "poisson-f")
 # common; W, C, M, H rare) but not any published table.
 _INVENTED_PROTEIN_WEIGHTS = (8, 2, 5, 6, 4, 7, 2, 6, 6, 9, 2, 4, 5, 4, 5, 7, 5, 7, 1, 3)
 
+#: Size limits of :func:`simulate` (docs/simulator.md, "Limits"). The simulator
+#: keeps every node's states and a few per-column arrays in memory, about 25
+#: bytes per cell of the alignment (measured: 1,000 x 10,000 DNA with gamma
+#: rates and gaps peaked at 256 MB, in 13 s), so MAX_CELLS caps memory near
+#: 0.5 GB; MAX_LENGTH caps the per-branch arrays (k floats per column);
+#: MAX_TAXA caps the per-branch loop.
+MAX_TAXA = 20_000
+MAX_LENGTH = 1_000_000
+MAX_CELLS = 20_000_000
+#: More discrete gamma categories than this add nothing but matrix exponentials.
+MAX_RATE_CATEGORIES = 256
+#: Largest mean branch length (--scale) and added saturation length: far past
+#: saturation already (p within 1e-40 of its limit), and longer branches push
+#: the matrix exponential towards overflow.
+MAX_SCALE = 100.0
+MAX_SATURATE = 1000.0
+#: Most indel work: expected events over the whole tree (gap_rate x tree
+#: length x length) times expected columns, since each event costs one pass
+#: over the columns (measured: about 37 ns a column, so 2e9 is about a minute).
+MAX_INDEL_WORK = 2e9
+
 # Branch lengths are rounded to this many decimals when drawn, so the Newick
 # file (written with the same number of decimals) states the simulated tree exactly.
 BRANCH_DECIMALS = 6
@@ -108,6 +129,12 @@ class Model:
         root = np.sqrt(self.freqs)
         S = (root[:, None] * self.Q) / root[None, :]
         lam, V = np.linalg.eigh((S + S.T) / 2)
+        # An irreducible rate matrix has one zero eigenvalue (the stationary
+        # one, the largest) and the rest negative. Rounding leaves about
+        # +-1e-16 there, which a very long branch blows up to inf or to 0 (nan
+        # or all-zero rows): set it to exactly 0.
+        lam = np.minimum(lam, 0.0)
+        lam[-1] = 0.0
         left = V / root[:, None]           # D^-1/2 V
         right = V.T * root[None, :]        # V^T D^1/2
         decay = np.exp(np.outer(np.asarray(site_rates, dtype=float) * float(t), lam))
@@ -558,10 +585,7 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
     """
     rng = np.random.default_rng(seed)
     n_taxa, length = int(n_taxa), int(length)
-    if n_taxa < 3:
-        raise InputError(f"--taxa must be at least 3 (got {n_taxa})")
-    if length < 1:
-        raise InputError(f"--length must be at least 1 (got {length})")
+    check_size(n_taxa, length)
     if not prefix or not all(c.isascii() and (c.isalnum() or c == "_") for c in prefix):
         raise InputError(f"label prefix '{prefix}' must be letters, digits or underscores")
     gap_rate, gap_length = float(gap_rate), float(gap_length)
@@ -569,11 +593,27 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
         raise InputError(f"--gap-rate must be a non-negative number (got {gap_rate})")
     if not np.isfinite(gap_length) or gap_length < 1:
         raise InputError(f"--gap-length must be at least 1 (got {gap_length})")
+    if not (0 < float(scale) <= MAX_SCALE):
+        raise InputError(f"--scale must be above 0 and at most {MAX_SCALE:g} (got {scale})")
+    if gap_rate > 0:
+        # Expected events: rate x tree length (2n - 2 branches of mean `scale`) x residues.
+        events = gap_rate * (2 * n_taxa - 2) * float(scale) * length
+        columns = length + 0.5 * events * gap_length   # half the events insert a run
+        if events * columns > MAX_INDEL_WORK:
+            raise InputError(f"--gap-rate {gap_rate:g} with --gap-length {gap_length:g} means about {events:.3g} "
+                             f"indel events over about {columns:.3g} columns, more than the limit of "
+                             f"{MAX_INDEL_WORK:.3g} (events x columns, about a minute); lower --gap-rate or "
+                             "--gap-length")
+        if n_taxa * columns > MAX_CELLS:
+            raise InputError(f"--gap-rate {gap_rate:g} with --gap-length {gap_length:g} inserts about "
+                             f"{columns - length:.3g} columns; {n_taxa} taxa x {columns:.3g} columns is more "
+                             f"than the limit of {MAX_CELLS} cells; lower --gap-rate or --gap-length")
     m = make_model(alphabet, model, kappa, freqs)
     cats = None
     if alpha is not None:
-        if int(rate_categories) < 0:
-            raise InputError(f"--rate-categories must be 0 (continuous) or positive (got {rate_categories})")
+        if int(rate_categories) < 0 or int(rate_categories) > MAX_RATE_CATEGORIES:
+            raise InputError(f"--rate-categories must be 0 (continuous) or from 1 to {MAX_RATE_CATEGORIES} "
+                             f"(got {rate_categories})")
         if int(rate_categories) > 0:
             cats = gamma_rates(alpha, int(rate_categories))
         elif not np.isfinite(float(alpha)) or float(alpha) <= 0:
@@ -592,6 +632,9 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
         if keep.size >= length:
             break
         root_length += (length - keep.size) + 8        # deletions won; try a longer root
+        if root_length > 20 * length + 1000 or n_taxa * root_length > MAX_CELLS:
+            raise InputError(f"deletions remove nearly every column (--gap-rate {gap_rate:g}, --gap-length "
+                             f"{gap_length:g}): lower --gap-length or --gap-rate")
     n_cols = present.shape[1]
 
     # Site rates: a category per column (discrete gamma) or a rate per column (continuous).
@@ -616,6 +659,9 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
             par = states[tree.parent[node]]
             if cat is not None:
                 P = m.transition_matrices(tree.length[node], rate_values)   # (categories, k, k)
+                if not np.isfinite(P).all():  # guarded by MAX_SCALE; never draw from nan rows
+                    raise InputError(f"branch length {tree.length[node]:g} is too long for the model "
+                                     "(lower --scale)")
                 rows = P[cat, par]
             else:
                 rows = m.transition_rows(tree.length[node], site_rate, par)
@@ -632,6 +678,39 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
               "rate_categories": None if alpha is None else int(rate_categories),
               "scale": float(scale), "clock": bool(clock), "gap_rate": gap_rate, "gap_length": gap_length}
     return Simulation(records, tree, m, site_rate[cols].copy(), params, [])
+
+
+def check_size(n_taxa: int, length: int) -> None:
+    """Refuse alignment sizes beyond the documented limits (before any work).
+
+    Limits: 3 to :data:`MAX_TAXA` taxa, 1 to :data:`MAX_LENGTH` columns and at
+    most :data:`MAX_CELLS` cells (taxa x length), so that a typo cannot ask for
+    more memory than the machine has.
+
+    Raises
+    ------
+    InputError
+        Naming the option and the limit.
+
+    Examples
+    --------
+    >>> check_size(30, 1200)
+    >>> check_size(1000, 1000000)
+    Traceback (most recent call last):
+    ...
+    seqdist.errors.InputError: --taxa 1000 x --length 1000000 is 1000000000 cells, more than the limit of 20000000 (about 0.5 GB of memory)
+    """
+    if n_taxa < 3:
+        raise InputError(f"--taxa must be at least 3 (got {n_taxa})")
+    if n_taxa > MAX_TAXA:
+        raise InputError(f"--taxa must be at most {MAX_TAXA} (got {n_taxa})")
+    if length < 1:
+        raise InputError(f"--length must be at least 1 (got {length})")
+    if length > MAX_LENGTH:
+        raise InputError(f"--length must be at most {MAX_LENGTH} (got {length})")
+    if n_taxa * length > MAX_CELLS:
+        raise InputError(f"--taxa {n_taxa} x --length {length} is {n_taxa * length} cells, more than the "
+                         f"limit of {MAX_CELLS} (about 0.5 GB of memory)")
 
 
 def _one_blas_thread():
@@ -793,8 +872,8 @@ def plant_saturated_pair(sim: Simulation, pair: Sequence[str] | None = None, ext
     """
     rng = np.random.default_rng(rng)
     extra = float(extra)
-    if not np.isfinite(extra) or extra <= 0:
-        raise InputError(f"saturation branch length must be a positive number (got {extra})")
+    if not (0 < extra <= MAX_SATURATE):
+        raise InputError(f"saturation branch length must be above 0 and at most {MAX_SATURATE:g} (got {extra})")
     tree_pos = {lab: i for i, lab in enumerate(sim.tree.labels)}
     if pair is None:
         free = _free_labels(sim)
@@ -906,4 +985,5 @@ def summary(sim: Simulation, seed: int | None = None) -> dict:
 
 __all__ = ["Model", "TrueTree", "Simulation", "hky85", "k80", "protein_poisson", "make_model", "gamma_rates",
            "random_tree", "simulate", "plant_gappy", "plant_chimera", "plant_saturated_pair",
-           "format_fasta", "format_stockholm", "summary", "DNA_LETTERS", "PROTEIN_LETTERS"]
+           "format_fasta", "format_stockholm", "summary", "check_size", "DNA_LETTERS", "PROTEIN_LETTERS",
+           "MAX_TAXA", "MAX_LENGTH", "MAX_CELLS", "MAX_INDEL_WORK"]

@@ -29,6 +29,7 @@ import sys
 import numpy as np
 import pytest
 
+from seqdist.errors import InputError
 from seqdist.simulate import (format_fasta, format_stockholm, gamma_rates, hky85, k80, make_model,
                               plant_chimera, plant_gappy, plant_saturated_pair, protein_poisson,
                               random_tree, simulate)
@@ -394,14 +395,34 @@ def test_format_stockholm_marks_insert_columns():
 
 # -------------------------------------------------------------- bad options
 @pytest.mark.parametrize("args, needle", [
-    (["--taxa", "2", "--length", "10"], "--taxa must be at least 3"),
-    (["--taxa", "5", "--length", "0"], "--length must be at least 1"),
-    (["--taxa", "5", "--length", "10", "--kappa", "-1"], "kappa must be a positive number"),
+    (["--taxa", "2", "--length", "10"], "argument --taxa: must be an integer from 3 to 20000, got 2"),
+    (["--taxa", "5", "--length", "0"], "argument --length: must be an integer from 1 to 1000000, got 0"),
+    (["--taxa", "5", "--length", "10", "--kappa", "-1"], "argument --kappa: must be a finite positive number"),
     (["--taxa", "5", "--length", "10", "--gappy", "t99"], "no taxon labelled 't99'"),
     (["--taxa", "4", "--length", "10", "--gappy", "auto", "--chimera", "auto", "--saturate", "auto"],
      "needs at least 5 taxa"),
     (["--taxa", "5", "--length", "10", "--alphabet", "protein", "--model", "k80"], "not a protein model"),
-    (["--taxa", "five", "--length", "10"], "invalid int value"),
+    (["--taxa", "five", "--length", "10"], "argument --taxa: expected an integer, got 'five'"),
+    # issue 14: every numeric option is checked where it is read, and sizes that would exhaust memory are refused
+    (["--taxa", "5", "--length", "10", "--seed", "-1"], "argument --seed: a seed is an integer from 0"),
+    (["--taxa", "1000000", "--length", "1000000"], "argument --taxa: must be an integer from 3 to 20000"),
+    (["--taxa", "1000", "--length", "1000000"], "--taxa 1000 x --length 1000000 is 1000000000 cells, more than "
+                                                "the limit of 20000000"),
+    (["--taxa", "5", "--length", "2000000"], "argument --length: must be an integer from 1 to 1000000"),
+    (["--taxa", "5", "--length", "60", "--gap-rate", "1e6"], "indel events"),
+    (["--taxa", "5", "--length", "60", "--gap-rate", "100", "--gap-length", "1000"], "lower --gap-rate"),
+    (["--taxa", "5", "--length", "10", "--gap-rate", "-0.1"], "argument --gap-rate: must be a number at least 0"),
+    (["--taxa", "5", "--length", "10", "--gap-length", "0.5"], "argument --gap-length: must be a number at least 1"),
+    (["--taxa", "5", "--length", "10", "--scale", "1e300"], "argument --scale: must be a number above 0 and at most 100"),
+    (["--taxa", "5", "--length", "10", "--scale", "nan"], "argument --scale"),
+    (["--taxa", "5", "--length", "10", "--saturate", "auto", "--saturate-length", "1e300"],
+     "argument --saturate-length: must be a number above 0 and at most 1000"),
+    (["--taxa", "5", "--length", "10", "--alpha", "0.5", "--rate-categories", "100000"],
+     "argument --rate-categories: must be an integer from 0 to 256"),
+    (["--taxa", "5", "--length", "10", "--alpha", "0"], "argument --alpha: must be a finite positive number"),
+    (["--taxa", "5", "--length", "10", "--gappy-fraction", "1"], "argument --gappy-fraction: must be a number above 0"),
+    (["--taxa", "5", "--length", "10", "--freqs", "1,nan,1,1"], "argument --freqs: expected comma-separated positive"),
+    (["--taxa", "5", "--length", "10", "--stockholm-taxa", "1"], "argument --stockholm-taxa: must be an integer >= 2"),
 ])
 def test_bad_options_exit_2_one_line(tmp_path, capsys, args, needle):
     # In-process through the CLI's one error path (fast); one case below runs as a real process.
@@ -421,5 +442,43 @@ def test_bad_option_as_a_process(tmp_path):
     p = run_cli("simulate", "-o", tmp_path / "a.fasta", "--tree-out", tmp_path / "t.nwk", "--taxa", 2,
                 "--length", 10)
     assert p.returncode == 2
-    assert p.stderr.strip() == "seqdist: error: --taxa must be at least 3 (got 2)"
+    assert p.stderr.strip() == ("seqdist: error: argument --taxa: must be an integer from 3 to 20000, got 2 "
+                                "(see 'seqdist simulate --help')")
     assert list(tmp_path.iterdir()) == []
+
+
+def test_size_limits_in_the_api():
+    """The limits hold for library callers too, before anything is allocated (issue 14)."""
+    from seqdist.simulate import MAX_CELLS, check_size
+
+    with pytest.raises(InputError, match="more than the limit of 20000000"):
+        simulate(1000, 1_000_000, seed=1)
+    with pytest.raises(InputError, match="--taxa must be at most 20000"):
+        simulate(1_000_000, 10, seed=1)
+    check_size(20, MAX_CELLS // 20)        # the limits themselves are allowed
+    with pytest.raises(InputError, match="saturation branch length must be above 0 and at most 1000"):
+        plant_saturated_pair(simulate(5, 20, seed=1), ["t01", "t02"], extra=1e300, rng=0)
+
+
+@pytest.mark.parametrize("model", [k80(2.0), hky85(4.0, [0.3, 0.2, 0.2, 0.3]), protein_poisson()])
+def test_transition_rows_stay_finite_on_very_long_branches(model):
+    """Far past saturation each row is the stationary distribution (common practice: P(t) -> 1 pi^T);
+    before issue 14 a rounding-positive eigenvalue turned exp(t lambda) into inf and the rows into nan,
+    and a planted saturated pair came out as two identical rows of 'A'."""
+    k = len(model.letters)
+    rows = model.transition_rows(1e300, np.ones(k), np.arange(k))
+    assert np.isfinite(rows).all()
+    assert np.allclose(rows, np.broadcast_to(model.freqs, (k, k)), atol=1e-9)
+
+
+def test_duplicate_outputs_refused_before_work(tmp_path):
+    """Two outputs naming one file would lose one (issue 14): refused, nothing written."""
+    keep = tmp_path / "a.fasta"
+    keep.write_text("old\n")
+    for extra in (["--tree-out", keep], ["--tree-out", tmp_path / "t.nwk", "--summary-out", tmp_path / "t.nwk"],
+                  ["--tree-out", tmp_path / "t.nwk", "--stockholm-out", tmp_path / "x" / ".." / "a.fasta"]):
+        p = run_cli("simulate", "-o", keep, "--taxa", 5, "--length", 20, *extra)
+        assert p.returncode == 2, p.stderr
+        line, = p.stderr.strip().splitlines()
+        assert line.startswith("seqdist: error: --") and "both write to" in line
+        assert keep.read_text() == "old\n" and sorted(x.name for x in tmp_path.iterdir()) == ["a.fasta"]

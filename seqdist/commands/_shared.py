@@ -88,3 +88,51 @@ def nonneg_float(text: str) -> float:
 def add_seed(p: argparse.ArgumentParser, default: int, help: str = "seed of every randomised step") -> None:
     p.add_argument("--seed", type=seed_type, default=default, metavar="S",
                    help=f"{help} (0 to {SEED_MAX}; default: {default})")
+
+
+def int_range(lo: int, hi: int | None = None):
+    """An argparse type: an integer from ``lo`` to ``hi`` (no upper limit when None).
+
+    Examples
+    --------
+    >>> int_range(1, 10)("3")
+    3
+    >>> int_range(1, 10)("11")
+    Traceback (most recent call last):
+    ...
+    argparse.ArgumentTypeError: must be an integer from 1 to 10, got 11
+    """
+    def check(text: str) -> int:
+        value = _number(text, int)
+        if value < lo or (hi is not None and value > hi):
+            span = f"from {lo} to {hi}" if hi is not None else f">= {lo}"
+            raise argparse.ArgumentTypeError(f"must be an integer {span}, got {text}")
+        return value
+
+    check.__name__ = "integer"
+    return check
+
+
+def float_range(lo: float, hi: float, lo_open: bool = False, hi_open: bool = False):
+    """An argparse type: a finite number between ``lo`` and ``hi`` (each end closed unless said open).
+
+    Examples
+    --------
+    >>> float_range(0, 1, lo_open=True, hi_open=True)("0.5")
+    0.5
+    >>> float_range(0, 1, lo_open=True, hi_open=True)("1")
+    Traceback (most recent call last):
+    ...
+    argparse.ArgumentTypeError: must be a number above 0 and below 1, got 1
+    """
+    def check(text: str) -> float:
+        value = _number(text, float)
+        ok = (value > lo if lo_open else value >= lo) and (value < hi if hi_open else value <= hi)
+        if not ok:  # also refuses nan, which fails every comparison
+            left = f"above {lo:g}" if lo_open else f"at least {lo:g}"
+            right = f"below {hi:g}" if hi_open else f"at most {hi:g}"
+            raise argparse.ArgumentTypeError(f"must be a number {left} and {right}, got {text}")
+        return value
+
+    check.__name__ = "number"
+    return check

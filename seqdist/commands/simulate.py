@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 from ..errors import InputError
-from ._shared import add_subcommand
+from ..simulate import (MAX_CELLS, MAX_INDEL_WORK, MAX_LENGTH, MAX_RATE_CATEGORIES, MAX_SATURATE, MAX_SCALE,
+                        MAX_TAXA)
+from ._shared import add_seed, add_subcommand, float_range, int_range, positive_float
 
 _DESCRIPTION = """\
 Draws a random tree and evolves sequences down it (DNA: K80 or HKY85; protein:
@@ -11,68 +13,83 @@ equal rates, with equal or given frequencies), with gamma rate variation across
 sites and insertion/deletion runs. Writes the alignment as FASTA and the true
 tree as Newick (branch lengths in expected substitutions per site). Optionally
 plants trouble: a very gappy row, a chimera, a pair past saturation.
-The same seed and options give byte-identical files.
+
+limits (refused with exit status 2 before any work, so that a typo cannot ask
+for more memory than the machine has): --taxa 3 to {taxa}, --length 1 to
+{length}, taxa x length at most {cells} cells (about 0.5 GB of memory);
+--scale at most {scale:g}; --saturate-length at most {sat:g}; --rate-categories
+at most {cats}; indel work (expected events x columns, events = gap rate x
+tree length x length) at most {work:.3g}, about a minute. See docs/simulator.md.
 
 example:
   seqdist simulate -o aln.fasta --tree-out true.nwk --taxa 30 --length 1200 \\
       --alphabet dna --seed 7 --kappa 3 --alpha 0.5 --gap-rate 0.01
-"""
+""".format(taxa=MAX_TAXA, length=MAX_LENGTH, cells=MAX_CELLS, scale=MAX_SCALE, sat=MAX_SATURATE,
+           cats=MAX_RATE_CATEGORIES, work=MAX_INDEL_WORK)
 
 
 def _floats(text: str) -> list[float]:
     import argparse
+    import math
 
     try:
-        return [float(x) for x in text.split(",") if x.strip()]
+        values = [float(x) for x in text.split(",") if x.strip()]
     except ValueError:
         raise argparse.ArgumentTypeError(f"expected comma-separated numbers, got '{text}'") from None
+    if not values or not all(v > 0 and math.isfinite(v) for v in values):
+        raise argparse.ArgumentTypeError(f"expected comma-separated positive numbers, got '{text}'")
+    return values
 
 
 def register(subs, common):
     p = add_subcommand(subs, common, "simulate", "simulate an alignment and its true tree (seeded)", _DESCRIPTION)
     p.add_argument("-o", "--out", required=True, metavar="FASTA", help="alignment output, FASTA ('-' for standard output)")
     p.add_argument("--tree-out", required=True, metavar="NEWICK", help="true tree output, Newick")
-    p.add_argument("--taxa", type=int, required=True, metavar="N", help="number of sequences (>= 3)")
-    p.add_argument("--length", type=int, required=True, metavar="L", help="alignment columns (>= 1)")
+    p.add_argument("--taxa", type=int_range(3, MAX_TAXA), required=True, metavar="N",
+                   help=f"number of sequences (3 to {MAX_TAXA}; taxa x length at most {MAX_CELLS})")
+    p.add_argument("--length", type=int_range(1, MAX_LENGTH), required=True, metavar="L",
+                   help=f"alignment columns (1 to {MAX_LENGTH}; taxa x length at most {MAX_CELLS})")
     p.add_argument("--alphabet", choices=("dna", "protein"), default="dna", help="default: dna")
-    p.add_argument("--seed", type=int, default=1, metavar="S", help="random seed (default: 1)")
+    add_seed(p, 1, "random seed")
     g = p.add_argument_group("model")
     g.add_argument("--model", choices=("k80", "hky85", "poisson", "poisson-f"), default=None,
                    help="substitution model (default: k80 for dna, poisson for protein; "
                         "hky85 / poisson-f when --freqs is given)")
-    g.add_argument("--kappa", type=float, default=2.0, metavar="K",
+    g.add_argument("--kappa", type=positive_float, default=2.0, metavar="K",
                    help="transition/transversion rate ratio for dna (default: 2)")
     g.add_argument("--freqs", type=_floats, default=None, metavar="F,F,...",
                    help="stationary frequencies: 4 for dna (A,C,G,T) or 20 for protein (ACDEFGHIKLMNPQRSTVWY)")
-    g.add_argument("--alpha", type=float, default=None, metavar="A",
+    g.add_argument("--alpha", type=positive_float, default=None, metavar="A",
                    help="gamma shape of rate variation across sites (default: equal rates)")
-    g.add_argument("--rate-categories", type=int, default=4, metavar="K",
-                   help="discrete gamma categories, or 0 for a continuous gamma rate per site (default: 4)")
+    g.add_argument("--rate-categories", type=int_range(0, MAX_RATE_CATEGORIES), default=4, metavar="K",
+                   help=f"discrete gamma categories (1 to {MAX_RATE_CATEGORIES}), or 0 for a continuous gamma "
+                        "rate per site (default: 4)")
     g = p.add_argument_group("tree")
-    g.add_argument("--scale", type=float, default=0.05, metavar="X",
-                   help="mean branch length, expected substitutions per site (default: 0.05)")
+    g.add_argument("--scale", type=float_range(0, MAX_SCALE, lo_open=True), default=0.05, metavar="X",
+                   help=f"mean branch length, expected substitutions per site (at most {MAX_SCALE:g}; "
+                        "default: 0.05)")
     g.add_argument("--clock", action="store_true", help="ultrametric (coalescent) branch lengths")
     g.add_argument("--prefix", default="t", metavar="P", help="label prefix: P01, P02, ... (default: t)")
     g = p.add_argument_group("gaps")
-    g.add_argument("--gap-rate", type=float, default=0.0, metavar="R",
+    g.add_argument("--gap-rate", type=float_range(0, float("inf"), hi_open=True), default=0.0, metavar="R",
                    help="indel events per residue per unit branch length (default: 0, no gaps)")
-    g.add_argument("--gap-length", type=float, default=3.0, metavar="M",
-                   help="mean length of an indel run (default: 3)")
+    g.add_argument("--gap-length", type=float_range(1, float("inf"), hi_open=True), default=3.0, metavar="M",
+                   help="mean length of an indel run, at least 1 (default: 3)")
     g = p.add_argument_group("planted trouble (applied in this order; 'auto' picks unused taxa)")
     g.add_argument("--gappy", metavar="LABEL|auto", default=None, help="make one row very gappy")
-    g.add_argument("--gappy-fraction", type=float, default=0.7, metavar="F",
+    g.add_argument("--gappy-fraction", type=float_range(0, 1, lo_open=True, hi_open=True), default=0.7, metavar="F",
                    help="gap fraction of the gappy row (default: 0.7)")
     g.add_argument("--chimera", metavar="LABEL[:DONOR]|auto", default=None,
                    help="replace the second half of LABEL by that of DONOR (default donor: the farthest)")
     g.add_argument("--saturate", metavar="LABEL,LABEL|auto", default=None,
                    help="give two taxa very long terminal branches (default pair: the farthest apart)")
-    g.add_argument("--saturate-length", type=float, default=50.0, metavar="X",
-                   help="branch length added to each of them (default: 50)")
+    g.add_argument("--saturate-length", type=float_range(0, MAX_SATURATE, lo_open=True), default=50.0,
+                   metavar="X", help=f"branch length added to each of them (at most {MAX_SATURATE:g}; default: 50)")
     g = p.add_argument_group("extra outputs")
     g.add_argument("--stockholm-out", metavar="STO", default=None,
                    help="also write the first taxa as Stockholm, insert columns in lower case / '.'")
-    g.add_argument("--stockholm-taxa", type=int, default=10, metavar="N",
-                   help="rows in the Stockholm copy (default: 10)")
+    g.add_argument("--stockholm-taxa", type=int_range(2), default=10, metavar="N",
+                   help="rows in the Stockholm copy, at least 2 (default: 10)")
     g.add_argument("--summary-out", metavar="JSON", default=None,
                    help="options, tree length, gap fraction and planted trouble as JSON")
     p.set_defaults(func=_run)
@@ -87,18 +104,19 @@ def _run(args) -> int:
 
     from .. import simulate as sim_mod
     from ..console import info
-    from ..io import OutputSet
+    from ..io import OutputSet, check_distinct_outputs
 
-    if args.stockholm_out and args.stockholm_taxa < 2:
-        raise InputError(f"--stockholm-taxa must be at least 2 (got {args.stockholm_taxa})")
+    check_distinct_outputs({"--out": args.out, "--tree-out": args.tree_out, "--stockholm-out": args.stockholm_out,
+                            "--summary-out": args.summary_out})
+    sim_mod.check_size(args.taxa, args.length)
+    wanted = (args.gappy is not None) + 2 * (args.chimera is not None) + 2 * (args.saturate is not None)
+    if wanted > args.taxa:
+        raise InputError(f"planting that much trouble needs at least {wanted} taxa (got {args.taxa})")
     rng = np.random.default_rng(args.seed)
     sim = sim_mod.simulate(args.taxa, args.length, args.alphabet, rng, model=args.model, kappa=args.kappa,
                            freqs=args.freqs, alpha=args.alpha, rate_categories=args.rate_categories,
                            scale=args.scale, clock=args.clock, gap_rate=args.gap_rate,
                            gap_length=args.gap_length, prefix=args.prefix)
-    wanted = (args.gappy is not None) + 2 * (args.chimera is not None) + 2 * (args.saturate is not None)
-    if wanted > args.taxa:
-        raise InputError(f"planting that much trouble needs at least {wanted} taxa (got {args.taxa})")
     used: set = set()
 
     def _label(lab: str) -> str:
