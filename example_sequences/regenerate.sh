@@ -6,6 +6,7 @@
 set -eu
 here=$(cd "$(dirname "$0")" && pwd)
 out=${1:-$here}
+mkdir -p "$out"
 sd=${SEQDIST:-seqdist}
 
 # (a) clean DNA: 30 taxa x 1200 columns, HKY85, gamma, a few indel runs
