@@ -99,8 +99,8 @@ class Progress:
 
     The time left is estimated only when it can be honest: ``estimate`` is
     true (the units of ``total`` take about equal work), at least a tenth of
-    the work and two units are done, and the rate is measured from the first
-    unit on (start-up, e.g. worker processes, is not extrapolated). Otherwise
+    the work and two units after the first are done, and the rate is measured
+    from the first unit on (start-up, e.g. worker processes, is not extrapolated). Otherwise
     the bar shows the elapsed time only.
 
     Examples
@@ -138,7 +138,7 @@ class Progress:
         now = time.perf_counter() if now is None else now
         t1, d1 = self._first
         span = self.done - d1
-        if self.done < 0.1 * self.total or span < 1 or self.done < 2 or span <= 0:
+        if self.done < 0.1 * self.total or span < 2:
             return None
         return max(0.0, (now - t1) / span * (self.total - self.done))
 
