@@ -181,16 +181,13 @@ class AuditReport:
         """(fit for distance tree methods, one line, the reasons)."""
         reasons = []
         if self.missing_entries:
-            worst = np.argsort(-self.taxon_missing, kind="stable")[:3]
-            who = ", ".join(f"{self.labels[t]} ({int(self.taxon_missing[t])})" for t in worst
-                            if self.taxon_missing[t] > 0)
             reasons.append(f"{self.missing_entries} missing entr{'y' if self.missing_entries == 1 else 'ies'} "
-                           f"(most in {who}): distance tree methods need every pair")
+                           f"({_per_taxon(self.labels, self.taxon_missing)}): distance tree methods need every pair")
         if self.violated:
             pct = 100.0 * self.violated / max(self.checked_triangles, 1)
-            reasons.append(f"{self.violated} of {self.checked_triangles} checked triangles ({pct:.3g}%) break "
-                           f"the triangle inequality (largest excess {_g(self.max_violation)}, "
-                           f"{_pct(self.max_violation, self.largest)} of the largest entry)")
+            reasons.append(f"{self.violated} of {self.checked_triangles} checked triangles ({pct:.3g}%"
+                           f"{self._unchecked_note('; ')}) break the triangle inequality (largest excess "
+                           f"{_g(self.max_violation)}, {_pct(self.max_violation, self.largest)} of the largest entry)")
         level = self.level
         if level == "fit":
             line = "FIT for distance tree methods: the matrix is a metric (complete, no broken triangle)"
@@ -201,6 +198,13 @@ class AuditReport:
         else:
             line = "NOT FIT for distance tree methods as it is: " + "; ".join(reasons)
         return level != "not_fit", line, reasons
+
+    def _unchecked_note(self, sep: str = ", ") -> str:
+        """``sep`` + "M of T not checked: a side is missing", or "" when every triangle was checked."""
+        unchecked = self.triangles - self.checked_triangles
+        if not unchecked:
+            return ""
+        return f"{sep}{unchecked} of {self.triangles} not checked: a side is missing"
 
     # -------------------------------------------------------------- output
     def to_dict(self, list_max: int = 200) -> dict:
@@ -248,44 +252,62 @@ class AuditReport:
         }
 
     def summary(self, top: int = 10, source: str | None = None) -> str:
-        """A readable report for standard output."""
+        """A readable report for standard output.
+
+        Every count is given with what it counts out of (checked triangles of
+        all, examined quartets of all, listed of how many), and labels are
+        never cut: columns widen to the longest label shown.
+        """
         L = []
         lab = self.labels
         fit, line, _ = self.verdict()
         L.append(f"audit of {source}" if source else "audit")
         miss = f"{self.missing_entries} missing" if self.missing_entries else "none missing"
-        unchecked = self.triangles - self.checked_triangles
-        chk = "all checked" if unchecked == 0 else f"{self.checked_triangles} checked, {unchecked} not checked (a side is missing)"
+        chk = (f"all checked" if self.checked_triangles == self.triangles
+               else f"{self.checked_triangles} checked{self._unchecked_note('; ')}")
         L.append(f"  {self.n} taxa, {_comb(self.n, 2)} entries ({miss}), {self.triangles} triangles ({chk})")
         L.append(f"  tolerance {_g(self.tol)}; largest entry {_g(self.largest)}")
         L.append("")
         L.append(line + ".")
         if self.violated:
+            v = self.violated
             L.append("")
-            L.append(f"Violation sizes (excess relative to the largest entry {_g(self.largest)}):")
+            L.append(f"Violation sizes of the {v} violated triangle{'s' if v != 1 else ''} (excess relative to "
+                     f"the largest entry {_g(self.largest)}):")
             for k in range(len(HIST_EDGES) - 1):
                 lo, hi = HIST_EDGES[k], HIST_EDGES[k + 1]
                 lo_s = "tol" if k == 0 else f"{lo:g}"
                 L.append(f"  {lo_s:>6} .. {hi:<6g} {int(self.histogram[k]):>12}")
-            L.append("")
-            L.append(f"Worst triangles (longest side minus the sum of the other two):")
-            for (a, b, c, e) in self.worst_triangles[:top]:
-                L.append("  " + _triangle_text(self.values, lab, a, b, c, e))
-            L.append("")
-            L.append("Worst entries (the first place to look for a bad value):")
-            L.append(f"  {'pair':<36} {'value':>12} {'violated':>9} {'longest':>8} {'summed excess':>14}")
-            for r in self.ranked_entries(top):
-                pair = f"{r['pair'][0]} - {r['pair'][1]}"
-                L.append(f"  {_clip(pair, 36):<36} {_g(r['value']):>12} {r['violated_triangles']:>9} "
-                         f"{r['as_longest_side']:>8} {_g(r['summed_excess']):>14}")
-            L.append("")
-            L.append("Worst taxa (the first place to look for a bad sequence):")
-            L.append(f"  {'taxon':<28} {'violated':>10} {'of checked':>11} {'fraction':>9} {'summed excess':>14}")
-            for r in self.ranked_taxa(top):
-                if r["violated_triangles"] == 0:
-                    break
-                L.append(f"  {_clip(r['taxon'], 28):<28} {r['violated_triangles']:>10} {r['checked_triangles']:>11} "
-                         f"{r['fraction']:>9.3g} {_g(r['summed_excess']):>14}")
+            shown = self.worst_triangles[:top]
+            if shown:
+                L.append("")
+                L.append(f"Worst triangles ({_listed(len(shown), v, 'violated')}; longest side minus the sum of "
+                         "the other two):")
+                for (a, b, c, e) in shown:
+                    L.append("  " + _triangle_text(self.values, lab, a, b, c, e))
+            entries = self.ranked_entries(top)
+            if entries:
+                n_ent = int(np.count_nonzero(self.pair_counts))
+                pairs = [f"{r['pair'][0]} - {r['pair'][1]}" for r in entries]
+                w = max([len("pair")] + [len(x) for x in pairs])
+                L.append("")
+                L.append(f"Worst entries ({_listed(len(entries), n_ent, 'entries in violated triangles')}; "
+                         "the first place to look for a bad value):")
+                L.append(f"  {'pair':<{w}} {'value':>12} {'violated':>9} {'longest':>8} {'summed excess':>14}")
+                for pair, r in zip(pairs, entries):
+                    L.append(f"  {pair:<{w}} {_g(r['value']):>12} {r['violated_triangles']:>9} "
+                             f"{r['as_longest_side']:>8} {_g(r['summed_excess']):>14}")
+            taxa = [r for r in self.ranked_taxa(top) if r["violated_triangles"] > 0]
+            if taxa:
+                n_tax = int(np.count_nonzero(self.taxon_counts))
+                w = max([len("taxon")] + [len(r["taxon"]) for r in taxa])
+                L.append("")
+                L.append(f"Worst taxa ({_listed(len(taxa), n_tax, 'taxa in violated triangles')}; "
+                         "the first place to look for a bad sequence):")
+                L.append(f"  {'taxon':<{w}} {'violated':>10} {'of checked':>11} {'fraction':>9} {'summed excess':>14}")
+                for r in taxa:
+                    L.append(f"  {r['taxon']:<{w}} {r['violated_triangles']:>10} {r['checked_triangles']:>11} "
+                             f"{r['fraction']:>9.3g} {_g(r['summed_excess']):>14}")
             L.append("")
             lb = self.lower_bound
             how = f"packing of {lb['packing']} entry-disjoint violated triangles"
@@ -297,32 +319,49 @@ class AuditReport:
                      f"entr{'y' if lb['value'] == 1 else 'ies'} ({how}).")
         L.append("")
         fp = self.four_point
-        if fp["examined"]:
-            how = "all" if fp["exact"] else f"a sample of {fp['examined']} (seed {fp['seed']})"
-            L.append(f"Tree-likeness (four-point condition, {how} of {fp['quartets']} quartets):")
-            L.append(f"  quartets violating the four-point condition: {fp['violated']} "
-                     f"({100 * fp['violated_fraction']:.3g}%); relative deviation (L-M)/L mean "
+        ex = fp["examined"]
+        if ex:
+            drawn = fp["quartets"] if fp["exact"] else fp["sample_size"]
+            skipped = fp["skipped_missing"]
+            if fp["exact"]:
+                how = f"all {fp['quartets']} quartets"
+            else:
+                how = f"a sample of {fp['sample_size']} of {fp['quartets']} quartets (seed {fp['seed']})"
+            if skipped or ex != drawn:
+                how += f"; {ex} examined, {skipped} skipped: a side is missing"
+            L.append(f"Tree-likeness (four-point condition, {how}):")
+            L.append(f"  quartets violating the four-point condition: {fp['violated']} of {ex} examined "
+                     f"({_pct4(fp['violated'] / ex)}); relative deviation (L-M)/L mean "
                      f"{fp['relative_deviation_mean']:.3g}, max {fp['relative_deviation_max']:.3g}")
             dm = fp["delta_mean"]
+            undefined = fp["delta_undefined"]
+            over = ""
+            if dm is not None and fp["delta_quartets"] != ex:
+                over = f" over {fp['delta_quartets']} of {ex} examined quartets"
+            if undefined:
+                over += f" ({undefined} undefined: L - S <= tol)"
             L.append(f"  delta score (Holland et al. 2002; 0 = tree-like): mean "
-                     f"{'n/a' if dm is None else format(dm, '.3g')}")
+                     f"{'n/a' if dm is None else format(dm, '.3g')}{over}")
             td = [(self.taxon_delta[t], t) for t in range(self.n) if self.taxon_delta[t] == self.taxon_delta[t]]
             td.sort(key=lambda x: (-x[0], x[1]))
             if td:
-                L.append("  highest per-taxon delta: " + ", ".join(f"{_clip(lab[t], 24)} {v:.3g}" for v, t in td[:min(top, 5)]))
+                L.append("  highest per-taxon delta: " + ", ".join(f"{lab[t]} {v:.3g}" for v, t in td[:min(top, 5)]))
         elif self.n >= 4:
-            L.append("Tree-likeness: no quartet could be examined (missing entries).")
+            L.append(f"Tree-likeness: none of the {fp['quartets']} quartets could be examined (a side is missing).")
         um = self.ultrametric
         if self.checked_triangles:
+            of = f"{um['violated_triangles']} of {self.checked_triangles} checked triangles"
             if um["ultrametric"]:
                 L.append(f"Ultrametric: yes within tol (largest deviation {_g(um['max_deviation'])}): "
                          "UPGMA's equal-rates assumption fits.")
+            elif um["violated_triangles"] == 0:
+                L.append(f"Ultrametric: cannot tell ({of} beyond tol{self._unchecked_note('; ')}).")
             else:
                 w = um.get("worst_triangle")
                 where = f" in ({', '.join(w)})" if w else ""
                 L.append(f"Ultrametric: no (largest three-point deviation {_g(um['max_deviation'])}{where}, "
                          f"{_pct(um['max_deviation'], self.largest)} of the largest entry; "
-                         f"{um['violated_triangles']} triangles beyond tol).")
+                         f"{of} beyond tol{self._unchecked_note('; ')}).")
         return "\n".join(L) + "\n"
 
 
@@ -348,8 +387,44 @@ def _pct4(f: float) -> str:
     return "<0.01%" if 0 < f < 1e-4 else (">99.99%" if 0.9999 < f < 1 else s)
 
 
-def _clip(s: str, w: int) -> str:
-    return s if len(s) <= w else s[: w - 1] + "~"
+def _listed(shown: int, total: int, what: str) -> str:
+    """'the top 10 of 12 violated' / 'all 3 violated'."""
+    return f"all {total} {what}" if shown >= total else f"the top {shown} of {total} {what}"
+
+
+def _per_taxon(labels, counts: np.ndarray, most: int = 5) -> str:
+    """Missing entries per taxon: the taxa above the common level, then that level.
+
+    The common level is the count most taxa share (a saturated pair gives
+    every other taxon 2); naming one taxon at that level would single it out
+    for nothing.
+
+    Examples
+    --------
+    >>> _per_taxon(["a", "b", "c", "d"], np.array([3, 3, 2, 2]))
+    'per taxon: a 3, b 3; every other taxon 2'
+    >>> _per_taxon(["a", "b", "c", "d"], np.array([1, 1, 0, 0]))
+    'per taxon: a 1, b 1; none elsewhere'
+    >>> _per_taxon(["a", "b", "c"], np.array([2, 2, 2]))
+    'per taxon: every taxon 2'
+    """
+    counts = np.asarray(counts, dtype=np.int64)
+    values, freq = np.unique(counts, return_counts=True)
+    common = int(values[np.argmax(freq)])       # ties: the smaller count (np.unique sorts)
+    above = [t for t in np.argsort(-counts, kind="stable") if counts[t] > common]
+    parts = [f"{labels[t]} {int(counts[t])}" for t in above[:most]]
+    if len(above) > most:
+        parts.append(f"{len(above) - most} more above {common}")
+    rest = counts[counts <= common]
+    if not above:
+        tail = f"every taxon {common}" if rest.min() == common else f"{int(freq.max())} taxa {common}, the others fewer"
+    elif rest.size == 0:
+        tail = ""
+    elif rest.min() == common:
+        tail = "none elsewhere" if common == 0 else f"every other taxon {common}"
+    else:
+        tail = f"the others {int(rest.min())} to {common}"
+    return "per taxon: " + ", ".join(parts) + ("; " if parts and tail else "") + tail
 
 
 def _longest(values, a, b, c):

@@ -14,6 +14,7 @@ from hypothesis import strategies as st
 
 from conftest import euclidean
 from seqdist.audit import HIST_EDGES, audit, sample_quartets
+from seqdist.matrix import DistanceMatrix
 
 # ---------------------------------------------------------------- references
 
@@ -481,4 +482,85 @@ def test_verdict_levels():
     F = D.copy()
     F[0, 1] = F[1, 0] = np.nan
     r = audit(F)
-    assert r.level == "not_fit" and "t0 (1)" in r.verdict()[1]
+    assert r.level == "not_fit" and "1 missing entry (per taxon: t0 1, t1 1; none elsewhere)" in r.verdict()[1]
+
+
+# ------------------------------------------------------------- the text summary (issue 14)
+def _section(text: str, head: str) -> list[str]:
+    """The indented rows under the line starting with ``head``."""
+    lines = text.splitlines()
+    k = next(i for i, ln in enumerate(lines) if ln.startswith(head))
+    out = []
+    for ln in lines[k + 2:]:
+        if not ln.startswith("  "):
+            break
+        out.append(ln)
+    return out
+
+
+def test_summary_never_cuts_labels():
+    """Labels longer than the old 28/36-character columns were cut to 'taxon_wit~', so two could
+    read the same; every label is now printed whole and the columns widen to fit."""
+    labels = [f"taxon_with_a_rather_long_name_{i:02d}" for i in range(9)]
+    D = euclidean(9, seed=3)
+    D[0, 1] = D[1, 0] = D[0, 1] * 6
+    D[2, 3] = D[3, 2] = D[2, 3] * 0.02
+    text = audit(DistanceMatrix.from_array(D, labels)).summary(top=9)
+    assert "~" not in text
+    taxa_rows = _section(text, "Worst taxa")
+    shown = [row.split()[0] for row in taxa_rows]
+    assert set(shown) <= set(labels) and len(shown) == len(set(shown)) >= 4
+    entry_rows = _section(text, "Worst entries")
+    assert any(row.split()[:3] == [labels[0], "-", labels[1]] for row in entry_rows)
+    # the columns line up: every value column starts at the same place
+    starts = {len(row) - len(row.lstrip()[len(row.split()[0]):].lstrip()) for row in taxa_rows}
+    assert len(starts) == 1
+
+
+def test_summary_names_only_taxa_above_the_common_missing_level():
+    """A saturated pair leaves every other taxon 2 missing entries: naming one of them
+    ('x01 (2)') singled it out for nothing."""
+    D = euclidean(8, seed=5)
+    D[0, :] = D[:, 0] = D[3, :] = D[:, 3] = np.nan
+    np.fill_diagonal(D, 0.0)
+    r = audit(DistanceMatrix.from_array(D, [f"x{i:02d}" for i in range(8)]))
+    line = r.verdict()[1]
+    assert "13 missing entries (per taxon: x00 7, x03 7; every other taxon 2)" in line, line
+    E = euclidean(8, seed=5)
+    E[0, 1:4] = E[1:4, 0] = np.nan
+    E[5, 6] = E[6, 5] = np.nan
+    line = audit(E).verdict()[1]
+    assert "4 missing entries (per taxon: t0 3; the others 0 to 1)" in line, line
+
+
+def test_summary_counts_share_one_denominator():
+    """Each count is given out of what was examined: quartets with a missing side are
+    skipped (not counted as 'all of N'), triangles with one are not checked."""
+    import json
+    import re
+
+    from seqdist.io import to_jsonable
+
+    D = euclidean(10, seed=6)
+    D[1, 2] = D[2, 1] = D[1, 2] * 8
+    D[0, 4] = D[4, 0] = np.nan
+    r = audit(D)
+    doc = json.loads(json.dumps(to_jsonable(r.to_dict())))
+    text = r.summary()
+    fp = doc["four_point"]
+    assert fp["examined"] + fp["skipped_missing"] == fp["quartets"] == math.comb(10, 4)
+    assert (f"all {fp['quartets']} quartets; {fp['examined']} examined, {fp['skipped_missing']} skipped: "
+            "a side is missing") in text
+    assert f"the four-point condition: {fp['violated']} of {fp['examined']} examined" in text
+    chk, tri = doc["checked_triangles"], doc["triangles"]
+    note = f"{tri - chk} of {tri} not checked: a side is missing"
+    assert f"{tri} triangles ({chk} checked; {note})" in text
+    assert f"{doc['violated_triangles']} of {chk} checked triangles" in text and note in doc["verdict"]
+    um = doc["ultrametric"]
+    assert f"{um['violated_triangles']} of {chk} checked triangles beyond tol" in text
+    # every "K of M" in the text names a denominator that is one of the totals above
+    totals = {fp["quartets"], fp["examined"], chk, tri, doc["violated_triangles"],
+              doc["entries_in_violated_triangles"], int(sum(t["violated_triangles"] > 0 for t in doc["taxa"]))}
+    for k, m in re.findall(r"(\d+) of (\d+)", text):
+        assert int(m) in totals and int(k) <= int(m), (k, m)
+    assert "all of" not in text

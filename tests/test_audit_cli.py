@@ -120,7 +120,7 @@ def test_missing_entries_reported(tmp_path, cli):
     r = json.loads(js.read_text())
     assert r["missing_entries"] == 1 and r["unchecked_triangles"] == 6
     assert r["checked_triangles"] == math.comb(8, 3) - 6
-    assert "1 missing" in p.stdout and "not checked" in p.stdout
+    assert "1 missing" in p.stdout and "(50 checked; 6 of 56 not checked: a side is missing)" in p.stdout
     assert r["fit_for_tree_methods"] is False
 
 
@@ -133,3 +133,75 @@ def test_square_format_input(tmp_path, cli):
             f.write(f"x{i} " + " ".join(repr(float(v)) for v in D[i]) + "\n")
     p = cli("audit", path, "--in-format", "square", "--json", "-")
     assert p.returncode == 0 and json.loads(p.stdout)["violated_triangles"] == 0
+
+
+# ------------------------------------------------------------ issue 14: boundaries
+@pytest.mark.parametrize("args, needle", [
+    (["--seed", "-1", "--exact-quartets", "0"], "argument --seed: a seed is an integer from 0 to 4294967295"),
+    (["--seed", "x"], "argument --seed: expected an integer, got 'x'"),
+    (["--top", "-2"], "argument --top: must be an integer from 0 to 1000"),
+    (["--top", "1000000000"], "argument --top: must be an integer from 0 to 1000"),
+    (["--quartets", "0"], "argument --quartets: must be an integer from 1 to 10000000"),
+    (["--quartets", "99999999999"], "argument --quartets: must be an integer from 1 to 10000000"),
+    (["--exact-quartets", "-1"], "argument --exact-quartets: must be 0 or a positive integer"),
+    (["--lp-max", "1.5"], "argument --lp-max: expected an integer, got '1.5'"),
+    (["--list-max", "-3"], "argument --list-max: must be 0 or a positive integer"),
+    (["--tol", "inf"], "argument --tol: must be a finite number >= 0"),
+])
+def test_numeric_options_checked_where_read(tmp_path, capsys, planted, args, needle):
+    """Before issue 14, --seed -1 with sampled quartets ended in an internal error (exit 1)."""
+    from seqdist.cli import main
+
+    path, _, _ = planted
+    try:
+        code = main(["audit", str(path), "--json", str(tmp_path / "a.json"), *args])
+    except SystemExit as exc:  # argparse's usage errors leave through the parser's error()
+        code = exc.code
+    assert code == 2
+    lines = capsys.readouterr().err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("seqdist: error: ") and needle in lines[0], lines
+    assert not (tmp_path / "a.json").exists()
+
+
+def test_two_outputs_to_one_file_refused(tmp_path, cli, planted):
+    """--json X --entry-counts X kept only one of the two (issue 14): now refused before any work."""
+    path, _, _ = planted
+    x = tmp_path / "x.out"
+    p = cli("audit", path, "--json", x, "--entry-counts", x)
+    assert p.returncode == 2 and p.stdout == ""
+    assert p.stderr == f"seqdist: error: --json and --entry-counts both write to {x}: give each output its own file\n"
+    assert not x.exists()
+    p = cli("audit", path, "--json", "-", "--entry-counts", "-")
+    assert p.returncode == 2 and "both write to standard output" in p.stderr and p.stdout == ""
+
+
+def test_entry_counts_to_stdout_holds_the_matrix_alone(tmp_path, cli, planted):
+    path, labels, _ = planted
+    p = cli("audit", path, "--entry-counts", "-", "--out-format", "csv")
+    assert p.returncode == 0, p.stderr
+    from seqdist.io import _read_delimited
+
+    m = _read_delimited(p.stdout, "stdout", ",")
+    assert list(m.labels) == labels and m["s0", "s1"] > 0
+
+
+def test_demo_summary_counts_and_missing_taxa(tmp_path, cli):
+    """The brief's reproduction on the demo (planted saturated pair x04, x12): the summary said
+    'most in x04 (29), x12 (29), x01 (2)' and 'all of 27405 quartets' then '20475 (100%)'."""
+    import os
+
+    from conftest import EXAMPLES
+
+    d = tmp_path / "d.tsv"
+    assert cli("distances", os.path.join(EXAMPLES, "dna_trouble.fasta"), "-o", d, "--quiet").returncode == 0
+    js = tmp_path / "a.json"
+    p = cli("audit", d, "--json", js)
+    assert p.returncode == 0, p.stderr
+    r = json.loads(js.read_text())
+    fp = r["four_point"]
+    assert "(per taxon: x04 29, x12 29; every other taxon 2)" in p.stdout
+    assert "x01 2" not in p.stdout and "x01 (2)" not in p.stdout
+    assert (f"all {fp['quartets']} quartets; {fp['examined']} examined, {fp['skipped_missing']} skipped: "
+            "a side is missing") in p.stdout
+    assert f"{fp['violated']} of {fp['examined']} examined" in p.stdout
+    assert fp["examined"] < fp["quartets"] and "all of" not in p.stdout

@@ -404,3 +404,24 @@ def test_cli_unknown_transform_exit_2(cli, tmp_path):
     r = cli("scores", "BLOSUM62", "-o", str(tmp_path / "x.tsv"), "--transform", "nope")
     assert r.returncode == 2 and r.stderr.startswith("seqdist: error:")
     assert not (tmp_path / "x.tsv").exists()
+
+
+def test_cli_json_to_stdout_holds_the_json_alone(tmp_path, cli):
+    """scores -o d.tsv --json -: the readable report used to follow the JSON on standard output (issue 14)."""
+    r = cli("scores", "BLOSUM62", "-o", str(tmp_path / "d.tsv"), "--json", "-")
+    assert r.returncode == 0, r.stderr
+    data = json.loads(r.stdout)
+    assert data["symmetric"] is True and "lambda" in r.stderr
+    r = cli("--quiet", "scores", "BLOSUM62", "-o", str(tmp_path / "d.tsv"), "--json", "-")
+    assert json.loads(r.stdout)["symmetric"] is True and r.stderr == ""
+
+
+def test_cli_two_outputs_to_one_file_refused(tmp_path, cli):
+    x = tmp_path / "x.tsv"
+    x.write_text("old\n")
+    r = cli("scores", "BLOSUM62", "-o", str(x), "--json", str(tmp_path / "." / "x.tsv"))
+    assert r.returncode == 2 and r.stderr.strip().splitlines() == [
+        f"seqdist: error: --out and --json both write to {x}: give each output its own file"]
+    assert x.read_text() == "old\n"
+    r = cli("scores", "BLOSUM62", "-o", "-", "--json", "-")
+    assert r.returncode == 2 and "both write to standard output" in r.stderr and r.stdout == ""

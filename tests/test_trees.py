@@ -434,3 +434,19 @@ def test_sorted_search_equals_full_scan(n, seed, kind, use_bionj):
     a = neighbor_joining(dm, bionj=use_bionj, search="sorted")
     b = neighbor_joining(dm, bionj=use_bionj, search="full")
     assert a.to_newick() == b.to_newick()
+
+
+# --------------------------------------------------------------- the command line
+def test_cli_two_outputs_to_one_file_refused(tmp_path):
+    """tree -o X --json X kept only one of the two (issue 14): refused before any work."""
+    from conftest import run_cli
+
+    m = tmp_path / "m.tsv"
+    m.write_text("\ta\tb\tc\na\t0\t1\t2\nb\t1\t0\t2\nc\t2\t2\t0\n")
+    x = tmp_path / "x.nwk"
+    p = run_cli("tree", m, "-o", x, "--json", x)
+    assert p.returncode == 2 and p.stderr == (f"seqdist: error: --out and --json both write to {x}: "
+                                              "give each output its own file\n")
+    assert not x.exists()
+    p = run_cli("tree", m, "-o", "-", "--json", "-")
+    assert p.returncode == 2 and "both write to standard output" in p.stderr and p.stdout == ""

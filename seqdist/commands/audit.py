@@ -6,7 +6,14 @@ from __future__ import annotations
 import os
 
 from ..errors import InputError, StrictFailure
-from ._shared import add_matrix_in, add_subcommand, add_tol
+from ..io import MATRIX_FORMATS
+from ._shared import add_matrix_in, add_seed, add_subcommand, add_tol, int_range, nonneg_int
+
+#: Upper limits of the size options: the worst-triangle lists are kept per row
+#: (n x K arrays, a linear scan per insertion), and the quartet sample is held
+#: in memory (32 bytes a quartet).
+TOP_MAX = 1000
+QUARTETS_MAX = 10_000_000
 
 
 def register(subs, common):
@@ -26,38 +33,38 @@ def register(subs, common):
     add_matrix_in(p)
     p.add_argument("--json", metavar="FILE", default=None,
                    help="write the full report as JSON ('-' for standard output, replacing the summary)")
-    p.add_argument("--top", type=int, default=10, metavar="K",
-                   help="worst triangles, entries and taxa to list (default 10)")
+    p.add_argument("--top", type=int_range(0, TOP_MAX), default=10, metavar="K",
+                   help=f"worst triangles, entries and taxa to list (0 to {TOP_MAX}; default 10)")
     add_tol(p)
     p.add_argument("--strict", action="store_true",
                    help="exit with status 4 when any triangle is violated (after writing the report)")
-    p.add_argument("--seed", type=int, default=0, metavar="S",
-                   help="seed of the quartet sample for large matrices (default 0)")
-    p.add_argument("--quartets", type=int, default=200_000, metavar="Q",
-                   help="quartets sampled when there are more than --exact-quartets (default 200000)")
-    p.add_argument("--exact-quartets", type=int, default=2_000_000, metavar="Q",
+    add_seed(p, 0, "seed of the quartet sample for large matrices")
+    p.add_argument("--quartets", type=int_range(1, QUARTETS_MAX), default=200_000, metavar="Q",
+                   help=f"quartets sampled when there are more than --exact-quartets (1 to {QUARTETS_MAX}; "
+                        "default 200000)")
+    p.add_argument("--exact-quartets", type=nonneg_int, default=2_000_000, metavar="Q",
                    help="examine every quartet up to this many (default 2000000, about n = 100)")
-    p.add_argument("--lp-max", type=int, default=20_000, metavar="M",
+    p.add_argument("--lp-max", type=nonneg_int, default=20_000, metavar="M",
                    help="violated triangles given at most to the linear-programming bound (0: off; default 20000)")
-    p.add_argument("--list-max", type=int, default=200, metavar="M",
+    p.add_argument("--list-max", type=nonneg_int, default=200, metavar="M",
                    help="entries listed in the JSON report (default 200)")
     p.add_argument("--entry-counts", metavar="FILE", default=None,
-                   help="also write, as a matrix file, how many violated triangles each entry is a side of")
+                   help="also write, as a matrix file, how many violated triangles each entry is a side of "
+                        "('-' for standard output, replacing the summary)")
+    p.add_argument("--out-format", choices=MATRIX_FORMATS, default=None,
+                   help="format of the --entry-counts file (default: from the extension, else tsv)")
     p.set_defaults(func=_run)
 
 
 def _run(args) -> int:
     from ..audit import audit
     from ..console import info
-    from ..io import OutputSet, read_matrix
+    from ..io import OutputSet, check_distinct_outputs, read_matrix
     from ..matrix import DistanceMatrix
 
-    for opt, v in (("--top", args.top), ("--quartets", args.quartets), ("--exact-quartets", args.exact_quartets),
-                   ("--lp-max", args.lp_max), ("--list-max", args.list_max)):
-        if v < 0:
-            raise InputError(f"{opt} must be non-negative (got {v})")
-    if args.tol is not None and not (args.tol >= 0 and args.tol != float("inf")):
-        raise InputError(f"--tol must be a finite non-negative number (got {args.tol})")
+    # The readable summary takes standard output unless a data output does.
+    summary_to_stdout = "-" not in (args.json, args.entry_counts)
+    check_distinct_outputs({"--json": args.json, "--entry-counts": args.entry_counts})
     for path in (args.json, args.entry_counts):
         if path and path != "-" and os.path.isdir(path):
             raise InputError(f"{path}: is a directory")
@@ -68,8 +75,9 @@ def _run(args) -> int:
         if args.json:
             out.add_json(args.json, rep.to_dict(list_max=args.list_max))
         if args.entry_counts:
-            out.add_matrix(args.entry_counts, DistanceMatrix._trusted(rep.entry_counts.astype(float), dm.labels))
-        if args.json != "-":
+            out.add_matrix(args.entry_counts, DistanceMatrix._trusted(rep.entry_counts.astype(float), dm.labels),
+                           args.out_format)
+        if summary_to_stdout:
             out.add_text("-", rep.summary(top=args.top, source=args.matrix))
     if args.strict and rep.violated:
         raise StrictFailure(f"{args.matrix}: {rep.violated} violated triangle{'s' if rep.violated != 1 else ''} "

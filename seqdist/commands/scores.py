@@ -39,7 +39,8 @@ def register(subs, common):
                        "Derives a dissimilarity over the letters of a score matrix and reports on the matrix:\n"
                        "symmetry, whether each row's maximum is on the diagonal, expected score, the\n"
                        "Karlin-Altschul lambda, relative entropy, and whether the dissimilarity is a metric.\n"
-                       "The report is printed on standard output (on standard error with -o -).\n\n"
+                       "The report is printed on standard output (on standard error when -o or --json\n"
+                       "is '-', so that standard output holds the data alone).\n\n"
                        + _TRANSFORM_HELP)
     p.add_argument("matrix", metavar="MATRIX", help="score matrix file ('-' for standard input) or standard name")
     p.add_argument("-o", "--out", required=True, metavar="PATH",
@@ -55,14 +56,17 @@ def register(subs, common):
                    help="auto (default), implied, uniform, robinson1991, or a file of 'letter frequency' lines")
     p.add_argument("--keep-ambiguous", action="store_true",
                    help="keep ambiguity and non-standard letters (B Z X J U O *; for DNA all but ACGTU)")
-    p.add_argument("--json", metavar="FILE", default=None, help="write the check report as JSON")
+    p.add_argument("--json", metavar="FILE", default=None,
+                   help="write the check report as JSON ('-' for standard output)")
     p.set_defaults(func=_run)
 
 
 def _run(args) -> int:
     from ..console import is_quiet
+    from ..io import check_distinct_outputs
     from ..scores import check_score_matrix, format_report, load_score_matrix
 
+    check_distinct_outputs({"--out": args.out, "--json": args.json})
     sm = load_score_matrix(args.matrix, args.in_format)
     report = check_score_matrix(sm, args.transform, args.background, args.keep_ambiguous)
     with OutputSet() as out:
@@ -70,7 +74,7 @@ def _run(args) -> int:
         if args.json:
             out.add_json(args.json, report.data)
     table = format_report(report.data)
-    if args.out == "-":
+    if "-" in (args.out, args.json):  # standard output carries data: the readable report goes aside
         if not is_quiet():
             sys.stderr.write(table)
     else:

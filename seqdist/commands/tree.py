@@ -30,10 +30,11 @@ def register(subs, common):
 
 def _run(args) -> int:
     from ..console import info
-    from ..io import OutputSet, read_matrix
+    from ..io import OutputSet, check_distinct_outputs, read_matrix
     from ..trees import build_tree, check_matrix
     from ..trees.compare import cophenetic_correlation
 
+    check_distinct_outputs({"--out": args.out, "--json": args.json})
     dm = read_matrix(args.matrix, args.in_format)
     check_matrix(dm, source="<stdin>" if args.matrix == "-" else args.matrix)
     tree = build_tree(dm, args.method)
