@@ -318,8 +318,12 @@ def _mirror_upper(arr: np.ndarray, block: int = 512) -> None:
     np.fill_diagonal(arr, 0.0)
 
 
-def undefined_message(result: DistanceResult, limit: int = 25, hint: str = "") -> str:
+def undefined_message(result: DistanceResult, limit: int = 25, hint: str = "", width: int = 240) -> str:
     """One line naming the undefined pairs (the first ``limit``, then a count).
+
+    The named pairs also stop before their list passes ``width`` characters,
+    so long labels never make a warning line run on for screens; the count is
+    always the full one.
 
     Examples
     --------
@@ -331,10 +335,18 @@ def undefined_message(result: DistanceResult, limit: int = 25, hint: str = "") -
     und = result.undefined
     k = len(und)
     name = result.model + (f"+gamma({result.gamma:g})" if result.gamma else "")
-    shown = ", ".join(f"{a}-{b} ({r})" for a, b, r in und[:limit])
-    more = f", and {k - limit} more" if k > limit else ""
+    parts: list[str] = []
+    used = 0
+    for a, b, r in und[:limit]:
+        item = f"{a}-{b} ({r})"
+        if parts and used + len(item) + 2 > width:
+            break
+        parts.append(item)
+        used += len(item) + 2
+    shown = ", ".join(parts)
+    more = f", and {k - len(parts)} more" if k > len(parts) else ""
     return (f"{k} pair{'s' if k != 1 else ''} undefined under {name}, written as missing: {shown}{more}"
-            + (f" {hint}" if hint and k > limit else ""))
+            + (f" {hint}" if hint and k > len(parts) else ""))
 
 
 def distances_from_counts(N, model: str, *, gamma: float | None = None, base_frequencies=None,

@@ -427,6 +427,18 @@ def test_saturated_and_no_overlap_pairs_are_missing_with_one_warning():
     assert msg.startswith("36 pairs undefined") and "and 31 more (see file)" in msg
 
 
+def test_undefined_message_stays_one_short_line_with_long_labels():
+    # 16 pairs with 61-character labels: the line names what fits, then counts the rest (the full
+    # list is in the result and in --undefined FILE).
+    names = [f"{'x' * 60}{i}" for i in range(8)]
+    many = Alignment.from_sequences(names, ["AC--" if i % 2 else "--GT" for i in range(8)])
+    r = pairwise_distances(many, "p", warn=False)
+    msg = undefined_message(r, hint="(all in u.txt)")
+    assert len(r.undefined) == 16 and msg.startswith("16 pairs undefined") and len(msg) < 400
+    shown = msg.count("(no shared column)")
+    assert 1 <= shown < 16 and msg.endswith(f"and {16 - shown} more (all in u.txt)")
+
+
 def test_gamma_saturation_never_inf():
     # a (x^(-1/a) - 1) overflows for tiny a near saturation: it must become missing, not inf.
     N = np.diag([1.0, 1, 1, 1]) + 0.0
