@@ -36,7 +36,7 @@ from typing import Iterator, Sequence
 import numpy as np
 
 from .errors import InputError
-from .matrix import DistanceMatrix
+from .matrix import DistanceMatrix, bad_label_char
 
 MATRIX_FORMATS = ("tsv", "csv", "square", "lower")
 _NA = {"", "na", "nan"}
@@ -71,14 +71,37 @@ def read_text(path: str, what: str = "file") -> str:
     return text
 
 
-def matrix_format(path: str, explicit: str | None = None) -> str:
-    """The matrix format for a path: the explicit choice, else by extension, else tsv."""
+_EXTENSIONS = {".csv": "csv", ".tsv": "tsv"}
+
+# Output paths whose matrix format was guessed (no explicit format, no known
+# extension): OutputSet.commit says so, in one line, once the file is written.
+_GUESSED: set = set()
+
+
+def _format_for(path: str, explicit: str | None = None) -> str:
     if explicit:
         if explicit not in MATRIX_FORMATS:
             raise InputError(f"unknown matrix format '{explicit}' (choose from {', '.join(MATRIX_FORMATS)})")
         return explicit
-    ext = os.path.splitext(path)[1].lower()
-    return {".csv": "csv", ".tsv": "tsv"}.get(ext, "tsv")
+    return _EXTENSIONS.get(os.path.splitext(path)[1].lower(), "tsv")
+
+
+def matrix_format(path: str, explicit: str | None = None) -> str:
+    """The format to write a matrix to ``path`` in: the explicit choice, else by extension, else tsv.
+
+    When it has to guess (no explicit choice and no known extension), the
+    path is remembered, and :meth:`OutputSet.commit` says in one line on
+    standard error which format it wrote there, once it has written it.
+
+    Examples
+    --------
+    >>> matrix_format("d.csv"), matrix_format("d.txt", "square"), matrix_format("d.txt")
+    ('csv', 'square', 'tsv')
+    """
+    fmt = _format_for(path, explicit)
+    if not explicit and path != "-" and os.path.splitext(path)[1].lower() not in _EXTENSIONS:
+        _GUESSED.add(os.path.abspath(path))
+    return fmt
 
 
 def _sniff_square(text: str) -> str | None:
@@ -123,12 +146,26 @@ def read_matrix(path: str, fmt: str | None = None) -> DistanceMatrix:
     name = "<stdin>" if path == "-" else path
     if not text.strip():
         raise InputError(f"{name}: empty file")
-    if fmt is None and os.path.splitext(path)[1].lower() not in (".tsv", ".csv"):
+    if fmt is None and os.path.splitext(path)[1].lower() not in _EXTENSIONS:
         fmt = _sniff_square(text)
-    fmt = matrix_format(path, fmt)
+    fmt = _format_for(path, fmt)
     if fmt in ("tsv", "csv"):
         return _read_delimited(text, name, "\t" if fmt == "tsv" else ",")
     return _read_square(text, name, lower=(fmt == "lower"))
+
+
+def _check_label(label: str, name: str, line: int) -> None:
+    """Refuse a label holding a control character (a line break, tab, escape...), naming the line.
+
+    Such a label (possible in a quoted csv cell) would break every line-based
+    output and message that shows it.
+    """
+    bad = bad_label_char(label)
+    if bad is not None:
+        from .console import one_line
+
+        raise InputError(f"{name}: line {line}: label '{one_line(label)}' holds a control character "
+                         f"({one_line(bad)!s}); labels must be printable text")
 
 
 def _parse_cell(cell: str, name: str, line: int, row_label: str, col_label: str) -> float:
@@ -157,7 +194,7 @@ def _read_delimited_fast(text: str, name: str, sep: str) -> DistanceMatrix | Non
         head, _, body = text.partition("\n")
         header = next(csv.reader([head], delimiter=sep))
         labels = [h.strip() for h in header[1:]]
-        if not labels or not body.strip() or '"' in body:
+        if not labels or not body.strip() or '"' in body or '"' in head:
             return None
         # pandas pads short rows with NaN; a ragged row must be an error, so check the shape first.
         n = len(labels)
@@ -174,6 +211,8 @@ def _read_delimited_fast(text: str, name: str, sep: str) -> DistanceMatrix | Non
                                                               for t in frame.dtypes):
         return None
     rows = [str(r).strip() for r in frame.index]
+    if any(bad_label_char(lab) is not None for lab in labels + rows):
+        return None  # the careful reader names the line
     values = frame.to_numpy(dtype=np.float64)
     if rows != labels:
         if sorted(rows) != sorted(labels) or len(set(rows)) != len(rows):
@@ -187,8 +226,12 @@ def _read_delimited_fast(text: str, name: str, sep: str) -> DistanceMatrix | Non
 
 def _read_delimited_careful(text: str, name: str, sep: str) -> DistanceMatrix:
     reader = csv.reader(io.StringIO(text), delimiter=sep)
+    raw = []
     try:
-        raw = [(reader.line_num, row) for row in reader]
+        first = 1
+        for row in reader:  # a quoted cell may span lines: keep the line each record starts on
+            raw.append((first, row))
+            first = reader.line_num + 1
     except csv.Error as exc:
         raise InputError(f"{name}: line {reader.line_num}: {exc}") from None
     rows = [(ln, r) for ln, r in raw if any(c.strip() for c in r)]
@@ -196,6 +239,10 @@ def _read_delimited_careful(text: str, name: str, sep: str) -> DistanceMatrix:
         raise InputError(f"{name}: empty file")
     head_line, header = rows[0]
     labels = [h.strip() for h in header[1:]]
+    for lab in labels:
+        _check_label(lab, name, head_line)
+    for ln, r in rows[1:]:
+        _check_label(r[0].strip(), name, ln)
     if not labels:
         raise InputError(f"{name}: line {head_line}: the header holds no labels "
                          f"(is this a {'tab' if sep == chr(9) else 'comma'}-separated matrix?)")
@@ -233,7 +280,14 @@ def _read_square(text: str, name: str, lower: bool) -> DistanceMatrix:
         raise InputError(f"{name}: line {ln0}: expected the number of taxa, found '{first}'") from None
     if n < 1:
         raise InputError(f"{name}: line {ln0}: number of taxa must be positive")
-    values = np.full((n, n), np.nan)
+    # Each row starts on a line of its own: a count above the lines present is
+    # refused at once, and rows are gathered before the n x n array is made,
+    # so a wrong count never asks for more memory than the file holds.
+    lines = len({tl for _, tl in toks[1:]})
+    if n > lines:
+        raise InputError(f"{name}: line {ln0}: {n} taxa announced but only {lines} "
+                         f"line{'s' if lines != 1 else ''} follow{'s' if lines == 1 else ''}")
+    rows: list[list[float]] = []
     labels = []
     pos = 1
     for i in range(n):
@@ -241,19 +295,25 @@ def _read_square(text: str, name: str, lower: bool) -> DistanceMatrix:
             raise InputError(f"{name}: {n} taxa announced but only {i} rows found")
         label, ln = toks[pos]
         pos += 1
+        _check_label(label, name, ln)
         labels.append(label)
         want = i if lower else n
         got = toks[pos:pos + want]
         if len(got) < want:
             raise InputError(f"{name}: line {ln}: row '{label}' has {len(got)} values, expected {want}")
+        row = []
         for j, (tok, tl) in enumerate(got):
             if tl != ln and not _is_number(tok):
                 raise InputError(f"{name}: line {ln}: row '{label}' has {j} values, expected {want}")
-            values[i, j] = _parse_cell(tok, name, tl, label, f"position {j + 1}")
+            row.append(_parse_cell(tok, name, tl, label, f"position {j + 1}"))
+        rows.append(row)
         pos += want
     if pos != len(toks):
         tok, tl = toks[pos]
         raise InputError(f"{name}: line {tl}: unexpected '{tok}' after {n} rows (ragged rows?)")
+    values = np.full((n, n), np.nan)
+    for i, row in enumerate(rows):
+        values[i, :len(row)] = row
     if lower:
         iu = np.triu_indices(n, 1)
         values[iu] = values.T[iu]
@@ -384,6 +444,16 @@ class OutputSet:
     temporary file is removed, so existing files stay exactly as they were.
     A path of ``-`` is written to standard output at commit.
 
+    :meth:`commit` publishes the set all or nothing: it first moves each
+    existing target aside to a backup name in the same folder, then renames
+    every new file into place, then removes the backups. If any rename fails
+    (or the command is interrupted), the new files are removed and the
+    backups renamed back, so the folder holds exactly the old files again.
+
+    A matrix whose format had to be guessed (no ``--out-format`` and no
+    known extension) is written as tsv, and :meth:`commit` says so in one
+    line on standard error.
+
     Examples
     --------
     >>> import tempfile, os
@@ -418,22 +488,30 @@ class OutputSet:
             raise InputError(f"{path}: output folder '{folder}' does not exist")
         if os.path.isdir(path):
             raise InputError(f"{path}: is a directory")
+        real = os.path.realpath(path)
+        for _, other in self._staged:
+            if os.path.realpath(other) == real:  # the later text would silently replace the earlier
+                raise InputError(f"{path}: two outputs of this command would write to this file")
         try:
             fd, tmp = tempfile.mkstemp(prefix=".seqdist-", suffix=".part", dir=folder)
         except OSError as exc:
             raise InputError(f"{path}: cannot write ({exc.strerror})") from None
+        # Recorded at once, so discard() removes it whatever happens next.
+        self._staged.append((tmp, path))
         try:
             with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
                 fh.write(text)
             os.chmod(tmp, 0o666 & ~_umask())
-        except BaseException:
+        except BaseException as exc:
+            self._staged.pop()
             with contextlib.suppress(OSError):
                 os.unlink(tmp)
+            if isinstance(exc, OSError):
+                raise InputError(f"{path}: cannot write ({exc.strerror or exc})") from None
             raise
-        self._staged.append((tmp, path))
 
     def add_matrix(self, path: str, dm: DistanceMatrix, fmt: str | None = None) -> None:
-        """Stage a matrix file (format by option, else extension, else tsv)."""
+        """Stage a matrix file (format by option, else extension, else tsv, said at commit)."""
         self.add_text(path, format_matrix(dm, matrix_format(path, fmt)))
 
     def add_json(self, path: str, obj) -> None:
@@ -441,20 +519,94 @@ class OutputSet:
         self.add_text(path, json.dumps(to_jsonable(obj), indent=2, allow_nan=False) + "\n")
 
     def commit(self) -> None:
-        for tmp, path in self._staged:
-            os.replace(tmp, path)
-        self._staged = []
+        """Publish every staged file, all or nothing, then the standard-output texts.
+
+        Raises
+        ------
+        InputError
+            When a rename fails; every target then holds what it held before,
+            and no temporary or backup file is left.
+        """
+        staged, self._staged = self._staged, []
+        reserved: list[str] = []              # backup names created (empty until a move)
+        moved: list[tuple[str, str]] = []     # (backup, target): old files moved aside
+        current = staged[0][1] if staged else ""
+        try:
+            for _tmp, path in staged:
+                current = path
+                if os.path.lexists(path):
+                    reserved.append(_reserve_backup(path))
+                    os.replace(path, reserved[-1])
+                    moved.append((reserved[-1], path))
+            for tmp, path in staged:
+                current = path
+                os.replace(tmp, path)
+        except BaseException as exc:
+            kept = _roll_back(staged, reserved, moved)
+            for _tmp, path in staged:
+                _GUESSED.discard(os.path.abspath(path))
+            if isinstance(exc, OSError):
+                msg = f"{current}: cannot write ({exc.strerror or exc}); "
+                msg += ("no output file was changed" if not kept else
+                        "the old contents of " + ", ".join(f"{t} are in {b}" for b, t in kept))
+                raise InputError(msg) from None
+            raise
+        for bak, _ in moved:
+            with contextlib.suppress(OSError):
+                os.unlink(bak)
+        for _tmp, path in staged:
+            key = os.path.abspath(path)
+            if key in _GUESSED:
+                from .console import info
+
+                _GUESSED.discard(key)
+                info(f"{path}: no known matrix extension, wrote tsv (choose with --out-format)")
         for text in self._stdout:
             sys.stdout.write(text)
         sys.stdout.flush()
         self._stdout = []
 
     def discard(self) -> None:
-        for tmp, _ in self._staged:
+        for tmp, path in self._staged:
+            _GUESSED.discard(os.path.abspath(path))
             with contextlib.suppress(OSError):
                 os.unlink(tmp)
         self._staged = []
         self._stdout = []
+
+
+def _roll_back(staged, reserved, moved) -> list:
+    """Undo a failed commit: new files out, old files back, temporaries and unused backup names gone.
+
+    A staged file whose temporary name is gone was renamed into place (even
+    if the interruption came right after the rename), so its target is
+    removed. Returns the (backup, target) pairs whose old file could not be
+    moved back (kept, never deleted), normally none.
+    """
+    for tmp, path in staged:
+        if not os.path.lexists(tmp):
+            with contextlib.suppress(OSError):
+                os.unlink(path)
+    kept = []
+    for bak, path in reversed(moved):
+        try:
+            os.replace(bak, path)
+        except OSError:
+            kept.append((bak, path))
+    for bak in reserved[len(moved):]:  # reserved, but the old file was never moved there
+        with contextlib.suppress(OSError):
+            os.unlink(bak)
+    for tmp, _ in staged:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+    return kept
+
+
+def _reserve_backup(path: str) -> str:
+    """A new, unused name beside ``path`` to move the old file to (created empty)."""
+    fd, bak = tempfile.mkstemp(prefix=".seqdist-", suffix=".bak", dir=os.path.dirname(os.path.abspath(path)))
+    os.close(fd)
+    return bak
 
 
 def check_distinct_outputs(outputs: dict) -> None:

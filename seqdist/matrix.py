@@ -29,6 +29,28 @@ def default_tol(values: np.ndarray) -> float:
     return 1e-9 * top
 
 
+def bad_label_char(label: str) -> str | None:
+    r"""The first control character of a label (line break, tab, escape...), or None.
+
+    Control characters (Unicode category Cc) and the Unicode line and
+    paragraph separators would break every line-based file and message that
+    shows the label, so labels may not hold them.
+
+    Examples
+    --------
+    >>> bad_label_char("taxon 1"), bad_label_char("a\nb")
+    (None, '\n')
+    """
+    if label.isprintable():  # the common case, fast
+        return None
+    import unicodedata
+
+    for ch in label:
+        if unicodedata.category(ch) in ("Cc", "Zl", "Zp"):
+            return ch
+    return None
+
+
 def _where(source: str | None) -> str:
     return f"{source}: " if source else ""
 
@@ -78,7 +100,8 @@ class DistanceMatrix:
         Raises
         ------
         InputError
-            Not square, labels not unique or rows and columns differ,
+            Not square, labels not unique, empty or holding a control
+            character (see :func:`bad_label_char`), rows and columns differ,
             asymmetric, non-zero diagonal, negative or infinite entries.
 
         Examples
@@ -113,6 +136,12 @@ class DistanceMatrix:
         for i, lab in enumerate(labels):
             if lab == "":
                 raise InputError(f"{where}empty label at position {i + 1}")
+            bad = bad_label_char(lab)
+            if bad is not None:
+                from .console import one_line
+
+                raise InputError(f"{where}label '{one_line(lab)}' at position {i + 1} holds a control character "
+                                 f"({one_line(bad)}); labels must be printable text")
             if lab in seen:
                 raise InputError(f"{where}duplicate label '{lab}' (positions {seen[lab] + 1} and {i + 1})")
             seen[lab] = i

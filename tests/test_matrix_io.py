@@ -161,9 +161,111 @@ def test_large_matrix_fast_writer_round_trips(tmp_path, fmt):
     a[4, 9] = a[9, 4] = np.nan
     labels = [f"t{i}" for i in range(n)]
     if fmt in ("tsv", "csv"):
-        labels[7] = 'odd, "label"\twith tab'
+        labels[7] = 'odd, "label" with; space'
     dm = DistanceMatrix.from_array(a, labels)
     p = str(tmp_path / f"m.{fmt}")
     write_matrix(p, dm, fmt)
     back = read_matrix(p, fmt)
     assert back.labels == dm.labels and np.array_equal(back.values, dm.values, equal_nan=True)
+
+
+# ------------------------------------------------------------------ issue 14
+def _one_error_line(p, *needles):
+    assert p.returncode == 2, (p.returncode, p.stderr)
+    lines = p.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("seqdist: error: "), p.stderr
+    for needle in needles:
+        assert needle in lines[0], (needle, lines[0])
+    assert "Traceback" not in p.stderr
+
+
+@pytest.mark.parametrize("fmt, body", [("square", "a 0 1\nb 1 0\n"), ("lower", "a\nb 1\n")])
+def test_square_count_beyond_the_file_is_refused_before_allocating(tmp_path, cli, fmt, body):
+    """A first line claiming 99999999999 taxa asked numpy for 8e22 bytes (exit 1); now exit 2, line 1."""
+    src = tmp_path / "m.phy"
+    src.write_text("99999999999\n" + body)
+    out = tmp_path / "o.tsv"
+    for extra in (["--in-format", fmt], []):  # explicit, and recognised from the shape
+        p = cli("convert", src, "-o", out, *extra)
+        _one_error_line(p, f"{src}: line 1: 99999999999 taxa announced but only 2 lines follow")
+    assert not out.exists()
+    with pytest.raises(InputError, match="line 1: 3 taxa announced but only 2 lines follow"):
+        read_matrix(_write(tmp_path / "t.phy", "3\n" + body), fmt)
+
+
+def _write(path, text):
+    path.write_text(text)
+    return str(path)
+
+
+@pytest.mark.parametrize("name, text, where, shown", [
+    ("nl_header.csv", ',"a\nb",c\n"a\nb",0,1\nc,1,0\n', "line 1", "'a\\nb'"),
+    ("nl_row.csv", ',a,c\n"a\nx",0,1\nc,1,0\n', "line 2", "'a\\nx'"),
+    ("cr_row.csv", ',a,c\n"a\rx",0,1\nc,1,0\n', "line 2", "'a\\rx'"),
+    ("tab.tsv", '\t"a\tb"\tc\n"a\tb"\t0\t1\nc\t1\t0\n', "line 1", "'a\\tb'"),
+    ("esc.tsv", "\ta\x1bb\tc\na\x1bb\t0\t1\nc\t1\t0\n", "line 1", "'a\\x1bb'"),
+    ("sep.tsv", "\ta\u2028b\tc\na\u2028b\t0\t1\nc\t1\t0\n", "line 1", "'a\\u2028b'"),
+    ("row_only.tsv", "\tab\tc\na\x07b\t0\t1\nc\t1\t0\n", "line 2", "'a\\x07b'"),
+    ("ctl.phy", "2\na\x01b 0 1\nc 1 0\n", "line 2", "'a\\x01b'"),
+])
+def test_labels_with_control_characters_refused_in_one_line(tmp_path, cli, name, text, where, shown):
+    """A label holding a line break (possible in a quoted csv cell) gave a two-line error, and
+    other control characters went through to every output; now refused at input, one line
+    naming the file, the line and the label (escaped)."""
+    src = tmp_path / name
+    src.write_bytes(text.encode("utf-8"))
+    p = cli("convert", src, "-o", tmp_path / "o.tsv")
+    _one_error_line(p, f"{src}: {where}: label {shown} holds a control character", "labels must be printable")
+    assert not (tmp_path / "o.tsv").exists()
+
+
+def test_labels_with_control_characters_refused_by_the_api():
+    with pytest.raises(InputError, match=r"label 'a\\nb' at position 2 holds a control character"):
+        DistanceMatrix.from_array([[0, 1], [1, 0]], ["x", "a\nb"], source="mine")
+    # printable non-ASCII text is a fine label
+    assert DistanceMatrix.from_array([[0, 1], [1, 0]], ["é", "α β"]).labels == ("é", "α β")
+
+
+@pytest.mark.parametrize("out, args, note", [
+    ("out.txt", [], True), ("out.dat", [], True), ("noext", [], True), ("out.phy", [], True),
+    ("out.txt", ["--out-format", "tsv"], False), ("out.csv", [], False), ("out.TSV", [], False),
+    ("out.txt", ["--quiet"], False),
+])
+def test_guessed_output_format_is_said(tmp_path, cli, out, args, note):
+    """-o out.txt was written as tsv without a word; the contract asks the command to say
+    which format it wrote when it had to guess."""
+    src = tmp_path / "m.tsv"
+    src.write_text("\ta\tb\na\t0\t1\nb\t1\t0\n")
+    target = tmp_path / out
+    p = cli("convert", src, "-o", target, *args)
+    assert p.returncode == 0, p.stderr
+    said = f"seqdist: {target}: no known matrix extension, wrote tsv (choose with --out-format)\n"
+    assert p.stderr == (said if note else "")
+    assert target.read_text().startswith("\ta\tb\n" if not out.endswith("csv") else ",a,b\n")
+
+
+def test_guessed_format_is_said_by_every_matrix_writer(tmp_path, capsys):
+    """The note comes from OutputSet itself, so every command that writes a matrix says it,
+    and only once the file is really written."""
+    from seqdist.console import set_quiet
+
+    set_quiet(False)  # an in-process --quiet elsewhere must not hide the note here
+    dm = DistanceMatrix.from_array([[0, 1], [1, 0]], ["a", "b"])
+    with OutputSet() as out:
+        out.add_matrix(str(tmp_path / "a.out"), dm)
+        out.add_matrix(str(tmp_path / "b.out"), dm, "csv")
+    err = capsys.readouterr().err
+    assert err == f"seqdist: {tmp_path / 'a.out'}: no known matrix extension, wrote tsv (choose with --out-format)\n"
+    with pytest.raises(RuntimeError):
+        with OutputSet() as out:
+            out.add_matrix(str(tmp_path / "c.out"), dm)
+            raise RuntimeError("a later step failed")
+    assert capsys.readouterr().err == "" and not (tmp_path / "c.out").exists()
+
+
+def test_one_output_set_refuses_one_path_twice(tmp_path):
+    with OutputSet() as out:
+        out.add_text(str(tmp_path / "a.txt"), "1\n")
+        with pytest.raises(InputError, match="two outputs of this command would write to this file"):
+            out.add_text(str(tmp_path / "." / "a.txt"), "2\n")
+    assert (tmp_path / "a.txt").read_text() == "1\n"
