@@ -29,9 +29,9 @@ is decided exactly from the integer counts: a pair exactly at it (k80: columns
 Formulas and sources: docs/distances.md.
 
 examples:
-  seqdist distances aln.fasta -o dist.tsv --model tn93 --gamma 0.5
-  seqdist distances prot.sto -o dist.phy --out-format square --model kimura
-  seqdist distances aln.fasta -o d.tsv --sites sites.tsv --variance var.tsv"""
+  seqdist distances example_sequences/dna_clean.fasta -o dist.tsv --model tn93 --gamma 0.5
+  seqdist distances example_sequences/protein_small.sto -o dist.phy --out-format square --model kimura
+  seqdist distances example_sequences/dna_trouble.fasta -o d.tsv --sites sites.tsv --undefined u.txt"""
 
 
 def register(subs, common):

@@ -28,9 +28,10 @@ NUC.4.4 (+5/-4, IUPAC codes) and protein under BLOSUM62. A matrix that lacks a
 letter of the sequences is an error; a protein matrix for DNA (or the reverse)
 gives a warning.
 
-example:
-  seqdist pairscores proteins.fasta -o dist.tsv --matrix BLOSUM62 --mode global \\
-      --gap-open 11 --gap-extend 1 --processes 2"""
+examples:
+  seqdist pairscores example_sequences/protein.fasta -o dist.tsv --matrix BLOSUM62 --mode global \\
+      --gap-open 11 --gap-extend 1 --processes 2
+  seqdist pairscores example_sequences/dna_clean.fasta -o dna_dist.tsv --formula cosine"""
 
 
 def register(subs, common):
