@@ -310,7 +310,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     if dres.undefined:
         from .console import warn
 
-        warn(undefined_message(dres, hint="; they stay missing in distances.tsv"))
+        warn(undefined_message(dres, hint="(they stay missing in distances.tsv; all in distances.json)"))
     dm = dres.matrix
     seconds["distances"] = time.perf_counter() - t
     say(f"      {dm.n} sequences x {aln.length} columns, model {dres.model}, "
