@@ -21,10 +21,11 @@ def register(subs, common):
         "trees rebuilt, giving every split its support before and after repair.\n\n"
         "A repaired matrix is altered data: report the objective and the changes with any result.\n\n"
         "examples:\n"
-        "  seqdist impact dist.tsv repaired.tsv --json impact.json --html impact.html\n"
-        "  seqdist impact dist.tsv repaired.tsv --truth true.nwk --method bionj\n"
-        "  seqdist impact dist.tsv repaired.tsv --alignment aln.fasta --bootstrap 100 \\\n"
-        "      --model k80 --objective l2 --seed 1 --html impact.html")
+        "  seqdist impact dist.tsv fixed.tsv --json impact.json --html impact.html\n"
+        "  seqdist impact dist.tsv fixed.tsv --truth example_sequences/dna_clean.true.nwk --method bionj\n"
+        "  seqdist impact dist.tsv fixed.tsv --alignment example_sequences/dna_clean.fasta --bootstrap 100 \\\n"
+        "      --model tn93 --gamma 0.5 --objective fewest --seed 1 --html impact.html\n"
+        "(dist.tsv and fixed.tsv as made by the examples of 'seqdist distances' and 'seqdist repair')")
     p.add_argument("before", help="matrix before the change (e.g. as measured)")
     p.add_argument("after", help="matrix after the change (e.g. repaired)")
     add_matrix_in(p)

@@ -29,7 +29,7 @@ letter of the sequences is an error; a protein matrix for DNA (or the reverse)
 gives a warning.
 
 examples:
-  seqdist pairscores example_sequences/protein.fasta -o dist.tsv --matrix BLOSUM62 --mode global \\
+  seqdist pairscores example_sequences/protein.fasta -o protein-dist.tsv --matrix BLOSUM62 --mode global \\
       --gap-open 11 --gap-extend 1 --processes 2
   seqdist pairscores example_sequences/dna_clean.fasta -o dna_dist.tsv --formula cosine"""
 

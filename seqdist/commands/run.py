@@ -25,7 +25,9 @@ def register(subs, common):
         "A repaired matrix is altered data: report the objective and changes.tsv with any result.\n\n"
         "examples:\n"
         "  seqdist run example_sequences/dna_trouble.fasta --outdir results/dna_trouble\n"
-        "  seqdist run aln.sto --outdir out --objective l2 --weighted --method bionj")
+        "  seqdist run example_sequences/protein_small.sto --outdir results/protein_small \\\n"
+        "      --objective l2 --weighted --method bionj\n"
+        "  seqdist run example_sequences/dna_trouble.fasta --outdir results/dna_trouble_kept --keep-unmeasured")
     p.add_argument("alignment", help="alignment file (FASTA, Clustal, Stockholm, NEXUS, PHYLIP...)")
     p.add_argument("--outdir", required=True, metavar="DIR", help="output folder (created if needed)")
     p.add_argument("--in-format", default=None, help="alignment format (default: from the extension or content)")
