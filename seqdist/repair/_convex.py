@@ -82,6 +82,41 @@ def setup(problem) -> Setup:
 # (measured: about 7 ns against 10-13 ns per item on these machines)
 SCAN_PER_SWEEP = 0.5
 
+# ------------------------------------------------------------ work model
+# Cost of each counted step in reference seconds (problem.REFERENCE_MACHINE),
+# measured once there and fixed: budgets are spent by these counts, never by
+# the clock, so the same input and options give the same iterates and the
+# same answer on any machine and under any load.
+SCAN_PER_TRIANGLE = 1.5e-8     # full triangle scan (two threads), per triangle C(n, 3)
+L2_PER_CONSTRAINT = 1e-8       # one Hildreth update (sweep_l2_tri), per triangle constraint
+L1_PER_CONSTRAINT = 9e-8       # one exact line maximisation (sweep_l1_tri), per triangle constraint
+PER_CYCLE_EDGE = 5e-9          # cycle constraints, per edge of the cycle (either sweep)
+CERTIFICATE_PER_N3 = 8e-10     # feasible point + bound (a shortest-path closure), per n^3
+CG_PER_CONSTRAINT = 2e-8       # one conjugate-gradient product (polish), per constraint
+ROUND = 2e-3                   # fixed part of one round (Python, small arrays)
+SCAN_CALL = 5e-3               # fixed part of one scan (starting the threads, merging the pool)
+# the l1 LP's HiGHS calls are counted as those of fewest and grow
+from ._support import LP_CALL, LP_ITER_PER_NZ  # noqa: E402
+
+
+def scan_cost(S) -> float:
+    """Counted work of one separation: the triangle scan, plus shortest paths when G is not complete."""
+    n = float(S.n)
+    c = SCAN_CALL + SCAN_PER_TRIANGLE * n * (n - 1) * (n - 2) / 6.0
+    if not S.full:
+        c += CERTIFICATE_PER_N3 * n ** 3
+    return c
+
+
+def certificate_cost(S) -> float:
+    """Counted work of one certificate (feasible point and bound) and the round around it."""
+    return ROUND + CERTIFICATE_PER_N3 * float(S.n) ** 3
+
+
+def sweep_cost(pool, per_constraint: float) -> float:
+    """Counted work of one sweep over the pool."""
+    return per_constraint * pool.keys.size + PER_CYCLE_EDGE * pool.edges.size
+
 
 def sweeps_per_round(n: int, pool_size: int, max_sweeps: int = 256) -> int:
     """Sweeps over the pool between two scans: about one scan's work.
@@ -95,27 +130,30 @@ def sweeps_per_round(n: int, pool_size: int, max_sweeps: int = 256) -> int:
     return int(min(max_sweeps, max(2, round(SCAN_PER_SWEEP * triangles / max(pool_size, 1)))))
 
 
-def run_context(problem, name: str):
-    """Start-up shared by the convex solvers: ``(t0, options, deadline, log)``.
+def run_context(problem, name: str, declared: dict):
+    """Start-up shared by the convex solvers: ``(t0, options, budget, log)``.
 
-    ``deadline`` comes from the engine, else from ``time_limit``; ``log``
-    prints a timed line on standard error when the ``verbose`` option is set.
+    ``options`` are the validated options (:func:`.problem.validate_options`
+    against ``declared``); ``budget`` is the work budget of ``time_limit``
+    (reference seconds; never the clock); ``log`` prints a timed line on
+    standard error when the ``verbose`` option is set (the time is shown,
+    never used for a decision). ``t0`` is for the report's ``seconds`` only.
     """
     import sys
     import time
 
+    from .problem import validate_options
+
     t0 = time.perf_counter()
-    opts = dict(problem.options or {})
-    deadline = problem.deadline
-    if deadline is None and problem.time_limit is not None:
-        deadline = t0 + float(problem.time_limit)
-    verbose = bool(opts.get("verbose", False))
+    opts = validate_options(name, declared, problem.options)
+    budget = problem.budget()
+    verbose = opts.get("verbose", False)
 
     def log(msg):
         if verbose:
             print(f"[{name} {time.perf_counter() - t0:7.2f}s] {msg}", file=sys.stderr, flush=True)
 
-    return t0, opts, deadline, log
+    return t0, opts, budget, log
 
 
 # ------------------------------------------------------------ constraints and duals

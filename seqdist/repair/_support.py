@@ -13,18 +13,71 @@ symmetric boolean (n, n) arrays; edge ids are ``i * n + j`` with ``i < j``.
   it, then each changed entry moved as near its input value as the others allow.
 * :func:`lazy_hitting_set` - the exact binary program with lazy cycle cuts
   (scipy's ``milp``, HiGHS).
+
+Every stopping decision follows a :class:`~seqdist.repair.problem.Budget`
+charged by the work model below (counted steps times fixed per-step costs),
+never the clock: HiGHS gets node and iteration limits, not time limits.
 """
 
 from __future__ import annotations
 
 import contextlib
 import os
-import time
 
 import numpy as np
 
 from ..paths import apsp
 from . import _cycles
+from .problem import Budget
+
+# ------------------------------------------------------------------ work model
+# Cost of each counted step in reference seconds (problem.REFERENCE_MACHINE),
+# measured once there (medians over n = 100 to 400, and over the HiGHS calls of
+# fewest and grow runs at n = 12 to 60) and fixed here: a budget is spent by
+# these counts, never by the clock, so answers do not depend on the machine or
+# its load. HiGHS's branch and bound is the least regular (strong branching
+# and root cuts); its model is right within a factor of about 2-3.
+APSP_PER_N3 = 3e-10            # seqdist.paths.apsp (blocked Floyd-Warshall), per n^3
+DIJKSTRA_PER_N2 = 1.3e-9       # one dense Dijkstra (_cycles.shortest_tree), per n^2
+INSERT_PER_N2 = 1.6e-9         # prune: insert test + update of the kept paths, per n^2
+TRIANGLES_PER_N3 = 1.2e-9      # _cycles.violated_triangles (count and fill), per n^3
+LP_CALL = 2e-3                 # fixed part of one linprog call
+LP_ITER_PER_NZ = 6e-9          # one HiGHS simplex iteration, per unit of size (non-zeros + rows + columns;
+                               # measured 6e-10 to 2e-8 on the LPs here: the least regular item)
+MIP_ROOT_PER_NZ = 8e-4         # one milp call up to its first node (presolve, cuts, root strong
+                               # branching, heuristics), per unit of size: fewest's cuts (6e-4 to
+                               # 1.6e-3 measured); grow's two-entry cuts are far easier (4e-6 to
+                               # 1.5e-4): GROW_MIP_SCALE
+GROW_MIP_SCALE = 0.1           # grow's milp calls: this times fewest's root and node costs
+MIP_EARLY_NODES = 20           # the first nodes of a milp call pay for strong branching:
+MIP_EARLY_PER_NZ = 1.5e-4      #   each, per unit of size
+MIP_NODE_PER_SQRT_NZ = 6e-4    # later nodes, per square root of the size
+
+
+def mip_cost(nodes: int, size: float, scale: float = 1.0) -> float:
+    """Counted work of ``nodes`` branch-and-bound nodes of a milp call of ``size`` (root excluded)."""
+    early = min(nodes, MIP_EARLY_NODES)
+    return scale * (early * MIP_EARLY_PER_NZ * size + (nodes - early) * MIP_NODE_PER_SQRT_NZ * np.sqrt(size))
+
+
+def mip_nodes(work: float, size: float, scale: float = 1.0) -> int:
+    """The most nodes whose :func:`mip_cost` fits in ``work`` (at least 1).
+
+    >>> mip_nodes(mip_cost(7, 1000.0), 1000.0), mip_nodes(mip_cost(500, 1000.0), 1000.0)
+    (7, 500)
+    """
+    e = scale * MIP_EARLY_PER_NZ * size
+    if work < MIP_EARLY_NODES * e:
+        return max(1, int(work // e))
+    return MIP_EARLY_NODES + int((work - MIP_EARLY_NODES * e) // (scale * MIP_NODE_PER_SQRT_NZ * np.sqrt(size)))
+
+
+def cost_apsp(n: int) -> float:
+    return APSP_PER_N3 * float(n) ** 3
+
+
+def cost_dijkstra(n: int) -> float:
+    return DIJKSTRA_PER_N2 * float(n) ** 2
 
 
 def kept_paths(D: np.ndarray, F: np.ndarray) -> np.ndarray:
@@ -45,7 +98,7 @@ def sym(mask: np.ndarray) -> np.ndarray:
     return m | m.T
 
 
-def prune(D, F, S_edges, keys, check_all: bool, tol: float, deadline=None):
+def prune(D, F, S_edges, keys, check_all: bool, tol: float, budget: Budget | None = None):
     """Return entries of ``S_edges`` to the kept set ``F`` where possible (in place on F).
 
     Parameters
@@ -60,22 +113,32 @@ def prune(D, F, S_edges, keys, check_all: bool, tol: float, deadline=None):
         False (fewest): only kept entries must stay at most their shortest
         kept path. True (grow): every observed entry must (``check`` is then
         the observed mask, passed as ``F``'s companion via ``D`` not NaN).
+    budget : Budget, optional
+        Charged per entry tried; once spent, the remaining entries stay
+        changed (still feasible: the kept set only ever grows while it stays so).
+
     Returns the list of entries that stay changed.
     """
+    n = D.shape[0]
     A = kept_paths(D, F)
+    if budget is not None:
+        budget.charge(cost_apsp(n))
     check = ~np.isnan(D) if check_all else F.copy()
     np.fill_diagonal(check, False)
     order = np.lexsort((np.arange(len(keys)), keys))
     stay = []
+    step = INSERT_PER_N2 * float(n) ** 2
     for q, idx in enumerate(order):
         i, j = int(S_edges[idx, 0]), int(S_edges[idx, 1])
-        if deadline is not None and q % 64 == 0 and time.perf_counter() > deadline:
+        if budget is not None and budget.exhausted():
             stay.extend((int(S_edges[r, 0]), int(S_edges[r, 1])) for r in order[q:])
             break
         d = D[i, j]
         if d > A[i, j] + tol:
             stay.append((i, j))
             continue
+        if budget is not None:
+            budget.charge(step)
         if not check_all:
             check[i, j] = check[j, i] = True
         if _cycles.insert_ok(A, D, check, i, j, d, tol):
@@ -163,21 +226,23 @@ def quiet_stdout():
         os.close(devnull)
 
 
-class Deadline:
-    """Seconds left before a deadline (None = no limit)."""
+def _milp(c, A, options: dict):
+    """scipy's ``milp`` (HiGHS) on ``min c z, A z >= 1, z binary``.
 
-    def __init__(self, deadline: float | None):
-        self.deadline = deadline
+    Only work limits go in ``options`` (``node_limit``), never ``time_limit``:
+    HiGHS's branch and bound is deterministic for a given node limit.
+    (HiGHS ignores a simplex iteration limit inside branch and bound, so nodes
+    are the one work limit it takes.)
+    """
+    from scipy.optimize import LinearConstraint, milp
 
-    def left(self) -> float | None:
-        return None if self.deadline is None else self.deadline - time.perf_counter()
-
-    def passed(self) -> bool:
-        return self.deadline is not None and time.perf_counter() >= self.deadline
+    with quiet_stdout():
+        return milp(c, constraints=LinearConstraint(A, lb=1.0, ub=np.inf), integrality=np.ones(len(c)),
+                    bounds=(0, 1), options=dict(options))
 
 
-def lazy_hitting_set(n, w, cuts, separate, incumbent, deadline: Deadline, progress=None,
-                     max_rounds: int = 500, log=None):
+def lazy_hitting_set(n, w, cuts, separate, incumbent, budget: Budget, progress=None,
+                     max_rounds: int = 500, log=None, mip_scale: float = 1.0):
     """Exact weighted hitting set of broken cycles with lazy cuts.
 
     Parameters
@@ -191,21 +256,28 @@ def lazy_hitting_set(n, w, cuts, separate, incumbent, deadline: Deadline, progre
         ``separate(S_ids) -> (new_cuts, feasible_ids or None)``: the cuts
         violated by changing exactly ``S_ids`` (empty when that change set
         is feasible) and, optionally, a feasible change set built from it.
+        It charges its own work to ``budget``.
     incumbent : (ids, value)
         A feasible change set to start from (from the heuristic).
-    deadline : Deadline
+    budget : Budget
+        Work budget: each ``milp`` call gets the branch-and-bound nodes and
+        simplex iterations that fit in what is left (never a time limit), and
+        is charged by its size and node count; the loop stops when it is spent.
+    mip_scale : float
+        Factor on the counted work of each milp call (it depends on the kind
+        of cuts, see the work model).
 
     Returns
     -------
     dict with ``ids``, ``value``, ``lower_bound``, ``optimal``, ``rounds``,
-    ``cuts``, ``status``.
+    ``cuts``, ``status``, ``nodes``.
     """
     import scipy.sparse as sp
-    from scipy.optimize import LinearConstraint, milp
 
     best_ids, best_val = list(incumbent[0]), float(incumbent[1])
     lb = 0.0
     rounds = 0
+    nodes = 0
     status = "optimal"
     all_cuts = [tuple(sorted(set(c))) for c in cuts if len(c)]
     seen = set(all_cuts)
@@ -217,8 +289,7 @@ def lazy_hitting_set(n, w, cuts, separate, incumbent, deadline: Deadline, progre
         rounds += 1
         if best_val <= lb + eps:
             break
-        left = deadline.left()
-        if left is not None and left <= 0.05:
+        if budget.exhausted():
             status = "time limit"
             break
         cols = np.unique(np.fromiter((e for c in all_cuts for e in c), dtype=np.int64))
@@ -234,23 +305,37 @@ def lazy_hitting_set(n, w, cuts, separate, incumbent, deadline: Deadline, progre
                 indptr.append(len(indices))
             Amat = sp.csr_matrix((np.ones(len(indices)), np.array(indices), np.array(indptr)),
                                  shape=(len(all_cuts), cols.size))
+            size = float(len(indices) + len(all_cuts) + cols.size)
+            # HiGHS takes no work limit inside the root node: a call whose
+            # root would not fit in what is left is not started
+            left = budget.left()
+            root = mip_scale * MIP_ROOT_PER_NZ * size
+            if left is not None and left < root:
+                status = "time limit"
+                break
+            budget.charge(root)
+            left = budget.left()
+            node_limit = None if left is None else mip_nodes(left, size, mip_scale)
             opts = {"disp": False, "mip_rel_gap": 1e-9}
-            if left is not None:
-                opts["time_limit"] = max(0.05, left)
-            with quiet_stdout():
-                res = milp(wf[cols], constraints=LinearConstraint(Amat, lb=1.0, ub=np.inf),
-                           integrality=np.ones(cols.size), bounds=(0, 1), options=opts)
+            if node_limit is not None:
+                opts["node_limit"] = node_limit
+            res = _milp(wf[cols], Amat, opts)
+            used = int(getattr(res, "mip_node_count", 0) or 0)
+            nodes += used
+            budget.charge(mip_cost(used, size, mip_scale))
             bound = getattr(res, "mip_dual_bound", None)
             if res.status == 0:
                 lb = max(lb, float(res.fun))
             elif bound is not None and np.isfinite(bound):
                 lb = max(lb, float(bound))
+            # stopped by the node limit, i.e. by the work budget
+            limited = res.status != 0 and node_limit is not None and used >= node_limit
             if res.x is None:
-                status = "time limit" if res.status == 1 else f"solver status {res.status}"
+                status = "time limit" if limited or res.status == 1 else f"solver status {res.status}"
                 break
             ids = [int(e) for e in cols[res.x > 0.5]]
             if res.status != 0:
-                status = "time limit"
+                status = "time limit" if limited or res.status == 1 else f"solver status {res.status}"
         new_cuts, feasible = separate(ids)
         if feasible is not None:
             val = float(sum(wf[e] for e in feasible))
@@ -258,7 +343,7 @@ def lazy_hitting_set(n, w, cuts, separate, incumbent, deadline: Deadline, progre
                 best_ids, best_val = list(feasible), val
         if log is not None:
             log.append({"round": rounds, "cuts": len(all_cuts), "lower_bound": lb, "best": best_val,
-                        "new_cuts": len(new_cuts)})
+                        "new_cuts": len(new_cuts), "nodes": nodes})
         if progress is not None:
             progress(lb / best_val if best_val > 0 else 1.0,
                      f"round {rounds}: {len(all_cuts)} cuts, bound {lb:.6g}, best {best_val:.6g}")
@@ -284,17 +369,18 @@ def lazy_hitting_set(n, w, cuts, separate, incumbent, deadline: Deadline, progre
             break
     optimal = best_val <= lb + eps
     return {"ids": best_ids, "value": best_val, "lower_bound": min(lb, best_val), "optimal": bool(optimal),
-            "rounds": rounds, "cuts": len(all_cuts), "status": "optimal" if optimal else status}
+            "rounds": rounds, "cuts": len(all_cuts), "status": "optimal" if optimal else status, "nodes": nodes}
 
 
-def lp_bound(n: int, cuts_tri: np.ndarray, cand: np.ndarray, w: np.ndarray, deadline: Deadline,
-             max_rows: int = 300000, max_seconds: float = 30.0, return_x: bool = False):
+def lp_bound(n: int, cuts_tri: np.ndarray, cand: np.ndarray, w: np.ndarray, budget: Budget,
+             max_rows: int = 300000, return_x: bool = False):
     """LP relaxation of the hitting set over the triangle rows (a lower bound), or None.
 
     ``cuts_tri`` holds (i, j, k) triangles and ``cand`` which of the sides
     (i,j), (i,k), (j,k) may change. The rows are a subset of all cycle rows,
     so the relaxation's optimum bounds every repair from below. Skipped when
-    there are more than ``max_rows`` rows or no time is left. With
+    there are more than ``max_rows`` rows; HiGHS gets the simplex iterations
+    that fit in ``budget`` (None, i.e. no bound, when they run out). With
     ``return_x`` also the LP values as an (n, n) array (upper triangle; None
     when skipped), which guide a second greedy pass (LP-guided rounding).
     """
@@ -305,18 +391,21 @@ def lp_bound(n: int, cuts_tri: np.ndarray, cand: np.ndarray, w: np.ndarray, dead
     if m == 0 or m > max_rows:
         out = None if m else 0.0
         return (out, None) if return_x else out
-    left = deadline.left()
-    if left is not None and left < 1.0:
-        return (None, None) if return_x else None
     i, j, k = cuts_tri[:, 0], cuts_tri[:, 1], cuts_tri[:, 2]
     ids = np.stack([i * n + j, i * n + k, j * n + k], 1)
     rows = np.repeat(np.arange(m), 3)[cand.ravel()]
     flat = ids.ravel()[cand.ravel()]
     cols, inv = np.unique(flat, return_inverse=True)
     A = sp.csr_matrix((-np.ones(len(flat)), (rows, inv)), shape=(m, len(cols)))
-    opts = {"time_limit": max_seconds if left is None else max(1.0, min(max_seconds, 0.5 * left))}
+    per_iter = LP_ITER_PER_NZ * float(len(flat) + m + len(cols))
+    budget.charge(LP_CALL)
+    maxiter = budget.count(per_iter)
+    if maxiter is not None and maxiter < 1:
+        return (None, None) if return_x else None
+    opts = {} if maxiter is None else {"maxiter": int(maxiter)}
     with quiet_stdout():
         res = linprog(w.ravel()[cols], A_ub=A, b_ub=-np.ones(m), bounds=(0, 1), method="highs", options=opts)
+    budget.charge(per_iter * float(getattr(res, "nit", 0) or 0))
     if res.status != 0:
         return (None, None) if return_x else None
     # the dual objective is the proven bound; it equals res.fun at optimality,

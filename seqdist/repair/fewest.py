@@ -35,9 +35,12 @@ Algorithm
    further than the shortest-path choice; it is not a proven least-L1
    choice among all repairs with the same kept set.
 
-Options: ``method`` ("auto", "exact", "heuristic"), ``exact_seconds``
-(budget of the exact stage under ``auto`` without a time limit, default
-120), ``exact_max_n`` (default 200), ``exact_max_rows`` (default 600000).
+Work, not time: every stage stops by a work budget
+(:class:`~seqdist.repair.problem.Budget`, from ``time_limit`` in reference
+seconds), counted in shortest-path runs, insert tests, simplex iterations and
+branch-and-bound nodes; so answers depend only on the input and the options.
+
+Options: see :data:`OPTIONS`.
 """
 
 from __future__ import annotations
@@ -47,18 +50,33 @@ import time
 import numpy as np
 
 from . import _cycles, _support
-from .problem import RepairProblem, Solution
+from .problem import Option, RepairProblem, Solution, validate_options
+
+#: The options fewest reads (checked by :func:`~seqdist.repair.problem.validate_options`).
+OPTIONS = {
+    "method": Option("auto", "exact: the integer program; heuristic: greedy + repair + prune with bounds; "
+                             "auto: exact when the problem is small enough (exact_max_n, exact_max_rows)",
+                     choices=("auto", "exact", "heuristic")),
+    "exact_budget": Option(120.0, "work budget of the exact stage under method auto without a time limit, "
+                                  "in reference seconds", low=0.0),
+    "exact_max_n": Option(200, "largest number of taxa for the exact stage under method auto", low=0),
+    "exact_max_rows": Option(600000, "largest number of violated triangles for the exact stage under auto", low=0),
+    "lp_bound": Option(True, "compute the LP relaxation bound (and the LP-guided second greedy pass)"),
+    "lp_budget": Option(30.0, "work budget of the LP bound, in reference seconds", low=0.0),
+}
 
 
 def _var_mask(problem: RepairProblem) -> np.ndarray:
     return problem.observed & ~problem.locked
 
 
-def heuristic(problem: RepairProblem, tri=None, deadline=None, greedy_weights=None):
+def heuristic(problem: RepairProblem, tri=None, budget=None, greedy_weights=None):
     """Greedy + repair + prune. Returns (S_edges (m,2), F mask, info).
 
     ``greedy_weights`` replaces the weights in the greedy step only (the
-    LP-guided pass); repair and prune always use the true weights.
+    LP-guided pass); repair and prune always use the true weights. The
+    greedy step and the repair always run (they make the answer feasible);
+    prune stops early when ``budget`` is spent.
     """
     D, tol, n = problem.D, problem.tol, problem.n
     var = _var_mask(problem)
@@ -72,12 +90,12 @@ def heuristic(problem: RepairProblem, tri=None, deadline=None, greedy_weights=No
     keyval.flat[picked] = cnt
     S = _support.sym(S)
     F = problem.observed & ~S
-    S, F, extra = make_feasible(problem, S, F)
+    S, F, extra = make_feasible(problem, S, F, budget)
     S_edges = np.argwhere(np.triu(S, 1))
     w = problem.weights[S_edges[:, 0], S_edges[:, 1]]
     keys = (keyval[S_edges[:, 0], S_edges[:, 1]] + 1.0) / np.where(w > 0, w, 1e-300)
     before = len(S_edges)
-    S_edges = _support.prune(D, F, S_edges, keys, False, tol, deadline)
+    S_edges = _support.prune(D, F, S_edges, keys, False, tol, budget)
     info = {"greedy": int(len(picked)), "cycle_repairs": extra, "pruned": before - len(S_edges)}
     return S_edges, F, info
 
@@ -87,7 +105,7 @@ def _cand(tri, var):
     return np.stack([var[i, j], var[i, k], var[j, k]], 1)
 
 
-def make_feasible(problem: RepairProblem, S, F):
+def make_feasible(problem: RepairProblem, S, F, budget=None):
     """Grow ``S`` until ``F`` has no broken cycle (on copies). Returns (S, F, entries added).
 
     Each round computes shortest paths over ``F``; every unlocked kept entry
@@ -97,7 +115,8 @@ def make_feasible(problem: RepairProblem, S, F):
     this never breaks another kept entry, and each round removes at least one
     entry: at most as many rounds as there are kept entries. (The engine has
     already checked that the locked entries alone are feasible, so every short
-    path has an unlocked entry to give way.)
+    path has an unlocked entry to give way.) Always runs to the end (the
+    answer must be feasible); its work is charged to ``budget``.
     """
     D, tol = problem.D, problem.tol
     S = S.copy()
@@ -105,6 +124,8 @@ def make_feasible(problem: RepairProblem, S, F):
     added = 0
     while True:
         A = _support.kept_paths(D, F)
+        if budget is not None:
+            budget.charge(_support.cost_apsp(problem.n))
         bad = _support.broken_edges(D, A, F, tol)
         if len(bad) == 0:
             return S, F, added
@@ -112,13 +133,13 @@ def make_feasible(problem: RepairProblem, S, F):
         free = bad[~lk]
         S[free[:, 0], free[:, 1]] = S[free[:, 1], free[:, 0]] = True
         F[free[:, 0], free[:, 1]] = F[free[:, 1], free[:, 0]] = False
-        cut = cut_locked(problem, S, F, bad[lk]) if lk.any() else 0
+        cut = cut_locked(problem, S, F, bad[lk], budget) if lk.any() else 0
         if len(free) + cut == 0:  # pragma: no cover - excluded by the engine's lock check
             raise RuntimeError("fewest: a locked entry is longer than a path of locked entries")
         added += len(free) + cut
 
 
-def cut_locked(problem: RepairProblem, S, F, pairs) -> int:
+def cut_locked(problem: RepairProblem, S, F, pairs, budget=None) -> int:
     """Remove unlocked entries from ``F`` (into ``S``, in place) until no locked
     entry of ``pairs`` is longer than its shortest kept path. Returns how many.
 
@@ -139,6 +160,8 @@ def cut_locked(problem: RepairProblem, S, F, pairs) -> int:
         first = True
         while True:
             dist, pred = _cycles.shortest_tree(W, i)
+            if budget is not None:
+                budget.charge(_support.cost_dijkstra(problem.n))
             if not (first or D[i, j] > dist[j] + tol):
                 break
             first = False
@@ -187,7 +210,7 @@ def _ids_to_mask(ids, n):
     return _support.sym(S)
 
 
-def exact(problem: RepairProblem, tri, cand, incumbent_edges, deadline, log):
+def exact(problem: RepairProblem, tri, cand, incumbent_edges, budget, log):
     """The lazy-cut binary program (see the module docs)."""
     D, tol, n = problem.D, problem.tol, problem.n
     var = _var_mask(problem)
@@ -201,6 +224,7 @@ def exact(problem: RepairProblem, tri, cand, incumbent_edges, deadline, log):
         S = _ids_to_mask(S_ids, n)
         F = problem.observed & ~S
         A = _support.kept_paths(D, F)
+        budget.charge(_support.cost_apsp(n))
         bad = _support.broken_edges(D, A, F, tol)
         if len(bad) == 0:
             return [], None
@@ -209,47 +233,46 @@ def exact(problem: RepairProblem, tri, cand, incumbent_edges, deadline, log):
         # most broken first; a few thousand cuts per round are plenty
         viol = D[bad[:, 0], bad[:, 1]] - A[bad[:, 0], bad[:, 1]]
         bad = bad[np.lexsort((np.arange(len(bad)), -viol))][:5000]
+        budget.charge(_support.cost_dijkstra(n) * len(np.unique(bad[:, 0])))
         new = []
         for (i, j), path in zip(bad, _support.paths_for(W, bad)):
             edges = [int(i) * n + int(j)] + (_support.path_edges(path, n) if path else [])
             new.append([e for e in edges if var.flat[e]])
-        S2, F2, _ = make_feasible(problem, S, F)
+        S2, F2, _ = make_feasible(problem, S, F, budget)
         S_edges = np.argwhere(np.triu(S2, 1))
         w = problem.weights[S_edges[:, 0], S_edges[:, 1]]
-        S_edges = _support.prune(D, F2, S_edges, -w, False, tol, deadline.deadline)
+        S_edges = _support.prune(D, F2, S_edges, -w, False, tol, budget)
         return new, _edges_to_ids(S_edges, n)
 
     inc_val = float(problem.weights[incumbent_edges[:, 0], incumbent_edges[:, 1]].sum()) if len(incumbent_edges) else 0.0
     return _support.lazy_hitting_set(n, np.where(var, problem.weights, 0.0), cuts, separate,
-                                     (_edges_to_ids(incumbent_edges, n), inc_val), deadline, problem.progress, log=log)
+                                     (_edges_to_ids(incumbent_edges, n), inc_val), budget, problem.progress, log=log)
 
 
 def solve(problem: RepairProblem) -> Solution:
     """Fewest changed entries (weighted); see the module docs."""
-    t0 = time.perf_counter()
+    t0 = time.perf_counter()  # for the report's seconds only, never a decision
     D, tol, n = problem.D, problem.tol, problem.n
-    opts = problem.options
-    method = opts.get("method", "auto")
-    if method not in ("auto", "exact", "heuristic"):
-        from ..errors import InputError
-
-        raise InputError(f"fewest: unknown method '{method}' (choose from auto, exact, heuristic)")
-    deadline = _support.Deadline(problem.deadline)
+    opts = validate_options("fewest", OPTIONS, problem.options)
+    method = opts["method"]
+    budget = problem.budget()
     var = _var_mask(problem)
     tri = _cycles.violated_triangles(D, tol)
+    budget.charge(_support.TRIANGLES_PER_N3 * float(n) ** 3)
     cand = _cand(tri, var)
     problem.report(0.05, f"{len(tri)} violated triangles")
-    S_edges, F, hinfo = heuristic(problem, tri, deadline.deadline)
+    S_edges, F, hinfo = heuristic(problem, tri, budget)
     w = problem.weights
     value = float(w[S_edges[:, 0], S_edges[:, 1]].sum()) if len(S_edges) else 0.0
     lb = min(value, packing_lower_bound(problem, tri, cand))
+    seconds = {"heuristic": round(time.perf_counter() - t0, 3)}
     details = {"method": "heuristic (greedy hitting set, cycle repair, prune)", "heuristic_value": value,
-               "packing_bound": lb, "violated_triangles": int(len(tri)), **hinfo,
-               "heuristic_seconds": round(time.perf_counter() - t0, 3)}
+               "packing_bound": lb, "violated_triangles": int(len(tri)), **hinfo}
     optimal = value <= lb + 1e-9 * max(1.0, value)
-    if not optimal and opts.get("lp_bound", True):
-        lpb, xlp = _support.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), deadline,
-                                     max_seconds=float(opts.get("lp_seconds", 30.0)), return_x=True)
+    if not optimal and opts["lp_bound"]:
+        left = budget.left()
+        lp_stage = budget.stage(opts["lp_budget"] if left is None else min(opts["lp_budget"], 0.5 * left))
+        lpb, xlp = _support.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), lp_stage, return_x=True)
         if lpb is not None:
             details["lp_bound"] = lpb
             lb = max(lb, min(value, lpb))
@@ -257,7 +280,7 @@ def solve(problem: RepairProblem) -> Solution:
             # LP-guided rounding: a second greedy pass where entries the LP
             # changes are cheap; keep whichever answer is better
             gw = w * (1.05 - xlp)
-            S2, F2, h2 = heuristic(problem, tri, deadline.deadline, greedy_weights=gw)
+            S2, F2, h2 = heuristic(problem, tri, budget, greedy_weights=gw)
             v2 = float(w[S2[:, 0], S2[:, 1]].sum()) if len(S2) else 0.0
             details["lp_guided_value"] = v2
             if v2 < value - 1e-12:
@@ -266,18 +289,16 @@ def solve(problem: RepairProblem) -> Solution:
     problem.report(1.0 if value == 0 else max(0.2, lb / value), "heuristic done")
     nvar = int(np.triu(var, 1).sum())
     run_exact = not optimal and (method == "exact" or (
-        method == "auto" and n <= int(opts.get("exact_max_n", 200))
-        and len(tri) <= int(opts.get("exact_max_rows", 600000))))
+        method == "auto" and n <= opts["exact_max_n"] and len(tri) <= opts["exact_max_rows"]))
     if run_exact:
-        dl = deadline
-        if method == "auto" and problem.deadline is None:
-            dl = _support.Deadline(time.perf_counter() + float(opts.get("exact_seconds", 120.0)))
+        # under auto without a time limit the exact stage has its own budget
+        stage = budget.stage(opts["exact_budget"] if method == "auto" and problem.time_limit is None else None)
         log: list = []
-        res = exact(problem, tri, cand, S_edges, dl, log)
+        res = exact(problem, tri, cand, S_edges, stage, log)
         details.update({"method": "exact (lazy cycle cuts, HiGHS)" if res["optimal"] else
                         "exact stage stopped early (" + res["status"] + "); best verified answer",
-                        "rounds": res["rounds"], "cuts": res["cuts"], "exact_status": res["status"],
-                        "exact_log": log[-20:]})
+                        "rounds": res["rounds"], "cuts": res["cuts"], "nodes": res["nodes"],
+                        "exact_status": res["status"], "exact_log": log[-20:]})
         lb = max(lb, res["lower_bound"])
         if res["value"] < value - 1e-12 or res["optimal"]:
             S = _ids_to_mask(res["ids"], n)
@@ -290,5 +311,7 @@ def solve(problem: RepairProblem) -> Solution:
     X, sweeps = _support.complete(D, F, S_edges, tol)
     details["value_sweeps"] = sweeps
     details["unlocked_entries"] = nvar
-    details["seconds"] = round(time.perf_counter() - t0, 3)
+    details["work"] = round(budget.spent, 6)
+    seconds["total"] = round(time.perf_counter() - t0, 3)
+    details["seconds"] = seconds
     return Solution(X=X, objective_value=value, lower_bound=min(lb, value), optimal=bool(optimal), details=details)

@@ -33,19 +33,28 @@ locked entries bounds every admissible metric from above, so an observed
 entry longer than ``U`` can never be kept or grown: the engine refuses such
 a request (exit 3) and names the entry and the locked path.
 
-Options: as for fewest (``method``, ``exact_seconds``, ``exact_max_n``,
-``exact_max_rows``).
+Work, not time: as for fewest, every stage stops by a work budget
+(:class:`~seqdist.repair.problem.Budget`), never by the clock.
+
+Options: see :data:`OPTIONS` (those of fewest; exact only up to 60 taxa
+under ``auto``: growing is harder, the relaxations are weaker).
 """
 
 from __future__ import annotations
 
 import time
+from dataclasses import replace
 
 import numpy as np
 
 from . import _cycles, _support
+from .fewest import OPTIONS as _FEWEST_OPTIONS
 from .fewest import _ids_to_mask, _edges_to_ids, packing_lower_bound
-from .problem import RepairProblem, Solution
+from .problem import RepairProblem, Solution, validate_options
+
+#: The options grow reads (those of fewest, with a smaller exact_max_n).
+OPTIONS = dict(_FEWEST_OPTIONS)
+OPTIONS["exact_max_n"] = replace(_FEWEST_OPTIONS["exact_max_n"], default=60)
 
 
 def _cand_light(tri, var):
@@ -55,7 +64,7 @@ def _cand_light(tri, var):
     return c
 
 
-def make_feasible(problem: RepairProblem, S, F):
+def make_feasible(problem: RepairProblem, S, F, budget=None):
     """Grow ``S`` until every observed entry is at most its shortest kept path.
 
     Each round: shortest paths over ``F``; one shortest kept path for every
@@ -64,6 +73,7 @@ def make_feasible(problem: RepairProblem, S, F):
     entry, so there are at most as many rounds as kept entries (a fixed round
     cap once made feasible requests fail on dense matrices with a long locked
     entry). The engine's lock check guarantees each path has an unlocked entry.
+    Always runs to the end; its work is charged to ``budget``.
     """
     D, tol, n = problem.D, problem.tol, problem.n
     S = S.copy()
@@ -74,6 +84,8 @@ def make_feasible(problem: RepairProblem, S, F):
     while True:
         A = _support.kept_paths(D, F)
         bad = _support.broken_edges(D, A, obs, tol)
+        if budget is not None:
+            budget.charge(_support.cost_apsp(n) + _support.cost_dijkstra(n) * len(np.unique(bad[:, 0])))
         if len(bad) == 0:
             return S, F, added
         W = np.where(F, D, np.inf)
@@ -97,7 +109,7 @@ def make_feasible(problem: RepairProblem, S, F):
             alive = [q for q in alive if best not in sets[q]]
 
 
-def heuristic(problem: RepairProblem, tri, cand, deadline=None, greedy_weights=None):
+def heuristic(problem: RepairProblem, tri, cand, budget=None, greedy_weights=None):
     D, tol, n = problem.D, problem.tol, problem.n
     picked, cnt = _cycles.greedy_hitting(n, tri, cand, problem.weights if greedy_weights is None else greedy_weights)
     S = np.zeros((n, n), dtype=bool)
@@ -106,16 +118,16 @@ def heuristic(problem: RepairProblem, tri, cand, deadline=None, greedy_weights=N
     keyval.flat[picked] = cnt
     S = _support.sym(S)
     F = problem.observed & ~S
-    S, F, extra = make_feasible(problem, S, F)
+    S, F, extra = make_feasible(problem, S, F, budget)
     S_edges = np.argwhere(np.triu(S, 1))
     w = problem.weights[S_edges[:, 0], S_edges[:, 1]]
     keys = (keyval[S_edges[:, 0], S_edges[:, 1]] + 1.0) / np.where(w > 0, w, 1e-300)
     before = len(S_edges)
-    S_edges = _support.prune(D, F, S_edges, keys, True, tol, deadline)
+    S_edges = _support.prune(D, F, S_edges, keys, True, tol, budget)
     return S_edges, F, {"greedy": int(len(picked)), "cycle_repairs": extra, "pruned": before - len(S_edges)}
 
 
-def exact(problem: RepairProblem, tri, cand, incumbent_edges, deadline, log):
+def exact(problem: RepairProblem, tri, cand, incumbent_edges, budget, log):
     D, tol, n = problem.D, problem.tol, problem.n
     obs = problem.observed
     var = obs & ~problem.locked
@@ -127,6 +139,7 @@ def exact(problem: RepairProblem, tri, cand, incumbent_edges, deadline, log):
         S = _ids_to_mask(S_ids, n)
         F = obs & ~S
         A = _support.kept_paths(D, F)
+        budget.charge(_support.cost_apsp(n))
         bad = _support.broken_edges(D, A, obs, tol)
         if len(bad) == 0:
             return [], None
@@ -134,47 +147,47 @@ def exact(problem: RepairProblem, tri, cand, incumbent_edges, deadline, log):
         np.fill_diagonal(W, 0.0)
         viol = D[bad[:, 0], bad[:, 1]] - A[bad[:, 0], bad[:, 1]]
         bad = bad[np.lexsort((np.arange(len(bad)), -viol))][:5000]
+        budget.charge(_support.cost_dijkstra(n) * len(np.unique(bad[:, 0])))
         new = []
         for path in _support.paths_for(W, bad):
             if path:
                 new.append([e for e in _support.path_edges(path, n) if var.flat[e]])
-        S2, F2, _ = make_feasible(problem, S, F)
+        S2, F2, _ = make_feasible(problem, S, F, budget)
         S_edges = np.argwhere(np.triu(S2, 1))
         w = problem.weights[S_edges[:, 0], S_edges[:, 1]]
-        S_edges = _support.prune(D, F2, S_edges, -w, True, tol, deadline.deadline)
+        S_edges = _support.prune(D, F2, S_edges, -w, True, tol, budget)
         return new, _edges_to_ids(S_edges, n)
 
     inc_val = float(problem.weights[incumbent_edges[:, 0], incumbent_edges[:, 1]].sum()) if len(incumbent_edges) else 0.0
     return _support.lazy_hitting_set(n, np.where(var, problem.weights, 0.0), cuts, separate,
-                                     (_edges_to_ids(incumbent_edges, n), inc_val), deadline, problem.progress, log=log)
+                                     (_edges_to_ids(incumbent_edges, n), inc_val), budget, problem.progress, log=log,
+                                     mip_scale=_support.GROW_MIP_SCALE)
 
 
 def solve(problem: RepairProblem) -> Solution:
     """Fewest increased entries (weighted), then least total increase; see the module docs."""
-    t0 = time.perf_counter()
+    t0 = time.perf_counter()  # for the report's seconds only, never a decision
     D, tol, n = problem.D, problem.tol, problem.n
-    opts = problem.options
-    method = opts.get("method", "auto")
-    if method not in ("auto", "exact", "heuristic"):
-        from ..errors import InputError
-
-        raise InputError(f"grow: unknown method '{method}' (choose from auto, exact, heuristic)")
-    deadline = _support.Deadline(problem.deadline)
+    opts = validate_options("grow", OPTIONS, problem.options)
+    method = opts["method"]
+    budget = problem.budget()
     var = problem.observed & ~problem.locked
     w = problem.weights
     tri = _cycles.violated_triangles(D, tol)
+    budget.charge(_support.TRIANGLES_PER_N3 * float(n) ** 3)
     cand = _cand_light(tri, var)
     problem.report(0.05, f"{len(tri)} violated triangles")
-    S_edges, F, hinfo = heuristic(problem, tri, cand, deadline.deadline)
+    S_edges, F, hinfo = heuristic(problem, tri, cand, budget)
     value = float(w[S_edges[:, 0], S_edges[:, 1]].sum()) if len(S_edges) else 0.0
     lb = min(value, packing_lower_bound(problem, tri, cand))
+    seconds = {"heuristic": round(time.perf_counter() - t0, 3)}
     details = {"method": "heuristic (greedy hitting set of light sides, path repair, prune)",
-               "heuristic_value": value, "packing_bound": lb, "violated_triangles": int(len(tri)), **hinfo,
-               "heuristic_seconds": round(time.perf_counter() - t0, 3)}
+               "heuristic_value": value, "packing_bound": lb, "violated_triangles": int(len(tri)), **hinfo}
     optimal = value <= lb + 1e-9 * max(1.0, value)
-    if not optimal and opts.get("lp_bound", True):
-        lpb, xlp = _support.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), deadline,
-                                     max_seconds=float(opts.get("lp_seconds", 30.0)), return_x=True)
+    if not optimal and opts["lp_bound"]:
+        left = budget.left()
+        lp_stage = budget.stage(opts["lp_budget"] if left is None else min(opts["lp_budget"], 0.5 * left))
+        lpb, xlp = _support.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), lp_stage, return_x=True)
         if lpb is not None:
             details["lp_bound"] = lpb
             lb = max(lb, min(value, lpb))
@@ -182,7 +195,7 @@ def solve(problem: RepairProblem) -> Solution:
             # LP-guided rounding: a second greedy pass where entries the LP
             # changes are cheap; keep whichever answer is better
             gw = w * (1.05 - xlp)
-            S2, F2, h2 = heuristic(problem, tri, cand, deadline.deadline, greedy_weights=gw)
+            S2, F2, h2 = heuristic(problem, tri, cand, budget, greedy_weights=gw)
             v2 = float(w[S2[:, 0], S2[:, 1]].sum()) if len(S2) else 0.0
             details["lp_guided_value"] = v2
             if v2 < value - 1e-12:
@@ -191,18 +204,16 @@ def solve(problem: RepairProblem) -> Solution:
     optimal = value <= lb + 1e-9 * max(1.0, value)
     problem.report(1.0 if value == 0 else max(0.2, lb / value), "heuristic done")
     run_exact = not optimal and (method == "exact" or (
-        method == "auto" and n <= int(opts.get("exact_max_n", 60))
-        and len(tri) <= int(opts.get("exact_max_rows", 600000))))
+        method == "auto" and n <= opts["exact_max_n"] and len(tri) <= opts["exact_max_rows"]))
     if run_exact:
-        dl = deadline
-        if method == "auto" and problem.deadline is None:
-            dl = _support.Deadline(time.perf_counter() + float(opts.get("exact_seconds", 120.0)))
+        # under auto without a time limit the exact stage has its own budget
+        stage = budget.stage(opts["exact_budget"] if method == "auto" and problem.time_limit is None else None)
         log: list = []
-        res = exact(problem, tri, cand, S_edges, dl, log)
+        res = exact(problem, tri, cand, S_edges, stage, log)
         details.update({"method": "exact (lazy increase-only cycle cuts, HiGHS)" if res["optimal"] else
                         "exact stage stopped early (" + res["status"] + "); best verified answer",
-                        "rounds": res["rounds"], "cuts": res["cuts"], "exact_status": res["status"],
-                        "exact_log": log[-20:]})
+                        "rounds": res["rounds"], "cuts": res["cuts"], "nodes": res["nodes"],
+                        "exact_status": res["status"], "exact_log": log[-20:]})
         lb = max(lb, _support.round_bound(res["lower_bound"], np.where(var, w, 0.0)))
         if res["value"] < value - 1e-12 or res["optimal"]:
             S = _ids_to_mask(res["ids"], n)
@@ -215,5 +226,7 @@ def solve(problem: RepairProblem) -> Solution:
     inc = X[S_edges[:, 0], S_edges[:, 1]] - lower if len(S_edges) else np.zeros(0)
     details["total_increase"] = float(inc.sum())
     details["value_sweeps"] = sweeps
-    details["seconds"] = round(time.perf_counter() - t0, 3)
+    details["work"] = round(budget.spent, 6)
+    seconds["total"] = round(time.perf_counter() - t0, 3)
+    details["seconds"] = seconds
     return Solution(X=X, objective_value=value, lower_bound=min(lb, value), optimal=bool(optimal), details=details)

@@ -23,9 +23,12 @@ Both report a certified gap: any non-negative duals give the Lagrangian
 bound :func:`._convex.bound_l1`, and the shortest-path closure of the primal
 point is a feasible metric.
 
-Options (``problem.options``): ``method`` (``auto``, ``lp`` or ``exact``,
-``projection`` or ``heuristic``), ``gap_tol`` (default 1e-6), ``lp_max_n``
-(default 100), ``max_rounds``.
+Work, not time: ``time_limit`` is a work budget
+(:class:`~seqdist.repair.problem.Budget`): HiGHS gets simplex iteration
+limits (never a time limit) and the projection method counts scans and
+constraint updates, so a run stopped by it is reproducible.
+
+Options (``problem.options``): see :data:`OPTIONS`.
 
 Examples
 --------
@@ -46,10 +49,25 @@ import numpy as np
 
 from . import _convex as C
 from . import _convex_kernels as K
-from .problem import RepairProblem, Solution
+from .problem import Option, RepairProblem, Solution
 
 _DEFAULT_GAP = 1e-6
 _LP_MAX_N = 100
+
+#: The options l1 reads (checked by :func:`~seqdist.repair.problem.validate_options`).
+OPTIONS = {
+    "method": Option("auto", "lp (or exact): the linear program with lazy rows; projection (or heuristic): "
+                             "the proximal projection method; auto: lp up to lp_max_n taxa",
+                     choices=("auto", "lp", "exact", "projection", "heuristic")),
+    "gap_tol": Option(_DEFAULT_GAP, "relative gap that counts as optimal", low=0.0, low_open=True),
+    "lp_max_n": Option(_LP_MAX_N, "largest number of taxa for the LP under method auto", low=0),
+    "max_rounds": Option(100000, "stop after this many rounds (status 'round limit')", low=1),
+    "prox_step": Option(0.05, "first proximal step, times the median entry", low=0.0, low_open=True),
+    "prox_step_max": Option(1.0, "largest proximal step, times the largest entry", low=0.0, low_open=True),
+    "prox_growth": Option(2.0, "factor by which the proximal step grows each centre", low=1.0),
+    "prox_inner": Option(1, "rounds per proximal centre", low=1),
+    "verbose": Option(False, "a log line per round on standard error"),
+}
 
 
 # ------------------------------------------------------------------ the LP
@@ -78,7 +96,7 @@ def _lp_rows(keys, var_p, base, n, nv):
     return A, rhs
 
 
-def _solve_lp(problem, S, t0, deadline, gap_tol, log):
+def _solve_lp(problem, S, budget, gap_tol, log):
     from scipy.optimize import linprog
     from scipy.sparse import vstack
 
@@ -125,18 +143,25 @@ def _solve_lp(problem, S, t0, deadline, gap_tol, log):
     status = "optimal"
     while True:
         rounds += 1
-        left = None if deadline is None else deadline - time.perf_counter()
-        if left is not None and left <= 0.05:
+        if budget.exhausted():
             status = "time limit"
             break
         opts = {"presolve": True}
-        if left is not None:
-            opts["time_limit"] = max(0.05, left)
+        # one simplex iteration of HiGHS, counted by the problem's size
+        per_iter = C.LP_ITER_PER_NZ * float(A.nnz + A.shape[0] + nv)
+        budget.charge(C.LP_CALL)
+        maxiter = budget.count(per_iter)
+        if maxiter is not None:
+            if maxiter < 1:
+                status = "time limit"
+                break
+            opts["maxiter"] = int(maxiter)
         if keys.size == 0:
             sol = np.zeros(nv)
             lam = np.zeros(0)
         else:
             res = linprog(cost, A_ub=A, b_ub=b, bounds=bnd, method="highs", options=opts)
+            budget.charge(per_iter * float(getattr(res, "nit", 0) or 0))
             if res.x is None:
                 status = "time limit" if res.status == 1 else f"LP status {res.status}"
                 break
@@ -151,6 +176,7 @@ def _solve_lp(problem, S, t0, deadline, gap_tol, log):
         g = C.bound_l1(c, S, off_graph=True)
         Y, _ = C.feasible_point(x, S)
         p = C.objective_l1(Y, S)
+        budget.charge(C.certificate_cost(S) + C.SCAN_PER_TRIANGLE * n * (n - 1) * (n - 2) / 6.0)
         if best is None or p < best[0]:
             best = [p, Y, g]
         best[2] = max(best[2], g)
@@ -181,17 +207,17 @@ def _x_prox(c, Adiff, S, iw, h):
     return S.d + np.sign(z) * np.maximum(np.abs(z) - h, 0.0) * (iw > 0)
 
 
-def _solve_projection(problem, S, t0, deadline, gap_tol, max_rounds, log, opts):
+def _solve_projection(problem, S, budget, gap_tol, max_rounds, log, opts):
     n = S.n
     pool = C.Pool(n)
     c = np.zeros((n, n))
     costed = np.isfinite(S.w) & (S.w > 0)
     scale = float(np.median(S.d[S.gi, S.gj])) if S.gi.size else 1.0
     scale = scale if scale > 0 else max(S.M, 1.0)
-    h = float(opts.get("prox_step", 0.05)) * scale
-    h_max = float(opts.get("prox_step_max", 1.0)) * max(S.M, scale)
-    grow = float(opts.get("prox_growth", 2.0))
-    inner = int(opts.get("prox_inner", 1))
+    h = opts["prox_step"] * scale
+    h_max = opts["prox_step_max"] * max(S.M, scale)
+    grow = opts["prox_growth"]
+    inner = opts["prox_inner"]
 
     def iw_of(h):
         return np.where(costed, h / np.where(costed, S.w, 1.0), 0.0)
@@ -211,6 +237,7 @@ def _solve_projection(problem, S, t0, deadline, gap_tol, max_rounds, log, opts):
             x = _x_prox(c, Adiff, S, iw, h)
             ta = time.perf_counter()
             newk, newc = C.find_violations(x, S, pool)
+            budget.charge(C.scan_cost(S))
             t_scan += time.perf_counter() - ta
             scans += 1
             since_scan = 0
@@ -233,6 +260,7 @@ def _solve_projection(problem, S, t0, deadline, gap_tol, max_rounds, log, opts):
             K.sweep_l1_tri(pool.keys, pool.lam, c, Adiff, S.d, iw, h)
             if pool.clam.size:
                 K.sweep_l1_cyc(pool.ptr, pool.edges, pool.clam, cf, Af, df, iwf, h)
+        budget.charge(per_round * C.sweep_cost(pool, C.L1_PER_CONSTRAINT))
         dt = time.perf_counter() - tb
         t_sweep += dt
         sweeps += per_round
@@ -246,6 +274,7 @@ def _solve_projection(problem, S, t0, deadline, gap_tol, max_rounds, log, opts):
         Y, _ = C.feasible_point(x, S)
         p = C.objective_l1(Y, S)
         g = C.bound_l1(c, S)
+        budget.charge(C.certificate_cost(S))
         t_cert += time.perf_counter() - tc
         if p < best_p:
             best_p, best_Y = p, Y
@@ -269,7 +298,7 @@ def _solve_projection(problem, S, t0, deadline, gap_tol, max_rounds, log, opts):
             iw = iw_of(h)
             since_centre = 0
             centres += 1
-        if deadline is not None and time.perf_counter() > deadline:
+        if budget.exhausted():
             status = "time limit"
             break
         if rounds >= max_rounds:
@@ -283,8 +312,7 @@ def _solve_projection(problem, S, t0, deadline, gap_tol, max_rounds, log, opts):
     return {"p": best_p, "Y": best_Y, "g": best_g, "rounds": rounds, "sweeps": sweeps, "scans": scans,
             "status": status,
             "active": pool.nonzero, "pool": pool.size, "cycles": pool.cycles, "prox_steps": centres,
-            "seconds_scan": round(t_scan, 3), "seconds_sweep": round(t_sweep, 3),
-            "seconds_certificate": round(t_cert, 3)}
+            "seconds": {"scan": round(t_scan, 3), "sweep": round(t_sweep, 3), "certificate": round(t_cert, 3)}}
 
 
 # ------------------------------------------------------------------ entry point
@@ -315,28 +343,19 @@ def solve(problem: RepairProblem) -> Solution:
     >>> round(s.objective_value, 9)
     2.0
     """
-    t0, opts, deadline, log = C.run_context(problem, "l1")
-    gap_tol = float(opts.get("gap_tol", _DEFAULT_GAP))
-    method = str(opts.get("method", "auto")).lower()
-    if method in ("exact",):
-        method = "lp"
-    if method in ("heuristic",):
-        method = "projection"
-    if method not in ("auto", "lp", "projection"):
-        from ..errors import InputError
-
-        raise InputError(f"l1: unknown method '{method}' (auto, lp or projection)")
-    lp_max_n = int(opts.get("lp_max_n", _LP_MAX_N))
-    max_rounds = int(opts.get("max_rounds", 100000))
+    t0, opts, budget, log = C.run_context(problem, "l1", OPTIONS)
+    gap_tol = opts["gap_tol"]
+    method = {"exact": "lp", "heuristic": "projection"}.get(opts["method"], opts["method"])
+    max_rounds = opts["max_rounds"]
     S = C.setup(problem)
     if method == "auto":
-        method = "lp" if S.n <= lp_max_n else "projection"
+        method = "lp" if S.n <= opts["lp_max_n"] else "projection"
     res = None
     if method == "lp":
-        res = _solve_lp(problem, S, t0, deadline, gap_tol, log)
+        res = _solve_lp(problem, S, budget, gap_tol, log)
         used = "linear program (HiGHS) with lazy triangle rows"
     if res is None:
-        res = _solve_projection(problem, S, t0, deadline, gap_tol, max_rounds, log, opts)
+        res = _solve_projection(problem, S, budget, gap_tol, max_rounds, log, opts)
         used = "proximal point with exact dual coordinate ascent"
     # every objective value is >= 0, so 0 is always a valid bound
     p, g = float(res["p"]), max(0.0, float(res["g"]))
@@ -345,9 +364,10 @@ def solve(problem: RepairProblem) -> Solution:
     details = {"method": used, "status": res["status"], "rounds": res["rounds"],
                "active_constraints": res.get("active", 0), "gap": float(max(0.0, p - g)),
                "relative_gap": rel, "gap_tol": gap_tol, "certified_lower_bound": g}
-    for k_ in ("rows", "sweeps", "scans", "pool", "cycles", "prox_steps", "seconds_scan", "seconds_sweep",
-               "seconds_certificate"):
+    for k_ in ("rows", "sweeps", "scans", "pool", "cycles", "prox_steps"):
         if k_ in res:
             details[{"rows": "lp_rows", "cycles": "cycle_constraints", "pool": "pool_constraints"}.get(k_, k_)] = res[k_]
+    details["work"] = round(budget.spent, 6)
+    details["seconds"] = dict(res.get("seconds", {}), total=round(time.perf_counter() - t0, 3))
     return Solution(X=C.output_matrix(res["Y"], S), objective_value=p, lower_bound=g,
                     optimal=bool(rel <= gap_tol), details=details)

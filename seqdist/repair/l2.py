@@ -19,8 +19,9 @@ Algorithm (details and the bound's derivation in docs/repair_convex.md):
    the difference.
 3. **Schedule.** Sweeps per round and scan frequency follow work counts
    (triangles per scan against constraints per sweep), never the clock, so
-   the same input and options give the same iterates on any machine; only
-   ``time_limit`` stops by the clock.
+   the same input and options give the same iterates on any machine; and
+   ``time_limit`` is a work budget (:class:`~seqdist.repair.problem.Budget`)
+   spent by the same counts, so a run stopped by it is reproducible too.
 4. **Active-set polish** (option, off by default). The constraints with a
    positive dual are made equalities and the equality-constrained
    least-squares problem is solved by conjugate gradients on
@@ -32,9 +33,7 @@ Algorithm (details and the bound's derivation in docs/repair_convex.md):
    the default tolerance plain Hildreth is faster (1.4 s against 5.2 s at
    n = 200), hence off by default.
 
-Options (``problem.options``): ``gap_tol`` (relative gap that counts as
-optimal, default 1e-6), ``max_rounds`` (default 100000), ``polish``
-(default False), ``verbose`` (a log line per round on standard error).
+Options (``problem.options``): see :data:`OPTIONS`.
 
 Examples
 --------
@@ -55,12 +54,24 @@ import numpy as np
 
 from . import _convex as C
 from . import _convex_kernels as K
-from .problem import RepairProblem, Solution
+from .problem import Option, RepairProblem, Solution
 
 _DEFAULT_GAP = 1e-6
 _MAX_POLISH = 12
 _CG_MAX_ITER = 3000
 _CG_RTOL = 1e-9
+
+#: The options l2 reads (checked by :func:`~seqdist.repair.problem.validate_options`).
+OPTIONS = {
+    "gap_tol": Option(_DEFAULT_GAP, "relative gap that counts as optimal", low=0.0, low_open=True),
+    "max_rounds": Option(100000, "stop after this many rounds (status 'round limit')", low=1),
+    "polish": Option(False, "the active-set polish (conjugate gradients on the positive-dual set)"),
+    "relax": Option(1.0, "over-relaxation of each Hildreth step (1 is the plain method)",
+                    low=0.0, high=2.0, low_open=True, high_open=True),
+    "max_sweeps": Option(256, "most sweeps over the pool between two scans", low=2),
+    "verbose": Option(False, "a log line per round on standard error"),
+}
+
 def _x_of(pool: C.Pool, S: C.Setup) -> np.ndarray:
     """The primal point of the duals: ``x = d - W^-1 A^T lam`` (upper triangle)."""
     return S.d - S.winv * pool.accumulate()
@@ -73,7 +84,7 @@ def _certify(x, pool, S):
     return Y, p, g, info
 
 
-def _cg(pool: C.Pool, S: C.Setup, r1, r2, max_iter, deadline):
+def _cg(pool: C.Pool, S: C.Setup, r1, r2, max_iter, budget):
     """Solve ``A W^-1 A^T delta = r`` (Jacobi-preconditioned conjugate gradients)."""
     n = S.n
     d1, d2 = pool.denominators(S.winv)
@@ -116,12 +127,13 @@ def _cg(pool: C.Pool, S: C.Setup, r1, r2, max_iter, deadline):
         rz2 = float(res @ z)
         p = z + (rz2 / rz) * p
         rz = rz2
-        if deadline is not None and time.perf_counter() > deadline:
+        budget.charge(C.CG_PER_CONSTRAINT * (r.size + pool.edges.size) + 2e-9 * n * n)
+        if budget.exhausted():
             break
     return x, it, ok
 
 
-def _polish(pool: C.Pool, S: C.Setup, rounds: int, deadline, log):
+def _polish(pool: C.Pool, S: C.Setup, rounds: int, budget, log):
     """Primal-dual active-set steps from the pool's positive duals.
 
     Returns the best feasible point found ``(p, Y)``, the best duals
@@ -132,11 +144,11 @@ def _polish(pool: C.Pool, S: C.Setup, rounds: int, deadline, log):
     best_p, best_Y, best_g, best_pool = np.inf, None, -np.inf, None
     stats = {"polish_steps": 0, "cg_iterations": 0, "kkt": False}
     for step in range(rounds):
-        if deadline is not None and time.perf_counter() > deadline:
+        if budget.exhausted():
             break
         x0 = _x_of(act, S)
         r1, r2 = act.apply(x0)
-        delta, its, ok = _cg(act, S, r1, r2, _CG_MAX_ITER, deadline)
+        delta, its, ok = _cg(act, S, r1, r2, _CG_MAX_ITER, budget)
         stats["polish_steps"] += 1
         stats["cg_iterations"] += its
         m1 = act.keys.size
@@ -152,6 +164,7 @@ def _polish(pool: C.Pool, S: C.Setup, rounds: int, deadline, log):
             log(f"polish step {step}: CG stopped after {its} iterations; polish abandoned")
             break
         Y, info = C.feasible_point(xp, S)
+        budget.charge(C.certificate_cost(S) + C.scan_cost(S))
         p = C.objective_l2(Y, S)
         cand = C.Pool(S.n, act.keys.copy(), np.maximum(mu, 0.0), act.ptr.copy(), act.edges.copy(),
                       np.maximum(cmu, 0.0))
@@ -211,11 +224,11 @@ def solve(problem: RepairProblem) -> Solution:
     >>> round(s.objective_value, 9)  # move 4 down and both 1s up by 2/3
     1.333333333
     """
-    t0, opts, deadline, log = C.run_context(problem, "l2")
-    gap_tol = float(opts.get("gap_tol", _DEFAULT_GAP))
-    max_rounds = int(opts.get("max_rounds", 100000))
-    use_polish = bool(opts.get("polish", False))
-    omega = float(opts.get("relax", 1.0))
+    t0, opts, budget, log = C.run_context(problem, "l2", OPTIONS)
+    gap_tol = opts["gap_tol"]
+    max_rounds = opts["max_rounds"]
+    use_polish = opts["polish"]
+    omega = opts["relax"]
     S = C.setup(problem)
     n = S.n
     pool = C.Pool(n)
@@ -235,12 +248,13 @@ def solve(problem: RepairProblem) -> Solution:
     polish_stats = {"polish_steps": 0, "cg_iterations": 0, "kkt": False}
     status = "running"
     gap0 = None
-    max_sweeps = int(opts.get("max_sweeps", 256))
+    max_sweeps = opts["max_sweeps"]
     while True:
         # separation: a full scan, less often once scans stop finding new constraints
         if since_scan + 1 >= scan_every or rounds == 0:
             ta = time.perf_counter()
             newk, newc = C.find_violations(np.ascontiguousarray(x), S, pool)
+            budget.charge(C.scan_cost(S))
             t_scan += time.perf_counter() - ta
             scans += 1
             since_scan = 0
@@ -262,6 +276,7 @@ def solve(problem: RepairProblem) -> Solution:
             K.sweep_l2_tri(pool.keys, pool.lam, xw, s_ % 2 == 0, omega)
             if pool.clam.size:
                 K.sweep_l2_cyc(pool.ptr, pool.edges, pool.clam, xwf, omega)
+        budget.charge(per_round * C.sweep_cost(pool, C.L2_PER_CONSTRAINT))
         sweeps += per_round
         rounds += 1
         t_sweep += time.perf_counter() - tb
@@ -274,6 +289,7 @@ def solve(problem: RepairProblem) -> Solution:
         tc = time.perf_counter()
         x[:] = _x_of(pool, S)  # drop accumulated rounding of the incremental updates
         Y, p, g, _ = _certify(np.ascontiguousarray(x), pool, S)
+        budget.charge(C.certificate_cost(S))
         t_cert += time.perf_counter() - tc
         if p < best_p:
             best_p, best_Y = p, Y
@@ -293,7 +309,7 @@ def solve(problem: RepairProblem) -> Solution:
         if use_polish and rel < 2e-4 and rel < 0.3 * last_polish_gap and polish_calls < _MAX_POLISH:
             polish_calls += 1
             tp = time.perf_counter()
-            pp, pY, pg, ppool, st = _polish(pool, S, 6, deadline, log)
+            pp, pY, pg, ppool, st = _polish(pool, S, 6, budget, log)
             t_polish += time.perf_counter() - tp
             last_polish_gap = rel
             for k_ in ("polish_steps", "cg_iterations"):
@@ -310,7 +326,7 @@ def solve(problem: RepairProblem) -> Solution:
             if rel <= gap_tol:
                 status = "gap closed"
                 break
-        if deadline is not None and time.perf_counter() > deadline:
+        if budget.exhausted():
             status = "time limit"
             break
         if rounds >= max_rounds:
@@ -341,10 +357,9 @@ def solve(problem: RepairProblem) -> Solution:
         "polish_steps": polish_stats["polish_steps"],
         "cg_iterations": polish_stats["cg_iterations"],
         "kkt_reached": polish_stats["kkt"],
-        "seconds_scan": round(t_scan, 3),
-        "seconds_sweep": round(t_sweep, 3),
-        "seconds_certificate": round(t_cert, 3),
-        "seconds_polish": round(t_polish, 3),
+        "work": round(budget.spent, 6),
+        "seconds": {"scan": round(t_scan, 3), "sweep": round(t_sweep, 3), "certificate": round(t_cert, 3),
+                    "polish": round(t_polish, 3), "total": round(time.perf_counter() - t0, 3)},
     }
     return Solution(X=C.output_matrix(best_Y, S), objective_value=float(best_p), lower_bound=float(best_g),
                     optimal=bool(optimal), details=details)

@@ -28,7 +28,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from .problem import RepairProblem, Solution
+from .problem import RepairProblem, Solution, validate_options
+
+#: shrink has no options (it is exact, with no stopping rule).
+OPTIONS: dict = {}
 
 
 def closure(D: np.ndarray, tol: float = 0.0) -> np.ndarray:
@@ -51,6 +54,7 @@ def closure(D: np.ndarray, tol: float = 0.0) -> np.ndarray:
 
 def solve(problem: RepairProblem) -> Solution:
     """The shortest-path closure (exact; ``lower_bound`` = ``objective_value``)."""
+    validate_options("shrink", OPTIONS, problem.options)
     D, obs, tol = problem.D, problem.observed, problem.tol
     problem.report(0.0, "shortest paths")
     X = closure(D, tol)
