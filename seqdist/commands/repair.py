@@ -84,16 +84,18 @@ def _parse_options(items) -> dict:
 def _run(args) -> int:
     from ..console import info
     from ..io import OutputSet, check_distinct_outputs, read_matrix, read_pairs
-    from ..repair import load_objective, repair
+    from ..repair import repair
+    from ..repair.engine import check_options
 
-    load_objective(args.objective)  # an unknown objective fails before any reading
+    options = _parse_options(args.option)
+    if args.method:
+        options["method"] = args.method
+    # an unknown objective or option fails before any reading
+    check_options(args.objective, options)
     check_distinct_outputs({"--out": args.out, "--changes": args.changes, "--json": args.json})
     dm = read_matrix(args.matrix, args.in_format)
     weights = read_matrix(args.weights) if args.weights else None
     lock = read_pairs(args.lock, dm, "lock file") if args.lock else None
-    options = _parse_options(args.option)
-    if args.method:
-        options["method"] = args.method
     source = "<stdin>" if args.matrix == "-" else args.matrix
     res = repair(dm, args.objective, weights=weights, lock=lock, tol=args.tol, time_limit=args.time_limit,
                  seed=args.seed, keep_unmeasured=args.keep_unmeasured, source=source,

@@ -118,6 +118,28 @@ def load_objective(name: str):
     return mod.solve
 
 
+def check_options(name: str, options: dict | None) -> dict:
+    """Objective ``name``'s options, checked against what its module declares (``OPTIONS``).
+
+    Called before any data is read, so a misspelt or inapplicable option
+    fails at once (:class:`InputError` naming it and the valid ones).
+
+    Examples
+    --------
+    >>> check_options("shrink", {})
+    {}
+    >>> check_options("shrink", {"method": "exact"})
+    Traceback (most recent call last):
+    ...
+    seqdist.errors.InputError: objective 'shrink' has no option 'method' (its options: none)
+    """
+    from .problem import validate_options
+
+    load_objective(name)
+    mod = importlib.import_module(f"{__package__}.{name}")
+    return validate_options(name, getattr(mod, "OPTIONS", {}), options)
+
+
 # ---------------------------------------------------------------- input
 def as_matrix(dm) -> DistanceMatrix:
     """A :class:`DistanceMatrix` from a matrix or anything array-like (validated)."""
@@ -708,6 +730,7 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
 
     t0 = time.perf_counter()
     solve = load_objective(objective)
+    check_options(objective, options)
     dm = as_matrix(dm)
     bar = _Bar(objective) if progress else None
     try:
