@@ -155,7 +155,7 @@ def read_matrix(path: str, fmt: str | None = None) -> DistanceMatrix:
 
 
 def _check_label(label: str, name: str, line: int) -> None:
-    """Refuse a label holding a control character (a line break, tab, escape...), naming the line.
+    """Refuse a label holding a control character (a line break, escape...), naming the line.
 
     Such a label (possible in a quoted csv cell) would break every line-based
     output and message that shows it.

@@ -30,23 +30,25 @@ def default_tol(values: np.ndarray) -> float:
 
 
 def bad_label_char(label: str) -> str | None:
-    r"""The first control character of a label (line break, tab, escape...), or None.
+    r"""The first control character of a label (line break, escape, bell...), or None.
 
     Control characters (Unicode category Cc) and the Unicode line and
-    paragraph separators would break every line-based file and message that
-    shows the label, so labels may not hold them.
+    paragraph separators would break line-based files and messages that show
+    the label, so labels may not hold them. A tab is the one exception: tsv
+    and csv files quote it, Newick quotes it, and the square formats refuse
+    white space in labels with their own message.
 
     Examples
     --------
-    >>> bad_label_char("taxon 1"), bad_label_char("a\nb")
-    (None, '\n')
+    >>> bad_label_char("taxon 1"), bad_label_char("a\nb"), bad_label_char("a\tb")
+    (None, '\n', None)
     """
     if label.isprintable():  # the common case, fast
         return None
     import unicodedata
 
     for ch in label:
-        if unicodedata.category(ch) in ("Cc", "Zl", "Zp"):
+        if ch != "\t" and unicodedata.category(ch) in ("Cc", "Zl", "Zp"):
             return ch
     return None
 

@@ -161,7 +161,7 @@ def test_large_matrix_fast_writer_round_trips(tmp_path, fmt):
     a[4, 9] = a[9, 4] = np.nan
     labels = [f"t{i}" for i in range(n)]
     if fmt in ("tsv", "csv"):
-        labels[7] = 'odd, "label" with; space'
+        labels[7] = 'odd, "label"\twith tab'
     dm = DistanceMatrix.from_array(a, labels)
     p = str(tmp_path / f"m.{fmt}")
     write_matrix(p, dm, fmt)
@@ -202,7 +202,7 @@ def _write(path, text):
     ("nl_header.csv", ',"a\nb",c\n"a\nb",0,1\nc,1,0\n', "line 1", "'a\\nb'"),
     ("nl_row.csv", ',a,c\n"a\nx",0,1\nc,1,0\n', "line 2", "'a\\nx'"),
     ("cr_row.csv", ',a,c\n"a\rx",0,1\nc,1,0\n', "line 2", "'a\\rx'"),
-    ("tab.tsv", '\t"a\tb"\tc\n"a\tb"\t0\t1\nc\t1\t0\n', "line 1", "'a\\tb'"),
+    ("vt.csv", ',"a\x0bb",c\n"a\x0bb",0,1\nc,1,0\n', "line 1", "'a\\x0bb'"),
     ("esc.tsv", "\ta\x1bb\tc\na\x1bb\t0\t1\nc\t1\t0\n", "line 1", "'a\\x1bb'"),
     ("sep.tsv", "\ta\u2028b\tc\na\u2028b\t0\t1\nc\t1\t0\n", "line 1", "'a\\u2028b'"),
     ("row_only.tsv", "\tab\tc\na\x07b\t0\t1\nc\t1\t0\n", "line 2", "'a\\x07b'"),
@@ -217,6 +217,17 @@ def test_labels_with_control_characters_refused_in_one_line(tmp_path, cli, name,
     p = cli("convert", src, "-o", tmp_path / "o.tsv")
     _one_error_line(p, f"{src}: {where}: label {shown} holds a control character", "labels must be printable")
     assert not (tmp_path / "o.tsv").exists()
+
+
+def test_tab_in_a_quoted_label_is_handled_consistently(tmp_path, cli):
+    """The one control character allowed: tsv and csv quote it and read it back; square refuses it."""
+    src = tmp_path / "tab.tsv"
+    src.write_text('\t"a\tb"\tc\n"a\tb"\t0\t1\nc\t1\t0\n')
+    assert read_matrix(str(src)).labels == ("a\tb", "c")
+    p = cli("convert", src, "-o", tmp_path / "o.csv")
+    assert p.returncode == 0 and read_matrix(str(tmp_path / "o.csv")).labels == ("a\tb", "c")
+    p = cli("convert", src, "-o", "-", "--out-format", "square")
+    _one_error_line(p, "label 'a\\tb' contains white space")
 
 
 def test_labels_with_control_characters_refused_by_the_api():

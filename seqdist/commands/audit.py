@@ -28,7 +28,7 @@ def register(subs, common):
         "examples:\n"
         "  seqdist audit dist.tsv\n"
         "  seqdist audit dist.tsv --json audit.json --top 20\n"
-        "  seqdist audit dist.tsv --strict --quiet > /dev/null   # a gate in a workflow")
+        "  seqdist audit dist.tsv --strict --quiet > /dev/null   # a gate in a workflow: exit 4 on any violation")
     p.add_argument("matrix", help="input matrix file ('-' for standard input)")
     add_matrix_in(p)
     p.add_argument("--json", metavar="FILE", default=None,
