@@ -275,3 +275,29 @@ def test_weights_locks_missing_either_a_verified_metric_or_an_lp_confirmed_infea
     changed = np.triu(obs, 1) & (np.abs(X - np.where(obs, D, 0.0)) > tol)
     assert np.isclose(r.report["objective_value"], W[changed].sum())
     assert r.report["lower_bound"] <= r.report["objective_value"] + 1e-9
+
+
+# ---------------------------------------------------------------- magnitudes
+@pytest.mark.parametrize("obj", ["shrink", "fewest", "grow"])
+@pytest.mark.parametrize("dscale,wscale", [(1e100, 1.0), (1e-100, 1.0), (1.0, 1e250), (1.0, 1e30), (1.0, 1e-250)])
+def test_extreme_magnitudes_give_the_scaled_answer(obj, dscale, wscale):
+    # Scaling distances changes nothing in a count and scaling weights scales it (common
+    # practice). Before: weights of 1e30 or more were infinite costs to HiGHS (the exact stage
+    # stopped with "solver status 4", optimal false) and at 1e-250 an absolute 1e-9 test called
+    # 8e-250 against a bound of 6e-250 optimal.
+    import warnings
+
+    D = small_cases()[5]  # dense random values: the heuristic alone is not proven optimal
+    W = np.ones_like(D)
+    np.fill_diagonal(W, 0.0)
+    base = repair(D, obj, weights=W, progress=False).report
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        r = repair(D * dscale, obj, weights=W * wscale, progress=False)
+    X, rep = r.matrix.values, r.report
+    assert is_metric(X, rep["tol"]) and np.isfinite(rep["objective_value"])
+    assert rep["lower_bound"] <= rep["objective_value"]
+    assert rep["optimal"] == base["optimal"] == True  # noqa: E712
+    factor = wscale * (dscale if obj == "shrink" else 1.0)
+    assert np.isclose(rep["objective_value"], base["objective_value"] * factor, rtol=1e-12)
+    assert np.isclose(rep["lower_bound"], rep["objective_value"], rtol=1e-12)

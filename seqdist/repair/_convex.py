@@ -52,6 +52,26 @@ class Setup:
     thr: float             # violations below this are numerical noise
 
 
+def rescale_solution(sol, a: int, b: int, power: int):
+    """The :class:`~.problem.Solution` of a problem rescaled by :func:`.problem.rescaled`, scaled back.
+
+    Distances were multiplied by ``2**a`` and weights by ``2**b``; the
+    objective is homogeneous of degree ``power`` in the distances (1 for l1,
+    2 for l2) and 1 in the weights. Powers of two make this exact.
+    """
+    if a == 0 and b == 0:
+        return sol
+    k = -(b + power * a)
+    sol.X = np.ldexp(sol.X, -a)
+    sol.objective_value = float(np.ldexp(sol.objective_value, k))
+    sol.lower_bound = float(np.ldexp(sol.lower_bound, k))
+    for key in ("gap", "certified_lower_bound"):
+        if key in sol.details:
+            sol.details[key] = float(np.ldexp(sol.details[key], k))
+    sol.details["scaled_by"] = {"distances": float(np.ldexp(1.0, a)), "weights": float(np.ldexp(1.0, b))}
+    return sol
+
+
 def setup(problem) -> Setup:
     """Build the optimisation graph and arrays from a :class:`RepairProblem`."""
     D = np.asarray(problem.D, dtype=np.float64)
@@ -59,6 +79,11 @@ def setup(problem) -> Setup:
     if n >= K.MAX_N:
         raise ValueError(f"n = {n} is too large for the convex objectives")
     W = np.asarray(problem.weights, dtype=np.float64)
+    # a weight below 1e-290 times the largest cannot move any sum in floating
+    # point that involves the others (and 1 / w would overflow): it counts as 0
+    fw = W[np.isfinite(W) & (W > 0)]
+    if fw.size:
+        W = np.where(np.isfinite(W) & (W < 1e-290 * float(fw.max())), 0.0, W)
     obs = np.asarray(problem.observed, dtype=bool).copy()
     np.fill_diagonal(obs, False)
     locked = np.asarray(problem.locked, dtype=bool) & obs
@@ -67,8 +92,7 @@ def setup(problem) -> Setup:
     d = np.where(G & up, np.nan_to_num(D, nan=0.0), 0.0)
     d = np.maximum(d, 0.0)
     w = np.where(G & up, np.where(locked, np.inf, W), 0.0)
-    with np.errstate(divide="ignore"):
-        winv = np.where(G & up & ~locked, 1.0 / np.where(w > 0, w, 1.0), 0.0)
+    winv = np.where(G & up & ~locked, 1.0 / np.where(w > 0, w, 1.0), 0.0)
     gi, gj = np.nonzero(G & up)
     fi, fj = np.nonzero(obs & ~G & up)
     M = float(d[gi, gj].max()) if gi.size else 0.0
@@ -376,7 +400,8 @@ def bound_l2(c: np.ndarray, S: Setup) -> float:
     ww = S.w[S.gi, S.gj]
     lk = ~np.isfinite(ww)
     wf = np.where(lk, 1.0, ww)
-    xs = np.clip(dd - cc / wf, 0.0, S.M)
+    with np.errstate(over="ignore"):  # c / w for a tiny weight: +-inf, clipped to the box
+        xs = np.clip(dd - cc / wf, 0.0, S.M)
     terms = np.where(lk, 2.0 * cc * dd, wf * (xs - dd) ** 2 + 2.0 * cc * xs)
     return _safe(terms)
 
@@ -406,6 +431,8 @@ def relative_gap(p: float, g: float) -> float:
     gap = p - g
     if gap <= 0:
         return 0.0
+    # below 1e-300 values are at the end of floating point (subnormal from
+    # 2.2e-308): an absolute gap under gap_tol * 1e-300 counts as closed
     return float(gap / max(abs(p), 1e-300))
 
 

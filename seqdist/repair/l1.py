@@ -49,7 +49,7 @@ import numpy as np
 
 from . import _convex as C
 from . import _convex_kernels as K
-from .problem import Option, RepairProblem, Solution
+from .problem import Option, RepairProblem, Solution, rescaled
 
 _DEFAULT_GAP = 1e-6
 _LP_MAX_N = 100
@@ -225,7 +225,7 @@ def _solve_projection(problem, S, budget, gap_tol, max_rounds, log, opts):
     iw = iw_of(h)
     z = S.d.copy()             # the proximal centre
     Adiff = np.zeros((n, n))   # z - d
-    best_p, best_Y, best_g = np.inf, None, -np.inf
+    best_p, best_Y, best_g = np.inf, None, 0.0  # every objective value is >= 0: 0 is a bound
     rounds = sweeps = since_centre = centres = 0
     per_round = 4
     t_scan = t_sweep = t_cert = 0.0
@@ -343,6 +343,13 @@ def solve(problem: RepairProblem) -> Solution:
     >>> round(s.objective_value, 9)
     2.0
     """
+    # distances or weights far from 1 are rescaled by powers of two (exact):
+    # HiGHS's tolerances are absolute (1e-7) and it takes costs above 1e20 as infinite
+    problem, a, b = rescaled(problem)
+    return C.rescale_solution(_solve(problem), a, b, 1)
+
+
+def _solve(problem: RepairProblem) -> Solution:
     t0, opts, budget, log = C.run_context(problem, "l1", OPTIONS)
     gap_tol = opts["gap_tol"]
     method = {"exact": "lp", "heuristic": "projection"}.get(opts["method"], opts["method"])

@@ -54,7 +54,7 @@ import numpy as np
 
 from . import _convex as C
 from . import _convex_kernels as K
-from .problem import Option, RepairProblem, Solution
+from .problem import Option, RepairProblem, Solution, rescaled
 
 _DEFAULT_GAP = 1e-6
 _MAX_POLISH = 12
@@ -224,6 +224,13 @@ def solve(problem: RepairProblem) -> Solution:
     >>> round(s.objective_value, 9)  # move 4 down and both 1s up by 2/3
     1.333333333
     """
+    # distances or weights far from 1 are rescaled by powers of two (exact),
+    # as for l1, so that the solver's thresholds meet values near 1
+    problem, a, b = rescaled(problem)
+    return C.rescale_solution(_solve(problem), a, b, 2)
+
+
+def _solve(problem: RepairProblem) -> Solution:
     t0, opts, budget, log = C.run_context(problem, "l2", OPTIONS)
     gap_tol = opts["gap_tol"]
     max_rounds = opts["max_rounds"]
@@ -237,7 +244,7 @@ def solve(problem: RepairProblem) -> Solution:
     xw[:, :, 0] = S.d
     xw[:, :, 1] = S.winv
     x = xw[:, :, 0]
-    best_p, best_Y, best_g = np.inf, None, -np.inf
+    best_p, best_Y, best_g = np.inf, None, 0.0  # every objective value is >= 0: 0 is a bound
     rounds = sweeps = scans = 0
     t_scan = t_sweep = t_cert = t_polish = 0.0
     per_round = 4

@@ -197,6 +197,48 @@ class Budget:
         return k if cap is None else min(k, cap)
 
 
+# ------------------------------------------------------------------ scaling
+#: Magnitudes the solvers take as they are; outside this range an objective
+#: rescales by a power of two (exact in floating point) before solving.
+SAFE_RANGE = (2.0 ** -20, 2.0 ** 40)
+
+
+def scale_exponent(largest: float, safe: tuple = SAFE_RANGE) -> int:
+    """``k`` such that ``largest * 2**k`` lies in [1, 2), or 0 when ``largest`` is in ``safe`` (or not positive).
+
+    Multiplying by ``2**k`` is exact in floating point (barring underflow), so
+    a problem solved on rescaled data and scaled back gives exactly the answer
+    for the data; HiGHS's absolute tolerances (1e-7) and infinite-cost
+    threshold (1e20) then meet values near 1.
+
+    >>> scale_exponent(3.0), scale_exponent(1e-100), scale_exponent(1e250)
+    (0, 333, -830)
+    """
+    if not (largest > 0 and math.isfinite(largest)) or safe[0] <= largest <= safe[1]:
+        return 0
+    return -math.frexp(largest)[1] + 1
+
+
+def rescaled(problem: "RepairProblem", distances: bool = True) -> tuple["RepairProblem", int, int]:
+    """``(problem with D * 2**a and weights * 2**b, a, b)``; exponents from :func:`scale_exponent`.
+
+    ``a`` brings the largest observed distance, ``b`` the largest finite weight
+    near 1 when they are far from it (0 otherwise, and ``a`` = 0 unless
+    ``distances``). ``tol`` scales with the distances. Returns ``problem``
+    itself when both exponents are 0.
+    """
+    import dataclasses
+
+    fin = problem.D[problem.observed]
+    a = scale_exponent(float(np.abs(fin).max()) if fin.size and distances else 0.0)
+    wf = problem.weights[problem.observed & np.isfinite(problem.weights)]
+    b = scale_exponent(float(wf.max()) if wf.size else 0.0)
+    if a == 0 and b == 0:
+        return problem, 0, 0
+    return dataclasses.replace(problem, D=np.ldexp(problem.D, a), weights=np.ldexp(problem.weights, b),
+                               tol=math.ldexp(problem.tol, a)), a, b
+
+
 # ------------------------------------------------------------------ options
 @dataclass(frozen=True)
 class Option:
