@@ -561,6 +561,9 @@ def _where(labels, lines, i):
 
 
 def _encode(labels: list, seqs: list, alphabet: str, name: str, lines) -> Alignment:
+    from .console import one_line
+    from .matrix import bad_label_char
+
     if alphabet not in ALPHABETS:
         raise InputError(f"unknown alphabet '{alphabet}' (choose from {', '.join(ALPHABETS)})")
     n = len(labels)
@@ -573,6 +576,11 @@ def _encode(labels: list, seqs: list, alphabet: str, name: str, lines) -> Alignm
         lab = str(lab)
         if not lab:
             raise InputError(f"{name}: record {i + 1} has an empty id")
+        bad = bad_label_char(lab)
+        if bad is not None:
+            at = f"line {lines[i][0]}: " if lines else ""
+            raise InputError(f"{name}: {at}record {i + 1} id '{one_line(lab)}' holds a control character "
+                             f"({one_line(bad)}); ids must be printable text")
         if lab in seen:
             j = seen[lab]
             at = f", lines {lines[j][0]} and {lines[i][0]}" if lines else ""

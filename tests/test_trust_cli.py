@@ -218,3 +218,21 @@ def test_progress_estimates_only_when_honest(monkeypatch):
     phases.update(0.5)
     phases.update(0.2)
     assert phases.eta() is None and "left" not in phases._line()
+
+
+def test_distances_outputs_to_one_path_are_refused(tmp_path):
+    x = tmp_path / "x.tsv"
+    x.write_text("precious\n")
+    p = run_cli("distances", CLEAN, "-o", x, "--sites", x)
+    one_line_error(p, "--out and --sites")
+    assert x.read_text() == "precious\n"
+    p = run_cli("distances", CLEAN, "-o", "-", "--json", "-")
+    one_line_error(p, "--out and --json both write to standard output")
+
+
+def test_alignment_ids_with_control_characters_are_refused(tmp_path):
+    aln = tmp_path / "esc.fasta"
+    aln.write_bytes(b">a\x1bb\nACGT\n>c\nACGA\n>d\nACCA\n")
+    p = run_cli("distances", aln, "-o", tmp_path / "d.tsv")
+    one_line_error(p, str(aln), "line 1", "control character")
+    assert not (tmp_path / "d.tsv").exists()

@@ -74,13 +74,12 @@ def _run(args) -> int:
     from ..console import info, warn
     from ..distances import pairwise_distances, undefined_message
     from ..errors import InputError
-    from ..io import OutputSet, format_matrix, matrix_format
+    from ..io import OutputSet, check_distinct_outputs, format_matrix, matrix_format
 
     if args.memory < 16:
         raise InputError("--memory must be at least 16 (MB)")
-    outs = [x for x in (args.out, args.sites, args.variance, args.undefined, args.json) if x]
-    if outs.count("-") > 1:
-        raise InputError("only one output can go to standard output ('-')")
+    check_distinct_outputs({"--out": args.out, "--sites": args.sites, "--variance": args.variance,
+                            "--undefined": args.undefined, "--json": args.json})
     fmt = matrix_format(args.out, args.out_format)
     aln = read_alignment(args.alignment, args.in_format, args.alphabet)
     res = pairwise_distances(aln, args.model, gamma=args.gamma, gaps=args.gaps, freqs=args.freqs,
