@@ -496,16 +496,21 @@ def sample_quartets(n: int, size: int, seed: int) -> np.ndarray:
     return np.ascontiguousarray(q[order], dtype=np.int64)
 
 
-def _lp_bound(ids: np.ndarray, nent: int, time_limit: float | None):
-    """LP relaxation of the hitting set; returns (certified bound, status)."""
+def _lp_bound(ids: np.ndarray, nent: int, max_iter: int | None):
+    """LP relaxation of the hitting set; returns (certified bound, status).
+
+    The solver stops at an iteration count, never at a clock time, so the
+    bound is the same on any machine and under any load; a stopped solve
+    still gives a certified bound (the scaled duals below).
+    """
     from scipy.optimize import linprog
     from scipy.sparse import csr_matrix
 
     m = len(ids)
     A = csr_matrix((np.full(3 * m, -1.0), ids.ravel(), np.arange(0, 3 * m + 1, 3)), shape=(m, nent))
-    opts = {"presolve": True}
-    if time_limit:
-        opts["time_limit"] = float(time_limit)
+    if max_iter is None:
+        max_iter = max(10_000, 50 * (m + nent))
+    opts = {"presolve": True, "maxiter": int(max_iter)}
     res = linprog(np.ones(nent), A_ub=A, b_ub=-np.ones(m), bounds=(0, None), method="highs", options=opts)
     marg = getattr(getattr(res, "ineqlin", None), "marginals", None)
     if marg is None or len(marg) != m:
@@ -519,7 +524,7 @@ def _lp_bound(ids: np.ndarray, nent: int, time_limit: float | None):
     return float(y.sum() / s), ("optimal" if res.status == 0 else str(res.message))
 
 
-def _lower_bound(d, n, hard, scan, collect_max, lp_max, lp_time_limit) -> dict:
+def _lower_bound(d, n, hard, scan, collect_max, lp_max, lp_max_iter) -> dict:
     from .audit_kernels import collect_triangles, greedy_packing
 
     forcing = int(scan["row_hard"].sum())
@@ -544,7 +549,7 @@ def _lower_bound(d, n, hard, scan, collect_max, lp_max, lp_time_limit) -> dict:
         # the LP is only worth its time over the complete set of forcing triangles
         out["lp_status"] = f"skipped: {forcing} forcing triangles, more than the LP limit {min(lp_max, collect_max)}"
     elif pack < nent:
-        val, status = _lp_bound(ids, nent, lp_time_limit)
+        val, status = _lp_bound(ids, nent, lp_max_iter)
         out.update(lp_triangles=len(ids), lp_status=status)
         if val is not None:
             out["lp_value"] = _r12(val)
@@ -557,7 +562,7 @@ def _lower_bound(d, n, hard, scan, collect_max, lp_max, lp_time_limit) -> dict:
 # ------------------------------------------------------------------ the API
 def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
           exact_quartets_max: int = 2_000_000, quartet_samples: int = 200_000,
-          collect_max: int = 300_000, lp_max: int = 20_000, lp_time_limit: float | None = 60.0,
+          collect_max: int = 300_000, lp_max: int = 20_000, lp_max_iter: int | None = None,
           bounds: bool = True) -> AuditReport:
     """Audit a distance matrix.
 
@@ -580,8 +585,10 @@ def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
     collect_max, lp_max : int
         Caps on the forcing triangles collected for the packing bound and on
         the triangles given to the linear program (0 turns the LP off).
-    lp_time_limit : float or None
-        Seconds for the LP solver.
+    lp_max_iter : int or None
+        Simplex iterations for the LP solver (default 50 per row and column,
+        at least 10,000): a count, not a clock time, so that the bound is
+        the same on every machine.
     bounds : bool
         Compute ``min_changes_lower_bound`` (else it is 0, method "none").
 
@@ -655,7 +662,7 @@ def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
 
     t1 = time.perf_counter()
     if bounds:
-        lb = _lower_bound(d, n, hard, scan, collect_max, lp_max, lp_time_limit)
+        lb = _lower_bound(d, n, hard, scan, collect_max, lp_max, lp_max_iter)
     else:
         lb = {"value": 0, "method": "none", "forcing_triangles": int(scan["row_hard"].sum()),
               "forcing_threshold": hard, "triangles_used": 0, "complete": False, "packing": 0,

@@ -235,7 +235,7 @@ def test_cli_time_limit_reports_a_gap(tmp_path, cli, obj):
     m, D = noisy_file(tmp_path, 300, 8)
     out, js = tmp_path / "o.tsv", tmp_path / "r.json"
     extra = ["--method", "heuristic"] if obj == "l1" else []
-    # a gap no run reaches in 1 s, so the clock is what stops it on any machine
+    # a gap no run reaches within a 1 s work budget, so the budget is what stops it
     p = cli("repair", m, "-o", out, "--objective", obj, "--json", js, "--time-limit", "1",
             "--option", "gap_tol=1e-13", *extra)
     assert p.returncode == 0, p.stderr

@@ -269,7 +269,7 @@ def test_gap_closes_as_the_tolerance_tightens(kind):
 @pytest.mark.parametrize("kind", ["l1", "l2"])
 def test_time_limit_returns_a_feasible_point_with_a_gap(kind):
     D = noisy(150, 8)
-    # a gap no run reaches in 0.3 s, so the clock is what stops it on any machine
+    # a gap no run reaches within a 0.3 s work budget, so the budget is what stops it
     opts = {"gap_tol": 1e-13} if kind == "l2" else {"method": "projection", "gap_tol": 1e-13}
     p = problem(D, **opts)
     p.time_limit = 0.3

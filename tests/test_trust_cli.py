@@ -236,3 +236,28 @@ def test_alignment_ids_with_control_characters_are_refused(tmp_path):
     p = run_cli("distances", aln, "-o", tmp_path / "d.tsv")
     one_line_error(p, str(aln), "line 1", "control character")
     assert not (tmp_path / "d.tsv").exists()
+
+
+def test_audit_lower_bound_never_reads_the_clock(monkeypatch):
+    # The LP bound stops at an iteration count, so the same matrix gives the
+    # same min_changes_lower_bound on any machine and under any load.
+    import scipy.optimize
+
+    from seqdist.audit import audit
+
+    seen = []
+    real = scipy.optimize.linprog
+
+    def spy(*a, **k):
+        seen.append(dict(k.get("options") or {}))
+        return real(*a, **k)
+
+    monkeypatch.setattr(scipy.optimize, "linprog", spy)
+    D = euclidean(14, seed=5)
+    rng = np.random.default_rng(5)
+    for _ in range(12):
+        i, j = rng.choice(14, 2, replace=False)
+        D[i, j] = D[j, i] = D[i, j] * 4
+    rep = audit(D)
+    assert seen and all("time_limit" not in o and "maxiter" in o for o in seen)
+    assert rep.to_dict()["min_changes_lower_bound"] >= 1

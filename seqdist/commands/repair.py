@@ -42,9 +42,9 @@ def register(subs, common):
                         "(default: leave them out and name them)")
     p.add_argument("--json", metavar="FILE", help="write the report as JSON")
     p.add_argument("--time-limit", type=positive_float, default=None, metavar="SECONDS",
-                   help="a work budget of about that many seconds (counted in work, not read from the "
-                        "clock, so reruns give the same bytes); the best verified answer by then is "
-                        "returned (optimal: false when not proven)")
+                   help="work budget of about this many seconds on the reference machine, counted in "
+                        "work, not read from the clock (results do not depend on the machine or its "
+                        "load); the best verified answer found within it (optimal: false when not proven)")
     add_seed(p, 0, "seed of randomised steps")
     p.add_argument("--method", choices=("auto", "exact", "heuristic"), default=None,
                    help="fewest and grow: exact integer program or the scalable heuristic; "

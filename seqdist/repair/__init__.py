@@ -42,8 +42,11 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
         Metric tolerance (default 1e-9 times the largest entry); an entry
         counts as changed when it moves by more than ``tol``.
     time_limit : float, optional
-        Seconds; when reached, the best verified answer so far is returned
-        with ``optimal`` False.
+        A work budget in reference seconds (about that many seconds on the
+        reference machine; see docs/repair.md, "Time limits"); when spent,
+        the best verified answer so far is returned with ``optimal`` False.
+        Counted in work, not read from the clock: results depend only on
+        the input and the options.
     seed : int
         Seed of any randomised step (results are deterministic for a seed).
     keep_unmeasured : bool

@@ -244,10 +244,8 @@ def build_problem(dm: DistanceMatrix, weights=None, lock=None, tol=None, time_li
     w = weights_array(weights, dm, observed, weights_source)
     locked = lock_mask(lock, dm, observed)
     w[locked] = np.inf
-    deadline = None if time_limit is None else time.perf_counter() + time_limit
     return RepairProblem(D=D, weights=w, locked=locked, observed=observed, tol=tol, time_limit=time_limit,
-                         progress=progress, seed=int(seed), options=dict(options or {}), labels=dm.labels,
-                         deadline=deadline)
+                         progress=progress, seed=int(seed), options=dict(options or {}), labels=dm.labels)
 
 
 # ---------------------------------------------------------------- locks
@@ -781,7 +779,7 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
         raise RuntimeError(f"objective {objective}: lower bound {lb} above the value {objective_value}")
     seconds = time.perf_counter() - t0
     rep = build_report(problem, objective, X, solution, fill, seconds, before, objective_value)
-    if solution.optimal and objective in ("fewest", "grow") and objective_value > lb + 1e-9 * max(1.0, lb):
+    if solution.optimal and objective in ("fewest", "grow") and objective_value > lb + 1e-9 * objective_value:
         rep["optimal"] = False
     rep["n_input"] = dm.n
     rep["left_out_taxa"] = left_out
