@@ -424,3 +424,28 @@ def round_bound(lb: float, w: np.ndarray) -> float:
     if vals.size and np.all(vals == np.round(vals)):
         return max(0.0, float(np.ceil(lb - 1e-6)))
     return max(0.0, lb)
+
+
+def unscale_weights(details: dict, value: float, lb: float, wexp: int) -> tuple[float, float]:
+    """Undo a power-of-two scaling of the weights (by ``2**wexp``) on a hitting-set result.
+
+    The value, the bound and the weighted figures in ``details`` go back to
+    the caller's units (exact: powers of two); ``details`` is changed in place.
+    Returns ``(value, lower_bound)``.
+
+    Examples
+    --------
+    >>> d = {"lp_bound": 8.0}
+    >>> unscale_weights(d, 16.0, 8.0, 3), d
+    ((2.0, 1.0), {'lp_bound': 1.0, 'weights_scaled_by': 8.0})
+    """
+    if not wexp:
+        return value, lb
+    details["weights_scaled_by"] = float(np.ldexp(1.0, wexp))
+    for key in ("heuristic_value", "packing_bound", "lp_bound", "lp_guided_value"):
+        if key in details:
+            details[key] = float(np.ldexp(details[key], -wexp))
+    for entry in details.get("exact_log", []):
+        entry["lower_bound"], entry["best"] = (float(np.ldexp(entry["lower_bound"], -wexp)),
+                                               float(np.ldexp(entry["best"], -wexp)))
+    return float(np.ldexp(value, -wexp)), float(np.ldexp(lb, -wexp))

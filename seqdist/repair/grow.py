@@ -232,13 +232,5 @@ def solve(problem: RepairProblem) -> Solution:
     details["work"] = round(budget.spent, 6)
     seconds["total"] = round(time.perf_counter() - t0, 3)
     details["seconds"] = seconds
-    if wexp:
-        details["weights_scaled_by"] = float(np.ldexp(1.0, wexp))
-        for key in ("heuristic_value", "packing_bound", "lp_bound", "lp_guided_value"):
-            if key in details:
-                details[key] = float(np.ldexp(details[key], -wexp))
-        for entry in details.get("exact_log", []):
-            entry["lower_bound"], entry["best"] = (float(np.ldexp(entry["lower_bound"], -wexp)),
-                                                   float(np.ldexp(entry["best"], -wexp)))
-        value, lb = float(np.ldexp(value, -wexp)), float(np.ldexp(lb, -wexp))
+    value, lb = _support.unscale_weights(details, value, lb, wexp)
     return Solution(X=X, objective_value=value, lower_bound=min(lb, value), optimal=bool(optimal), details=details)
