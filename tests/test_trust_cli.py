@@ -261,3 +261,11 @@ def test_audit_lower_bound_never_reads_the_clock(monkeypatch):
     rep = audit(D)
     assert seen and all("time_limit" not in o and "maxiter" in o for o in seen)
     assert rep.to_dict()["min_changes_lower_bound"] >= 1
+
+
+def test_pairscores_json_to_stdout_holds_the_json_alone(tmp_path):
+    seqs = tmp_path / "s.fasta"
+    seqs.write_text(">a\nMKVLAAGIVW\n>b\nMKVLSAGIVW\n>c\nMRVLSAGLVW\n")
+    p = run_cli("pairscores", seqs, "-o", tmp_path / "d.tsv", "--json", "-")
+    assert p.returncode == 0, p.stderr
+    assert json.loads(p.stdout)["n"] == 3 and "3 sequences" in p.stderr

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import sys
 
 from ..io import MATRIX_FORMATS, OutputSet
 from ._shared import add_subcommand, positive_int
@@ -90,8 +89,10 @@ def _run(args) -> int:
                 "missing_pairs": [[a, b, why] for a, b, why in res.missing],
                 "clipped_pairs": [[a, b, v] for a, b, v in res.clipped],
             })  # no run time here: the same input and options give byte-identical files
-    if args.out != "-":
-        n = len(ids)
-        sys.stdout.write(f"{n} sequences, {n * (n - 1) // 2} pairs, {args.mode} alignment under {res.matrix}, "
-                         f"formula {args.formula}: {len(res.missing)} missing, written to {args.out}\n")
+    from ..console import info
+
+    n = len(ids)
+    # on standard error, like every command's summary: standard output may carry --json -
+    info(f"{n} sequences, {n * (n - 1) // 2} pairs, {args.mode} alignment under {res.matrix}, "
+         f"formula {args.formula}: {len(res.missing)} missing")
     return 0
