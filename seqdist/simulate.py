@@ -4,7 +4,8 @@ Draws a random rooted binary tree, evolves DNA or protein sequences down it
 under a continuous-time Markov model with gamma rate variation across sites
 and insertion/deletion events on the branches, and returns the alignment of
 the leaves with its true tree. Functions ``plant_*`` then spoil an alignment
-in documented ways (a very gappy sequence, a chimera, a saturated pair) so
+in documented ways (a very gappy sequence, a chimera, a saturated pair,
+misread stretches, a contaminant) so
 that later steps have trouble to find.
 
 Everything random is drawn from one :class:`numpy.random.Generator` built
@@ -907,6 +908,167 @@ def plant_saturated_pair(sim: Simulation, pair: Sequence[str] | None = None, ext
     return sim.replace(records=recs, tree=sim.tree.with_lengths(length), planted=sim.planted + [note])
 
 
+MISREAD_HOWS = ("random", "shift")
+
+
+def plant_misread(sim: Simulation, label: str | None = None, stretches: int = 3, stretch_length: int = 50,
+                  how: str = "random", shift: int = 1, rng=None) -> Simulation:
+    """Replace a few stretches of one row by misread residues.
+
+    ``stretches`` non-overlapping stretches of ``stretch_length`` columns are
+    placed at random in the row. Inside them:
+
+    * ``how="random"`` (default), a base-calling error: every residue is
+      replaced by a draw from the model's stationary frequencies, as a base
+      caller reading a stretch of poor signal gives calls unrelated to the
+      template (about 3/4 of them wrong for DNA with equal frequencies; the
+      row's composition does not change). Gaps stay gaps.
+    * ``how="shift"``, an alignment error: the stretch's columns hold the
+      row's own content ``shift`` columns further on (wrapping round inside the
+      stretch), as when an aligner misplaces an indel and a segment slides
+      against its homologues. Gaps move with their residues.
+
+    The true tree is left as it was: the stretches are wrong data, not history.
+
+    Parameters
+    ----------
+    label : str, optional
+        The misread row (default: a random taxon not used by an earlier plant).
+    stretches : int
+        Number of stretches (>= 1).
+    stretch_length : int
+        Columns per stretch (>= 1); all stretches together may cover at most
+        half of the row.
+    how : {"random", "shift"}
+        Base-calling error or alignment error (see above).
+    shift : int
+        Columns the content slides by with ``how="shift"`` (1 to stretch_length - 1).
+
+    Examples
+    --------
+    >>> sim = plant_misread(simulate(5, 200, seed=2), "t03", 2, 20, rng=0)
+    >>> sim.planted[-1]["misread_columns"]
+    40
+    >>> sum(a != b for a, b in zip(sim.sequence("t03"), simulate(5, 200, seed=2).sequence("t03"))) > 20
+    True
+    """
+    rng = np.random.default_rng(rng)
+    if how not in MISREAD_HOWS:
+        raise InputError(f"unknown misread kind '{how}' (choose {' or '.join(MISREAD_HOWS)})")
+    stretches, stretch_length = int(stretches), int(stretch_length)
+    if stretches < 1 or stretch_length < 1:
+        raise InputError(f"misread stretches and their length must be at least 1 (got {stretches} x "
+                         f"{stretch_length})")
+    if label is None:
+        free = _free_labels(sim)
+        label = free[int(rng.integers(len(free)))]
+    seq = np.frombuffer(sim.sequence(label).encode("ascii"), dtype=np.uint8).copy()
+    L = seq.size
+    covered = stretches * stretch_length
+    if 2 * covered > L:
+        raise InputError(f"misread stretches ({stretches} x {stretch_length} columns) would cover more than half "
+                         f"of the {L} columns; use fewer or shorter stretches")
+    if how == "shift" and stretch_length < 2:
+        raise InputError(f"a shifted misread stretch needs at least 2 columns (got {stretch_length})")
+    if how == "shift" and not 1 <= int(shift) < stretch_length:
+        raise InputError(f"misread shift must be from 1 to {stretch_length - 1} columns (got {shift})")
+    # Random non-overlapping placement: the L - covered untouched columns split into
+    # stretches + 1 non-negative runs around the stretches (a random composition).
+    bars = np.sort(rng.choice(L - covered + stretches, stretches, replace=False))
+    starts = bars - np.arange(stretches) + np.arange(stretches) * stretch_length
+    old = seq.copy()
+    m = sim.model
+    letters = np.frombuffer(m.letters.encode("ascii"), dtype=np.uint8)
+    for a in starts:
+        block = slice(int(a), int(a) + stretch_length)
+        if how == "random":
+            res = np.flatnonzero(seq[block] != ord("-")) + int(a)
+            seq[res] = letters[rng.choice(letters.size, size=res.size, p=m.freqs)]
+        else:
+            seq[block] = np.roll(old[block], -int(shift))
+    new = seq.tobytes().decode("ascii")
+    note = {"kind": "misread", "labels": [label], "how": how,
+            "stretches": [[int(a) + 1, int(a) + stretch_length] for a in starts],
+            "misread_columns": covered, "changed_columns": int((seq != old).sum())}
+    if how == "shift":
+        note["shift"] = int(shift)
+    return sim.replace(records=_set_sequence(sim, label, new), planted=sim.planted + [note])
+
+
+def consensus(records: Sequence[tuple[str, str]], letters: str, rng=None) -> str:
+    """The column-wise majority residue of an alignment (gaps ignored).
+
+    Ties are broken at random (seeded), so no letter is favoured; a column
+    with no residue at all gets a random letter.
+
+    Examples
+    --------
+    >>> consensus([("a", "ACG-"), ("b", "ACT-"), ("c", "TCT-")], "ACGT", rng=0)[:3]
+    'ACT'
+    """
+    rng = np.random.default_rng(rng)
+    codes = np.frombuffer(letters.encode("ascii"), dtype=np.uint8)
+    X = np.array([np.frombuffer(s.encode("ascii"), dtype=np.uint8) for _, s in records])
+    counts = (X[None, :, :] == codes[:, None, None]).sum(axis=1).astype(float)   # (letters, columns)
+    # A uniform draw below 1 added to integer counts breaks ties only.
+    pick = np.argmax(counts + rng.random(counts.shape), axis=0)
+    return codes[pick].tobytes().decode("ascii")
+
+
+def plant_contaminant(sim: Simulation, label: str | None = None, distance: float = 0.5,
+                      rng=None) -> Simulation:
+    """Replace one row by a contaminant: the alignment's consensus mutated along a long branch.
+
+    The column-wise consensus (:func:`consensus`) sits near the centre of the
+    tree; each of its residues then evolves ``distance`` expected
+    substitutions per site (times the column's rate) under the simulation's
+    model. The result is a sequence of an organism that branched off near
+    the root and evolved far on its own, as a contaminating sample or a
+    wrongly labelled sequence would: related to every taxon about equally,
+    to none closely. The row keeps its own gap pattern, so gap statistics do
+    not give it away. The true tree keeps the taxon where it was: the row
+    is wrong data for that taxon.
+
+    Parameters
+    ----------
+    label : str, optional
+        The replaced taxon (default: a random taxon not used by an earlier plant).
+    distance : float
+        Branch length from the consensus, expected substitutions per site (> 0).
+
+    Examples
+    --------
+    >>> sim = plant_contaminant(simulate(8, 300, seed=3), "t05", 0.5, rng=0)
+    >>> note = sim.planted[-1]
+    >>> note["kind"], note["labels"], note["p_to_original"] > 0.2
+    ('contaminant', ['t05'], True)
+    """
+    rng = np.random.default_rng(rng)
+    distance = float(distance)
+    if not (0 < distance <= MAX_SATURATE):
+        raise InputError(f"contaminant distance must be above 0 and at most {MAX_SATURATE:g} (got {distance})")
+    if label is None:
+        free = _free_labels(sim)
+        label = free[int(rng.integers(len(free)))]
+    m = sim.model
+    cons = consensus(sim.records, m.letters, rng)
+    letters = np.frombuffer(m.letters.encode("ascii"), dtype=np.uint8)
+    lookup = np.full(256, -1, dtype=np.int64)
+    lookup[letters] = np.arange(letters.size)
+    old = sim.sequence(label)
+    seq = np.frombuffer(old.encode("ascii"), dtype=np.uint8).copy()
+    res = np.flatnonzero(seq != ord("-"))
+    c = np.frombuffer(cons.encode("ascii"), dtype=np.uint8)
+    with _one_blas_thread():
+        rows = m.transition_rows(distance, sim.site_rates[res], lookup[c[res]])
+    seq[res] = letters[_draw(rows, rng)]
+    new = seq.tobytes().decode("ascii")
+    note = {"kind": "contaminant", "labels": [label], "distance": distance,
+            "p_to_consensus": round(_p_distance(new, cons)[0], 6),
+            "p_to_original": round(_p_distance(new, old)[0], 6)}
+    return sim.replace(records=_set_sequence(sim, label, new), planted=sim.planted + [note])
+
+
 def _p_distance(a: str, b: str) -> tuple[float, int]:
     x = np.frombuffer(a.encode("ascii"), dtype=np.uint8)
     y = np.frombuffer(b.encode("ascii"), dtype=np.uint8)
@@ -984,6 +1146,7 @@ def summary(sim: Simulation, seed: int | None = None) -> dict:
 
 
 __all__ = ["Model", "TrueTree", "Simulation", "hky85", "k80", "protein_poisson", "make_model", "gamma_rates",
-           "random_tree", "simulate", "plant_gappy", "plant_chimera", "plant_saturated_pair",
+           "random_tree", "simulate", "plant_gappy", "plant_chimera", "plant_saturated_pair", "plant_misread",
+           "plant_contaminant", "consensus",
            "format_fasta", "format_stockholm", "summary", "check_size", "DNA_LETTERS", "PROTEIN_LETTERS",
            "MAX_TAXA", "MAX_LENGTH", "MAX_CELLS", "MAX_INDEL_WORK"]

@@ -31,8 +31,8 @@ import pytest
 
 from seqdist.errors import InputError
 from seqdist.simulate import (format_fasta, format_stockholm, gamma_rates, hky85, k80, make_model,
-                              plant_chimera, plant_gappy, plant_saturated_pair, protein_poisson,
-                              random_tree, simulate)
+                              plant_chimera, plant_contaminant, plant_gappy, plant_misread, plant_saturated_pair,
+                              protein_poisson, random_tree, simulate, summary)
 
 from conftest import EXAMPLES, ROOT, run_cli
 
@@ -320,6 +320,109 @@ def test_plants_do_what_they_say():
     assert abs(p - 0.75) < 0.08       # random draws from equal frequencies: p near 3/4
 
 
+def _changed_rows(before, after):
+    return [a[0] for a, b in zip(before.records, after.records) if a != b]
+
+
+def test_misread_random_changes_only_its_stretches():
+    """Issue 15: base-calling errors in a few stretches of one row, seeded and recorded."""
+    sim = simulate(10, 800, "dna", seed=31, gap_rate=0.01, alpha=1.0)
+    out = plant_misread(sim, None, stretches=3, stretch_length=60, rng=5)
+    note = out.planted[-1]
+    lab, = note["labels"]
+    assert note["kind"] == "misread" and note["how"] == "random" and _changed_rows(sim, out) == [lab]
+    spans = note["stretches"]
+    assert len(spans) == 3 and all(b - a + 1 == 60 for a, b in spans)
+    assert all(spans[i][1] < spans[i + 1][0] for i in range(2))            # in order, not overlapping
+    inside = np.zeros(800, bool)
+    for a, b in spans:
+        inside[a - 1:b] = True
+    old = np.frombuffer(sim.sequence(lab).encode(), np.uint8)
+    new = np.frombuffer(out.sequence(lab).encode(), np.uint8)
+    assert np.array_equal(old[~inside], new[~inside])                       # nothing outside the stretches
+    assert np.array_equal(old == ord("-"), new == ord("-"))                 # a misread base is still a base
+    res = inside & (old != ord("-"))
+    diff = int((old[res] != new[res]).sum())
+    assert diff == note["changed_columns"]
+    # Draws from equal frequencies match the old base with probability 1/4 (common practice): about 3/4 differ.
+    n = int(res.sum())
+    assert abs(diff / n - 0.75) < 4 * np.sqrt(0.75 * 0.25 / n)
+    assert summary(out, 31)["planted"] == [note]
+    again = plant_misread(sim, None, stretches=3, stretch_length=60, rng=5)
+    other = plant_misread(sim, lab, stretches=3, stretch_length=60, rng=6)
+    assert again.records == out.records and again.planted == out.planted
+    assert other.sequence(lab) != out.sequence(lab)
+
+
+def test_misread_shift_slides_the_stretch():
+    sim = simulate(6, 300, "dna", seed=32, gap_rate=0.02)
+    out = plant_misread(sim, "t02", stretches=2, stretch_length=40, how="shift", shift=3, rng=1)
+    note = out.planted[-1]
+    assert note["how"] == "shift" and note["shift"] == 3 and _changed_rows(sim, out) == ["t02"]
+    old, new = sim.sequence("t02"), out.sequence("t02")
+    for a, b in note["stretches"]:
+        block = old[a - 1:b]
+        assert new[a - 1:b] == block[3:] + block[:3]
+    assert sorted(new) == sorted(old)                                        # same residues, moved
+    with pytest.raises(InputError, match="more than half of the 300 columns"):
+        plant_misread(sim, "t02", stretches=4, stretch_length=40, rng=1)
+    with pytest.raises(InputError, match="unknown misread kind"):
+        plant_misread(sim, "t02", how="garble", rng=1)
+
+
+def _k80_p(d, kappa):
+    """Expected p-distance at path length d under K80 (Kimura 1980): P + Q, with bt = d / (kappa + 2)."""
+    bt = d / (kappa + 2)
+    at = kappa * bt
+    P = 0.25 + 0.25 * np.exp(-4 * bt) - 0.5 * np.exp(-2 * (at + bt))
+    Q = 0.5 - 0.5 * np.exp(-4 * bt)
+    return P + Q
+
+
+def test_contaminant_is_a_mutated_consensus():
+    """Issue 15: one row replaced by the column-wise consensus evolved along `distance`; tree unchanged."""
+    sim = simulate(16, 3000, "dna", seed=33, kappa=3.0, gap_rate=0.005)
+    out = plant_contaminant(sim, None, distance=0.4, rng=2)
+    note = out.planted[-1]
+    lab, = note["labels"]
+    assert note["kind"] == "contaminant" and _changed_rows(sim, out) == [lab]
+    assert out.tree.newick() == sim.tree.newick()                            # wrong data, not a new history
+    old, new = sim.sequence(lab), out.sequence(lab)
+    assert [c == "-" for c in old] == [c == "-" for c in new]                 # keeps the row's gap pattern
+    # Our own consensus (majority of non-gap residues); ties are rare with 16 rows and do not move p much.
+    X = as_matrix(sim.records)
+    counts = np.stack([(X == ord(c)).sum(axis=0) for c in "ACGT"])
+    cons = "".join("ACGT"[i] for i in counts.argmax(axis=0))
+    p, n = p_and_compared(new, cons)
+    assert abs(p - _k80_p(0.4, 3.0)) < 4 * np.sqrt(0.3 * 0.7 / n) + 0.01, p
+    assert p == pytest.approx(note["p_to_consensus"], abs=0.01)
+    assert p_and_compared(new, old)[0] == pytest.approx(note["p_to_original"], abs=1e-6)
+    assert summary(out, 33)["planted"] == [note]
+    assert plant_contaminant(sim, None, distance=0.4, rng=2).records == out.records
+    assert plant_contaminant(sim, lab, distance=0.4, rng=3).sequence(lab) != new
+    with pytest.raises(InputError, match="contaminant distance must be above 0"):
+        plant_contaminant(sim, lab, distance=0, rng=1)
+
+
+def test_new_plants_through_the_cli_match_the_api(tmp_path):
+    """The command applies misread and contaminant after the older kinds, from the same generator."""
+    p = run_cli("simulate", "-o", tmp_path / "a.fasta", "--tree-out", tmp_path / "t.nwk", "--taxa", 12,
+                "--length", 400, "--seed", 8, "--gappy", "auto", "--misread", "auto", "--misread-stretches", 2,
+                "--misread-length", 30, "--contaminant", "auto", "--contaminant-distance", 0.6,
+                "--summary-out", tmp_path / "s.json")
+    assert p.returncode == 0, p.stderr
+    assert "misread" in p.stderr and "contaminant" in p.stderr
+    rng = np.random.default_rng(8)
+    sim = plant_gappy(simulate(12, 400, "dna", rng), None, 0.7, rng=rng)
+    sim = plant_misread(sim, None, 2, 30, rng=rng)
+    sim = plant_contaminant(sim, None, 0.6, rng=rng)
+    assert format_fasta(sim.records) == (tmp_path / "a.fasta").read_text()
+    planted = json.loads((tmp_path / "s.json").read_text())["planted"]
+    assert [x["kind"] for x in planted] == ["gappy", "misread", "contaminant"]
+    assert len({x["labels"][0] for x in planted}) == 3                        # auto picks unused taxa
+    assert planted == json.loads(json.dumps(sim.planted))
+
+
 # -------------------------------------------------------------- the committed demo data
 def test_demo_files_regenerate_byte_for_byte(tmp_path):
     env = dict(os.environ, SEQDIST=f"{sys.executable} -m seqdist.cli")
@@ -424,6 +527,15 @@ def test_format_stockholm_marks_insert_columns():
     (["--taxa", "5", "--length", "10", "--gappy-fraction", "1"], "argument --gappy-fraction: must be a number above 0"),
     (["--taxa", "5", "--length", "10", "--freqs", "1,nan,1,1"], "argument --freqs: expected comma-separated positive"),
     (["--taxa", "5", "--length", "10", "--stockholm-taxa", "1"], "argument --stockholm-taxa: must be an integer >= 2"),
+    # issue 15: the misread and contaminant plants
+    (["--taxa", "5", "--length", "60", "--misread", "auto"], "would cover more than half of the 60 columns"),
+    (["--taxa", "5", "--length", "60", "--misread", "t09"], "no taxon labelled 't09'"),
+    (["--taxa", "5", "--length", "60", "--misread-how", "garble"], "argument --misread-how: invalid choice"),
+    (["--taxa", "5", "--length", "60", "--contaminant", "auto", "--contaminant-distance", "0"],
+     "argument --contaminant-distance: must be a number above 0"),
+    (["--taxa", "5", "--length", "60", "--gappy", "t01", "--contaminant", "t01"], "already used"),
+    (["--taxa", "3", "--length", "60", "--gappy", "auto", "--chimera", "auto", "--misread", "auto"],
+     "needs at least 4 taxa"),
 ])
 def test_bad_options_exit_2_one_line(tmp_path, capsys, args, needle):
     # In-process through the CLI's one error path (fast); one case below runs as a real process.

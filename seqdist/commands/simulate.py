@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from ..errors import InputError
 from ..simulate import (MAX_CELLS, MAX_INDEL_WORK, MAX_LENGTH, MAX_RATE_CATEGORIES, MAX_SATURATE, MAX_SCALE,
-                        MAX_TAXA)
+                        MAX_TAXA, MISREAD_HOWS)
 from ._shared import add_seed, add_subcommand, float_range, int_range, positive_float
 
 _DESCRIPTION = """\
@@ -12,12 +12,14 @@ Draws a random tree and evolves sequences down it (DNA: K80 or HKY85; protein:
 equal rates, with equal or given frequencies), with gamma rate variation across
 sites and insertion/deletion runs. Writes the alignment as FASTA and the true
 tree as Newick (branch lengths in expected substitutions per site). Optionally
-plants trouble: a very gappy row, a chimera, a pair past saturation.
+plants trouble: a very gappy row, a chimera, a pair past saturation, a row with
+misread stretches, a contaminant (a far-mutated consensus in one taxon's place).
 
 limits (refused with exit status 2 before any work, so that a typo cannot ask
 for more memory than the machine has): --taxa 3 to {taxa}, --length 1 to
 {length}, taxa x length at most {cells} cells (about 0.5 GB of memory);
---scale at most {scale:g}; --saturate-length at most {sat:g}; --rate-categories
+--scale at most {scale:g}; --saturate-length and --contaminant-distance at most
+{sat:g}; --rate-categories
 at most {cats}; indel work (expected events x columns, events = gap rate x
 tree length x length) at most {work:.3g}, about a minute. See docs/simulator.md.
 
@@ -85,6 +87,20 @@ def register(subs, common):
                    help="give two taxa very long terminal branches (default pair: the farthest apart)")
     g.add_argument("--saturate-length", type=float_range(0, MAX_SATURATE, lo_open=True), default=50.0,
                    metavar="X", help=f"branch length added to each of them (at most {MAX_SATURATE:g}; default: 50)")
+    g.add_argument("--misread", metavar="LABEL|auto", default=None,
+                   help="replace a few stretches of one row by misread residues")
+    g.add_argument("--misread-stretches", type=int_range(1, MAX_LENGTH), default=3, metavar="N",
+                   help="number of misread stretches (default: 3)")
+    g.add_argument("--misread-length", type=int_range(1, MAX_LENGTH), default=50, metavar="L",
+                   help="columns per misread stretch; together at most half the row (default: 50)")
+    g.add_argument("--misread-how", choices=MISREAD_HOWS, default="random",
+                   help="random: residues drawn from the stationary frequencies (base-calling error); "
+                        "shift: the stretch's content slid by one column (alignment error) (default: random)")
+    g.add_argument("--contaminant", metavar="LABEL|auto", default=None,
+                   help="replace one row by the alignment's consensus mutated along a long branch")
+    g.add_argument("--contaminant-distance", type=float_range(0, MAX_SATURATE, lo_open=True), default=0.5,
+                   metavar="X", help="branch length from the consensus, expected substitutions per site "
+                                     f"(at most {MAX_SATURATE:g}; default: 0.5)")
     g = p.add_argument_group("extra outputs")
     g.add_argument("--stockholm-out", metavar="STO", default=None,
                    help="also write the first taxa as Stockholm, insert columns in lower case / '.'")
@@ -109,7 +125,8 @@ def _run(args) -> int:
     check_distinct_outputs({"--out": args.out, "--tree-out": args.tree_out, "--stockholm-out": args.stockholm_out,
                             "--summary-out": args.summary_out})
     sim_mod.check_size(args.taxa, args.length)
-    wanted = (args.gappy is not None) + 2 * (args.chimera is not None) + 2 * (args.saturate is not None)
+    wanted = ((args.gappy is not None) + 2 * (args.chimera is not None) + 2 * (args.saturate is not None)
+              + (args.misread is not None) + (args.contaminant is not None))
     if wanted > args.taxa:
         raise InputError(f"planting that much trouble needs at least {wanted} taxa (got {args.taxa})")
     rng = np.random.default_rng(args.seed)
@@ -147,6 +164,15 @@ def _run(args) -> int:
             pair = [_label(x) for x in pair]
         sim = sim_mod.plant_saturated_pair(sim, pair, args.saturate_length, rng=rng)
         used.update(sim.planted[-1]["labels"])
+    # Planted after the older kinds, so that files made without these options stay byte-identical.
+    if args.misread is not None:
+        sim = sim_mod.plant_misread(sim, None if _auto(args.misread) else _label(args.misread),
+                                    args.misread_stretches, args.misread_length, args.misread_how, rng=rng)
+        used.update(sim.planted[-1]["labels"])
+    if args.contaminant is not None:
+        sim = sim_mod.plant_contaminant(sim, None if _auto(args.contaminant) else _label(args.contaminant),
+                                        args.contaminant_distance, rng=rng)
+        used.update(sim.planted[-1]["labels"])
 
     with OutputSet() as out:
         out.add_text(args.out, sim_mod.format_fasta(sim.records))
@@ -168,4 +194,9 @@ def _describe(note: dict) -> str:
         return f"gappy {note['labels'][0]} ({100 * note['gap_fraction']:.0f}% gaps)"
     if kind == "chimera":
         return f"chimera {note['label']} (from column {note['first_donor_column']}: {note['donor']})"
+    if kind == "misread":
+        return (f"misread {note['labels'][0]} ({len(note['stretches'])} stretches, {note['misread_columns']} "
+                f"columns, {note['how']})")
+    if kind == "contaminant":
+        return f"contaminant {note['labels'][0]} (p = {note['p_to_consensus']:.4f} to the consensus)"
     return f"saturated pair {note['labels'][0]},{note['labels'][1]} (p = {note['p_distance']:.4f})"
