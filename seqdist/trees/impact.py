@@ -413,3 +413,58 @@ def summary_lines(report: dict, names=("before", "after")) -> list[str]:
     if "support_summary" in r:
         lines.append(r["support_summary"])
     return lines
+
+
+def remedy_table(trees: dict, truth: Tree | None = None) -> dict:
+    """Trees from several remedies compared on the taxa they all hold.
+
+    Parameters
+    ----------
+    trees : dict of str to Tree
+        Named trees, the first being the reference (e.g. the measured
+        matrix's tree); each may hold a different set of taxa.
+    truth : Tree, optional
+        A reference tree holding at least the common taxa.
+
+    Returns
+    -------
+    dict
+        ``n_compared`` and ``taxa`` (the common taxa, sorted) and ``rows``:
+        per tree its ``name``, ``n_taxa`` (its own leaves),
+        ``rf_to_first`` and, with ``truth``, ``rf_to_truth`` and
+        ``rf_to_truth_normalized``; every RF on the common taxa (the trees
+        pruned to them).
+
+    Examples
+    --------
+    >>> from seqdist.trees.newick import read_newick
+    >>> t = {"a": read_newick("((a,b),c,(d,e),f);"), "b": read_newick("((a,c),b,(d,e));")}
+    >>> r = remedy_table(t)
+    >>> r["n_compared"], [row["rf_to_first"] for row in r["rows"]]
+    (5, [0, 2])
+    """
+    names = list(trees)
+    common = set.intersection(*(set(t.labels()) for t in trees.values()))
+    if len(common) < 4:
+        raise InputError(f"the trees share {len(common)} taxa; comparing them needs at least 4")
+    taxa = sorted(common)
+    n = len(taxa)
+
+    def split_set(t: Tree) -> set:
+        tt = t if t.n_leaves == n else prune(t, common)
+        return nontrivial(splits(tt, taxa), n)
+
+    sets = {k: split_set(t) for k, t in trees.items()}
+    st = None
+    if truth is not None:
+        if not common <= set(truth.labels()):
+            raise InputError("the reference tree lacks taxa the trees hold")
+        st = split_set(truth)
+    rows = []
+    for k in names:
+        row = {"name": k, "n_taxa": trees[k].n_leaves, "rf_to_first": len(sets[k] ^ sets[names[0]])}
+        if st is not None:
+            rf = len(sets[k] ^ st)
+            row.update(rf_to_truth=rf, rf_to_truth_normalized=rf / (2.0 * (n - 3)))
+        rows.append(row)
+    return {"n_compared": n, "taxa": taxa, "rf_max": 2 * (n - 3), "rows": rows}
