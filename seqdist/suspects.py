@@ -1,48 +1,52 @@
 """Which taxa look bad, and the evidence: per-taxon statistics, robust z-scores, one score.
 
-:func:`find_suspects` computes, for every taxon, a set of standard or
-published statistics oriented so that larger means more suspicious, turns
-each into a robust z-score against all taxa (the modified z-score of
-Iglewicz & Hoaglin 1993: median and median absolute deviation), and scores
-the taxon by its largest z-score. A taxon is a *suspect* only when that
-score reaches the threshold (:data:`THRESHOLD`, calibrated on simulations in
-``tests/benchmarks/bench_suspects.py``), so clean data gives an empty list.
-The statistics, their sources, the combination and the calibration are in
+:func:`find_suspects` computes, for every taxon, standard or published
+statistics oriented so that larger means more suspicious, turns each into a
+robust z-score against all taxa (the modified z-score of Iglewicz & Hoaglin
+1993: median and median absolute deviation, with a floor under the spread),
+takes the largest z within each group of statistics that measure the same
+thing, and combines the groups' z-scores (cut at 0) into one score, the root
+of their sum of squares. A taxon is a *suspect* only when its score reaches
+:data:`THRESHOLD`, calibrated on seeded simulations in
+``tests/benchmarks/bench_suspects.py``, so clean data gives an empty list.
+Statistics, sources, groups, the combination and the calibration are in
 docs/suspects.md.
 
 From the matrix alone (through :func:`seqdist.audit.audit`):
 
-* ``violated_fraction`` - share of the taxon's checked triangles that break
-  the triangle inequality; ``violation_excess`` - their summed excess per
-  checked triangle, relative to the largest entry;
+* ``violation_excess`` - summed excess of the taxon's violated triangles per
+  checked triangle, relative to the largest entry (``violated_fraction``, the
+  share of its checked triangles violated, is shown but not scored: taxa with
+  a near-identical partner break many triangles by rounding-sized amounts);
 * ``missing_fraction`` - share of the taxon's pairs with no distance;
 * ``delta`` - the mean delta score of the quartets holding the taxon
   (Holland et al. 2002);
-* ``terminal_branch`` - the length of the taxon's own branch in a
-  neighbor-joining tree, on a log scale (common practice: a sequence that
-  fits nowhere sits at the end of a long branch).
+* ``terminal_branch`` - the length of its own branch in a neighbor-joining
+  tree, relative to the typical one, on the cube-root scale (common practice:
+  a sequence that fits nowhere sits at the end of a long branch).
 
 From the alignment (``alignment=``):
 
 * ``gap_fraction`` - share of columns without an unambiguous residue;
-* ``compared_columns`` - the median number of columns it shares with each
-  other sequence (fewer is more suspicious);
-* ``block_incongruence`` - for each cut of the alignment into a left and a
-  right part (at the block boundaries), the Spearman rank correlation between
-  the taxon's p-distances to the others on the left part and on the right
-  part; the statistic is the lowest correlation relative to the other taxa
-  at the same cut (a chimera's nearest relatives change along the alignment);
+  ``compared_columns`` - the median number of columns it shares with each
+  other sequence (fewer is more suspicious); one group;
+* ``block_incongruence`` - at each cut of the alignment between contiguous
+  blocks, how much farther its nearest relatives on one side are on the
+  other side, in standard errors (a chimera's nearest relatives change along
+  the alignment); ``block_rank_correlation``, the Spearman correlation of
+  its two distance profiles at that cut, is shown beside it, not scored;
 * ``placement_instability`` (``replicates > 0``) - one minus the leaf
   stability of Thorley & Wilkinson (1999) over bootstrap replicates of the
   columns (Felsenstein 1985), neighbor-joining trees of the model distances.
+  Shown, not scored (it did not separate planted from clean taxa).
 
-Work, for n taxa and L columns: the audit (one compiled pass over the
-C(n, 3) triangles, quartets sampled above 2 million), one neighbor-joining
-tree, and for the alignment (K + 1) products of n x L by L x n 32-bit
-matrices (K states) split over the blocks, then n rank correlations of
-length n - 1 per cut. Each bootstrap replicate costs one distance matrix and
-one tree, plus the quartet tally (all quartets up to :data:`QUARTETS_MAX`,
-else that many drawn at random).
+Work, for n taxa and L columns: the audit without its bounds (one compiled
+pass over the C(n, 3) triangles; quartets all up to 2 million, else 200,000
+drawn), one neighbor-joining tree, and for the alignment (K + 1) products of
+n x L by L x n 32-bit matrices (K states) split over the blocks, sorting of
+n rows per cut and one rank correlation per taxon. Each bootstrap replicate
+costs one distance matrix, one tree and the quartet tally (all quartets up
+to :data:`QUARTETS_MAX`, else that many drawn).
 """
 
 from __future__ import annotations
@@ -57,7 +61,7 @@ from .matrix import DistanceMatrix
 
 #: Default threshold on the combined score (the largest robust z-score of a
 #: taxon); calibrated in tests/benchmarks/bench_suspects.py (docs/suspects.md).
-THRESHOLD = 5.0
+THRESHOLD = 4.75
 
 #: A statistic is named among a taxon's reasons from this robust z on.
 REASON_Z = 3.0
@@ -124,7 +128,7 @@ _STATS = {
                                                "the cut above",
                                "its nearest relatives differ between {where} (rank correlation {v}; "
                                "typical {t})"),
-    "placement_instability": (+1, 0.03, "bootstrap", "one minus its leaf stability under bootstrap of "
+    "placement_instability": (+1, 0.03, None, "one minus its leaf stability under bootstrap of "
                                                      "columns (Thorley & Wilkinson 1999)",
                               "its place in the tree changes between bootstrap replicates (leaf "
                               "instability {v}; typical {t})"),
@@ -199,7 +203,7 @@ def robust_z(x: np.ndarray, floor: float, sign: int = 1) -> tuple[np.ndarray, fl
     --------
     >>> z, med, s = robust_z(np.array([1.0, 2.0, 3.0, 4.0, 100.0]), 0.1)
     >>> med, round(s, 4), round(float(z[-1]), 2)
-    (3.0, 1.4826, 65.42)
+    (3.0, 1.4826, 65.43)
     """
     x = np.asarray(x, dtype=np.float64)
     ok = np.isfinite(x)
