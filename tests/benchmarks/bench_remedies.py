@@ -10,8 +10,9 @@ builds NJ and BIONJ trees and scores each against the true tree with
 dendropy's Robinson-Foulds distance, normalised by 2(n - 3) on the taxa the
 tree holds. Prints one markdown table per tree method (rows: remedies;
 columns: scenarios; cells: mean normalised RF; with --detail also the
-replicates better/worse than no repair and the two-sided sign-test p), then
-the suspect table. The functions are in remedy_study.py beside this file;
+replicates better/worse than no repair and the two-sided sign-test p), the
+same on the taxa not planted (every tree pruned to them: does the remedy
+protect the rest of the tree?), the suspect table and the issue's targets. The functions are in remedy_study.py beside this file;
 docs/remedies.md has the results and what they say.
 
 Seeded and deterministic: the tables and the --json file depend only on the
@@ -148,6 +149,9 @@ def main(argv=None) -> int:
         print(rs.markdown_table(records, method, args.detail))
     print("\nLeave-out rows are scored on the taxa left; 'mean' is over the scenarios shown."
           + (" Cells: mean (replicates better/worse than none, two-sided sign-test p)." if args.detail else ""))
+    for method in args.methods:
+        print(f"\n## {method.upper()}, scored on the taxa not planted (every tree pruned to them)\n")
+        print(rs.markdown_table(records, method, args.detail, core=True))
     print("\n## Planted taxa among the suspects\n")
     print(rs.suspect_table(records))
     checks = targets(records, args.methods)
@@ -166,7 +170,8 @@ def main(argv=None) -> int:
         from seqdist.io import OutputSet
 
         doc = {"settings": settings, "versions": ver, "skipped": notes, "records": records,
-               "tables": {m: rs.table(records, m) for m in args.methods}}
+               "tables": {m: rs.table(records, m) for m in args.methods},
+               "tables_not_planted": {m: rs.table(records, m, core=True) for m in args.methods}}
         with OutputSet() as out:
             out.add_text(args.json, json.dumps(doc, indent=1, sort_keys=False) + "\n")
     return 0

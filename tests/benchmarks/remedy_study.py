@@ -386,10 +386,11 @@ LEAVE_OUT = ("none_drop_incomplete", "leave_out_audit_top_k", "leave_out_suspect
 
 
 # ------------------------------------------------------------------ scoring
-def rf_to_truth(tree_newick: str, truth_newick: str) -> tuple[int, int]:
+def rf_to_truth(tree_newick: str, truth_newick: str, taxa=None) -> tuple[int, int]:
     """Robinson-Foulds distance (dendropy's symmetric difference, unrooted) to the true tree pruned to the tree's taxa.
 
     Returns ``(rf, n)`` with ``n`` the taxa compared; normalise by 2(n - 3).
+    With ``taxa``, both trees are first pruned to those of them the tree holds.
 
     Examples
     --------
@@ -397,6 +398,8 @@ def rf_to_truth(tree_newick: str, truth_newick: str) -> tuple[int, int]:
     (4, 5)
     >>> rf_to_truth("((a,b),c,d);", "((a,b),(c,(d,x)),e);")
     (0, 4)
+    >>> rf_to_truth("((a,b),(c,d),e,f);", "((a,c),(b,d),e,f);", taxa="abcef")
+    (2, 5)
     """
     import dendropy
     from dendropy.calculate import treecompare
@@ -407,6 +410,9 @@ def rf_to_truth(tree_newick: str, truth_newick: str) -> tuple[int, int]:
     truth = dendropy.Tree.get(data=truth_newick, schema="newick", taxon_namespace=tns,
                               preserve_underscores=True, rooting="force-unrooted")
     keep = {leaf.taxon.label for leaf in t.leaf_node_iter()}
+    if taxa is not None:
+        keep &= set(taxa)
+        t.retain_taxa_with_labels(keep)
     truth.retain_taxa_with_labels(keep)
     truth.is_rooted = False
     t.is_rooted = False
@@ -476,10 +482,15 @@ def run_replicate(scenario: str, index: int, seed: int = 1, alpha: float | None 
                 rec["remedies"][name] = {"skipped": str(exc)}
                 continue
             out = {"left_out": sorted(left)}
+            core = [lab for lab in dm.labels if lab not in set(rep.planted)]
             for method in methods:
-                tree = build_tree(matrix, method)
-                rf, n = rf_to_truth(tree.to_newick(), truth)
+                text = build_tree(matrix, method).to_newick()
+                rf, n = rf_to_truth(text, truth)
                 out[method] = {"rf": rf, "n": n, "rf_norm": round(normalised(rf, n), 6)}
+                if rep.planted:
+                    # The same tree on the taxa nobody spoiled: does the remedy protect the rest of the tree?
+                    rf, n = rf_to_truth(text, truth, core)
+                    out[method]["core"] = {"rf": rf, "n": n, "rf_norm": round(normalised(rf, n), 6)}
             rec["remedies"][name] = out
         ranked = [t["taxon"] for t in audit_of(dm, ctx).ranked_taxa()]
         rec["audit_rank"] = {lab: ranked.index(lab) + 1 for lab in rep.planted}
@@ -547,11 +558,21 @@ def sign_test(a, b) -> tuple[int, int, float]:
     return lo, hi, p
 
 
-def table(records: list, method: str, detail: bool = False) -> dict:
+def _score(rec: dict, name: str, method: str, core: bool):
+    cell = rec["remedies"].get(name, {}).get(method)
+    if cell is None:
+        return None
+    if core:
+        cell = cell.get("core", cell)     # clean replicates: nothing planted, every taxon is core
+    return cell["rf_norm"]
+
+
+def table(records: list, method: str, detail: bool = False, core: bool = False) -> dict:
     """``{remedy: {scenario: cell}}`` where a cell is ``{"mean", "n", "better", "worse", "p"}`` or None.
 
     ``better``/``worse``: replicates in which the remedy's RF is below / above
-    that of ``none`` (the sign test's counts; ``p`` two-sided).
+    that of ``none`` (the sign test's counts; ``p`` two-sided). With ``core``
+    the scores are on the taxa not planted.
     """
     scen = [s for s in SCENARIOS if any(r["scenario"] == s for r in records)]
     names = [n for n in REMEDIES if any(n in r["remedies"] for r in records)]
@@ -560,11 +581,11 @@ def table(records: list, method: str, detail: bool = False) -> dict:
         row = {}
         for s in scen:
             recs = [r for r in records if r["scenario"] == s]
-            vals = [r["remedies"].get(name, {}).get(method, {}).get("rf_norm") for r in recs]
+            vals = [_score(r, name, method, core) for r in recs]
             if any(v is None for v in vals) or not vals:
                 row[s] = None
                 continue
-            base = [r["remedies"]["none"][method]["rf_norm"] for r in recs] if "none" in recs[0]["remedies"] else None
+            base = ([_score(r, "none", method, core) for r in recs] if "none" in recs[0]["remedies"] else None)
             cell = {"mean": float(np.mean(vals)), "n": len(vals)}
             if base is not None and name != "none":
                 cell["better"], cell["worse"], cell["p"] = sign_test(vals, base)
@@ -584,13 +605,13 @@ def _fmt_cell(cell, detail: bool) -> str:
     return text
 
 
-def markdown_table(records: list, method: str, detail: bool = False) -> str:
+def markdown_table(records: list, method: str, detail: bool = False, core: bool = False) -> str:
     """The table of one tree method: rows remedies, columns scenarios and their mean, cells mean normalised RF.
 
     With ``detail`` each cell adds ``(b/w, p P)``: replicates better / worse than ``none`` and the two-sided
     sign-test p.
     """
-    tab = table(records, method, detail)
+    tab = table(records, method, detail, core)
     scen = [s for s in SCENARIOS if any(r["scenario"] == s for r in records)]
     lines = ["| remedy | " + " | ".join(scen) + " | mean |", "| --- |" + " --- |" * (len(scen) + 1)]
     for name, row in tab.items():
