@@ -353,6 +353,31 @@ _BRANCH = "cbrt"
 NEAREST = 5
 
 
+def _smallest(a: np.ndarray, k: int) -> np.ndarray:
+    """Column positions of the k smallest values of each row, in increasing order (ties: lower position first).
+
+    The same as ``np.argsort(a, axis=1, kind="stable")[:, :k]``, but partitions
+    first (linear per row) and orders only the k kept; rows where a tie
+    straddles the k-th place fall back to the full stable sort.
+
+    Examples
+    --------
+    >>> _smallest(np.array([[3.0, 1.0, 2.0, 1.0]]), 2).tolist()
+    [[1, 3]]
+    """
+    m = a.shape[1]
+    if k >= m:
+        return np.argsort(a, axis=1, kind="stable")[:, :k]
+    part = np.argpartition(a, k - 1, axis=1)[:, :k]
+    vals = np.take_along_axis(a, part, 1)
+    kth = vals.max(axis=1, keepdims=True)
+    out = np.take_along_axis(part, np.lexsort((part, vals), axis=-1), 1)
+    amb = (a == kth).sum(axis=1) != (vals == kth).sum(axis=1)
+    if amb.any():
+        out[amb] = np.argsort(a[amb], axis=1, kind="stable")[:, :k]
+    return out
+
+
 def nearest_shift(order_from: np.ndarray, p: np.ndarray, n: np.ndarray, k: int = NEAREST) -> np.ndarray:
     """Median over the ``k`` nearest relatives of one side of how much farther they are on the other side.
 
@@ -373,8 +398,7 @@ def nearest_shift(order_from: np.ndarray, p: np.ndarray, n: np.ndarray, k: int =
     k = min(int(k), p.shape[1])
     big = np.where(np.isfinite(order_from), order_from, np.inf)
     pp = np.where(np.isfinite(p), p, np.inf)
-    o1 = np.argsort(big, axis=1, kind="stable")[:, :k]
-    o2 = np.argsort(pp, axis=1, kind="stable")[:, :k]
+    o1, o2 = _smallest(big, k), _smallest(pp, k)
     b1, b2 = np.take_along_axis(pp, o1, 1), np.take_along_axis(pp, o2, 1)
     n1, n2 = np.take_along_axis(n, o1, 1), np.take_along_axis(n, o2, 1)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):

@@ -260,3 +260,15 @@ def test_bad_options_refused():
         find_suspects(dm, threshold=math.inf)
     with pytest.raises(InputError):
         find_suspects(dm, blocks=1)
+
+
+def test_smallest_matches_a_stable_argsort():
+    # the partial sort must pick and order exactly as a full stable sort (ties by position)
+    from seqdist.suspects import _smallest
+
+    rng = np.random.default_rng(0)
+    for _ in range(100):
+        a = rng.integers(0, 6, (7, 15)).astype(float)
+        a[rng.random(a.shape) < 0.1] = np.inf
+        k = int(rng.integers(1, 16))
+        assert (_smallest(a, k) == np.argsort(a, axis=1, kind="stable")[:, :k]).all()
