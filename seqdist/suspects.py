@@ -347,8 +347,6 @@ def _p(both: np.ndarray, same: np.ndarray) -> np.ndarray:
         return np.where(both > 0, (both - same) / np.where(both > 0, both, 1.0), np.nan)
 
 
-_BRANCH = "cbrt"
-
 #: Nearest relatives compared on the two sides of a cut (``block_incongruence``).
 NEAREST = 5
 
@@ -603,6 +601,8 @@ def find_suspects(dm, *, audit_report=None, alignment=None, model=None, gamma=No
     blocks = int(blocks)
     if blocks < 2:
         raise InputError(f"blocks must be at least 2 (got {blocks})")
+    if gaps not in ("pairwise", "complete"):
+        raise InputError(f"unknown gap treatment '{gaps}' (choose from pairwise, complete)")
     n = dm.n
     labels = dm.labels
     values: dict = {}
@@ -635,7 +635,7 @@ def find_suspects(dm, *, audit_report=None, alignment=None, model=None, gamma=No
         # that makes gamma (and exponential) variables nearly normal; negative NJ lengths count as 0
         with np.errstate(invalid="ignore", divide="ignore"):
             rel_t = np.cbrt(np.maximum(term, 0.0) / med_t) if med_t > 0 else np.zeros(n)
-        put("terminal_branch", rel_t if _BRANCH == "cbrt" else (np.maximum(term, 0.0) / med_t if med_t > 0 else np.zeros(n)))
+        put("terminal_branch", rel_t)
         values["terminal_branch"] = term          # shown as a length, scored relative and on the cube-root scale
         typical["terminal_branch"] = med_t
 
@@ -645,22 +645,30 @@ def find_suspects(dm, *, audit_report=None, alignment=None, model=None, gamma=No
             R = aln.codes < K
             put("gap_fraction", 1.0 - R.mean(axis=1))
             cols = aln.complete_columns() if gaps == "complete" else None
-            inc = _incongruence(aln, blocks, cols, _STATS["block_incongruence"][1])
+            used = aln.length if cols is None else int(cols.sum())
+            if used < 2 * blocks:
+                # too few columns to cut into blocks: the column statistics that need them are left out
+                both, _ = group_counts(aln, np.zeros(aln.length, dtype=np.int64) if cols is None
+                                       else np.where(cols, 0, -1), 1)
+                inc = {"shared": both[0]}
+            else:
+                inc = _incongruence(aln, blocks, cols, _STATS["block_incongruence"][1])
             med_shared = np.median(_off_diagonal(inc["shared"]), axis=1)
             # scored relative to the typical count, so the floor is a share of the columns
             typ = float(np.median(med_shared)) if med_shared.size else 0.0
             put("compared_columns", med_shared / typ if typ > 0 else np.zeros(n))
             values["compared_columns"] = med_shared
             typical["compared_columns"] = typ
-            values["block_incongruence"], zs["block_incongruence"] = inc["change"], inc["z"]
-            typical["block_incongruence"] = inc["typical"]   # per taxon: the typical value at its worst cut
-            put("block_rank_correlation", inc["rho"])
-            typical["block_rank_correlation"] = inc["rho_typical"]
-            col = (inc["positions"] + 1).tolist()
-            e = inc["edges"]
-            where["block_incongruence"] = where["block_rank_correlation"] = [
-                f"columns {col[0]}-{col[int(e[c]) - 1]} and {col[int(e[c])]}-{col[int(e[-1]) - 1]}"
-                for c in inc["cut"]]
+            if "z" in inc:
+                values["block_incongruence"], zs["block_incongruence"] = inc["change"], inc["z"]
+                typical["block_incongruence"] = inc["typical"]   # per taxon: the typical value at its worst cut
+                put("block_rank_correlation", inc["rho"])
+                typical["block_rank_correlation"] = inc["rho_typical"]
+                col = (inc["positions"] + 1).tolist()
+                e = inc["edges"]
+                where["block_incongruence"] = where["block_rank_correlation"] = [
+                    f"columns {col[0]}-{col[int(e[c]) - 1]} and {col[int(e[c])]}-{col[int(e[-1]) - 1]}"
+                    for c in inc["cut"]]
             if replicates > 0:
                 put("placement_instability",
                     _leaf_instability(aln, list(labels), model, gamma, gaps, replicates, seed))

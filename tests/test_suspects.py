@@ -272,3 +272,14 @@ def test_smallest_matches_a_stable_argsort():
         a[rng.random(a.shape) < 0.1] = np.inf
         k = int(rng.integers(1, 16))
         assert (_smallest(a, k) == np.argsort(a, axis=1, kind="stable")[:, :k]).all()
+
+
+def test_short_alignment_skips_the_block_statistics():
+    aln = Alignment.from_sequences(["a", "b", "c", "d", "e"], ["ACGTAC", "ACGTAA", "ACGAAC", "TCGTAC", "ACCTAC"],
+                                   "dna")
+    dm = pairwise_distances(aln, "p", warn=False, progress=False).matrix
+    rep = find_suspects(dm, alignment=aln, blocks=4)           # 6 columns cannot make 4 blocks of 2
+    assert "block_incongruence" not in rep.statistics
+    assert "gap_fraction" in rep.statistics
+    with pytest.raises(InputError, match="gap treatment"):
+        find_suspects(dm, alignment=aln, gaps="none")
