@@ -89,6 +89,7 @@ class AuditReport:
     ultrametric: dict
     values: np.ndarray = field(repr=False, default=None)
     seconds: dict = field(default_factory=dict)
+    suspects: object = field(repr=False, default=None)  # a seqdist.suspects.SuspectReport
 
     # -------------------------------------------------------------- views
     @property
@@ -229,6 +230,7 @@ class AuditReport:
             "violated_triangles": self.violated,
             "max_violation": _r12(self.max_violation),
             "min_changes_lower_bound": self.min_changes_lower_bound,
+            **self._suspects_json(list_max),
             "tol": self.tol,
             "largest_entry": self.largest,
             "missing_entries": self.missing_entries,
@@ -251,6 +253,34 @@ class AuditReport:
             "ultrametric": um,
         }
 
+    def _suspects_json(self, list_max: int) -> dict:
+        if self.suspects is None:
+            return {"suspect_taxa": []}
+        d = self.suspects.to_dict()
+        ranking = d.pop("ranking")
+        return {"suspect_taxa": d.pop("suspect_taxa"),
+                "suspects": {**d, "ranking": ranking[:list_max], "ranking_listed": min(len(ranking), list_max),
+                             "definition": "robust z-scores of per-taxon statistics combined into one score; "
+                                           "a suspect scores at least the threshold (docs/suspects.md)"}}
+
+    def _suspects_lines(self, top: int) -> list[str]:
+        if self.suspects is None:
+            return []
+        s = self.suspects
+        if not s.suspects:
+            best = s.ranking[0].score if s.ranking else 0.0
+            return ["", f"Suspect taxa: none (no score reaches the threshold {s.threshold:g}; the highest is "
+                        f"{best:.3g})."]
+        L = ["", f"Suspect taxa ({len(s.suspects)} of {len(s.ranking)} reach the threshold {s.threshold:g}; "
+                 "most suspicious first):"]
+        for sus in s.suspects[:top]:
+            L.append(f"  {sus.label}  score {sus.score:.3g}")
+            for why in sus.reasons:
+                L.append(f"      {why}")
+        if len(s.suspects) > top:
+            L.append(f"  ... and {len(s.suspects) - top} more (see --json)")
+        return L
+
     def summary(self, top: int = 10, source: str | None = None) -> str:
         """A readable report for standard output.
 
@@ -269,6 +299,7 @@ class AuditReport:
         L.append(f"  tolerance {_g(self.tol)}; largest entry {_g(self.largest)}")
         L.append("")
         L.append(line + ".")
+        L.extend(self._suspects_lines(top))
         if self.violated:
             v = self.violated
             L.append("")
@@ -563,7 +594,7 @@ def _lower_bound(d, n, hard, scan, collect_max, lp_max, lp_max_iter) -> dict:
 def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
           exact_quartets_max: int = 2_000_000, quartet_samples: int = 200_000,
           collect_max: int = 300_000, lp_max: int = 20_000, lp_max_iter: int | None = None,
-          bounds: bool = True) -> AuditReport:
+          bounds: bool = True, suspects: bool = True) -> AuditReport:
     """Audit a distance matrix.
 
     Parameters
@@ -591,6 +622,10 @@ def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
         the same on every machine.
     bounds : bool
         Compute ``min_changes_lower_bound`` (else it is 0, method "none").
+    suspects : bool
+        Rank the taxa by how bad they look from the matrix alone
+        (:func:`seqdist.suspects.find_suspects`; ``suspect_taxa`` in the
+        JSON). ``seqdist run`` adds what the alignment shows.
 
     Returns
     -------
@@ -707,7 +742,7 @@ def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
                            "deviation = longest - middle; ultrametric when no deviation exceeds tol"}
     secs["total"] = time.perf_counter() - t0
 
-    return AuditReport(labels=dm.labels, tol=tol, largest=largest, n=n, missing_entries=missing,
+    rep = AuditReport(labels=dm.labels, tol=tol, largest=largest, n=n, missing_entries=missing,
                        triangles=_comb(n, 3), checked_triangles=checked, violated=violated,
                        max_violation=maxv, worst_triangles=worst, histogram=scan["hist"],
                        pair_counts=cntp, pair_excess=exp, pair_longest=lngp,
@@ -715,3 +750,10 @@ def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
                        taxon_missing=np.isnan(d).sum(axis=1).astype(np.int64),
                        lower_bound=lb, four_point=four, taxon_delta=taxon_delta, ultrametric=ultra,
                        values=d, seconds=secs)
+    if suspects:
+        from .suspects import find_suspects
+
+        t = time.perf_counter()
+        rep.suspects = find_suspects(dm, audit_report=rep, seed=seed)
+        secs["suspects"] = time.perf_counter() - t
+    return rep
