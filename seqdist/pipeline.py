@@ -319,11 +319,19 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         raise InputError(f"{alignment}: {dm.n} sequences; the job needs at least 3")
 
     t = time.perf_counter()
-    say("[2/5] audit: triangles, lower bound, tree-likeness")
-    arep = audit(dm, seed=seed)
+    say("[2/5] audit: triangles, lower bound, tree-likeness, suspect sequences")
+    from .suspects import find_suspects
+
+    arep = audit(dm, seed=seed, suspects=False)
+    # the suspects with what only the columns can show (block incongruence, gaps)
+    arep.suspects = find_suspects(dm, audit_report=arep, alignment=aln, model=dres.model, gamma=gamma,
+                                  gaps=gaps, seed=seed)
     audit_dict, audit_times = split_times(arep.to_dict())
     seconds["audit"] = time.perf_counter() - t
-    say(f"      {arep.violated} of {arep.checked_triangles} checked triangles violated "
+    sus = arep.suspects.suspects
+    say(f"      {arep.violated} of {arep.checked_triangles} checked triangles violated; "
+        f"{len(sus)} suspect sequence{'s' if len(sus) != 1 else ''}"
+        f"{': ' + ', '.join(x.label for x in sus[:8]) + (' ...' if len(sus) > 8 else '') if sus else ''} "
         f"({seconds['audit']:.2f} s)")
 
     t = time.perf_counter()
