@@ -24,8 +24,17 @@ def register(subs, common):
         "value, marked 'filled_without_evidence' in --changes. The output is verified to be\n"
         "a metric before anything is written. A repaired matrix is altered data: report the\n"
         "objective and the changes (--changes) with any result you publish.\n\n"
+        "Leaving taxa out is a remedy of its own (one of --leave-out, --leave-out-file,\n"
+        "--leave-out-suspects, --leave-out-fewest): the taxa are taken out first, then the\n"
+        "objective repairs the rest. --leave-out-fewest leaves out the fewest taxa whose\n"
+        "removal leaves no violated triangle among measured distances (proven fewest where\n"
+        "the report says leave_out_optimal: true; otherwise it gives a lower bound). The\n"
+        "report lists every taxon left out and why (left_out_taxa, left_out_reasons).\n\n"
         "exit codes: 0 done, 2 bad input or options, 3 infeasible (e.g. conflicting --lock)\n\n"
-        "example:\n  seqdist repair dist.tsv -o fixed.tsv --objective fewest --changes changes.tsv --json report.json")
+        "examples:\n"
+        "  seqdist repair dist.tsv -o fixed.tsv --objective fewest --changes changes.tsv --json report.json\n"
+        "  seqdist repair dist.tsv -o fixed_fewer.tsv --objective shrink --leave-out-fewest --json fewer.json\n"
+        "  seqdist repair dist.tsv -o fixed_without.tsv --objective l2 --leave-out t07,t19")
     p.add_argument("matrix", help="input matrix file ('-' for standard input)")
     add_matrix_in(p)
     add_matrix_out(p)
@@ -41,6 +50,16 @@ def register(subs, common):
                    help="keep taxa with no measured distance to the others, with a made-up fill "
                         "(default: leave them out and name them)")
     p.add_argument("--json", metavar="FILE", help="write the report as JSON")
+    out = p.add_mutually_exclusive_group()
+    out.add_argument("--leave-out", action="append", default=None, metavar="LABEL[,LABEL...]",
+                     help="leave these taxa out before repairing (repeatable)")
+    out.add_argument("--leave-out-file", metavar="FILE",
+                     help="leave out the taxa named in FILE, one label per line ('#' starts a comment)")
+    out.add_argument("--leave-out-suspects", action="store_true",
+                     help="leave out the suspect taxa the audit names from the matrix")
+    out.add_argument("--leave-out-fewest", action="store_true",
+                     help="leave out the fewest taxa whose removal leaves no violated triangle "
+                          "(only triangles with three measured sides count)")
     p.add_argument("--time-limit", type=positive_float, default=None, metavar="SECONDS",
                    help="work budget of about this many seconds on the reference machine, counted in "
                         "work, not read from the clock (results do not depend on the machine or its "
@@ -81,6 +100,89 @@ def _parse_options(items) -> dict:
     return out
 
 
+def _leave_out_labels(items, dm, source: str) -> list:
+    """The labels of ``--leave-out`` options (comma-separated, repeatable), checked against the matrix."""
+    from ..errors import InputError
+
+    idx = dm._index_map()
+    out = []
+    for item in items:
+        for lab in item.split(","):
+            lab = lab.strip()
+            if not lab:
+                raise InputError(f"--leave-out: an empty label in '{item}'")
+            if lab not in idx:
+                raise InputError(f"--leave-out: unknown label '{lab}' (not in {source})")
+            if lab not in out:
+                out.append(lab)
+    return out
+
+
+def read_label_file(path: str, dm, source: str) -> list:
+    """Labels from a file, one a line (blank lines and '#' comments skipped); each failure names the line."""
+    from ..errors import InputError
+    from ..io import read_text
+
+    text = read_text(path, "leave-out file")
+    name = "<stdin>" if path == "-" else path
+    idx = dm._index_map()
+    out = []
+    for ln, line in enumerate(text.split("\n"), start=1):
+        lab = line.rstrip("\r").strip()
+        if not lab or lab.startswith("#"):
+            continue
+        if lab not in idx:
+            raise InputError(f"{name}: line {ln}: unknown label '{lab}' (not in {source})")
+        if lab not in out:
+            out.append(lab)
+    return out
+
+
+def left_out_summary(rep: dict) -> str:
+    """What was left out and why, for the summary line (empty when nothing was and nothing was asked).
+
+    Examples
+    --------
+    >>> left_out_summary({"left_out_taxa": ["a", "x"], "unmeasured_taxa": {"x": "..."}, "leave_out": "fewest",
+    ...                   "leave_out_optimal": True})
+    '; left out 2 taxa: a (the fewest whose removal leaves no violated triangle, proven), x (no measured distance to the others)'
+    """
+    labels = list(rep.get("left_out_taxa") or [])
+    request = rep.get("leave_out")
+    unmeasured = rep.get("unmeasured_taxa") or {}
+    remedy = [lab for lab in labels if lab not in unmeasured]
+    cut = [lab for lab in labels if lab in unmeasured]
+
+    def names(labs):
+        return ", ".join(labs[:5]) + (f" and {len(labs) - 5} more" if len(labs) > 5 else "")
+
+    parts = []
+    if remedy:
+        if request == "fewest":
+            why = ("the fewest whose removal leaves no violated triangle, proven" if rep.get("leave_out_optimal")
+                   else "the fewest found whose removal leaves no violated triangle; at least "
+                        f"{rep.get('leave_out_lower_bound')} needed")
+        else:
+            why = "suspects" if request == "suspects" else "named"
+        parts.append(f"{names(remedy)} ({why})")
+    if cut:
+        parts.append(f"{names(cut)} (no measured distance to the others)")
+    if not parts:
+        if request == "fewest":
+            return "; no taxa left out (no violated triangle to remove)"
+        if request == "suspects":
+            return "; no taxa left out (no suspects)"
+        return ""
+    return f"; left out {len(labels)} taxa: {', '.join(parts)}"
+
+
+def _violated(rep: dict) -> str:
+    if rep.get("left_out_taxa") and rep.get("violated_before_leaving_out") is not None:
+        return (f"{rep['violated_before_leaving_out']} violated triangles in the input, "
+                f"{rep['violated_before']} among the taxa kept")
+    return f"{rep['violated_before']} violated triangles before"
+
+
 def _run(args) -> int:
     from ..console import info
     from ..io import OutputSet, check_distinct_outputs, read_matrix, read_pairs
@@ -97,9 +199,18 @@ def _run(args) -> int:
     weights = read_matrix(args.weights) if args.weights else None
     lock = read_pairs(args.lock, dm, "lock file") if args.lock else None
     source = "<stdin>" if args.matrix == "-" else args.matrix
+    leave_out = None
+    if args.leave_out:
+        leave_out = _leave_out_labels(args.leave_out, dm, source)
+    elif args.leave_out_file:
+        leave_out = read_label_file(args.leave_out_file, dm, source)
+    elif args.leave_out_suspects:
+        leave_out = "suspects"
+    elif args.leave_out_fewest:
+        leave_out = "fewest"
     res = repair(dm, args.objective, weights=weights, lock=lock, tol=args.tol, time_limit=args.time_limit,
                  seed=args.seed, keep_unmeasured=args.keep_unmeasured, source=source,
-                 weights_source=args.weights, **options)
+                 weights_source=args.weights, leave_out=leave_out, **options)
     rep = dict(res.report)
     rep["input"] = source
     with OutputSet() as out:
@@ -112,10 +223,9 @@ def _run(args) -> int:
     filled = f", {rep['filled_entries']} missing filled" if rep["filled_entries"] else ""
     if rep["filled_without_evidence"]:
         filled += f" ({rep['filled_without_evidence']} without evidence: one made-up value)"
-    if rep["left_out_taxa"]:
-        filled += f"; {len(rep['left_out_taxa'])} taxa left out (no measured distance to the others)"
+    filled += left_out_summary(rep)
     info(f"repair ({args.objective}): {rep['changed_entries']} of {rep['observed_entries']} entries changed"
-         f"{filled}; {rep['violated_before']} violated triangles before, {rep['violated_after']} after; "
+         f"{filled}; {_violated(rep)}, {rep['violated_after']} after; "
          f"objective {rep['objective_value']:.6g} ({bound}); {rep['seconds']:.2f} s")
     info("the repaired matrix is altered data: report the objective and the changes with any published result")
     return 0

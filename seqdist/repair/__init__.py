@@ -6,6 +6,9 @@ One public function, :func:`repair`, and one module per objective behind it:
 shares the engine (:mod:`seqdist.repair.engine`): input checks, weights,
 locks, missing entries, final verification and the report.
 
+Leaving taxa out (``leave_out=``) is a remedy of its own, chosen before the
+objective runs on the remaining taxa (:mod:`seqdist.repair.taxa`).
+
 Objectives: ``shrink`` (decrease only; the shortest-path closure),
 ``grow`` (increase only; fewest increased entries, then least increase),
 ``fewest`` (fewest changed entries, either direction), ``l1`` and ``l2``.
@@ -22,7 +25,7 @@ from .engine import ALTERED_NOTE, OBJECTIVES, RepairResult, format_changes, load
 
 def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, seed: int = 0,
            keep_unmeasured: bool = False, unmeasured_reasons: dict | None = None, source: str | None = None,
-           weights_source: str | None = None, **options) -> RepairResult:
+           weights_source: str | None = None, leave_out=None, **options) -> RepairResult:
     """Return a metric close to ``dm`` under ``objective``.
 
     Parameters
@@ -64,6 +67,19 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
         used in the warning and the report instead of the generic reason.
     source, weights_source : str, optional
         File names of the matrix and the weights, for error messages.
+    leave_out : None, list of str, dict, "suspects" or "fewest"
+        Taxa to leave out before repairing, as a remedy (docs/repair.md,
+        "Leaving taxa out"): a list of labels ("named by the user"), a dict
+        ``{label: reason}`` (e.g. suspects found with the alignment),
+        ``"suspects"`` (the taxa :func:`seqdist.suspects.find_suspects` names
+        from the matrix), or ``"fewest"`` (the fewest taxa whose removal
+        leaves no violated checked triangle: exact by integer program where
+        the work budget allows, else greedy with a proven lower bound). The
+        objective then repairs the remaining taxa. ``report["left_out_taxa"]``
+        lists every taxon left out and ``report["left_out_reasons"]`` why;
+        with "fewest" also ``leave_out_lower_bound`` and
+        ``leave_out_optimal``. Unknown labels, locks on a left-out taxon and
+        fewer than 3 taxa left are input errors.
     **options
         Objective-specific options, e.g. ``method="exact"`` or
         ``method="heuristic"`` for fewest and grow; ``progress=False``
@@ -94,12 +110,16 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
     (2.0, 1)
     >>> r.changes
     [('t0', 't1', 5.0, 2.0, -3.0, 'changed')]
+    >>> D = np.array([[0, 9, 1, 1], [9, 0, 1, 1], [1, 1, 0, 1], [1, 1, 1, 0.]])
+    >>> r = repair(D, "shrink", leave_out="fewest", progress=False)
+    >>> r.report["left_out_taxa"], r.report["leave_out_optimal"], r.matrix.labels
+    (['t0'], True, ('t1', 't2', 't3'))
     """
     from .engine import run
 
     return run(dm, objective, weights=weights, lock=lock, tol=tol, time_limit=time_limit, seed=seed,
                keep_unmeasured=keep_unmeasured, unmeasured_reasons=unmeasured_reasons, source=source,
-               weights_source=weights_source, **options)
+               weights_source=weights_source, leave_out=leave_out, **options)
 
 
 __all__ = ["repair", "RepairResult", "OBJECTIVES", "ALTERED_NOTE", "format_changes", "load_objective",

@@ -678,8 +678,12 @@ class _Bar:
         self.bar.close()
 
 
-def _leave_out(problem: RepairProblem, keep: np.ndarray) -> RepairProblem:
-    """The same problem on the taxa ``keep`` only (locks on the others are an input error)."""
+def _leave_out(problem: RepairProblem, keep: np.ndarray, remedy: dict | None = None) -> RepairProblem:
+    """The same problem on the taxa ``keep`` only (locks on the others are an input error).
+
+    ``remedy`` maps the labels left out on request to why (for the error
+    message); the others are left out for want of a measured distance.
+    """
     import dataclasses
 
     drop = np.setdiff1d(np.arange(problem.n), keep)
@@ -687,13 +691,109 @@ def _leave_out(problem: RepairProblem, keep: np.ndarray) -> RepairProblem:
     if locked[drop].any():
         i = int(drop[np.flatnonzero(locked[drop].any(axis=1))[0]])
         j = int(np.flatnonzero(locked[i])[0])
+        why = (remedy or {}).get(problem.label(i))
+        if why is None:
+            raise InputError(f"locked pair ({problem.label(i)}, {problem.label(j)}) involves {problem.label(i)}, "
+                             "which is left out (no measured distance to the other taxa); "
+                             "keep such taxa (keep_unmeasured) or drop the lock")
         raise InputError(f"locked pair ({problem.label(i)}, {problem.label(j)}) involves {problem.label(i)}, "
-                         "which is left out (no measured distance to the other taxa); "
-                         "keep such taxa (keep_unmeasured) or drop the lock")
+                         f"which is left out ({why}); drop the lock or keep {problem.label(i)}")
     ix = np.ix_(keep, keep)
     return dataclasses.replace(problem, D=problem.D[ix].copy(), weights=problem.weights[ix].copy(),
                                locked=locked[ix].copy(), observed=problem.observed[ix].copy(),
                                labels=tuple(problem.labels[k] for k in keep))
+
+
+# ------------------------------------------------------------- leaving taxa out
+#: Why a taxon is left out when the caller asked for it (``left_out_reasons``).
+REASON_NAMED = "named by the user"
+REASON_FEWEST = "in the fewest taxa whose removal leaves a metric"
+
+#: Work budget of the "fewest" leave-out search, in reference seconds (at most
+#: half of a time limit); its integer program stops when it is spent.
+LEAVE_OUT_BUDGET = 30.0
+
+
+def leave_out_request(leave_out, dm: DistanceMatrix, source: str | None = None):
+    """Check a ``leave_out`` request; returns ``(kind, {label: reason} or None, what to report)``.
+
+    ``kind`` is None, ``"labels"``, ``"suspects"`` or ``"fewest"``. Labels
+    may be a list (reason "named by the user") or a dict ``{label: reason}``.
+
+    Examples
+    --------
+    >>> dm = DistanceMatrix.from_array(np.ones((3, 3)) - np.eye(3), ["a", "b", "c"])
+    >>> leave_out_request(["b", "b"], dm)
+    ('labels', {'b': 'named by the user'}, ['b'])
+    >>> leave_out_request(["z"], dm)
+    Traceback (most recent call last):
+    ...
+    seqdist.errors.InputError: leave_out: unknown label 'z' (not in the matrix)
+    """
+    if leave_out is None:
+        return None, None, None
+    if isinstance(leave_out, str):
+        if leave_out in ("suspects", "fewest"):
+            return leave_out, None, leave_out
+        raise InputError(f"leave_out must be 'suspects', 'fewest' or a list of labels, got {leave_out!r}")
+    if isinstance(leave_out, dict):
+        items = list(leave_out.items())
+    else:
+        try:
+            items = [(lab, REASON_NAMED) for lab in leave_out]
+        except TypeError:
+            raise InputError(f"leave_out must be 'suspects', 'fewest' or a list of labels, "
+                             f"got {leave_out!r}") from None
+    idx = dm._index_map()
+    out = {}
+    for lab, why in items:
+        if not isinstance(lab, str) or lab not in idx:
+            shown = f"'{lab}'" if isinstance(lab, str) else repr(lab)
+            raise InputError(f"leave_out: unknown label {shown} (not in {source or 'the matrix'})")
+        if not isinstance(why, str) or not why.strip():
+            raise InputError(f"leave_out: the reason for '{lab}' must be text, got {why!r}")
+        out.setdefault(lab, why)
+    return "labels", out, list(out)
+
+
+def suspect_reasons(dm: DistanceMatrix) -> dict:
+    """``{label: "suspect: <its first reason>"}`` for the taxa :func:`seqdist.suspects.find_suspects` names."""
+    missing = InputError("leaving out suspects needs seqdist.suspects (find_suspects), which this "
+                         "installation does not have")
+    try:
+        from ..suspects import find_suspects
+    except ModuleNotFoundError as exc:
+        if exc.name != f"{__package__.rpartition('.')[0]}.suspects":
+            raise
+        raise missing from None
+    except ImportError as exc:  # the module is there but not (yet) its function
+        if "find_suspects" not in str(exc):
+            raise
+        raise missing from None
+    out = {}
+    for s in find_suspects(dm).suspects:
+        reasons = getattr(s, "reasons", None) or ()
+        if isinstance(reasons, str):
+            first = reasons
+        elif isinstance(reasons, dict):
+            first = next((f"{k}: {v}" for k, v in reasons.items()), "")
+        else:
+            first = str(next(iter(reasons), ""))
+        out.setdefault(str(s.label), f"suspect: {first}" if first else f"suspect (score {float(s.score):.3g})")
+    return out
+
+
+def fewest_left_out(problem: RepairProblem, budget) -> tuple[dict, object]:
+    """``({label: reason}, TaxaCover)``: the fewest taxa whose removal leaves no violated checked triangle."""
+    from .taxa import fewest_taxa
+
+    cover = fewest_taxa(problem.D, problem.tol, labels=problem.labels, budget=budget)
+    return {problem.label(int(i)): REASON_FEWEST for i in cover.taxa}, cover
+
+
+def _names(labels: list, most: int = 5) -> str:
+    shown = ", ".join(labels[:most])
+    return shown + (f" and {len(labels) - most} more" if len(labels) > most else "")
 
 
 def check_magnitude(D: np.ndarray, weights: np.ndarray, source: str | None = None) -> None:
@@ -721,16 +821,20 @@ def check_magnitude(D: np.ndarray, weights: np.ndarray, source: str | None = Non
 
 def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, seed=0,
         progress: bool = True, keep_unmeasured: bool = False, unmeasured_reasons: dict | None = None,
-        source: str | None = None, weights_source: str | None = None, **options) -> RepairResult:
+        source: str | None = None, weights_source: str | None = None, leave_out=None, **options) -> RepairResult:
     """Repair ``dm`` under ``objective``; see :func:`seqdist.repair.repair`."""
     from ..console import warn
     from ..metric import count_violations
+    from .problem import Budget
 
     t0 = time.perf_counter()
     solve = load_objective(objective)
     check_options(objective, options)
     dm = as_matrix(dm)
+    kind, remedy, request = leave_out_request(leave_out, dm, source)
     bar = _Bar(objective) if progress else None
+    where = f"{source}: " if source else ""
+    leave = {}
     try:
         problem = build_problem(dm, weights, lock, tol, time_limit, seed, options, bar,
                                 weights_source=weights_source or "weights")
@@ -739,13 +843,12 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
         if unmeasured_reasons:
             unmeasured = {lab: unmeasured_reasons.get(lab, why) for lab, why in unmeasured.items()}
         left_out = [] if keep_unmeasured else list(unmeasured)
+        keep = np.arange(dm.n)
         if left_out:
             keep = measured_groups(problem.observed)[0]
             if keep.size < 3:
-                where = f"{source}: " if source else ""
                 raise InputError(f"{where}measured distances join at most {keep.size} taxa; "
                                  "a repair needs at least 3 joined by measured distances")
-            problem = _leave_out(problem, keep)
         if unmeasured:
             shown = "; ".join(f"{lab} ({why})" for lab, why in list(unmeasured.items())[:5])
             more = f"; and {len(unmeasured) - 5} more" if len(unmeasured) > 5 else ""
@@ -756,6 +859,55 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
                 warn(f"{len(unmeasured)} taxa kept although no measured distance joins them to the others; "
                      f"their distances to the rest are one made-up value, not evidence: {shown}{more}",
                      stacklevel=3)
+        if kind is not None:
+            leave["violated_before_leaving_out"] = int(count_violations(problem.D, problem.tol)[0])
+        cover = None
+        if kind == "suspects":
+            remedy = suspect_reasons(dm)
+        elif kind == "fewest":
+            # on the taxa that measured distances join (the others are out already)
+            limit = LEAVE_OUT_BUDGET if time_limit is None else min(LEAVE_OUT_BUDGET, 0.5 * float(time_limit))
+            budget = Budget(limit)
+            remedy, cover = fewest_left_out(_leave_out(problem, keep) if left_out else problem, budget)
+            if time_limit is not None:
+                # the objective gets what the search left of the time limit
+                problem = _with_time_limit(problem, max(float(time_limit) - budget.spent, 1e-3))
+        remedy = dict(remedy or {})
+        reasons = {lab: unmeasured[lab] for lab in left_out}
+        for lab, why in remedy.items():
+            reasons[lab] = f"{reasons[lab]}; also {why}" if lab in reasons else why
+        if remedy:
+            idx = dm._index_map()
+            out = np.zeros(dm.n, dtype=bool)
+            out[[idx[lab] for lab in reasons]] = True
+            keep = np.flatnonzero(~out)
+            # leaving taxa out can cut the measured entries into groups with no
+            # measured distance between them: as for unmeasured taxa, only the
+            # largest group stays unless they are kept (with a made-up value)
+            groups = measured_groups(problem.observed[np.ix_(keep, keep)]) if keep.size else []
+            gone = [dm.labels[int(keep[i])] for g in groups[1:] for i in g]
+            if gone:
+                named = _names(list(remedy), 3)
+                why = (f"no measured distance to the other taxa once {named} "
+                       f"{'was' if len(remedy) == 1 else 'were'} left out")
+                for lab in gone:
+                    unmeasured[lab] = why
+                if keep_unmeasured:
+                    warn(f"{len(gone)} taxa kept although {why}; their distances to the rest are one made-up "
+                         f"value, not evidence: {_names(gone)}", stacklevel=3)
+                else:
+                    for lab in gone:
+                        reasons[lab] = why
+                    keep = keep[groups[0]]
+                    warn(f"{len(gone)} taxa also left out of the repaired matrix: {why}: {_names(gone)}",
+                         stacklevel=3)
+            if keep.size < 3:
+                raise InputError(f"{where}leaving out {len(reasons)} of {dm.n} taxa ({_names(list(reasons))}) "
+                                 f"leaves {keep.size}; a repair needs at least 3")
+            problem = _leave_out(problem, keep, remedy)
+        elif left_out:
+            problem = _leave_out(problem, keep)
+        left_out = [lab for lab in dm.labels if lab in reasons]
         check_locks(problem, objective)
         before = count_violations(problem.D, problem.tol)
         solution = solve(problem)
@@ -783,7 +935,21 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
         rep["optimal"] = False
     rep["n_input"] = dm.n
     rep["left_out_taxa"] = left_out
-    rep["unmeasured_taxa"] = {lab: why for lab, why in unmeasured.items()}
+    rep["left_out_reasons"] = {lab: reasons[lab] for lab in left_out}
+    rep["unmeasured_taxa"] = {lab: unmeasured[lab] for lab in dm.labels if lab in unmeasured}
     rep["kept_unmeasured"] = bool(keep_unmeasured and unmeasured)
+    rep["leave_out"] = request
+    if kind is not None:
+        rep.update(leave)
+    if cover is not None:
+        rep["leave_out_lower_bound"] = int(cover.lower_bound)
+        rep["leave_out_optimal"] = bool(cover.optimal)
+        rep["leave_out_details"] = dict(cover.details)
     matrix = DistanceMatrix._trusted(X, problem.labels)
     return RepairResult(matrix=matrix, report=rep, before=D, observed=obs, tol=tol, no_evidence=fill["no_evidence"])
+
+
+def _with_time_limit(problem: RepairProblem, time_limit: float) -> RepairProblem:
+    import dataclasses
+
+    return dataclasses.replace(problem, time_limit=time_limit)
