@@ -152,8 +152,10 @@ def main(argv=None) -> int:
     for method in args.methods:
         print(f"\n## {method.upper()}, scored on the taxa not planted (every tree pruned to them)\n")
         print(rs.markdown_table(records, method, args.detail, core=True))
-    print("\n## Planted taxa among the suspects\n")
+    print("\n## Planted taxa among the suspects (with the alignment, as run has it)\n")
     print(rs.suspect_table(records))
+    print("\n## Planted taxa among the suspects from the matrix alone (as repair and audit have it)\n")
+    print(rs.suspect_table(records, "suspects_matrix"))
     checks = targets(records, args.methods)
     if checks:
         print("\n## Targets of issue 15\n")

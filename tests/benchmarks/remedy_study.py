@@ -275,27 +275,32 @@ def audit_of(dm: DistanceMatrix, ctx: Context):
     return ctx.cache["audit"]
 
 
-def suspects_of(dm: DistanceMatrix, ctx: Context):
+def suspects_of(dm: DistanceMatrix, ctx: Context, alignment: bool = True):
     """``(suspect labels above the threshold, every label ranked)`` from seqdist.suspects, cached.
 
-    Raises :class:`Skipped` when the module (or ``find_suspects``) does not exist.
+    With ``alignment`` (what ``seqdist run`` has) the column statistics count
+    too; without, only what the matrix shows (what ``seqdist repair`` and
+    ``audit`` have). Raises :class:`Skipped` when the module (or
+    ``find_suspects``) does not exist.
     """
-    if "suspects" not in ctx.cache:
+    key = "suspects" if alignment else "suspects_matrix"
+    if key not in ctx.cache:
         try:
             from seqdist.suspects import find_suspects
         except ImportError as exc:
             raise Skipped(f"seqdist.suspects.find_suspects is not available ({exc})") from None
-        kw = dict(alignment=ctx.alignment, model=ctx.model, gamma=ctx.gamma, gaps=ctx.gaps, seed=ctx.seed)
+        kw = dict(alignment=ctx.alignment if alignment else None, model=ctx.model, gamma=ctx.gamma, gaps=ctx.gaps,
+                  seed=ctx.seed)
         params = inspect.signature(find_suspects).parameters
         if "replicates" in params:
-            kw["replicates"] = ctx.suspect_replicates
+            kw["replicates"] = ctx.suspect_replicates if alignment else 0
         kw = {k: v for k, v in kw.items() if k in params or any(p.kind == p.VAR_KEYWORD for p in params.values())}
         rep = find_suspects(dm, **kw)
         d = rep.to_dict() if hasattr(rep, "to_dict") else dict(rep)
         above = [s["label"] for s in d.get("suspect_taxa", [])]
         ranking = [s["label"] for s in d.get("ranking", d.get("suspect_taxa", []))]
-        ctx.cache["suspects"] = (above, ranking)
-    return ctx.cache["suspects"]
+        ctx.cache[key] = (above, ranking)
+    return ctx.cache[key]
 
 
 def remedy_none(dm, ctx):
@@ -327,6 +332,12 @@ def remedy_planted(dm, ctx):
 def remedy_suspects(dm, ctx):
     """Leave out every taxon in ``suspect_taxa`` (above the threshold of seqdist.suspects)."""
     above, _ = suspects_of(dm, ctx)
+    return _leave_out(dm, above)
+
+
+def remedy_suspects_matrix(dm, ctx):
+    """Leave out the suspects found from the matrix alone (no alignment statistics)."""
+    above, _ = suspects_of(dm, ctx, alignment=False)
     return _leave_out(dm, above)
 
 
@@ -362,6 +373,7 @@ REMEDIES = {
     "l1": _repair("l1", False),
     "leave_out_audit_top_k": remedy_audit_top_k,
     "leave_out_suspects": remedy_suspects,
+    "leave_out_suspects_matrix": remedy_suspects_matrix,
     "leave_out_fewest_taxa": remedy_fewest_taxa,
     "leave_out_planted": remedy_planted,
 }
@@ -378,14 +390,15 @@ DESCRIPTIONS = {
     "l2_weighted": "repair, objective l2, inverse-variance weights",
     "l1": "repair, objective l1 (unweighted)",
     "leave_out_audit_top_k": "leave out the audit's k worst taxa by violated triangles (k = taxa planted)",
-    "leave_out_suspects": "leave out the taxa in suspect_taxa (seqdist.suspects, above its threshold)",
+    "leave_out_suspects": "leave out the taxa in suspect_taxa (seqdist.suspects with the alignment, as run has it)",
+    "leave_out_suspects_matrix": "leave out the suspects found from the matrix alone (as repair and audit have it)",
     "leave_out_fewest_taxa": "leave out the fewest taxa whose removal leaves a metric (repair leave_out='fewest')",
     "leave_out_planted": "leave out the truly planted taxa (oracle)",
 }
 
 #: Remedies that drop taxa on purpose (scored on the taxa left).
-LEAVE_OUT = ("none_drop_incomplete", "leave_out_audit_top_k", "leave_out_suspects", "leave_out_fewest_taxa",
-             "leave_out_planted")
+LEAVE_OUT = ("none_drop_incomplete", "leave_out_audit_top_k", "leave_out_suspects", "leave_out_suspects_matrix",
+             "leave_out_fewest_taxa", "leave_out_planted")
 
 
 # ------------------------------------------------------------------ scoring
@@ -497,14 +510,15 @@ def run_replicate(scenario: str, index: int, seed: int = 1, alpha: float | None 
             rec["remedies"][name] = out
         ranked = [t["taxon"] for t in audit_of(dm, ctx).ranked_taxa()]
         rec["audit_rank"] = {lab: ranked.index(lab) + 1 for lab in rep.planted}
-        try:
-            above, ranking = suspects_of(dm, ctx)
-        except Skipped as exc:
-            rec["suspects"] = {"skipped": str(exc)}
-        else:
-            rec["suspects"] = {"suspect_taxa": above, "rank": {lab: ranking.index(lab) + 1 for lab in rep.planted
-                                                               if lab in ranking},
-                               "planted_in_top3": all(lab in above[:3] for lab in rep.planted)}
+        for key, with_aln in (("suspects", True), ("suspects_matrix", False)):
+            try:
+                above, ranking = suspects_of(dm, ctx, with_aln)
+            except Skipped as exc:
+                rec[key] = {"skipped": str(exc)}
+            else:
+                rec[key] = {"suspect_taxa": above, "rank": {lab: ranking.index(lab) + 1 for lab in rep.planted
+                                                            if lab in ranking},
+                            "planted_in_top3": all(lab in above[:3] for lab in rep.planted)}
     return rec
 
 
@@ -630,15 +644,19 @@ def skipped_notes(records: list) -> dict:
         for name, v in r["remedies"].items():
             if "skipped" in v:
                 out.setdefault(name, v["skipped"])
-    if any("skipped" in r.get("suspects", {}) for r in records):
-        out.setdefault("suspects", next(r["suspects"]["skipped"] for r in records if "skipped" in r["suspects"]))
+    for key in ("suspects", "suspects_matrix"):
+        if any("skipped" in r.get(key, {}) for r in records):
+            out.setdefault(key, next(r[key]["skipped"] for r in records if "skipped" in r[key]))
     return out
 
 
-def suspect_table(records: list) -> str:
-    """Per scenario: planted taxa's mean rank by the audit and by the suspects, top-3 and empty-list rates."""
+def suspect_table(records: list, key: str = "suspects") -> str:
+    """Per scenario: planted taxa's mean rank by the audit and by the suspects, top-3 and empty-list rates.
+
+    ``key``: ``suspects`` (with the alignment) or ``suspects_matrix`` (the matrix alone).
+    """
     scen = [s for s in SCENARIOS if any(r["scenario"] == s for r in records)]
-    have = any("rank" in r.get("suspects", {}) for r in records)
+    have = any("rank" in r.get(key, {}) for r in records)
     lines = ["| scenario | replicates | mean audit rank of planted | mean suspect rank of planted | "
              "all planted in top 3 of suspect_taxa | suspect_taxa empty | mean suspects listed |",
              "| --- | --- | --- | --- | --- | --- | --- |"]
@@ -647,11 +665,11 @@ def suspect_table(records: list) -> str:
         ar = [v for r in recs for v in r["audit_rank"].values()]
         audit_rank = f"{np.mean(ar):.1f}" if ar else "-"
         if have:
-            sr = [v for r in recs for v in r["suspects"]["rank"].values()]
+            sr = [v for r in recs for v in r[key]["rank"].values()]
             susp_rank = f"{np.mean(sr):.1f}" if sr else "-"
-            top3 = (f"{np.mean([r['suspects']['planted_in_top3'] for r in recs]):.2f}" if sr else "-")
-            empty = f"{np.mean([not r['suspects']['suspect_taxa'] for r in recs]):.2f}"
-            listed = f"{np.mean([len(r['suspects']['suspect_taxa']) for r in recs]):.2f}"
+            top3 = (f"{np.mean([r[key]['planted_in_top3'] for r in recs]):.2f}" if sr else "-")
+            empty = f"{np.mean([not r[key]['suspect_taxa'] for r in recs]):.2f}"
+            listed = f"{np.mean([len(r[key]['suspect_taxa']) for r in recs]):.2f}"
         else:
             susp_rank = top3 = empty = listed = "-"
         lines.append(f"| {s} | {len(recs)} | {audit_rank} | {susp_rank} | {top3} | {empty} | {listed} |")
