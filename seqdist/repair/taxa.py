@@ -88,13 +88,16 @@ class TaxaCover:
     optimal : bool
         True when ``len(taxa) == lower_bound``.
     details : dict
-        Method, forced taxa, counts, bounds, rounds, counted ``work``.
+        Method, counts, bounds, rounds, counted ``work``.
+    forced : ndarray of int
+        The taxa the forcing rule proved to be in every least cover.
     """
 
     taxa: np.ndarray
     lower_bound: int
     optimal: bool
     details: dict = field(default_factory=dict)
+    forced: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
 
 
 # ------------------------------------------------------------------ kernels
@@ -623,7 +626,8 @@ def fewest_taxa(D: np.ndarray, tol: float, labels=None, method: str = "auto", bu
         raise RuntimeError("leaving taxa out: the chosen taxa leave a violated triangle")
     details["method"] = how
     details["work"] = round(budget.spent, 6)
-    return TaxaCover(np.asarray(best, dtype=np.int64), lower, bool(best.size <= lower), details)
+    return TaxaCover(np.asarray(best, dtype=np.int64), lower, bool(best.size <= lower), details,
+                     np.asarray(forced, dtype=np.int64))
 
 
 # ------------------------------------------------------------------ plain reference
