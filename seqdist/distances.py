@@ -1047,3 +1047,33 @@ def _logdet(st, Sd, ctx):
             s2 = (G * F).sum(axis=(-1, -2))
             var = np.maximum(s1 - s2 * s2, 0.0) / Sd
     return d, var, sat, und
+
+
+def inverse_variance_weights(variance, matrix):
+    """Repair weights 1/variance, scaled to mean 1 over the observed entries.
+
+    Poorly supported entries (large variance: few compared columns, near
+    saturation) get small weights, so the repair moves them first. Entries
+    whose variance is undefined or zero get the largest finite weight.
+
+    Examples
+    --------
+    >>> from seqdist import DistanceMatrix
+    >>> v = DistanceMatrix.from_array([[0, .01, .04], [.01, 0, .01], [.04, .01, 0]], list("abc"))
+    >>> w = inverse_variance_weights(v, v)
+    >>> round(float(w.values[0, 1] / w.values[0, 2]), 6)
+    4.0
+    """
+    var = np.array(variance.values, dtype=float)
+    obs = ~np.isnan(matrix.values)
+    np.fill_diagonal(obs, False)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        w = 1.0 / var
+    good = obs & np.isfinite(w) & (var > 0)
+    top = float(w[good].max()) if good.any() else 1.0
+    w = np.where(obs & ~good, top, w)
+    w = np.where(obs, w, 0.0)
+    mean = float(w[obs].mean()) if obs.any() else 1.0
+    w = w / (mean if mean > 0 else 1.0)
+    np.fill_diagonal(w, 0.0)
+    return DistanceMatrix._trusted(0.5 * (w + w.T), matrix.labels)

@@ -19,7 +19,14 @@ import numpy as np
 
 from . import __version__
 from .console import info
+from .distances import inverse_variance_weights  # noqa: F401  (the weights of --weighted; public here too)
 from .errors import InputError
+
+#: The default remedy of ``seqdist run``, chosen by the simulation study in
+#: docs/remedies.md: leave the suspect sequences out, then the least-squares
+#: repair weighted by the inverse variances (never significantly worse than no
+#: repair in any scenario, better under saturation).
+DEFAULT_OBJECTIVE = "l2"
 
 # File names inside the output folder, in the order the steps write them.
 FILES = {
@@ -35,6 +42,9 @@ FILES = {
     "weights": "weights.tsv",
     "tree_before": "tree_before.nwk",
     "tree_after": "tree_after.nwk",
+    # the other choice about the suspects, for comparison (one of the two, when there are suspects)
+    "tree_with_suspects": "tree_with_suspects.nwk",
+    "tree_without_suspects": "tree_without_suspects.nwk",
     "impact_json": "impact.json",
     "report": "report.html",
     "manifest": "manifest.json",
@@ -52,38 +62,6 @@ class JobResult:
     repair: dict
     impact: dict
     seconds: dict = field(default_factory=dict)
-
-
-def inverse_variance_weights(variance, matrix):
-    """Repair weights 1/variance, scaled to mean 1 over the observed entries.
-
-    Poorly supported entries (large variance: few compared columns, near
-    saturation) get small weights, so the repair moves them first. Entries
-    whose variance is undefined or zero get the largest finite weight.
-
-    Examples
-    --------
-    >>> from seqdist import DistanceMatrix
-    >>> v = DistanceMatrix.from_array([[0, .01, .04], [.01, 0, .01], [.04, .01, 0]], list("abc"))
-    >>> w = inverse_variance_weights(v, v)
-    >>> round(float(w.values[0, 1] / w.values[0, 2]), 6)
-    4.0
-    """
-    from .matrix import DistanceMatrix
-
-    var = np.array(variance.values, dtype=float)
-    obs = ~np.isnan(matrix.values)
-    np.fill_diagonal(obs, False)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        w = 1.0 / var
-    good = obs & np.isfinite(w) & (var > 0)
-    top = float(w[good].max()) if good.any() else 1.0
-    w = np.where(obs & ~good, top, w)
-    w = np.where(obs, w, 0.0)
-    mean = float(w[obs].mean()) if obs.any() else 1.0
-    w = w / (mean if mean > 0 else 1.0)
-    np.fill_diagonal(w, 0.0)
-    return DistanceMatrix._trusted(0.5 * (w + w.T), matrix.labels)
 
 
 def split_times(obj, path: str = ""):
@@ -187,13 +165,20 @@ def unmeasured_reasons(undefined, labels) -> dict:
     return out
 
 
+def rres_unmeasured(dm, keep_unmeasured: bool) -> list:
+    """Taxa the repair leaves out as unmeasured (none when they are kept)."""
+    from .repair import unmeasured_taxa
+
+    return [] if keep_unmeasured else list(unmeasured_taxa(dm))
+
+
 def command_line(alignment: str, options: dict) -> str:
     """The ``seqdist run`` command that gives the same files (for the report and the manifest).
 
     Examples
     --------
     >>> command_line("a.fasta", {"model": "k80", "objective": "fewest", "seed": 1, "weighted": False})
-    'seqdist run a.fasta --outdir DIR --model k80 --objective fewest --seed 1'
+    'seqdist run a.fasta --outdir DIR --model k80 --objective fewest --seed 1 --unweighted'
     """
     import shlex
 
@@ -206,7 +191,9 @@ def command_line(alignment: str, options: dict) -> str:
         if v is None or (key == "alphabet" and v == "auto") or (key == "bootstrap" and not v):
             continue
         parts += [flag, str(v)]
-    for key, flag in (("weighted", "--weighted"), ("keep_unmeasured", "--keep-unmeasured")):
+    if options.get("weighted") is False:
+        parts.append("--unweighted")
+    for key, flag in (("keep_suspects", "--keep-suspects"), ("keep_unmeasured", "--keep-unmeasured")):
         if options.get(key):
             parts.append(flag)
     if options.get("truth") is None and "truth" in options:
@@ -224,10 +211,10 @@ def _find_truth(alignment_path: str) -> str | None:
 
 def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphabet: str = "auto",
             model: str | None = None, gamma: float | None = None, gaps: str = "pairwise",
-            objective: str = "fewest", weighted: bool = False, method: str = "nj",
+            objective: str = DEFAULT_OBJECTIVE, weighted: bool | None = None, method: str = "nj",
             truth: str | None = "auto", time_limit: float | None = None, seed: int = 1,
             bootstrap: int = 0, workers: int | None = None, progress: bool = True,
-            keep_unmeasured: bool = False) -> JobResult:
+            keep_unmeasured: bool = False, keep_suspects: bool = False) -> JobResult:
     """Run the whole job on one alignment and write every file into ``outdir``.
 
     Parameters
@@ -242,10 +229,11 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     gamma, gaps, alphabet, in_format
         As for :func:`seqdist.distances.pairwise_distances`.
     objective : str
-        Repair objective (default ``fewest``).
-    weighted : bool
+        Repair objective (default ``l2``; see docs/remedies.md for why).
+    weighted : bool or None
         Weight the repair by the inverse variance of each distance, so that
         poorly supported entries move first (the weights are written too).
+        None (the default): weighted when the model has a variance formula.
     method : {"nj", "bionj", "upgma"}
         Tree method.
     truth : str or None
@@ -257,6 +245,12 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         Seed of every randomised step (quartet sample, repair, bootstrap).
     bootstrap : int
         Column resamples for split support (0: none).
+    keep_suspects : bool
+        Keep the suspect sequences (:func:`seqdist.suspects.find_suspects`
+        with the alignment's evidence) in the repaired matrix and its tree.
+        By default they are left out (the remedy that helps the tree most in
+        the simulation study, docs/remedies.md); either way the other choice
+        is built too and compared in the report (``remedies`` in impact.json).
     keep_unmeasured : bool
         Keep taxa that no measured distance joins to the others (e.g.
         saturated against every other sequence) in the repaired matrix and
@@ -280,8 +274,9 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     from .distances import pairwise_distances, undefined_message
     from .io import OutputSet, format_matrix
     from .repair import repair
+    from .trees.build import build_tree
     from .trees.html import render_html
-    from .trees.impact import impact
+    from .trees.impact import impact, remedy_table
     from .trees.newick import read_newick_file
 
     t_all = time.perf_counter()
@@ -336,14 +331,38 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
 
     t = time.perf_counter()
     weights = None
+    if weighted is None:
+        weighted = dres.variance is not None
+        if not weighted:
+            say(f"      model {dres.model} has no variance formula: the repair is unweighted")
     if weighted:
         if dres.variance is None:
             raise InputError(f"model {dres.model} has no variance formula; run without --weighted")
         weights = inverse_variance_weights(dres.variance, dm)
-    say(f"[3/5] repair: objective {objective}{' (inverse-variance weights)' if weighted else ''}")
-    rres = repair(dm, objective, weights=weights, time_limit=time_limit, seed=seed, progress=progress,
-                  keep_unmeasured=keep_unmeasured, unmeasured_reasons=unmeasured_reasons(dres.undefined, dm.labels),
-                  source=FILES["distances"])
+    unmeasured = unmeasured_reasons(dres.undefined, dm.labels)
+    common = dict(weights=weights, time_limit=time_limit, seed=seed, progress=progress,
+                  keep_unmeasured=keep_unmeasured, unmeasured_reasons=unmeasured, source=FILES["distances"])
+    # the suspects a repair can leave out (those with no measured distance are handled as unmeasured)
+    already = set(rres_unmeasured(dm, keep_unmeasured))
+    suspects = {x.label: f"suspect sequence: {x.reasons[0] if x.reasons else f'score {x.score:.3g}'}"
+                for x in arep.suspects.suspects if x.label not in already}
+    if dm.n - len(already) - len(suspects) < 4:
+        suspects = {}  # too few would be left to build a tree on
+    drop = bool(suspects) and not keep_suspects
+    say(f"[3/5] repair: objective {objective}{' (inverse-variance weights)' if weighted else ''}"
+        + (f", {len(suspects)} suspect sequence{'s' if len(suspects) != 1 else ''} "
+           f"{'left out' if drop else 'kept'}" if suspects else ""))
+    rres = repair(dm, objective, leave_out=suspects if drop else None, **common)
+    other = None
+    if suspects:
+        # the other choice, so that the report shows what leaving the suspects out did
+        import warnings
+
+        from .errors import DataWarning
+
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", DataWarning)  # the main repair has said it already
+            other = repair(dm, objective, leave_out=None if drop else suspects, **{**common, "progress": False})
     rep, repair_times = split_times(dict(rres.report))
     seconds["repair"] = time.perf_counter() - t
     left = f", {len(rep['left_out_taxa'])} taxa left out" if rep["left_out_taxa"] else ""
@@ -362,8 +381,18 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
             raise InputError(f"{truth}: the reference tree's leaves differ from the alignment's ids")
     reasons = {lab: (f"kept by the repair with a made-up value, {why}" if keep_unmeasured
                      else f"left out by the repair, {why}") for lab, why in rep["unmeasured_taxa"].items()}
+    reasons.update({lab: f"left out as a {why}" for lab, why in suspects.items() if drop})
     ires = impact(dm, rres.matrix, method, truth=truth_tree, drop_incomplete=True,
                   names=("measured", "repaired"), reasons=reasons)
+    other_tree = build_tree(other.matrix, method) if other is not None else None
+    if other_tree is not None:
+        chosen = "repaired, suspects left out" if drop else "repaired, suspects kept"
+        alt = "repaired, suspects kept" if drop else "repaired, suspects left out"
+        table = remedy_table({"measured": ires.tree_before, chosen: ires.tree_after, alt: other_tree},
+                             truth_tree)
+        table["chosen"] = chosen
+        table["suspects"] = list(suspects)
+        ires.report["remedies"] = table
     if bootstrap:
         from .trees.support import add_support
 
@@ -376,7 +405,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     options = {"alignment": alignment, "in_format": in_format, "alphabet": dres.alphabet, "model": dres.model,
                "gamma": gamma, "gaps": gaps, "objective": objective, "weighted": weighted, "method": method,
                "truth": truth, "time_limit": time_limit, "seed": seed, "bootstrap": bootstrap,
-               "keep_unmeasured": keep_unmeasured}
+               "keep_unmeasured": keep_unmeasured, "keep_suspects": keep_suspects}
     command = command_line(alignment, options)
     irep, impact_times = split_times(dict(ires.report))
     texts = {}
@@ -402,6 +431,8 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         texts["weights"] = format_matrix(weights, "tsv")
     texts["tree_before"] = ires.tree_before.to_newick()
     texts["tree_after"] = ires.tree_after.to_newick()
+    if other_tree is not None:
+        texts["tree_with_suspects" if drop else "tree_without_suspects"] = other_tree.to_newick()
     texts["impact_json"] = js(irep)
     job = {"alignment": os.path.basename(alignment), "n": dm.n, "columns": aln.length, "alphabet": dres.alphabet,
            "model": dres.model, "undefined": list(dres.undefined), "audit": audit_dict, "repair": rep,
@@ -410,7 +441,10 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     texts["report"] = render_html(ires, names=("measured", "repaired"),
                                   title=f"seqdist report: {os.path.basename(alignment)}",
                                   preamble=job_section(job), reference=truth, command=command,
-                                  made_up_pairs=made_up_pairs, lead=left_out_section(rep))
+                                  made_up_pairs=made_up_pairs,
+                                  lead=left_out_section(rep) + suspects_section(audit_dict, irep, keep_suspects),
+                                  extra_trees=[("repaired, suspects kept" if drop else "repaired, suspects left out",
+                                                other_tree)] if other_tree is not None else None)
     seconds["report"] = time.perf_counter() - t
     seconds["total"] = time.perf_counter() - t_all
 
@@ -460,19 +494,71 @@ def left_out_section(rep: dict) -> str:
         return ""
     labels = list(why)
     detail = "; ".join(f"{_esc(lab)}: {_esc(why[lab])}" for lab in labels[:8])
-    if rep.get("left_out_taxa"):
-        rest = rep["n"]
+    rest = rep.get("n_input", 0) - len(labels)
+    if set(labels) <= set(rep.get("left_out_taxa") or []):
         return (f'<div class="caution"><b>Left out: {_names(labels)}.</b> No measured distance joins '
                 f"{'it' if len(labels) == 1 else 'them'} to the other {rest:,} taxa ({detail}), so nothing "
-                "can be said of where they belong. They are not in <code>repaired.tsv</code> nor in the trees, "
-                f"and every figure below is on the other {rest:,} taxa. (<code>--keep-unmeasured</code> keeps them "
-                "with a made-up value instead.)</div>")
+                "can be said of where they belong. They are not in <code>repaired.tsv</code> nor in the trees. "
+                "(<code>--keep-unmeasured</code> keeps them with a made-up value instead.)</div>")
     return (f'<div class="caution"><b>Made-up values: {_names(labels)}.</b> No measured distance joins '
             f"{'it' if len(labels) == 1 else 'them'} to the other taxa ({detail}). Kept on request "
             f"(<code>--keep-unmeasured</code>), their {rep.get('filled_without_evidence', 0):,} distances to the rest "
             f"are one made-up value ({rep.get('between_groups_value') or 0:.6g}), not evidence, marked "
             "<code>filled_without_evidence</code> in <code>changes.tsv</code> and drawn black in the heatmap. "
             "Where they sit in the repaired tree says nothing about the data.</div>")
+
+
+def suspects_section(audit: dict, impact_report: dict, keep_suspects: bool) -> str:
+    """The html that leads the report: the suspect sequences and their evidence, then
+    what each remedy did to the tree, on the same taxa."""
+    sus = audit.get("suspect_taxa") or []
+    info = audit.get("suspects") or {}
+    thr = info.get("threshold")
+    out = ['<h2>Suspect sequences</h2>']
+    if not sus:
+        out.append(f'<p>No sequence looks bad: no taxon\'s combined score reaches the threshold {thr:g} '
+                   "(statistics and threshold: docs/suspects.md).</p>" if thr is not None else "<p>None.</p>")
+    else:
+        rows = []
+        unmeasured = set((impact_report.get("left_out_reasons") or {}))
+        remedied = set((impact_report.get("remedies") or {}).get("suspects", []))
+        for x in sus:
+            reasons = "<br>".join(_esc(r) for r in x.get("reasons", [])) or "&nbsp;"
+            note = (" (no measured distance to the others)" if x["label"] in unmeasured - remedied else "")
+            rows.append(f'<tr><td class="l"><b>{_esc(x["label"])}</b>{_esc(note)}</td><td>{x["score"]:.3g}</td>'
+                        f'<td class="l">{reasons}</td></tr>')
+        out.append(f"<p>{len(sus)} sequence{'s' if len(sus) != 1 else ''} look{'s' if len(sus) == 1 else ''} bad: "
+                   f"a combined score of per-taxon statistics at or above {thr:g} (docs/suspects.md). Look at "
+                   "them before trusting any tree: a chimera, a contaminant, a misaligned or very gappy "
+                   "sequence spoils its whole row, and no repair moves it to its place.</p>")
+        out.append('<table><tr><th class="l">sequence</th><th>score</th><th class="l">evidence</th></tr>'
+                   + "".join(rows) + "</table>")
+    table = impact_report.get("remedies")
+    if table:
+        n = table["n_compared"]
+        has_truth = any("rf_to_truth" in r for r in table["rows"])
+        head = (f'<tr><th class="l">tree</th><th>taxa</th><th>Robinson-Foulds to the measured tree '
+                f'(on the {n} common taxa)</th>'
+                + (f"<th>Robinson-Foulds to the reference (on the {n} common taxa)</th>"
+                   "<th>to the reference, on its own taxa (normalised)</th>" if has_truth else "") + "</tr>")
+        rows = []
+        for r in table["rows"]:
+            mark = " (chosen)" if r["name"] == table.get("chosen") else ""
+            cells = f'<td class="l">{_esc(r["name"])}{mark}</td><td>{r["n_taxa"]}</td><td>{r["rf_to_first"]}</td>'
+            if has_truth:
+                own = r.get("rf_to_truth_own_taxa_normalized")
+                cells += (f"<td>{r['rf_to_truth']} ({r['rf_to_truth_normalized']:.3f})</td>"
+                          f"<td>{'' if own is None else f'{own:.3f}'}</td>")
+            rows.append(f"<tr>{cells}</tr>")
+        left = ("left out of the repaired matrix and its tree (the default; <code>--keep-suspects</code> keeps "
+                "them)" if not keep_suspects else "kept, as asked (<code>--keep-suspects</code>); the tree "
+                "without them is built for comparison")
+        out.append(f"<h3>What each remedy did to the tree</h3><p>The suspects ({_esc(', '.join(table['suspects']))}) "
+                   f"are {left}. Every tree is compared on the {n} taxa all of them hold"
+                   + ("; the last column scores each tree on all of its own taxa, which shows what keeping "
+                      "the suspects costs" if has_truth else "") + ".</p>")
+        out.append(f"<table>{head}{''.join(rows)}</table>")
+    return "".join(out)
 
 
 def job_section(job: dict) -> str:

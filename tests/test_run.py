@@ -35,16 +35,20 @@ def runs(tmp_path_factory):
 def test_run_end_to_end(runs, name):
     p, out = runs[name]
     assert p.returncode == 0, p.stderr
-    assert sorted(os.listdir(out)) == sorted(EXPECTED)
-    rep = json.load(open(out / "repair.json"))
-    assert rep["violated_after"] == 0 and rep["objective"] == "fewest"
     audit = json.load(open(out / "audit.json"))
-    # the audit's bound is proven, so the repair can never beat it
-    assert rep["changed_entries"] >= audit["min_changes_lower_bound"]
+    # every model here has variances, so the default repair is weighted (weights.tsv); with
+    # suspects, the tree of the other choice is written too
+    extra = ["weights.tsv"] + (["tree_with_suspects.nwk"] if audit["suspect_taxa"] else [])
+    assert sorted(os.listdir(out)) == sorted(EXPECTED + extra)
+    rep = json.load(open(out / "repair.json"))
+    assert rep["violated_after"] == 0 and rep["objective"] == "l2" and rep["weights"] == "given"
+    if not rep["left_out_taxa"]:
+        # the audit's bound is proven, so a fewest repair of the same matrix can never beat it
+        assert audit["violated_triangles"] == 0 or rep["changed_entries"] >= audit["min_changes_lower_bound"]
     page = (out / "report.html").read_text()
     assert page.startswith("<!DOCTYPE html>") and "altered data" in page and "<script" not in page
     man = json.load(open(out / "manifest.json"))
-    assert man["seqdist_version"] and man["options"]["objective"] == "fewest"
+    assert man["seqdist_version"] and man["options"]["objective"] == "l2"
     import hashlib
 
     for fname, digest in man["outputs"].items():
@@ -66,7 +70,8 @@ def test_run_is_deterministic(runs, tmp_path):
     p, first = runs["dna_trouble.fasta"]
     p2 = run_cli("run", os.path.join(EXAMPLES, "dna_trouble.fasta"), "--outdir", tmp_path / "again", "--quiet")
     assert p2.returncode == 0 and p2.stderr == ""
-    for fname in EXPECTED:
+    assert sorted(os.listdir(first)) == sorted(os.listdir(tmp_path / "again"))
+    for fname in os.listdir(first):
         a, b = (first / fname).read_bytes(), (tmp_path / "again" / fname).read_bytes()
         if fname == "manifest.json":
             ja, jb = json.loads(a), json.loads(b)

@@ -362,7 +362,8 @@ def _split_rows(split_list, support, taxa, limit=60) -> str:
 
 def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"), title: str | None = None,
                 outgroup: str | None = None, preamble: str | None = None, reference: str | None = None,
-                command: str | None = None, made_up_pairs=None, lead: str | None = None) -> str:
+                command: str | None = None, made_up_pairs=None, lead: str | None = None,
+                extra_trees=None) -> str:
     """The whole page as text (see module docs).
 
     ``preamble`` is trusted html placed after the summary and caution (the
@@ -371,7 +372,8 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
     ``reference`` names the reference tree's file and ``command`` the
     command that made the page (both shown on it). ``made_up_pairs`` holds
     ``(label, label)`` pairs filled without evidence (drawn apart in the
-    heatmap).
+    heatmap). ``extra_trees`` is a list of ``(name, Tree)`` drawn after the
+    two compared trees (e.g. the other choice about suspect sequences).
 
     Examples
     --------
@@ -426,6 +428,12 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
             cmp = "" if len(leaves) == n else f" on the {n:,} compared taxa"
             out.append(f'<div class="panel"><h3>{_esc(name)}: {len(leaves):,} taxa, {own:,} splits; '
                        f'{only} of its splits{cmp} not in the other tree</h3>{svg}</div>')
+        for name, tree in extra_trees or []:
+            leaves = tree.labels()
+            own = len(nontrivial(splits(tree, sorted(leaves)), len(leaves)))
+            svg_x, _ = draw_tree(tree, taxa, set(), None, outgroup=outgroup)
+            out.append(f'<div class="panel"><h3>{_esc(name)}: {len(leaves):,} taxa, {own:,} splits '
+                       f"(for comparison)</h3>{svg_x}</div>")
         out.append("</div>")
         if n > MAX_LABELLED_LEAVES:
             out.append(f'<p class="note">Leaf labels are left out above {MAX_LABELLED_LEAVES} taxa.</p>')

@@ -214,15 +214,17 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
         raise InputError(f"{names[0]} and {names[1]} share {len(shared)} taxa; a comparison needs at least 3 taxa")
     b_all, a_all = before.subset(shared), after.subset(shared)
     hint = "" if drop_incomplete else ", or leave those taxa out with --drop-incomplete"
-    drop_b = incomplete_taxa(b_all) if drop_incomplete else []
-    drop_a = incomplete_taxa(a_all) if drop_incomplete else []
-    keep_b = [lab for lab in shared if lab not in set(drop_b)]
-    keep_a = [lab for lab in shared if lab not in set(drop_a)]
+    # Each tree is built from all of its own matrix (what that matrix says),
+    # then the trees are compared on the taxa both hold.
+    drop_b = incomplete_taxa(before) if drop_incomplete else []
+    drop_a = incomplete_taxa(after) if drop_incomplete else []
+    keep_b = [lab for lab in before.labels if lab not in set(drop_b)]
+    keep_a = [lab for lab in after.labels if lab not in set(drop_a)]
     for name, keep in ((names[0], keep_b), (names[1], keep_a)):
         if len(keep) < 3:
             raise InputError(f"{name}: leaving out the taxa with missing entries leaves {len(keep)}; "
                              "a tree needs at least 3")
-    mb, ma = b_all.subset(keep_b), a_all.subset(keep_a)
+    mb, ma = before.subset(keep_b), after.subset(keep_a)
     check_matrix(mb, source=names[0], hint=hint)
     check_matrix(ma, source=names[1], hint=hint)
     if tol is None:
@@ -432,8 +434,10 @@ def remedy_table(trees: dict, truth: Tree | None = None) -> dict:
         ``n_compared`` and ``taxa`` (the common taxa, sorted) and ``rows``:
         per tree its ``name``, ``n_taxa`` (its own leaves),
         ``rf_to_first`` and, with ``truth``, ``rf_to_truth`` and
-        ``rf_to_truth_normalized``; every RF on the common taxa (the trees
-        pruned to them).
+        ``rf_to_truth_normalized``, every RF on the common taxa (the trees
+        pruned to them); with ``truth`` also ``rf_to_truth_own_taxa``
+        (normalised) on all of the tree's own taxa, which shows what keeping
+        more taxa cost.
 
     Examples
     --------
@@ -466,5 +470,11 @@ def remedy_table(trees: dict, truth: Tree | None = None) -> dict:
         if st is not None:
             rf = len(sets[k] ^ st)
             row.update(rf_to_truth=rf, rf_to_truth_normalized=rf / (2.0 * (n - 3)))
+            own = sorted(trees[k].labels())
+            if set(own) <= set(truth.labels()) and len(own) > 3:
+                m = len(own)
+                so = nontrivial(splits(trees[k], own), m)
+                sto = nontrivial(splits(truth if truth.n_leaves == m else prune(truth, set(own)), own), m)
+                row["rf_to_truth_own_taxa_normalized"] = len(so ^ sto) / (2.0 * (m - 3))
         rows.append(row)
     return {"n_compared": n, "taxa": taxa, "rf_max": 2 * (n - 3), "rows": rows}
