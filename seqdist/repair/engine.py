@@ -835,6 +835,9 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
     bar = _Bar(objective) if progress else None
     where = f"{source}: " if source else ""
     leave = {}
+    # warnings wait until the input has passed every check, so a refused
+    # input prints its one error line and nothing else
+    pending = []
     try:
         problem = build_problem(dm, weights, lock, tol, time_limit, seed, options, bar,
                                 weights_source=weights_source or "weights")
@@ -853,12 +856,11 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
             shown = "; ".join(f"{lab} ({why})" for lab, why in list(unmeasured.items())[:5])
             more = f"; and {len(unmeasured) - 5} more" if len(unmeasured) > 5 else ""
             if left_out:
-                warn(f"{len(unmeasured)} taxa left out of the repaired matrix, since no measured distance "
-                     f"joins them to the others: {shown}{more}", stacklevel=3)
+                pending.append(f"{len(unmeasured)} taxa left out of the repaired matrix, since no measured distance "
+                               f"joins them to the others: {shown}{more}")
             else:
-                warn(f"{len(unmeasured)} taxa kept although no measured distance joins them to the others; "
-                     f"their distances to the rest are one made-up value, not evidence: {shown}{more}",
-                     stacklevel=3)
+                pending.append(f"{len(unmeasured)} taxa kept although no measured distance joins them to the others; "
+                               f"their distances to the rest are one made-up value, not evidence: {shown}{more}")
         if kind is not None:
             leave["violated_before_leaving_out"] = int(count_violations(problem.D, problem.tol)[0])
         cover = None
@@ -893,14 +895,13 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
                 for lab in gone:
                     unmeasured[lab] = why
                 if keep_unmeasured:
-                    warn(f"{len(gone)} taxa kept although {why}; their distances to the rest are one made-up "
-                         f"value, not evidence: {_names(gone)}", stacklevel=3)
+                    pending.append(f"{len(gone)} taxa kept although {why}; their distances to the rest are one made-up "
+                                   f"value, not evidence: {_names(gone)}")
                 else:
                     for lab in gone:
                         reasons[lab] = why
                     keep = keep[groups[0]]
-                    warn(f"{len(gone)} taxa also left out of the repaired matrix: {why}: {_names(gone)}",
-                         stacklevel=3)
+                    pending.append(f"{len(gone)} taxa also left out of the repaired matrix: {why}: {_names(gone)}")
             if keep.size < 3:
                 raise InputError(f"{where}leaving out {len(reasons)} of {dm.n} taxa ({_names(list(reasons))}) "
                                  f"leaves {keep.size}; a repair needs at least 3")
@@ -909,6 +910,8 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
             problem = _leave_out(problem, keep)
         left_out = [lab for lab in dm.labels if lab in reasons]
         check_locks(problem, objective)
+        for message in pending:
+            warn(message, stacklevel=3)
         before = count_violations(problem.D, problem.tol)
         solution = solve(problem)
         X, fill = finish(problem, solution, objective)

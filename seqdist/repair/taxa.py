@@ -62,12 +62,13 @@ from .problem import Budget
 TRIPLE_COST = 4e-9
 #: Counted work per triple of the count pass (branch-free inner loop).
 COUNT_TRIPLE_COST = 1.7e-9
-#: The cover programs (scipy's milp, HiGHS), per unit of size (non-zeros +
-#: rows + columns): the call up to its first node, and each node after it
-#: (measured at n = 30 to 150 on noisy matrices with 255 to 23,560 violated
-#: triangles: root 1.0e-4 to 2.0e-4, nodes 7e-6 to 2.4e-5).
+#: The cover programs (scipy's milp, HiGHS): the call up to its first node, per
+#: unit of size (non-zeros + rows + columns; measured 1.0e-4 to 2.0e-4 at n = 30
+#: to 200 on noisy matrices with 255 to 23,560 violated triangles). Nodes are
+#: charged by the model of :mod:`seqdist.repair._support` (``mip_cost``): the
+#: first nodes cost most (strong branching; measured up to 2.7e-4 per unit of
+#: size each here), later ones far less; right within a factor of about 3.
 MIP_ROOT_PER_SIZE = 2e-4
-MIP_NODE_PER_SIZE = 1.5e-5
 #: The linear bound: each call, and each simplex iteration per unit of size
 #: (measured 1e-8 to 9e-8).
 LP_CALL = 2e-3
@@ -459,25 +460,26 @@ def exact_cover(tri: np.ndarray, cost: np.ndarray, budget: Budget) -> dict:
     budget, never a time limit; a call whose root would not fit in what is
     left is not started.
     """
-    from ._support import _milp
+    from ._support import _milp, mip_cost, mip_nodes
 
     cols = np.unique(tri)
     A = _incidence(tri, cols)
     size = float(A.nnz + A.shape[0] + cols.size)
     root = MIP_ROOT_PER_SIZE * size
     left = budget.left()
-    if left is not None and left < root:
+    # HiGHS takes no work limit before its first node: not started unless root and node fit
+    if left is not None and left < root + mip_cost(1, size):
         return {"taxa": None, "bound": 0.0, "optimal": False, "status": "time limit (not started)", "nodes": 0}
     budget.charge(root)
     left = budget.left()
     opts = {"disp": False, "mip_rel_gap": 1e-9}
     node_limit = None
     if left is not None:
-        node_limit = max(1, int(left // (MIP_NODE_PER_SIZE * size)))
+        node_limit = mip_nodes(left, size)
         opts["node_limit"] = node_limit
     res = _milp(np.asarray(cost, dtype=np.float64)[cols], A, opts)
     used = int(getattr(res, "mip_node_count", 0) or 0)
-    budget.charge(MIP_NODE_PER_SIZE * size * max(0, used - 1))
+    budget.charge(mip_cost(used, size))
     bound = 0.0
     if res.status == 0:
         bound = float(res.fun)
