@@ -172,6 +172,31 @@ def rres_unmeasured(dm, keep_unmeasured: bool) -> list:
     return [] if keep_unmeasured else list(unmeasured_taxa(dm))
 
 
+def suspects_to_leave_out(dm, suspect_report, keep_unmeasured: bool = False) -> dict:
+    """The suspects ``run`` leaves out by default: ``{label: reason}``.
+
+    Suspects the repair leaves out anyway (no measured distance to the others)
+    are not repeated; none are left out when fewer than 4 taxa would remain
+    for a tree. The simulation study (docs/remedies.md) calls this too, so
+    the default it measures is the one ``run`` applies.
+
+    Examples
+    --------
+    >>> from seqdist import DistanceMatrix
+    >>> from seqdist.suspects import find_suspects
+    >>> D = np.full((5, 5), 0.2) - 0.2 * np.eye(5)
+    >>> suspects_to_leave_out(DistanceMatrix.from_array(D, list("abcde")), find_suspects(
+    ...     DistanceMatrix.from_array(D, list("abcde"))))
+    {}
+    """
+    already = set(rres_unmeasured(dm, keep_unmeasured))
+    out = {x.label: f"suspect sequence: {x.reasons[0] if x.reasons else f'score {x.score:.3g}'}"
+           for x in suspect_report.suspects if x.label not in already}
+    if dm.n - len(already) - len(out) < 4:
+        return {}  # too few would be left to build a tree on
+    return out
+
+
 def command_line(alignment: str, options: dict) -> str:
     """The ``seqdist run`` command that gives the same files (for the report and the manifest).
 
@@ -342,17 +367,20 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     unmeasured = unmeasured_reasons(dres.undefined, dm.labels)
     common = dict(weights=weights, time_limit=time_limit, seed=seed, progress=progress,
                   keep_unmeasured=keep_unmeasured, unmeasured_reasons=unmeasured, source=FILES["distances"])
-    # the suspects a repair can leave out (those with no measured distance are handled as unmeasured)
-    already = set(rres_unmeasured(dm, keep_unmeasured))
-    suspects = {x.label: f"suspect sequence: {x.reasons[0] if x.reasons else f'score {x.score:.3g}'}"
-                for x in arep.suspects.suspects if x.label not in already}
-    if dm.n - len(already) - len(suspects) < 4:
-        suspects = {}  # too few would be left to build a tree on
+    suspects = suspects_to_leave_out(dm, arep.suspects, keep_unmeasured)
     drop = bool(suspects) and not keep_suspects
     say(f"[3/5] repair: objective {objective}{' (inverse-variance weights)' if weighted else ''}"
         + (f", {len(suspects)} suspect sequence{'s' if len(suspects) != 1 else ''} "
            f"{'left out' if drop else 'kept'}" if suspects else ""))
     rres = repair(dm, objective, leave_out=suspects if drop else None, **common)
+    if drop:
+        from .console import warn
+
+        shown = "; ".join(f"{lab} ({why.removeprefix('suspect sequence: ')})"
+                          for lab, why in list(suspects.items())[:5])
+        more = f"; and {len(suspects) - 5} more" if len(suspects) > 5 else ""
+        warn(f"{len(suspects)} suspect sequence{'s' if len(suspects) != 1 else ''} left out of the repaired "
+             f"matrix and its tree (--keep-suspects keeps them): {shown}{more}")
     other = None
     if suspects:
         # the other choice, so that the report shows what leaving the suspects out did
@@ -392,12 +420,15 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
                              truth_tree)
         table["chosen"] = chosen
         table["suspects"] = list(suspects)
+        # the two choices about the suspects, on the taxa both trees hold
+        table["rf_with_without_suspects"] = table["rf_between"][1][2]
         ires.report["remedies"] = table
     if bootstrap:
         from .trees.support import add_support
 
         add_support(ires, aln, replicates=bootstrap, model=dres.model, objective=objective, seed=seed,
-                    gamma=gamma, gaps=gaps, workers=workers, keep_unmeasured=keep_unmeasured)
+                    gamma=gamma, gaps=gaps, workers=workers, keep_unmeasured=keep_unmeasured,
+                    weighted=bool(weighted))
     seconds["trees"] = time.perf_counter() - t
 
     t = time.perf_counter()
@@ -558,6 +589,14 @@ def suspects_section(audit: dict, impact_report: dict, keep_suspects: bool) -> s
                    + ("; the last column scores each tree on all of its own taxa, which shows what keeping "
                       "the suspects costs" if has_truth else "") + ".</p>")
         out.append(f"<table>{head}{''.join(rows)}</table>")
+        between = table.get("rf_with_without_suspects")
+        if between is not None:
+            same = "the same topology" if between == 0 else f"{between} splits apart (Robinson-Foulds)"
+            sup = impact_report.get("support")
+            out.append(f"<p>With and without the suspects the repaired trees have {same} on the {n} common taxa."
+                       + (f" Bootstrap support ({sup['replicates']} column resamples) is given for the measured "
+                          "tree and the chosen one, each replicate treated the same way (Triangles and splits, "
+                          "below)." if sup else "") + "</p>")
     return "".join(out)
 
 

@@ -437,15 +437,16 @@ def remedy_table(trees: dict, truth: Tree | None = None) -> dict:
         ``rf_to_truth_normalized``, every RF on the common taxa (the trees
         pruned to them); with ``truth`` also ``rf_to_truth_own_taxa``
         (normalised) on all of the tree's own taxa, which shows what keeping
-        more taxa cost.
+        more taxa cost. ``rf_between[i][j]`` is the RF between rows i and
+        j on the common taxa.
 
     Examples
     --------
     >>> from seqdist.trees.newick import read_newick
     >>> t = {"a": read_newick("((a,b),c,(d,e),f);"), "b": read_newick("((a,c),b,(d,e));")}
     >>> r = remedy_table(t)
-    >>> r["n_compared"], [row["rf_to_first"] for row in r["rows"]]
-    (5, [0, 2])
+    >>> r["n_compared"], [row["rf_to_first"] for row in r["rows"]], r["rf_between"]
+    (5, [0, 2], [[0, 2], [2, 0]])
     """
     names = list(trees)
     common = set.intersection(*(set(t.labels()) for t in trees.values()))
@@ -477,4 +478,5 @@ def remedy_table(trees: dict, truth: Tree | None = None) -> dict:
                 sto = nontrivial(splits(truth if truth.n_leaves == m else prune(truth, set(own)), own), m)
                 row["rf_to_truth_own_taxa_normalized"] = len(so ^ sto) / (2.0 * (m - 3))
         rows.append(row)
-    return {"n_compared": n, "taxa": taxa, "rf_max": 2 * (n - 3), "rows": rows}
+    between = [[len(sets[a] ^ sets[b]) for b in names] for a in names]
+    return {"n_compared": n, "taxa": taxa, "rf_max": 2 * (n - 3), "rows": rows, "rf_between": between}

@@ -56,8 +56,9 @@ def _replicate(key) -> tuple[list, list, bool, bool]:
     o = _STATE["options"]
     rng = np.random.default_rng(ss)
     cols = np.sort(rng.integers(0, aln.length, aln.length))  # column order does not matter to distances
-    dm = pairwise_distances(aln.take_columns(cols), o["model"], gamma=o["gamma"], gaps=o["gaps"],
-                            variance=False, progress=False, warn=False).matrix
+    dres = pairwise_distances(aln.take_columns(cols), o["model"], gamma=o["gamma"], gaps=o["gaps"],
+                              variance=o["weighted"], progress=False, warn=False)
+    dm = dres.matrix
     taxa = o["taxa"]
     n = len(taxa)
     before: list = []
@@ -71,7 +72,14 @@ def _replicate(key) -> tuple[list, list, bool, bool]:
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", DataWarning)  # one per replicate would drown the log
-        fixed = repair(dm.subset(o["keep_after"]), o["objective"], seed=int(ss.generate_state(1)[0]),
+        part = dm.subset(o["keep_after"])
+        weights = None
+        if o["weighted"]:
+            # the same weighting as the repair whose tree the support is for
+            from ..distances import inverse_variance_weights
+
+            weights = inverse_variance_weights(dres.variance.subset(o["keep_after"]), part)
+        fixed = repair(part, o["objective"], weights=weights, seed=int(ss.generate_state(1)[0]),
                        progress=False, keep_unmeasured=o["keep_unmeasured"]).matrix
     if fixed.n < len(o["keep_after"]):
         return before, [], ok, False
@@ -90,7 +98,8 @@ def _on(tree, taxa):
 def split_support(alignment, labels, *, replicates: int, model: str, objective: str, method: str = "nj",
                   seed: int = 0, gamma: float | None = None, gaps: str = "pairwise",
                   workers: int | None = None, keep_before=None, keep_after=None,
-                  compared=None, keep_unmeasured: bool = False) -> tuple[dict, dict, int, int]:
+                  compared=None, keep_unmeasured: bool = False,
+                  weighted: bool = False) -> tuple[dict, dict, int, int]:
     """Count, over bootstrap replicates, how often each split appears.
 
     Parameters
@@ -110,6 +119,10 @@ def split_support(alignment, labels, *, replicates: int, model: str, objective: 
         Worker processes (default: the number of cores; 1 runs in this process).
     keep_unmeasured : bool
         As for :func:`seqdist.repair.repair`, for the repair of each replicate.
+    weighted : bool
+        Repair each replicate with inverse-variance weights from its own
+        variances (as ``run`` does by default); the model needs a variance
+        formula.
 
     Returns
     -------
@@ -126,7 +139,7 @@ def split_support(alignment, labels, *, replicates: int, model: str, objective: 
     options = {"model": model, "objective": objective, "method": method, "gamma": gamma, "gaps": gaps,
                "taxa": taxa, "keep_before": list(keep_before if keep_before is not None else labels),
                "keep_after": list(keep_after if keep_after is not None else labels),
-               "keep_unmeasured": bool(keep_unmeasured)}
+               "keep_unmeasured": bool(keep_unmeasured), "weighted": bool(weighted)}
     children = np.random.SeedSequence(seed).spawn(replicates)
     keys = [(int(c.entropy), *c.spawn_key) for c in children]
     cb: dict[int, int] = {}
@@ -169,7 +182,7 @@ def split_support(alignment, labels, *, replicates: int, model: str, objective: 
 
 def add_support(res, alignment, *, replicates: int, model: str, objective: str, seed: int = 0,
                 gamma: float | None = None, gaps: str = "pairwise", workers: int | None = None,
-                clamp_negative: bool = False, keep_unmeasured: bool = False) -> None:
+                clamp_negative: bool = False, keep_unmeasured: bool = False, weighted: bool = False) -> None:
     """Add split support to an :class:`~seqdist.trees.impact.ImpactResult` (in place).
 
     Adds ``report["support"]`` (the settings and, for every split of the
@@ -195,7 +208,10 @@ def add_support(res, alignment, *, replicates: int, model: str, objective: str, 
     else:
         aln = alignment
         alignment_path = getattr(aln, "source", None) or "the alignment"
-    la, lm = set(aln.labels), set(res.before.labels)
+    # the taxa of either tree (each tree is built from all of its own matrix;
+    # res.before holds only the taxa both matrices share)
+    in_trees = set(res.tree_before.labels()) | set(res.tree_after.labels()) | set(res.before.labels)
+    la, lm = set(aln.labels), in_trees
     if not lm <= la:
         only_m = sorted(lm - la)
         raise InputError(f"{alignment_path}: the record ids differ from the matrix labels "
@@ -207,12 +223,13 @@ def add_support(res, alignment, *, replicates: int, model: str, objective: str, 
     if not np.allclose(np.nan_to_num(a, nan=-1.0), np.nan_to_num(b, nan=-1.0), rtol=1e-6, atol=1e-9):
         warn(f"the BEFORE matrix is not the {model} distances of {alignment_path}; the support values "
              "describe the alignment under that model")
-    cb, ca, n_before, n_after = split_support(aln, res.before.labels, replicates=replicates, model=model,
+    labels = [lab for lab in aln.labels if lab in in_trees]
+    cb, ca, n_before, n_after = split_support(aln, labels, replicates=replicates, model=model,
                                               objective=objective, method=res.report["method"], seed=seed,
                                               gamma=gamma, gaps=gaps, workers=workers,
                                               keep_before=res.tree_before.labels(),
                                               keep_after=res.tree_after.labels(), compared=res.taxa,
-                                              keep_unmeasured=keep_unmeasured)
+                                              keep_unmeasured=keep_unmeasured, weighted=weighted)
     taxa = res.taxa
     sb, sa = res.splits_before, res.splits_after
     support = {}
@@ -232,6 +249,8 @@ def add_support(res, alignment, *, replicates: int, model: str, objective: str, 
         "gamma": gamma,
         "gaps": gaps,
         "objective": objective,
+        "weighted": bool(weighted),
+        "left_out_after": sorted(in_trees - set(res.tree_after.labels())),
         "seed": seed,
         "splits": rows,
     }

@@ -296,6 +296,7 @@ def suspects_of(dm: DistanceMatrix, ctx: Context, alignment: bool = True):
             kw["replicates"] = ctx.suspect_replicates if alignment else 0
         kw = {k: v for k, v in kw.items() if k in params or any(p.kind == p.VAR_KEYWORD for p in params.values())}
         rep = find_suspects(dm, **kw)
+        ctx.cache[key + "_report"] = rep
         d = rep.to_dict() if hasattr(rep, "to_dict") else dict(rep)
         above = [s["label"] for s in d.get("suspect_taxa", [])]
         ranking = [s["label"] for s in d.get("ranking", d.get("suspect_taxa", []))]
@@ -341,6 +342,22 @@ def remedy_suspects_matrix(dm, ctx):
     return _leave_out(dm, above)
 
 
+def remedy_run_default(dm, ctx):
+    """What ``seqdist run`` does by default: leave the suspects out, then l2 with inverse-variance weights.
+
+    The suspects are those :func:`seqdist.pipeline.suspects_to_leave_out`
+    picks from the alignment's suspect report, the very rule ``run`` applies.
+    """
+    from seqdist.pipeline import DEFAULT_OBJECTIVE, inverse_variance_weights, suspects_to_leave_out
+    from seqdist.repair import repair
+
+    suspects_of(dm, ctx)
+    leave = suspects_to_leave_out(dm, ctx.cache["suspects_report"])
+    r = repair(dm, DEFAULT_OBJECTIVE, weights=inverse_variance_weights(ctx.variance, dm), seed=ctx.seed,
+               progress=False, leave_out=leave or None)
+    return r.matrix, list(r.report["left_out_taxa"])
+
+
 def remedy_fewest_taxa(dm, ctx):
     """``repair(dm, 'shrink', leave_out='fewest')``: the fewest taxa whose removal leaves a metric.
 
@@ -375,6 +392,7 @@ REMEDIES = {
     "leave_out_suspects": remedy_suspects,
     "leave_out_suspects_matrix": remedy_suspects_matrix,
     "leave_out_fewest_taxa": remedy_fewest_taxa,
+    "run_default": remedy_run_default,
     "leave_out_planted": remedy_planted,
 }
 
@@ -393,12 +411,13 @@ DESCRIPTIONS = {
     "leave_out_suspects": "leave out the taxa in suspect_taxa (seqdist.suspects with the alignment, as run has it)",
     "leave_out_suspects_matrix": "leave out the suspects found from the matrix alone (as repair and audit have it)",
     "leave_out_fewest_taxa": "leave out the fewest taxa whose removal leaves a metric (repair leave_out='fewest')",
+    "run_default": "run's default: leave out the suspects (as run picks them), then l2 with inverse-variance weights",
     "leave_out_planted": "leave out the truly planted taxa (oracle)",
 }
 
 #: Remedies that drop taxa on purpose (scored on the taxa left).
 LEAVE_OUT = ("none_drop_incomplete", "leave_out_audit_top_k", "leave_out_suspects", "leave_out_suspects_matrix",
-             "leave_out_fewest_taxa", "leave_out_planted")
+             "leave_out_fewest_taxa", "run_default", "leave_out_planted")
 
 
 # ------------------------------------------------------------------ scoring
