@@ -36,19 +36,19 @@ def test_run_end_to_end(runs, name):
     p, out = runs[name]
     assert p.returncode == 0, p.stderr
     audit = json.load(open(out / "audit.json"))
-    # every model here has variances, so the default repair is weighted (weights.tsv); with
+    # the default objective (shrink) does not depend on weights, so none are written; with
     # suspects, the tree of the other choice is written too
-    extra = ["weights.tsv"] + (["tree_with_suspects.nwk"] if audit["suspect_taxa"] else [])
+    extra = ["tree_with_suspects.nwk"] if audit["suspect_taxa"] else []
     assert sorted(os.listdir(out)) == sorted(EXPECTED + extra)
     rep = json.load(open(out / "repair.json"))
-    assert rep["violated_after"] == 0 and rep["objective"] == "l2" and rep["weights"] == "given"
+    assert rep["violated_after"] == 0 and rep["objective"] == "shrink" and rep["weights"] != "given"
     if not rep["left_out_taxa"]:
         # the audit's bound is proven, so a fewest repair of the same matrix can never beat it
         assert audit["violated_triangles"] == 0 or rep["changed_entries"] >= audit["min_changes_lower_bound"]
     page = (out / "report.html").read_text()
     assert page.startswith("<!DOCTYPE html>") and "altered data" in page and "<script" not in page
     man = json.load(open(out / "manifest.json"))
-    assert man["seqdist_version"] and man["options"]["objective"] == "l2"
+    assert man["seqdist_version"] and man["options"]["objective"] == "shrink"
     import hashlib
 
     for fname, digest in man["outputs"].items():

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from ..pipeline import DEFAULT_OBJECTIVE
+from ..repair.engine import OBJECTIVES
 from ._shared import add_seed, add_subcommand, nonneg_int, positive_float, positive_int
 
 
@@ -20,9 +22,11 @@ def register(subs, common):
         "  manifest.json                                          provenance\n\n"
         "The default remedy comes from a simulation study with planted trouble and known true\n"
         "trees (docs/remedies.md): leave the suspect sequences out (--keep-suspects keeps them),\n"
-        "then the least-squares repair weighted by the inverse variance of each distance. No\n"
-        "repair objective fixes a tree spoiled by a chimera or a contaminant; leaving it out does.\n"
-        "Unweighted fewest, grow and l1 made trees worse on clean, gappy and contaminated data.\n\n"
+        "then the shortest-path closure (objective shrink). No repair objective fixes a tree\n"
+        "spoiled by a chimera or a contaminant; leaving it out does. The other objectives (see\n"
+        "'seqdist repair --help' for what each is good for and when it hurts) are weighted by the\n"
+        "inverse variance of each distance unless --unweighted: unweighted fewest, grow and l1\n"
+        "made trees worse on clean, gappy and contaminated data.\n\n"
         "A true tree NAME.true.nwk or NAME.nwk beside the alignment is used as the reference\n"
         "(--truth to name another, --no-truth to ignore it).\n\n"
         "Taxa that no measured distance joins to the others (saturated against, or sharing no\n"
@@ -33,7 +37,7 @@ def register(subs, common):
         "examples:\n"
         "  seqdist run example_sequences/dna_trouble.fasta --outdir results/dna_trouble\n"
         "  seqdist run example_sequences/protein_small.sto --outdir results/protein_small \\\n"
-        "      --objective shrink --method bionj\n"
+        "      --objective l2 --method bionj\n"
         "  seqdist run example_sequences/dna_trouble.fasta --outdir results/dna_trouble_all --keep-suspects\n"
         "  seqdist run example_sequences/dna_trouble.fasta --outdir results/dna_trouble_kept --keep-unmeasured")
     p.add_argument("alignment", help="alignment file (FASTA, Clustal, Stockholm, NEXUS, PHYLIP...)")
@@ -44,12 +48,14 @@ def register(subs, common):
     p.add_argument("--gamma", metavar="ALPHA", type=positive_float, default=None,
                    help="gamma shape for rate variation")
     p.add_argument("--gaps", choices=("pairwise", "complete"), default="pairwise", help="default: pairwise")
-    p.add_argument("--objective", default="l2", help="repair objective: shrink, grow, fewest, l1, l2 "
-                   "(default: l2, weighted; see 'seqdist repair --help' for what each is good for)")
+    p.add_argument("--objective", default=DEFAULT_OBJECTIVE, choices=OBJECTIVES, metavar="OBJ",
+                   help=f"repair objective: {', '.join(OBJECTIVES)} (default: {DEFAULT_OBJECTIVE}; see "
+                        "'seqdist repair --help' for what each is good for)")
     w = p.add_mutually_exclusive_group()
     w.add_argument("--weighted", dest="weighted", action="store_const", const=True, default=None,
-                   help="weight the repair by the inverse variance of each distance (the default when the "
-                        "model has a variance formula)")
+                   help="weight the repair by the inverse variance of each distance (the default for "
+                        "every objective but shrink, whose result weights do not change, when the model "
+                        "has a variance formula)")
     w.add_argument("--unweighted", dest="weighted", action="store_const", const=False,
                    help="an unweighted repair")
     p.add_argument("--keep-suspects", action="store_true",

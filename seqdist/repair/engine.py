@@ -42,6 +42,54 @@ from .problem import RepairProblem, Solution
 
 OBJECTIVES = ("shrink", "grow", "fewest", "l1", "l2")
 
+#: What each objective does, what it is good for and when it hurts the tree:
+#: ``name -> (does, good for, hurts)``. Read by ``repair --help``, ``run
+#: --help`` and the tests. "Good for" and "hurts" summarise the simulation
+#: study in docs/remedies.md (NJ and BIONJ, 100 replicates per scenario,
+#: sign tests against no repair).
+OBJECTIVE_GUIDE = {
+    "shrink": ("only decrease entries: the shortest-path closure (exact)",
+               "run's default, after the suspects are left out; pulls down noisy over-long "
+               "(saturated) distances; needs no variances",
+               "with chimeras kept in, the placement of the other taxa (NJ); otherwise never "
+               "significantly worse than no repair in the study"),
+    "grow": ("only increase entries: fewest increased entries, then least increase",
+             "a matrix whose entries can only be too short (not tested in the study)",
+             "trees on clean, gappy, misread and contaminated data, and under saturation (it "
+             "lengthens distances that are already too long)"),
+    "fewest": ("change as few entries as possible, in either direction",
+               "finding a few entries to inspect; with inverse-variance weights, saturation",
+               "unweighted, trees on clean, gappy, misread and contaminated data (it moves a few "
+               "entries far, and tree methods believe them); weighted, still on clean data"),
+    "l1": ("least total absolute change",
+           "a repair that moves few entries, each by no more than needed",
+           "unweighted, trees on clean, gappy, misread and contaminated data, like fewest"),
+    "l2": ("least sum of squared changes (the nearest metric)",
+           "with inverse-variance weights, saturation (NJ); weighted, it was never significantly worse "
+           "than no repair in the study",
+           "unweighted, trees on clean, gappy and saturated data"),
+}
+
+
+def objective_guide(indent: str = "  ", width: int = 88) -> str:
+    """The objectives, one block each, for ``--help`` texts.
+
+    Examples
+    --------
+    >>> print(objective_guide().splitlines()[0])
+      shrink   only decrease entries: the shortest-path closure (exact)
+    """
+    import textwrap
+
+    lines = []
+    pad = indent + " " * 11
+    for name in OBJECTIVES:
+        does, good, hurts = OBJECTIVE_GUIDE[name]
+        lines.append(f"{indent}{name:<8} {does}")
+        for label, text in (("good for", good), ("hurts", hurts)):
+            lines += textwrap.wrap(f"{label}: {text}", width, initial_indent=pad, subsequent_indent=pad + "  ")
+    return "\n".join(lines)
+
 ALTERED_NOTE = ("A repaired matrix is altered data: report the objective and the list of changed "
                 "entries with any result you publish.")
 

@@ -93,6 +93,20 @@ def targets(records: list, methods) -> list:
                 d = a["mean"] - b["mean"]
                 out.append((f"{m} {s}: leaving the suspects out within 0.02 of leaving the planted taxa out",
                             f"{a['mean']:.3f} vs {b['mean']:.3f} ({d:+.3f})", d <= 0.02))
+        # run's default against no repair: the mean, scenario by scenario, on the taxa each tree keeps
+        # and on the taxa not planted (like for like)
+        for label, t in (("", tab), (", on the taxa not planted", rs.table(records, m, core=True))):
+            a, b = t.get("run_default", {}), t.get("none", {})
+            shared = [s for s in rs.SCENARIOS if a.get(s) and b.get(s)]
+            if shared:
+                worse = [s for s in shared if a[s]["mean"] > b[s]["mean"] + 1e-12]
+                out.append((f"{m}: run's default never worse than no repair on average in any scenario{label}",
+                            "worse in " + ", ".join(f"{s} ({a[s]['mean']:.3f} vs {b[s]['mean']:.3f})"
+                                                    for s in worse) if worse else "never worse", not worse))
+                if "saturated" in shared:
+                    x, y = a["saturated"]["mean"], b["saturated"]["mean"]
+                    out.append((f"{m}: run's default better than no repair under saturation{label}",
+                                f"{x:.3f} vs {y:.3f}", x < y))
     return out
 
 

@@ -342,20 +342,34 @@ def remedy_suspects_matrix(dm, ctx):
     return _leave_out(dm, above)
 
 
-def remedy_run_default(dm, ctx):
-    """What ``seqdist run`` does by default: leave the suspects out, then l2 with inverse-variance weights.
+def _suspects_then(objective: str | None, weighted: bool | None):
+    """Leave the suspects out as ``seqdist run`` picks them, then repair under ``objective``.
 
     The suspects are those :func:`seqdist.pipeline.suspects_to_leave_out`
-    picks from the alignment's suspect report, the very rule ``run`` applies.
+    takes from the alignment's suspect report, the very rule ``run``
+    applies. ``objective=None`` and ``weighted=None`` are ``run``'s defaults
+    (weighted when the objective's result depends on weights).
     """
-    from seqdist.pipeline import DEFAULT_OBJECTIVE, inverse_variance_weights, suspects_to_leave_out
-    from seqdist.repair import repair
+    def remedy(dm, ctx):
+        from seqdist.pipeline import (DEFAULT_OBJECTIVE, WEIGHTED_OBJECTIVES, inverse_variance_weights,
+                                      suspects_to_leave_out)
+        from seqdist.repair import repair
 
-    suspects_of(dm, ctx)
-    leave = suspects_to_leave_out(dm, ctx.cache["suspects_report"])
-    r = repair(dm, DEFAULT_OBJECTIVE, weights=inverse_variance_weights(ctx.variance, dm), seed=ctx.seed,
-               progress=False, leave_out=leave or None)
-    return r.matrix, list(r.report["left_out_taxa"])
+        suspects_of(dm, ctx)
+        leave = suspects_to_leave_out(dm, ctx.cache["suspects_report"])
+        obj = objective or DEFAULT_OBJECTIVE
+        w = obj in WEIGHTED_OBJECTIVES if weighted is None else weighted
+        weights = inverse_variance_weights(ctx.variance, dm) if w else None
+        r = repair(dm, obj, weights=weights, seed=ctx.seed, progress=False,
+                   leave_out=leave or None)
+        return r.matrix, list(r.report["left_out_taxa"])
+
+    remedy.__doc__ = (f"leave out the suspects, then repair(dm, '{objective or 'DEFAULT_OBJECTIVE'}')"
+                      f"{' with inverse-variance weights' if weighted else ''}")
+    return remedy
+
+
+remedy_run_default = _suspects_then(None, None)
 
 
 def remedy_fewest_taxa(dm, ctx):
@@ -392,6 +406,7 @@ REMEDIES = {
     "leave_out_suspects": remedy_suspects,
     "leave_out_suspects_matrix": remedy_suspects_matrix,
     "leave_out_fewest_taxa": remedy_fewest_taxa,
+    "suspects_then_l2_weighted": _suspects_then("l2", True),
     "run_default": remedy_run_default,
     "leave_out_planted": remedy_planted,
 }
@@ -411,13 +426,14 @@ DESCRIPTIONS = {
     "leave_out_suspects": "leave out the taxa in suspect_taxa (seqdist.suspects with the alignment, as run has it)",
     "leave_out_suspects_matrix": "leave out the suspects found from the matrix alone (as repair and audit have it)",
     "leave_out_fewest_taxa": "leave out the fewest taxa whose removal leaves a metric (repair leave_out='fewest')",
-    "run_default": "run's default: leave out the suspects (as run picks them), then l2 with inverse-variance weights",
+    "suspects_then_l2_weighted": "leave out the suspects (as run picks them), then l2 with inverse-variance weights",
+    "run_default": "run's default: leave out the suspects (as run picks them), then DEFAULT_OBJECTIVE (shrink)",
     "leave_out_planted": "leave out the truly planted taxa (oracle)",
 }
 
 #: Remedies that drop taxa on purpose (scored on the taxa left).
 LEAVE_OUT = ("none_drop_incomplete", "leave_out_audit_top_k", "leave_out_suspects", "leave_out_suspects_matrix",
-             "leave_out_fewest_taxa", "run_default", "leave_out_planted")
+             "leave_out_fewest_taxa", "suspects_then_l2_weighted", "run_default", "leave_out_planted")
 
 
 # ------------------------------------------------------------------ scoring
