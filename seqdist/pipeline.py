@@ -221,7 +221,7 @@ def command_line(alignment: str, options: dict) -> str:
         if v is None or (key == "alphabet" and v == "auto") or (key == "bootstrap" and not v):
             continue
         parts += [flag, str(v)]
-    if options.get("weighted") is False:
+    if options.get("weighted") is False and options.get("objective", DEFAULT_OBJECTIVE) in WEIGHTED_OBJECTIVES:
         parts.append("--unweighted")
     for key, flag in (("keep_suspects", "--keep-suspects"), ("keep_unmeasured", "--keep-unmeasured")):
         if options.get(key):
