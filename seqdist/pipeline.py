@@ -656,16 +656,23 @@ def job_section(job: dict) -> str:
         how.append(f"{r['filled_without_evidence']:,} without evidence (one made-up value)")
     filled_text = f"{filled:,} missing entries filled" + (f" ({'; '.join(how)})" if how else "")
     left = r.get("left_out_taxa") or []
-    left_text = (f" {_names(left)} left out (no measured distance to the others); the repair is on the "
-                 f"other {r.get('n', 0):,} taxa." if left else "")
+    reasons = r.get("left_out_reasons") or {}
+    suspects = [lab for lab in left if str(reasons.get(lab, "")).startswith("suspect sequence")]
+    unmeasured = [lab for lab in left if lab not in suspects]
+    parts = ([f"{_names(unmeasured)} left out (no measured distance to the others)"] if unmeasured else []) + (
+        [f"{_names(suspects)} left out as suspect sequences"] if suspects else [])
+    left_text = (f" {'; '.join(parts)}; the repair is on the other {r.get('n', 0):,} taxa." if left else "")
     r_tri = r.get("triangles", 0)
     r_checked = r.get("checked_triangles_before", r_tri)
     before_of = f" of {r_checked:,} checked" if r_checked < r_tri else ""
+    vb = r.get("violated_before_leaving_out")
+    leaving = (f"; {vb:,} were violated before the taxa were left out"
+               if vb is not None and vb != r.get("violated_before", 0) else "")
     rows.append(f"<p><b>Repair.</b> Objective <code>{_esc(job['objective'])}</code>"
                 f"{' weighted by inverse variance' if job['weighted'] else ''}:{left_text} "
                 f"{r.get('changed_entries', 0):,} of {r.get('observed_entries', pairs):,} measured entries changed, "
                 f"{filled_text}; objective value {r.get('objective_value', 0):.6g} ({bound}); violated triangles "
                 f"{r.get('violated_before', 0):,}{before_of} before, {r.get('violated_after', 0):,} after "
-                f"(of {r_tri:,}). "
+                f"(of {r_tri:,}){leaving}. "
                 "Each changed or filled entry is listed in <code>changes.tsv</code>, with how it was made.</p>")
     return '<h2>From alignment to metric</h2><div class="summary">' + "".join(rows) + "</div>"

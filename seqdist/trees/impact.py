@@ -28,7 +28,8 @@ from .compare import cophenetic_correlation
 from .tree import Tree
 
 CAUTION = ("A repaired matrix is altered data: trees built from it are not what the measured "
-           "distances said. Report the repair objective and the changed entries with any published result.")
+           "distances said. Report the repair objective, the changed entries and any taxa left out (with "
+           "why) with any published result.")
 
 
 @dataclass
