@@ -351,8 +351,9 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
 
     arep = audit(dm, seed=seed, suspects=False)
     # the suspects with what only the columns can show (block incongruence, gaps)
+    # with --bootstrap, the placement instability (leaf stability) joins the evidence (shown, not scored)
     arep.suspects = find_suspects(dm, audit_report=arep, alignment=aln, model=dres.model, gamma=gamma,
-                                  gaps=gaps, seed=seed)
+                                  gaps=gaps, seed=seed, replicates=bootstrap)
     audit_dict, audit_times = split_times(arep.to_dict())
     seconds["audit"] = time.perf_counter() - t
     sus = arep.suspects.suspects

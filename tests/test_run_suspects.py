@@ -148,6 +148,11 @@ def test_bootstrap_with_the_suspects_left_out(tmp_path):
     assert sup["replicates"] == 3 and sup["replicates_with_after_tree"] == 3
     assert sup["left_out_after"] == ["x18", "x19"]  # in the measured tree, not the repaired one
     assert sup["weighted"] is True and sup["objective"] == "l2"  # the replicates repaired like the repair
+    # the suspects' evidence gains the placement instability (leaf stability) from the same resamples
+    audit = load(tmp_path / "b", "audit.json")
+    assert "placement_instability" in audit["suspects"]["statistics"]
+    x19 = next(x for x in audit["suspect_taxa"] if x["label"] == "x19")["evidence"]["placement_instability"]
+    assert 0.0 <= x19["value"] <= 1.0
 
 
 def test_weights_only_where_they_change_the_result(tmp_path):

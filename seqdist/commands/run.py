@@ -72,7 +72,8 @@ def register(subs, common):
                    help="work budget of the repair, in about seconds (reruns give the same bytes)")
     add_seed(p, 1)
     p.add_argument("--bootstrap", metavar="B", type=nonneg_int, default=0,
-                   help="column resamples for split support before and after repair (default: 0)")
+                   help="column resamples for split support before and after repair, and for the "
+                        "suspects' placement instability (leaf stability; shown, not scored) (default: 0)")
     p.add_argument("--workers", type=positive_int, default=None, metavar="P",
                    help="worker processes for the bootstrap (default: the number of cores)")
     p.set_defaults(func=_run)
