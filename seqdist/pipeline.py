@@ -21,6 +21,7 @@ from . import __version__
 from .console import info
 from .distances import inverse_variance_weights  # noqa: F401  (the weights of --weighted; public here too)
 from .errors import InputError
+from .repair.engine import WEIGHTED_OBJECTIVES
 
 #: The default remedy of ``seqdist run``, chosen by the simulation study in
 #: docs/remedies.md: leave the suspect sequences out, then the shortest-path
@@ -30,8 +31,6 @@ from .errors import InputError
 #: data and misreads).
 DEFAULT_OBJECTIVE = "shrink"
 
-#: Objectives whose result depends on the weights (shrink's closure does not).
-WEIGHTED_OBJECTIVES = ("grow", "fewest", "l1", "l2")
 
 # File names inside the output folder, in the order the steps write them.
 FILES = {

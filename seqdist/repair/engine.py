@@ -42,6 +42,10 @@ from .problem import RepairProblem, Solution
 
 OBJECTIVES = ("shrink", "grow", "fewest", "l1", "l2")
 
+#: Objectives whose result depends on the weights: the shortest-path closure
+#: (shrink) is the least-change decrease-only repair for every weighting.
+WEIGHTED_OBJECTIVES = ("grow", "fewest", "l1", "l2")
+
 #: What each objective does, what it is good for and when it hurts the tree:
 #: ``name -> (does, good for, hurts)``. Read by ``repair --help``, ``run
 #: --help`` and the tests. "Good for" and "hurts" summarise the simulation
