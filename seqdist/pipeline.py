@@ -4,7 +4,7 @@
 sensible defaults and writes every intermediate file in the contract's
 formats plus a manifest (version, options, seeds, checksums) into one folder.
 All files of a run are staged and published together (see
-:class:`seqdist.io.OutputSet`): a failed run leaves the folder as it was.
+:class:`seqdist.io.matrices.OutputSet`): a failed run leaves the folder as it was.
 """
 
 from __future__ import annotations
@@ -17,11 +17,14 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from . import __version__
-from .console import info
-from .distances import inverse_variance_weights  # noqa: F401  (the weights of --weighted; public here too)
-from .errors import InputError
-from .repair.engine import WEIGHTED_OBJECTIVES
+from seqdist import __version__
+from seqdist.core.console import info
+from seqdist.models.distances import inverse_variance_weights  # noqa: F401  (the weights of --weighted; public here too)
+from seqdist.core.errors import InputError
+from seqdist.repair.engine import WEIGHTED_OBJECTIVES
+
+__all__ = ["JobResult", "split_times", "check_outdir", "unmeasured_reasons", "rres_unmeasured",
+           "suspects_to_leave_out", "command_line", "run_job", "left_out_section", "suspects_section", "job_section"]
 
 #: The default remedy of ``seqdist run``, chosen by the simulation study in
 #: docs/remedies.md: leave the suspect sequences out, then the shortest-path
@@ -171,7 +174,7 @@ def unmeasured_reasons(undefined, labels) -> dict:
 
 def rres_unmeasured(dm, keep_unmeasured: bool) -> list:
     """Taxa the repair leaves out as unmeasured (none when they are kept)."""
-    from .repair import unmeasured_taxa
+    from seqdist.repair import unmeasured_taxa
 
     return [] if keep_unmeasured else list(unmeasured_taxa(dm))
 
@@ -187,15 +190,14 @@ def suspects_to_leave_out(dm, suspect_report, keep_unmeasured: bool = False) -> 
     Examples
     --------
     >>> from seqdist import DistanceMatrix
-    >>> from seqdist.suspects import find_suspects
+    >>> from seqdist.audit.suspects import find_suspects
     >>> D = np.full((5, 5), 0.2) - 0.2 * np.eye(5)
     >>> suspects_to_leave_out(DistanceMatrix.from_array(D, list("abcde")), find_suspects(
     ...     DistanceMatrix.from_array(D, list("abcde"))))
     {}
     """
     already = set(rres_unmeasured(dm, keep_unmeasured))
-    out = {x.label: f"suspect sequence: {x.reasons[0] if x.reasons else f'score {x.score:.3g}'}"
-           for x in suspect_report.suspects if x.label not in already}
+    out = {lab: why for lab, why in suspect_report.reasons().items() if lab not in already}
     if dm.n - len(already) - len(out) < 4:
         return {}  # too few would be left to build a tree on
     return out
@@ -256,7 +258,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     model : str, optional
         Distance model; default k80 for DNA, poisson for protein.
     gamma, gaps, alphabet, in_format
-        As for :func:`seqdist.distances.pairwise_distances`.
+        As for :func:`seqdist.models.distances.pairwise_distances`.
     objective : str
         Repair objective (default ``shrink``, after the suspects are left
         out; see docs/remedies.md for why).
@@ -277,7 +279,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     bootstrap : int
         Column resamples for split support (0: none).
     keep_suspects : bool
-        Keep the suspect sequences (:func:`seqdist.suspects.find_suspects`
+        Keep the suspect sequences (:func:`seqdist.audit.suspects.find_suspects`
         with the alignment's evidence) in the repaired matrix and its tree.
         By default they are left out (the remedy that helps the tree most in
         the simulation study, docs/remedies.md); either way the other choice
@@ -300,15 +302,15 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     >>> r.repair["changed_entries"]  # doctest: +SKIP
     0
     """
-    from .alignment import read_alignment
-    from .audit import audit
-    from .distances import pairwise_distances, undefined_message
-    from .io import OutputSet, format_matrix
-    from .repair import repair
-    from .trees.build import build_tree
-    from .trees.html import render_html
-    from .trees.impact import impact, remedy_table
-    from .trees.newick import read_newick_file
+    from seqdist.io.alignment import read_alignment
+    from seqdist.audit.report import audit
+    from seqdist.models.distances import pairwise_distances, undefined_message
+    from seqdist.io.matrices import OutputSet, format_matrix
+    from seqdist.repair import repair
+    from seqdist.trees.build import build_tree
+    from seqdist.report.html import render_html
+    from seqdist.impact.compare import impact, remedy_table
+    from seqdist.io.newick import read_newick_file
 
     t_all = time.perf_counter()
     seconds = {}
@@ -323,8 +325,8 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         truth = _find_truth(alignment)
     say = info if progress else (lambda *_: None)
 
-    from .repair.engine import load_objective
-    from .trees.build import METHODS
+    from seqdist.repair.engine import load_objective
+    from seqdist.trees.build import METHODS
 
     load_objective(objective)  # a bad objective fails before any work
     if method not in METHODS:
@@ -334,7 +336,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     say(f"[1/5] distances: {alignment}")
     dres = pairwise_distances(aln, model, gamma=gamma, gaps=gaps, variance=True, progress=progress, warn=False)
     if dres.undefined:
-        from .console import warn
+        from seqdist.core.console import warn
 
         warn(undefined_message(dres, hint="(they stay missing in distances.tsv; all in distances.json)"))
     dm = dres.matrix
@@ -346,7 +348,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
 
     t = time.perf_counter()
     say("[2/5] audit: triangles, lower bound, tree-likeness, suspect sequences")
-    from .suspects import find_suspects
+    from seqdist.audit.suspects import find_suspects
 
     arep = audit(dm, seed=seed, suspects=False)
     # the suspects with what only the columns can show (block incongruence, gaps)
@@ -382,7 +384,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
            f"{'left out' if drop else 'kept'}" if suspects else ""))
     rres = repair(dm, objective, leave_out=suspects if drop else None, **common)
     if drop:
-        from .console import warn
+        from seqdist.core.console import warn
 
         shown = "; ".join(f"{lab} ({why.removeprefix('suspect sequence: ')})"
                           for lab, why in list(suspects.items())[:5])
@@ -394,7 +396,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         # the other choice, so that the report shows what leaving the suspects out did
         import warnings
 
-        from .errors import DataWarning
+        from seqdist.core.errors import DataWarning
 
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", DataWarning)  # the main repair has said it already
@@ -432,7 +434,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         table["rf_with_without_suspects"] = table["rf_between"][1][2]
         ires.report["remedies"] = table
     if bootstrap:
-        from .trees.support import add_support
+        from seqdist.impact.support import add_support
 
         add_support(ires, aln, replicates=bootstrap, model=dres.model, objective=objective, seed=seed,
                     gamma=gamma, gaps=gaps, workers=workers, keep_unmeasured=keep_unmeasured,
@@ -452,7 +454,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     texts["sites"] = format_matrix(dres.sites, "tsv")
     if dres.variance is not None:
         texts["variance"] = format_matrix(dres.variance, "tsv")
-    from .io import to_jsonable
+    from seqdist.io.matrices import to_jsonable
     import json
 
     def js(obj):

@@ -33,7 +33,7 @@ from typing import Sequence
 
 import numpy as np
 
-from .errors import InputError
+from seqdist.core.errors import InputError
 
 DNA_LETTERS = "ACGT"
 PROTEIN_LETTERS = "ACDEFGHIKLMNPQRSTVWY"
@@ -699,7 +699,7 @@ def check_size(n_taxa: int, length: int) -> None:
     >>> check_size(1000, 1000000)
     Traceback (most recent call last):
     ...
-    seqdist.errors.InputError: --taxa 1000 x --length 1000000 is 1000000000 cells, more than the limit of 20000000 (about 0.5 GB of memory)
+    seqdist.core.errors.InputError: --taxa 1000 x --length 1000000 is 1000000000 cells, more than the limit of 20000000 (about 0.5 GB of memory)
     """
     if n_taxa < 3:
         raise InputError(f"--taxa must be at least 3 (got {n_taxa})")

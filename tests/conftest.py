@@ -25,7 +25,7 @@ def cli():
 
 
 def write_tsv(path, labels, D):
-    """A plain tsv writer independent of seqdist.io (for tests of the reader)."""
+    """A plain tsv writer independent of seqdist.io.matrices (for tests of the reader)."""
     with open(path, "w") as f:
         f.write("\t" + "\t".join(labels) + "\n")
         for lab, row in zip(labels, D):

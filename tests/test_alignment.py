@@ -1,4 +1,4 @@
-"""Reading and encoding alignments (seqdist.alignment).
+"""Reading and encoding alignments (seqdist.io.alignment).
 
 The reference for every format is Biopython's own AlignIO reader (Cock et al.
 2009, Biopython: freely available Python tools for computational molecular
@@ -19,8 +19,8 @@ from Bio.Align import MultipleSeqAlignment
 from Bio.Seq import Seq
 from Bio.SeqRecord import SeqRecord
 
-from seqdist.alignment import MISSING, Alignment, alignment_formats, read_alignment
-from seqdist.errors import InputError
+from seqdist.io.alignment import MISSING, Alignment, alignment_formats, read_alignment
+from seqdist.core.errors import InputError
 
 IDS = ["alpha", "beta_long_name", "c"]
 SEQS = ["ACGT-ACGTA", "ACGTTACG-A", "acgunACGTA"]
@@ -201,7 +201,7 @@ def test_unicode_residue(tmp_path):
 
 
 def test_forced_dna_warns():
-    from seqdist.errors import DataWarning
+    from seqdist.core.errors import DataWarning
 
     with pytest.warns(DataWarning, match="not nucleotides"):
         Alignment.from_sequences(["a", "b"], ["MKVLWQ", "MKVLWE"], alphabet="dna")

@@ -1,4 +1,4 @@
-"""seqdist.audit against plain references: brute-force triple and quartet loops,
+"""seqdist.audit.report against plain references: brute-force triple and quartet loops,
 known facts about metrics, tree metrics and ultrametrics, and independent
 solvers for the lower bound."""
 
@@ -13,8 +13,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from conftest import euclidean
-from seqdist.audit import HIST_EDGES, audit, sample_quartets
-from seqdist.matrix import DistanceMatrix
+from seqdist.audit.report import HIST_EDGES, audit, sample_quartets
+from seqdist.core.matrix import DistanceMatrix
 
 # ---------------------------------------------------------------- references
 
@@ -452,7 +452,7 @@ def test_all_missing_and_tiny_matrices():
 def test_json_document_is_deterministic_and_complete():
     import json
 
-    from seqdist.io import to_jsonable
+    from seqdist.io.matrices import to_jsonable
 
     D = euclidean(20, seed=9)
     D[2, 3] = D[3, 2] = 40.0
@@ -539,7 +539,7 @@ def test_summary_counts_share_one_denominator():
     import json
     import re
 
-    from seqdist.io import to_jsonable
+    from seqdist.io.matrices import to_jsonable
 
     D = euclidean(10, seed=6)
     D[1, 2] = D[2, 1] = D[1, 2] * 8

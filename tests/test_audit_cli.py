@@ -103,7 +103,7 @@ def test_tolerance_option_and_entry_counts(tmp_path, cli):
     ec = tmp_path / "counts.tsv"
     p = cli("audit", path, "--tol", "0.25", "--strict", "--entry-counts", ec)
     assert p.returncode == 4
-    from seqdist.io import read_matrix
+    from seqdist.io.matrices import read_matrix
 
     m = read_matrix(str(ec))
     assert m.labels == ("a", "b", "c") and m["a", "b"] == 1.0 and m["b", "c"] == 1.0
@@ -179,7 +179,7 @@ def test_entry_counts_to_stdout_holds_the_matrix_alone(tmp_path, cli, planted):
     path, labels, _ = planted
     p = cli("audit", path, "--entry-counts", "-", "--out-format", "csv")
     assert p.returncode == 0, p.stderr
-    from seqdist.io import _read_delimited
+    from seqdist.io.matrices import _read_delimited
 
     m = _read_delimited(p.stdout, "stdout", ",")
     assert list(m.labels) == labels and m["s0", "s1"] > 0

@@ -28,15 +28,15 @@ import warnings
 import numpy as np
 import pytest
 
-from seqdist.errors import DataWarning
+from seqdist.core.errors import DataWarning
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.integrate import quad, quad_vec
 from scipy.linalg import expm
 from scipy.stats import gamma as gamma_dist
 
-from seqdist.alignment import Alignment
-from seqdist.distances import (DNA_MODELS, GAMMA_MODELS, PROTEIN_MODELS, distances_from_counts,
+from seqdist.io.alignment import Alignment
+from seqdist.models.distances import (DNA_MODELS, GAMMA_MODELS, PROTEIN_MODELS, distances_from_counts,
                                pairwise_distances, undefined_message)
 
 # A C G T; transitions are A<->G and C<->T.
@@ -318,7 +318,7 @@ def _reference_counts(aln, partial=False):
 
 
 def test_kernels_against_plain_loop():
-    from seqdist import distance_kernels as dk
+    from seqdist.kernels import pair_counts as dk
 
     rng = np.random.default_rng(8)
     aln = _random_alignment(rng, 9, 57)
@@ -384,7 +384,7 @@ def test_protein_kernels_agree():
 
 def test_exact_counts_switch_to_float64_for_long_alignments():
     # float32 holds integers exactly only below 2**24 (IEEE 754); partial counts are scaled by 36.
-    from seqdist.distances import _Engine
+    from seqdist.models.distances import _Engine
 
     L = 2 ** 24 // 36 + 10
     codes = np.zeros((2, L), np.uint8)
@@ -455,7 +455,7 @@ def test_complete_deletion():
     assert res.matrix["a", "b"] == pytest.approx(1 / 6)
     pw = pairwise_distances(aln, "p", warn=False)
     assert pw.sites["a", "b"] == 7
-    from seqdist.errors import InputError
+    from seqdist.core.errors import InputError
 
     with pytest.raises(InputError, match="no column"):
         pairwise_distances(Alignment.from_sequences(["a", "b"], ["A-", "-C"]), "p", gaps="complete")
@@ -471,7 +471,7 @@ def test_partial_ambiguity_counts():
 
 
 def test_option_errors():
-    from seqdist.errors import InputError
+    from seqdist.core.errors import InputError
 
     prot = Alignment.from_sequences(["a", "b"], ["MKVLW", "MKVAW"], source="prot.fasta")
     with pytest.raises(InputError, match="prot.fasta: .*protein.*'k80' is for DNA"):
@@ -601,7 +601,7 @@ DEGENERATE = {
 def test_degenerate_alignments_raise_no_numpy_warning(case):
     # Under warnings.simplefilter("error") a numpy RuntimeWarning becomes an exception; every outcome
     # must be an honest one: a result (missing entries named in a DataWarning) or an InputError.
-    from seqdist.errors import InputError
+    from seqdist.core.errors import InputError
 
     aln = Alignment.from_sequences([f"s{i}" for i in range(len(DEGENERATE[case]))], DEGENERATE[case],
                                    alphabet="dna")

@@ -9,8 +9,8 @@ import os
 import numpy as np
 import pytest
 
-from seqdist.io import format_matrix, read_matrix, read_pairs
-from seqdist.matrix import DistanceMatrix
+from seqdist.io.matrices import format_matrix, read_matrix, read_pairs
+from seqdist.core.matrix import DistanceMatrix
 
 BASE = "ACGTACGTTAGCCGATAGCTAGGCTTAACGGATCCGATCGATGCTAGCTAGGATCGATCG"
 FAR = "".join({"A": "C", "C": "A", "G": "T", "T": "G"}[c] for c in BASE)
@@ -76,7 +76,7 @@ def test_protein_and_gamma(cli, tmp_path):
 
 def test_shared_writer_matches_plain_formatting():
     # the table-assembly writer (n >= 50) against an obvious per-cell repr loop
-    from seqdist.io import format_matrix
+    from seqdist.io.matrices import format_matrix
 
     rng = np.random.default_rng(0)
     n = 260

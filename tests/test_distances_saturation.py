@@ -32,9 +32,9 @@ from fractions import Fraction
 import numpy as np
 import pytest
 
-from seqdist.alignment import Alignment
-from seqdist.distances import distances_from_counts, pairwise_distances
-from seqdist.errors import DataWarning
+from seqdist.io.alignment import Alignment
+from seqdist.models.distances import distances_from_counts, pairwise_distances
+from seqdist.core.errors import DataWarning
 
 BASES = "ACGT"
 
@@ -267,7 +267,7 @@ def _fasta(path, names, seqs):
 
 
 def _read_na(path):
-    from seqdist.io import read_matrix
+    from seqdist.io.matrices import read_matrix
 
     return read_matrix(str(path))
 
@@ -370,7 +370,7 @@ def test_simulated_regression_through_the_command_line(cli, tmp_path):
     p = cli("simulate", "-o", str(fa), "--tree-out", str(tmp_path / "t.nwk"), "--taxa", "8", "--length", "30",
             "--seed", "3", "--scale", "0.3", "--gap-rate", "0.02", "--quiet")
     assert p.returncode == 0, p.stderr
-    from seqdist.alignment import read_alignment
+    from seqdist.io.alignment import read_alignment
 
     want = _undefined_by_counts(read_alignment(str(fa)), "k80", True)
     assert len(want) == 6  # by the integer counts (Kimura 1980); the old code wrote 3 of them as missing

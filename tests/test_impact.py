@@ -13,7 +13,7 @@ import pytest
 from conftest import write_tsv
 from seqdist import DistanceMatrix
 from seqdist.trees import read_newick
-from seqdist.trees.impact import impact
+from seqdist.impact.compare import impact
 
 CONTRACT_KEYS = ["rf", "rf_normalized", "branch_score", "splits_only_before", "splits_only_after",
                  "negative_branches_before", "negative_branches_after"]
@@ -175,7 +175,7 @@ def test_html_self_contained_and_deterministic(tmp_path, cli, pair):
 
 
 def test_large_heatmap_is_an_inline_png(tmp_path):
-    from seqdist.trees.html import render_html
+    from seqdist.report.html import render_html
 
     rng = np.random.default_rng(2)
     n = 120
@@ -250,7 +250,7 @@ def test_drop_incomplete(tmp_path, cli, pair):
 
 
 def test_incomplete_taxa_greedy():
-    from seqdist.trees.impact import incomplete_taxa
+    from seqdist.impact.compare import incomplete_taxa
 
     D = np.ones((5, 5)) - np.eye(5)
     for i, j in ((0, 1), (1, 2), (1, 3), (4, 3)):
@@ -260,7 +260,7 @@ def test_incomplete_taxa_greedy():
 
 
 def test_prune_keeps_path_lengths():
-    from seqdist.trees.impact import prune
+    from seqdist.impact.compare import prune
 
     t = read_newick("((a:1,b:2):0.5,(c:1,x:3):0.25,(d:1,e:1):0.3);")
     p = prune(t, {"a", "b", "c", "d", "e"})

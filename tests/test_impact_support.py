@@ -28,7 +28,7 @@ def small_alignment(path, rows=10, cols=400):
 
 @pytest.fixture(scope="module")
 def inputs(tmp_path_factory):
-    from seqdist.io import read_matrix, write_matrix
+    from seqdist.io.matrices import read_matrix, write_matrix
     from seqdist.repair import repair
 
     t = tmp_path_factory.mktemp("support")

@@ -12,7 +12,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from seqdist import DistanceMatrix, InputError
-from seqdist.io import OutputSet, format_matrix, read_matrix, read_pairs, write_matrix
+from seqdist.io.matrices import OutputSet, format_matrix, read_matrix, read_pairs, write_matrix
 
 # Labels with spaces and punctuation (tsv/csv can hold them); square/lower need no white space.
 LABEL_CHARS = string.ascii_letters + string.digits + " _-.,;:'\"()[]|/+*&%$#@!?"
@@ -258,7 +258,7 @@ def test_guessed_output_format_is_said(tmp_path, cli, out, args, note):
 def test_guessed_format_is_said_by_every_matrix_writer(tmp_path, capsys):
     """The note comes from OutputSet itself, so every command that writes a matrix says it,
     and only once the file is really written."""
-    from seqdist.console import set_quiet
+    from seqdist.core.console import set_quiet
 
     set_quiet(False)  # an in-process --quiet elsewhere must not hide the note here
     dm = DistanceMatrix.from_array([[0, 1], [1, 0]], ["a", "b"])

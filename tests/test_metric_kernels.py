@@ -10,8 +10,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.sparse.csgraph import floyd_warshall
 
-from seqdist.metric import count_violations, is_metric, max_violation
-from seqdist.paths import apsp
+from seqdist.kernels.triangles import count_violations, is_metric, max_violation
+from seqdist.kernels.shortest_paths import apsp
 from conftest import euclidean
 
 
@@ -91,7 +91,7 @@ def test_count_across_tiles_with_missing(n, seed, frac_nan):
 
 
 def test_tile_order_covers_every_row_once():
-    from seqdist.metric import TILE, tile_starts
+    from seqdist.kernels.triangles import TILE, tile_starts
 
     for n in (0, 1, 31, 32, 33, 100, 1000):
         s = tile_starts(n)

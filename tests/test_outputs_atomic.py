@@ -15,9 +15,9 @@ import os
 
 import pytest
 
-import seqdist.io as sio
+import seqdist.io.matrices as sio
 from seqdist import InputError
-from seqdist.io import OutputSet
+from seqdist.io.matrices import OutputSet
 
 NAMES = ("a.tsv", "b.json", "c.txt")
 

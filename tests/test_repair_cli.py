@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from conftest import euclidean, write_tsv
-from seqdist.metric import is_metric
+from seqdist.kernels.triangles import is_metric
 
 OBJS = ["shrink", "fewest", "grow", "l1", "l2"]
 

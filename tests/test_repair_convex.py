@@ -24,7 +24,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from conftest import euclidean
-from seqdist.metric import is_metric
+from seqdist.kernels.triangles import is_metric
 from seqdist.repair import l1, l2, repair
 from seqdist.repair.problem import RepairProblem
 

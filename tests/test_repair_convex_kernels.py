@@ -13,8 +13,8 @@ import pytest
 from scipy.optimize import minimize_scalar
 from scipy.sparse.csgraph import shortest_path
 
-from seqdist.metric import is_metric
-from seqdist.repair import _convex_kernels as K
+from seqdist.kernels.triangles import is_metric
+from seqdist.kernels import convex as K
 
 
 def rand_sym(rng, n, zeros=0.0):

@@ -25,8 +25,8 @@ import numpy as np
 import pytest
 
 from conftest import euclidean, write_tsv
-from seqdist.errors import InputError
-from seqdist.metric import is_metric
+from seqdist.core.errors import InputError
+from seqdist.kernels.triangles import is_metric
 from seqdist.repair import OBJECTIVES, repair
 from seqdist.repair.problem import Option, objective_options, validate_options
 

@@ -19,8 +19,8 @@ from hypothesis import strategies as st
 from scipy.optimize import linprog
 
 from conftest import euclidean
-from seqdist.errors import InfeasibleError
-from seqdist.metric import is_metric
+from seqdist.core.errors import InfeasibleError
+from seqdist.kernels.triangles import is_metric
 from seqdist.repair import repair
 
 
@@ -126,7 +126,7 @@ def test_triangles_alone_are_not_enough():
     D = np.zeros((4, 4))
     for (i, j, v) in [(a, b, 1), (b, c, 1), (c, d, 1), (a, d, 10), (a, c, 2), (b, d, 2)]:
         D[i, j] = D[j, i] = v
-    from seqdist.repair._cycles import violated_triangles
+    from seqdist.kernels.kept_graph import violated_triangles
 
     tri = {tuple(t[:3]) for t in violated_triangles(D, 1e-9)}
     assert tri == {(a, b, d), (a, c, d)}

@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 
 from conftest import euclidean
-from seqdist.errors import InfeasibleError
-from seqdist.metric import is_metric
+from seqdist.core.errors import InfeasibleError
+from seqdist.kernels.triangles import is_metric
 from seqdist.repair import repair
 from test_repair_fewest import brute_force, feasible_lp, small_cases
 

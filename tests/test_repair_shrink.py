@@ -1,4 +1,4 @@
-"""Shortest paths (seqdist.paths) and the shrink objective against scipy's shortest paths.
+"""Shortest paths (seqdist.kernels.shortest_paths) and the shrink objective against scipy's shortest paths.
 
 References: scipy.sparse.csgraph (Dijkstra / Floyd-Warshall on a sparse graph
 with explicit zeros: its docs say the dense input reads 0 as "no edge", so a
@@ -16,8 +16,8 @@ from hypothesis import strategies as st
 from scipy.sparse.csgraph import shortest_path
 
 from conftest import euclidean
-from seqdist.metric import count_violations, is_metric
-from seqdist.paths import apsp, apsp_reference
+from seqdist.kernels.triangles import count_violations, is_metric
+from seqdist.kernels.shortest_paths import apsp, apsp_reference
 from seqdist.repair import repair
 
 
@@ -138,7 +138,7 @@ def test_disconnected_observed_entries_are_left_out_or_filled_as_a_metric():
     # distance between the groups can be inferred, so the smaller group is
     # left out by default and named; kept on request with one made-up value
     # that keeps a metric, marked as such in the changes.
-    from seqdist.errors import DataWarning
+    from seqdist.core.errors import DataWarning
 
     D = np.full((5, 5), np.nan)
     np.fill_diagonal(D, 0)

@@ -4,7 +4,7 @@ References used here:
 * a plain search over all subsets of taxa, smallest first, over the violated
   triangles listed by a plain loop (``seqdist.repair.taxa.reference_*``;
   common practice for checking a combinatorial optimum on tiny inputs);
-* the audit's own triangle count (``seqdist.metric.count_violations``) for
+* the audit's own triangle count (``seqdist.kernels.triangles.count_violations``) for
   "no violated checked triangle remains";
 * a planted bad row (one taxon's distances scrambled among the others) in a
   Euclidean metric: that taxon alone is the answer (common practice for
@@ -24,9 +24,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from conftest import euclidean, write_tsv
-from seqdist.errors import InputError
-from seqdist.matrix import DistanceMatrix
-from seqdist.metric import count_violations, is_metric
+from seqdist.core.errors import InputError
+from seqdist.core.matrix import DistanceMatrix
+from seqdist.kernels.triangles import count_violations, is_metric
 from seqdist.repair import repair
 from seqdist.repair import taxa
 from seqdist.repair.problem import Budget
@@ -339,9 +339,9 @@ def test_fewest_with_a_time_limit_leaves_work_to_the_objective():
 
 # ------------------------------------------------------------------ suspects
 def test_suspects_left_out_with_their_first_reason():
-    sus = pytest.importorskip("seqdist.suspects")
+    sus = pytest.importorskip("seqdist.audit.suspects")
     if not hasattr(sus, "find_suspects"):
-        pytest.skip("seqdist.suspects has no find_suspects yet")
+        pytest.skip("seqdist.audit.suspects has no find_suspects yet")
     D = planted(30, [11], seed=8)
     dm = DistanceMatrix.from_array(D, labels(30))
     named = sus.find_suspects(dm).suspects
@@ -354,14 +354,8 @@ def test_suspects_left_out_with_their_first_reason():
     for s in named:
         first = s.reasons[0] if s.reasons else None
         why = r.report["left_out_reasons"][s.label]
-        assert why == (f"suspect: {first}" if first else why) and why.startswith("suspect")
+        assert why == (f"suspect sequence: {first}" if first else why) and why.startswith("suspect sequence")
     assert r.report["leave_out"] == "suspects"
-
-
-def test_suspects_without_the_module_is_an_input_error(monkeypatch):
-    monkeypatch.setitem(sys.modules, "seqdist.suspects", None)
-    with pytest.raises(InputError, match="leaving out suspects needs seqdist.suspects"):
-        repair(planted(6, [], seed=9), "shrink", leave_out="suspects", progress=False)
 
 
 # ------------------------------------------------------------------ the command line

@@ -186,7 +186,7 @@ def test_suspects_to_leave_out_rules():
 
     from seqdist import DistanceMatrix
     from seqdist.pipeline import suspects_to_leave_out
-    from seqdist.suspects import SuspectReport
+    from seqdist.audit.suspects import SuspectReport
 
     class S:  # the two fields the rule reads
         def __init__(self, label, reasons):

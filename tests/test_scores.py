@@ -12,8 +12,8 @@ import numpy as np
 import pytest
 from hypothesis import assume, given, settings, strategies as st
 
-from seqdist.errors import InputError
-from seqdist.scores import (AMINO20, ROBINSON_1991, TRANSFORMS, ScoreMatrix, ambiguity_letters,
+from seqdist.core.errors import InputError
+from seqdist.scores.matrices import (AMINO20, ROBINSON_1991, TRANSFORMS, ScoreMatrix, ambiguity_letters,
                             check_score_matrix, choose_background, implied_background, karlin_altschul_lambda,
                             load_score_matrix, parse_score_matrix, score_statistics, transform_scores,
                             triangle_details)

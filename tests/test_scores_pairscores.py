@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 from Bio.Align import PairwiseAligner, substitution_matrices
 
-from seqdist.errors import InputError
-from seqdist.pairscores import distances_from_scores, read_fasta, score_distances
-from seqdist.scores import ScoreMatrix
+from seqdist.core.errors import InputError
+from seqdist.scores.pairwise import distances_from_scores, read_fasta, score_distances
+from seqdist.scores.matrices import ScoreMatrix
 
 # A tiny matrix for hand computation: match +2, mismatch -1 over {A, C}.
 TINY = ScoreMatrix.from_array([[2, -1], [-1, 2]], "AC", name="tiny")
@@ -238,7 +238,7 @@ def test_dna_gets_a_nucleotide_matrix_by_default():
 
 
 def test_protein_matrix_for_dna_warns():
-    from seqdist.errors import DataWarning
+    from seqdist.core.errors import DataWarning
 
     with pytest.warns(DataWarning, match=r"s\.fa: the sequences are DNA .*BLOSUM62 is a protein matrix.*NUC\.4\.4"):
         r = score_distances(list(DNA), list(DNA.values()), "BLOSUM62", source="s.fa", progress=False)

@@ -29,7 +29,7 @@ import sys
 import numpy as np
 import pytest
 
-from seqdist.errors import InputError
+from seqdist.core.errors import InputError
 from seqdist.simulate import (format_fasta, format_stockholm, gamma_rates, hky85, k80, make_model,
                               plant_chimera, plant_contaminant, plant_gappy, plant_misread, plant_saturated_pair,
                               protein_poisson, random_tree, simulate, summary)

@@ -14,12 +14,12 @@ import numpy as np
 import pytest
 from scipy.stats import spearmanr
 
-from seqdist.alignment import Alignment
-from seqdist.distances import pairwise_distances
-from seqdist.errors import InputError
-from seqdist.matrix import DistanceMatrix
+from seqdist.io.alignment import Alignment
+from seqdist.models.distances import pairwise_distances
+from seqdist.core.errors import InputError
+from seqdist.core.matrix import DistanceMatrix
 from seqdist.simulate import plant_chimera, plant_contaminant, plant_gappy, simulate
-from seqdist.suspects import (THRESHOLD, Suspect, SuspectReport, complete_core, find_suspects, nearest_shift,
+from seqdist.audit.suspects import (THRESHOLD, Suspect, SuspectReport, complete_core, find_suspects, nearest_shift,
                               robust_z, spearman_rows)
 
 
@@ -264,7 +264,7 @@ def test_bad_options_refused():
 
 def test_smallest_matches_a_stable_argsort():
     # the partial sort must pick and order exactly as a full stable sort (ties by position)
-    from seqdist.suspects import _smallest
+    from seqdist.audit.suspects import _smallest
 
     rng = np.random.default_rng(0)
     for _ in range(100):

@@ -93,14 +93,14 @@ def test_run_outdir_under_a_file_fails_first(tmp_path):
 def test_run_outdir_not_writable_fails_before_any_work(tmp_path, monkeypatch):
     # Tests run as root here, so a read-only folder is simulated at the check.
     from seqdist import pipeline
-    from seqdist.errors import InputError
+    from seqdist.core.errors import InputError
 
     ro = tmp_path / "ro"
     ro.mkdir()
     real = os.access
     monkeypatch.setattr(pipeline.os, "access", lambda p, mode: False if os.path.abspath(p) == str(ro) else real(p, mode))
     called = []
-    monkeypatch.setattr("seqdist.alignment.read_alignment", lambda *a, **k: called.append(1))
+    monkeypatch.setattr("seqdist.io.alignment.read_alignment", lambda *a, **k: called.append(1))
     with pytest.raises(InputError, match="cannot be made: .* is not writable"):
         pipeline.run_job(CLEAN, str(ro / "sub"), progress=False)
     assert not called and not (ro / "sub").exists()
@@ -108,7 +108,7 @@ def test_run_outdir_not_writable_fails_before_any_work(tmp_path, monkeypatch):
 
 def test_run_late_folder_failure_is_an_input_error(tmp_path, monkeypatch):
     from seqdist import pipeline
-    from seqdist.errors import InputError
+    from seqdist.core.errors import InputError
 
     target = str(tmp_path / "new")
     real = os.makedirs
@@ -163,9 +163,9 @@ def test_large_but_safe_values_repair_with_finite_report(tmp_path):
 
 # ------------------------------------------------------------- warnings
 def test_library_warnings_are_seqdist_warnings_that_can_be_errors():
-    from seqdist.alignment import read_alignment
-    from seqdist.distances import pairwise_distances
-    from seqdist.errors import DataWarning, SeqdistWarning
+    from seqdist.io.alignment import read_alignment
+    from seqdist.models.distances import pairwise_distances
+    from seqdist.core.errors import DataWarning, SeqdistWarning
 
     aln = read_alignment(TROUBLE)
     with warnings.catch_warnings():
@@ -184,7 +184,7 @@ def test_cli_prints_each_warning_as_one_line_and_quiet_silences_them(tmp_path):
 
 
 def test_error_with_a_control_character_in_a_label_is_one_line(tmp_path):
-    from seqdist.console import one_line
+    from seqdist.core.console import one_line
 
     assert one_line("label 'a\nb'") == "label 'a\\nb'"
     assert "\n" not in one_line("x\r\ny\tz\x1b")
@@ -192,7 +192,7 @@ def test_error_with_a_control_character_in_a_label_is_one_line(tmp_path):
 
 # ------------------------------------------------------------- progress estimates
 def test_progress_estimates_only_when_honest(monkeypatch):
-    from seqdist import console
+    from seqdist.core import console
 
     clock = iter([0.0, 30.0, 31.0, 32.0, 33.0, 40.0])
     now = {"t": 0.0}
@@ -243,7 +243,7 @@ def test_audit_lower_bound_never_reads_the_clock(monkeypatch):
     # same min_changes_lower_bound on any machine and under any load.
     import scipy.optimize
 
-    from seqdist.audit import audit
+    from seqdist.audit.report import audit
 
     seen = []
     real = scipy.optimize.linprog

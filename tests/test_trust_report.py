@@ -137,7 +137,7 @@ def test_comparisons_are_on_one_taxon_set_dendropy(jobs):
 
 def test_api_tells_filled_by_path_from_filled_without_evidence():
     from seqdist import DistanceMatrix
-    from seqdist.errors import DataWarning
+    from seqdist.core.errors import DataWarning
     from seqdist.repair import repair
 
     # a-b-c measured, a-c missing (a path gives it); d measured against nobody

@@ -20,7 +20,7 @@ changed entries with any result you publish.
 
 from __future__ import annotations
 
-from .engine import (ALTERED_NOTE, OBJECTIVE_GUIDE, OBJECTIVES, WEIGHTED_OBJECTIVES, RepairResult, format_changes,
+from seqdist.repair.engine import (ALTERED_NOTE, OBJECTIVE_GUIDE, OBJECTIVES, WEIGHTED_OBJECTIVES, RepairResult, format_changes,
                      load_objective, unmeasured_taxa)
 
 
@@ -41,7 +41,7 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
         0 means the entry is free. Default 1 everywhere.
     lock : sequence of pairs, optional
         Entries that must not change: pairs of labels or indices (e.g. from
-        :func:`seqdist.io.read_pairs`), or an (n, n) boolean mask.
+        :func:`seqdist.io.matrices.read_pairs`), or an (n, n) boolean mask.
     tol : float, optional
         Metric tolerance (default 1e-9 times the largest entry); an entry
         counts as changed when it moves by more than ``tol``.
@@ -58,7 +58,7 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
         (no path of measured entries joins them to it) have no evidence for
         any distance to the rest. By default they are left out of the output
         (``report["left_out_taxa"]``) and named in a
-        :class:`~seqdist.errors.DataWarning`. With True they are kept, and
+        :class:`~seqdist.core.errors.DataWarning`. With True they are kept, and
         their distances to the rest are one made-up value (the largest
         within-group distance, which keeps a metric), marked
         ``filled_without_evidence`` in :attr:`RepairResult.changes`.
@@ -72,7 +72,7 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
         Taxa to leave out before repairing, as a remedy (docs/repair.md,
         "Leaving taxa out"): a list of labels ("named by the user"), a dict
         ``{label: reason}`` (e.g. suspects found with the alignment),
-        ``"suspects"`` (the taxa :func:`seqdist.suspects.find_suspects` names
+        ``"suspects"`` (the taxa :func:`seqdist.audit.suspects.find_suspects` names
         from the matrix), or ``"fewest"`` (the fewest taxa whose removal
         leaves no violated checked triangle: exact by integer program where
         the work budget allows, else greedy with a proven lower bound). The
@@ -116,7 +116,7 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
     >>> r.report["left_out_taxa"], r.report["leave_out_optimal"], r.matrix.labels
     (['t0'], True, ('t1', 't2', 't3'))
     """
-    from .engine import run
+    from seqdist.repair.engine import run
 
     return run(dm, objective, weights=weights, lock=lock, tol=tol, time_limit=time_limit, seed=seed,
                keep_unmeasured=keep_unmeasured, unmeasured_reasons=unmeasured_reasons, source=source,

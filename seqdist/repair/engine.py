@@ -9,7 +9,7 @@
 2. **Locks.** One all-pairs shortest-path run over the locked entries: a
    locked entry longer than the shortest locked path between its ends (by
    more than ``tol``) can never be kept, whatever the objective, and the
-   request fails with :class:`~seqdist.errors.InfeasibleError` naming the
+   request fails with :class:`~seqdist.core.errors.InfeasibleError` naming the
    entry and the path. ``shrink`` and ``grow`` have their own, stronger
    conditions (see :func:`check_locks`).
 3. **Solve.** ``seqdist.repair.<objective>.solve(problem) -> Solution``,
@@ -36,9 +36,14 @@ import importlib
 import time
 import numpy as np
 
-from ..errors import InfeasibleError, InputError
-from ..matrix import DistanceMatrix, default_tol
-from .problem import RepairProblem, Solution
+from seqdist.core.errors import InfeasibleError, InputError
+from seqdist.core.matrix import DistanceMatrix, default_tol
+from seqdist.repair.problem import RepairProblem, Solution
+
+__all__ = ["objective_guide", "RepairResult", "load_objective", "check_options", "as_matrix", "weights_array",
+           "lock_mask", "build_problem", "describe_path", "check_locks", "fill_missing", "measured_groups",
+           "unmeasured_taxa", "verify_metric", "finish", "change_rows", "format_changes", "build_report",
+           "checked_triangles", "leave_out_request", "suspect_reasons", "fewest_left_out", "check_magnitude", "run"]
 
 OBJECTIVES = ("shrink", "grow", "fewest", "l1", "l2")
 
@@ -183,9 +188,9 @@ def check_options(name: str, options: dict | None) -> dict:
     >>> check_options("shrink", {"method": "exact"})
     Traceback (most recent call last):
     ...
-    seqdist.errors.InputError: objective 'shrink' has no option 'method' (its options: none)
+    seqdist.core.errors.InputError: objective 'shrink' has no option 'method' (its options: none)
     """
-    from .problem import validate_options
+    from seqdist.repair.problem import validate_options
 
     load_objective(name)
     mod = importlib.import_module(f"{__package__}.{name}")
@@ -247,7 +252,7 @@ def lock_mask(lock, dm: DistanceMatrix, observed: np.ndarray) -> np.ndarray:
     """Symmetric boolean mask of locked entries.
 
     ``lock`` may be None, an (n, n) boolean array, or a sequence of pairs of
-    labels or of indices (e.g. from :func:`seqdist.io.read_pairs`). Locking a
+    labels or of indices (e.g. from :func:`seqdist.io.matrices.read_pairs`). Locking a
     missing entry is an input error (there is no value to keep).
     """
     n = dm.n
@@ -309,7 +314,7 @@ def _graph(D: np.ndarray, mask: np.ndarray) -> np.ndarray:
 
 def describe_path(problem: RepairProblem, W: np.ndarray, i: int, j: int) -> str:
     """``a - c - b (length 3.5)`` for one shortest path over ``W`` from i to j."""
-    from ._cycles import path_between
+    from seqdist.kernels.kept_graph import path_between
 
     path = path_between(W, i, j)
     if path is None:
@@ -339,7 +344,7 @@ def check_locks(problem: RepairProblem, objective: str) -> None:
       pair reach ``U`` within each group of locked-connected taxa. So grow is
       feasible exactly when every observed entry satisfies ``D <= U + tol``.
     """
-    from ..paths import apsp
+    from seqdist.kernels.shortest_paths import apsp
 
     L = problem.locked
     if not L.any():
@@ -400,7 +405,7 @@ def fill_missing(X: np.ndarray, observed: np.ndarray) -> tuple[np.ndarray, dict]
     ``filled_without_evidence``, ``groups``, ``between_groups_value`` and
     ``no_evidence`` (a boolean mask of the entries filled without evidence).
     """
-    from ..paths import apsp
+    from seqdist.kernels.shortest_paths import apsp
 
     n = X.shape[0]
     missing = ~observed.copy()
@@ -499,10 +504,10 @@ def verify_metric(X: np.ndarray, tol: float) -> bool:
     entry exceeds the shortest path between its ends by more than ``tol``,
     every triangle holds within ``tol`` (a sufficient condition, and
     n^3/2 min-plus steps against the triangle scan's n^3/6 with heavier
-    steps). Otherwise, and always for small n, :func:`seqdist.metric.is_metric`
+    steps). Otherwise, and always for small n, :func:`seqdist.kernels.triangles.is_metric`
     has the final word.
     """
-    from ..metric import is_metric
+    from seqdist.kernels.triangles import is_metric
 
     d = np.asarray(X, dtype=np.float64)
     if not np.isfinite(d).all() or (d < 0).any():
@@ -510,7 +515,7 @@ def verify_metric(X: np.ndarray, tol: float) -> bool:
     if np.abs(np.diagonal(d)).max(initial=0.0) > tol or np.abs(d - d.T).max(initial=0.0) > tol:
         return False
     if d.shape[0] > _FAST_VERIFY_N:
-        from ..paths import apsp
+        from seqdist.kernels.shortest_paths import apsp
 
         if float((d - apsp(d)).max(initial=0.0)) <= tol:
             return True
@@ -594,10 +599,10 @@ CHANGES_HEADER = "label_a\tlabel_b\tbefore\tafter\tchange\thow"
 
 
 def _changes_text(labels, D, X, observed, tol, no_evidence=None) -> str:
-    from ..io import _quote_cell
+    from seqdist.io.matrices import quote_cell
 
     iu, ju, before, after, obs, how = _change_arrays(D, X, observed, tol, no_evidence)
-    q = [_quote_cell(lab, "\t") for lab in labels]
+    q = [quote_cell(lab, "\t") for lab in labels]
     b = ["NA" if not o else repr(v) for v, o in zip(before.tolist(), obs.tolist())]
     a = list(map(repr, after.tolist()))
     c = ["NA" if not o else repr(v) for v, o in zip((after - np.where(obs, before, 0.0)).tolist(), obs.tolist())]
@@ -621,21 +626,21 @@ def format_changes(rows: list[tuple]) -> str:
     label_a	label_b	before	after	change	how
     a	b	5.0	2.0	-3.0	changed
     """
-    from ..io import _quote_cell
+    from seqdist.io.matrices import quote_cell
 
     def f(v):
         return "NA" if v != v else repr(float(v))
 
     lines = [CHANGES_HEADER]
     for a, b, before, after, change, how in rows:
-        lines.append("\t".join([_quote_cell(a, "\t"), _quote_cell(b, "\t"), f(before), f(after), f(change), how]))
+        lines.append("\t".join([quote_cell(a, "\t"), quote_cell(b, "\t"), f(before), f(after), f(change), how]))
     return "\n".join(lines) + "\n"
 
 
 def build_report(problem: RepairProblem, objective: str, X: np.ndarray, solution: Solution, fill: dict,
                  seconds: float, violated_before: tuple[int, float], objective_value: float) -> dict:
     """The report dict: the contract's keys first, then more."""
-    from ..metric import count_violations
+    from seqdist.kernels.triangles import count_violations
 
     D, obs, tol = problem.D, problem.observed, problem.tol
     iu = np.triu(obs, 1)
@@ -715,7 +720,7 @@ def _wsum(w: np.ndarray, x: np.ndarray) -> float:
 # ------------------------------------------------------------------ run
 class _Bar:
     def __init__(self, objective: str):
-        from ..console import Progress
+        from seqdist.core.console import Progress
 
         # the solvers report phases, not equal units of work: elapsed time only, no estimate
         self.bar = Progress(f"repair ({objective})", total=1.0, estimate=False)
@@ -780,7 +785,7 @@ def leave_out_request(leave_out, dm: DistanceMatrix, source: str | None = None):
     >>> leave_out_request(["z"], dm)
     Traceback (most recent call last):
     ...
-    seqdist.errors.InputError: leave_out: unknown label 'z' (not in the matrix)
+    seqdist.core.errors.InputError: leave_out: unknown label 'z' (not in the matrix)
     """
     if leave_out is None:
         return None, None, None
@@ -809,35 +814,15 @@ def leave_out_request(leave_out, dm: DistanceMatrix, source: str | None = None):
 
 
 def suspect_reasons(dm: DistanceMatrix) -> dict:
-    """``{label: "suspect: <its first reason>"}`` for the taxa :func:`seqdist.suspects.find_suspects` names."""
-    missing = InputError("leaving out suspects needs seqdist.suspects (find_suspects), which this "
-                         "installation does not have")
-    try:
-        from ..suspects import find_suspects
-    except ModuleNotFoundError as exc:
-        if exc.name != f"{__package__.rpartition('.')[0]}.suspects":
-            raise
-        raise missing from None
-    except ImportError as exc:  # the module is there but not (yet) its function
-        if "find_suspects" not in str(exc):
-            raise
-        raise missing from None
-    out = {}
-    for s in find_suspects(dm).suspects:
-        reasons = getattr(s, "reasons", None) or ()
-        if isinstance(reasons, str):
-            first = reasons
-        elif isinstance(reasons, dict):
-            first = next((f"{k}: {v}" for k, v in reasons.items()), "")
-        else:
-            first = str(next(iter(reasons), ""))
-        out.setdefault(str(s.label), f"suspect: {first}" if first else f"suspect (score {float(s.score):.3g})")
-    return out
+    """Why each taxon :func:`seqdist.audit.suspects.find_suspects` names from the matrix is left out."""
+    from seqdist.audit.suspects import find_suspects
+
+    return find_suspects(dm).reasons()
 
 
 def fewest_left_out(problem: RepairProblem, budget) -> tuple[dict, object]:
     """``({label: reason}, TaxaCover)``: the fewest taxa whose removal leaves no violated checked triangle."""
-    from .taxa import fewest_taxa
+    from seqdist.repair.taxa import fewest_taxa
 
     cover = fewest_taxa(problem.D, problem.tol, labels=problem.labels, budget=budget)
     return {problem.label(int(i)): REASON_FEWEST for i in cover.taxa}, cover
@@ -875,9 +860,9 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
         progress: bool = True, keep_unmeasured: bool = False, unmeasured_reasons: dict | None = None,
         source: str | None = None, weights_source: str | None = None, leave_out=None, **options) -> RepairResult:
     """Repair ``dm`` under ``objective``; see :func:`seqdist.repair.repair`."""
-    from ..console import warn
-    from ..metric import count_violations
-    from .problem import Budget
+    from seqdist.core.console import warn
+    from seqdist.kernels.triangles import count_violations
+    from seqdist.repair.problem import Budget
 
     t0 = time.perf_counter()
     solve = load_objective(objective)

@@ -14,7 +14,7 @@ Algorithm
    triangles (the entry in most unhit violated triangles per unit weight,
    repeatedly); then every kept entry still longer than its shortest kept
    path joins ``S`` (this cannot break another kept entry: removing entries
-   only lengthens paths); then :func:`~seqdist.repair._support.prune` puts
+   only lengthens paths); then :func:`~seqdist.repair.kept_sets.prune` puts
    changed entries back while the kept set stays feasible.
 2. **Lower bound**: a greedy packing of violated triangles (a feasible
    solution of the dual of the hitting-set LP relaxation).
@@ -49,8 +49,11 @@ import time
 
 import numpy as np
 
-from . import _cycles, _support
-from .problem import Option, RepairProblem, Solution, rescaled, validate_options
+from seqdist.kernels import kept_graph
+from seqdist.repair import kept_sets
+from seqdist.repair.problem import Option, RepairProblem, Solution, rescaled, validate_options
+
+__all__ = ["heuristic", "make_feasible", "cut_locked", "packing_lower_bound", "exact", "solve"]
 
 #: The options fewest reads (checked by :func:`~seqdist.repair.problem.validate_options`).
 OPTIONS = {
@@ -81,21 +84,21 @@ def heuristic(problem: RepairProblem, tri=None, budget=None, greedy_weights=None
     D, tol, n = problem.D, problem.tol, problem.n
     var = _var_mask(problem)
     if tri is None:
-        tri = _cycles.violated_triangles(D, tol)
+        tri = kept_graph.violated_triangles(D, tol)
     cand = _cand(tri, var)
-    picked, cnt = _cycles.greedy_hitting(n, tri, cand, problem.weights if greedy_weights is None else greedy_weights)
+    picked, cnt = kept_graph.greedy_hitting(n, tri, cand, problem.weights if greedy_weights is None else greedy_weights)
     S = np.zeros((n, n), dtype=bool)
     S.flat[picked] = True
     keyval = np.zeros((n, n))
     keyval.flat[picked] = cnt
-    S = _support.sym(S)
+    S = kept_sets.sym(S)
     F = problem.observed & ~S
     S, F, extra = make_feasible(problem, S, F, budget)
     S_edges = np.argwhere(np.triu(S, 1))
     w = problem.weights[S_edges[:, 0], S_edges[:, 1]]
     keys = (keyval[S_edges[:, 0], S_edges[:, 1]] + 1.0) / np.maximum(w, 1e-300)  # free entries last
     before = len(S_edges)
-    S_edges = _support.prune(D, F, S_edges, keys, False, tol, budget)
+    S_edges = kept_sets.prune(D, F, S_edges, keys, False, tol, budget)
     info = {"greedy": int(len(picked)), "cycle_repairs": extra, "pruned": before - len(S_edges)}
     return S_edges, F, info
 
@@ -123,10 +126,10 @@ def make_feasible(problem: RepairProblem, S, F, budget=None):
     F = F.copy()
     added = 0
     while True:
-        A = _support.kept_paths(D, F)
+        A = kept_sets.kept_paths(D, F)
         if budget is not None:
-            budget.charge(_support.cost_apsp(problem.n))
-        bad = _support.broken_edges(D, A, F, tol)
+            budget.charge(kept_sets.cost_apsp(problem.n))
+        bad = kept_sets.broken_edges(D, A, F, tol)
         if len(bad) == 0:
             return S, F, added
         lk = problem.locked[bad[:, 0], bad[:, 1]]
@@ -159,13 +162,13 @@ def cut_locked(problem: RepairProblem, S, F, pairs, budget=None) -> int:
         i, j = int(i), int(j)
         first = True
         while True:
-            dist, pred = _cycles.shortest_tree(W, i)
+            dist, pred = kept_graph.shortest_tree(W, i)
             if budget is not None:
-                budget.charge(_support.cost_dijkstra(problem.n))
+                budget.charge(kept_sets.cost_dijkstra(problem.n))
             if not (first or D[i, j] > dist[j] + tol):
                 break
             first = False
-            path = _cycles.path_from_tree(pred, i, j)
+            path = kept_graph.path_from_tree(pred, i, j)
             best, best_key = None, None
             for a, b in zip(path[:-1], path[1:]) if path else ():
                 if locked[a, b]:
@@ -197,17 +200,7 @@ def packing_lower_bound(problem: RepairProblem, tri, cand) -> float:
         key += np.where(cand[:, s], cnt[a, b], 0.0)
     order = np.lexsort((np.arange(len(tri)), key))
     w = np.where(problem.locked, np.inf, problem.weights)
-    return _cycles.packing_bound(n, tri, cand, w, order)
-
-
-def _edges_to_ids(edges, n):
-    return [int(a) * n + int(b) for a, b in edges]
-
-
-def _ids_to_mask(ids, n):
-    S = np.zeros((n, n), dtype=bool)
-    S.flat[np.asarray(list(ids), dtype=np.int64)] = True
-    return _support.sym(S)
+    return kept_graph.packing_bound(n, tri, cand, w, order)
 
 
 def exact(problem: RepairProblem, tri, cand, incumbent_edges, budget, log):
@@ -221,11 +214,11 @@ def exact(problem: RepairProblem, tri, cand, incumbent_edges, budget, log):
         cuts.append([int(ids[s][t]) for s in range(3) if cand[t, s]])
 
     def separate(S_ids):
-        S = _ids_to_mask(S_ids, n)
+        S = kept_sets.ids_to_mask(S_ids, n)
         F = problem.observed & ~S
-        A = _support.kept_paths(D, F)
-        budget.charge(_support.cost_apsp(n))
-        bad = _support.broken_edges(D, A, F, tol)
+        A = kept_sets.kept_paths(D, F)
+        budget.charge(kept_sets.cost_apsp(n))
+        bad = kept_sets.broken_edges(D, A, F, tol)
         if len(bad) == 0:
             return [], None
         W = np.where(F, D, np.inf)
@@ -233,20 +226,20 @@ def exact(problem: RepairProblem, tri, cand, incumbent_edges, budget, log):
         # most broken first; a few thousand cuts per round are plenty
         viol = D[bad[:, 0], bad[:, 1]] - A[bad[:, 0], bad[:, 1]]
         bad = bad[np.lexsort((np.arange(len(bad)), -viol))][:5000]
-        budget.charge(_support.cost_dijkstra(n) * len(np.unique(bad[:, 0])))
+        budget.charge(kept_sets.cost_dijkstra(n) * len(np.unique(bad[:, 0])))
         new = []
-        for (i, j), path in zip(bad, _support.paths_for(W, bad)):
-            edges = [int(i) * n + int(j)] + (_support.path_edges(path, n) if path else [])
+        for (i, j), path in zip(bad, kept_sets.paths_for(W, bad)):
+            edges = [int(i) * n + int(j)] + (kept_sets.path_edges(path, n) if path else [])
             new.append([e for e in edges if var.flat[e]])
         S2, F2, _ = make_feasible(problem, S, F, budget)
         S_edges = np.argwhere(np.triu(S2, 1))
         w = problem.weights[S_edges[:, 0], S_edges[:, 1]]
-        S_edges = _support.prune(D, F2, S_edges, -w, False, tol, budget)
-        return new, _edges_to_ids(S_edges, n)
+        S_edges = kept_sets.prune(D, F2, S_edges, -w, False, tol, budget)
+        return new, kept_sets.edges_to_ids(S_edges, n)
 
     inc_val = float(problem.weights[incumbent_edges[:, 0], incumbent_edges[:, 1]].sum()) if len(incumbent_edges) else 0.0
-    return _support.lazy_hitting_set(n, np.where(var, problem.weights, 0.0), cuts, separate,
-                                     (_edges_to_ids(incumbent_edges, n), inc_val), budget, problem.progress, log=log)
+    return kept_sets.lazy_hitting_set(n, np.where(var, problem.weights, 0.0), cuts, separate,
+                                     (kept_sets.edges_to_ids(incumbent_edges, n), inc_val), budget, problem.progress, log=log)
 
 
 def solve(problem: RepairProblem) -> Solution:
@@ -260,8 +253,8 @@ def solve(problem: RepairProblem) -> Solution:
     method = opts["method"]
     budget = problem.budget()
     var = _var_mask(problem)
-    tri = _cycles.violated_triangles(D, tol)
-    budget.charge(_support.TRIANGLES_PER_N3 * float(n) ** 3)
+    tri = kept_graph.violated_triangles(D, tol)
+    budget.charge(kept_sets.TRIANGLES_PER_N3 * float(n) ** 3)
     cand = _cand(tri, var)
     problem.report(0.05, f"{len(tri)} violated triangles")
     S_edges, F, hinfo = heuristic(problem, tri, budget)
@@ -275,7 +268,7 @@ def solve(problem: RepairProblem) -> Solution:
     if not optimal and opts["lp_bound"]:
         left = budget.left()
         lp_stage = budget.stage(opts["lp_budget"] if left is None else min(opts["lp_budget"], 0.5 * left))
-        lpb, xlp = _support.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), lp_stage, return_x=True)
+        lpb, xlp = kept_sets.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), lp_stage, return_x=True)
         if lpb is not None:
             details["lp_bound"] = lpb
             lb = max(lb, min(value, lpb))
@@ -304,18 +297,18 @@ def solve(problem: RepairProblem) -> Solution:
                         "exact_status": res["status"], "exact_log": log[-20:]})
         lb = max(lb, res["lower_bound"])
         if res["value"] < value - 1e-12 or res["optimal"]:
-            S = _ids_to_mask(res["ids"], n)
+            S = kept_sets.ids_to_mask(res["ids"], n)
             F = problem.observed & ~S
             S_edges = np.argwhere(np.triu(S, 1))
             value = res["value"]
         optimal = res["optimal"] or value <= lb + 1e-9 * value
-    lb = _support.round_bound(lb, np.where(var, w, 0.0))
+    lb = kept_sets.round_bound(lb, np.where(var, w, 0.0))
     optimal = optimal or value <= lb + 1e-9 * value
-    X, sweeps = _support.complete(D, F, S_edges, tol)
+    X, sweeps = kept_sets.complete(D, F, S_edges, tol)
     details["value_sweeps"] = sweeps
     details["unlocked_entries"] = nvar
     details["work"] = round(budget.spent, 6)
     seconds["total"] = round(time.perf_counter() - t0, 3)
     details["seconds"] = seconds
-    value, lb = _support.unscale_weights(details, value, lb, wexp)
+    value, lb = kept_sets.unscale_weights(details, value, lb, wexp)
     return Solution(X=X, objective_value=value, lower_bound=min(lb, value), optimal=bool(optimal), details=details)

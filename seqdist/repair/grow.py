@@ -16,7 +16,7 @@ a greedy hitting set of the light sides of violated triangles; then, while
 some observed entry is longer than its shortest kept path, a greedy hitting
 set of those paths' entries leaves ``F``; then changed entries return to
 ``F`` while every observed entry stays at most its shortest kept path
-(:func:`~seqdist.repair._support.prune`). Bounds: a greedy packing of
+(:func:`~seqdist.repair.kept_sets.prune`). Bounds: a greedy packing of
 violated triangles over their light sides and the LP relaxation over the
 triangle rows. Exact (small problems): the binary program with lazy cuts
 from the path oracle above.
@@ -47,10 +47,13 @@ from dataclasses import replace
 
 import numpy as np
 
-from . import _cycles, _support
-from .fewest import OPTIONS as _FEWEST_OPTIONS
-from .fewest import _ids_to_mask, _edges_to_ids, packing_lower_bound
-from .problem import RepairProblem, Solution, rescaled, validate_options
+from seqdist.kernels import kept_graph
+from seqdist.repair import kept_sets
+from seqdist.repair.fewest import OPTIONS as _FEWEST_OPTIONS
+from seqdist.repair.fewest import packing_lower_bound
+from seqdist.repair.problem import RepairProblem, Solution, rescaled, validate_options
+
+__all__ = ["make_feasible", "heuristic", "exact", "solve"]
 
 #: The options grow reads (those of fewest, with a smaller exact_max_n).
 OPTIONS = dict(_FEWEST_OPTIONS)
@@ -82,17 +85,17 @@ def make_feasible(problem: RepairProblem, S, F, budget=None):
     var = obs & ~problem.locked
     added = 0
     while True:
-        A = _support.kept_paths(D, F)
-        bad = _support.broken_edges(D, A, obs, tol)
+        A = kept_sets.kept_paths(D, F)
+        bad = kept_sets.broken_edges(D, A, obs, tol)
         if budget is not None:
-            budget.charge(_support.cost_apsp(n) + _support.cost_dijkstra(n) * len(np.unique(bad[:, 0])))
+            budget.charge(kept_sets.cost_apsp(n) + kept_sets.cost_dijkstra(n) * len(np.unique(bad[:, 0])))
         if len(bad) == 0:
             return S, F, added
         W = np.where(F, D, np.inf)
         np.fill_diagonal(W, 0.0)
-        paths = [p for p in _support.paths_for(W, bad) if p]
+        paths = [p for p in kept_sets.paths_for(W, bad) if p]
         # greedy hitting set of the paths' unlocked entries
-        sets = [[e for e in _support.path_edges(p, n) if var.flat[e]] for p in paths]
+        sets = [[e for e in kept_sets.path_edges(p, n) if var.flat[e]] for p in paths]
         alive = [q for q, s in enumerate(sets) if s]
         if not alive:  # pragma: no cover - excluded by the engine's lock check
             raise RuntimeError("grow: a locked path undercuts an entry")
@@ -111,19 +114,19 @@ def make_feasible(problem: RepairProblem, S, F, budget=None):
 
 def heuristic(problem: RepairProblem, tri, cand, budget=None, greedy_weights=None):
     D, tol, n = problem.D, problem.tol, problem.n
-    picked, cnt = _cycles.greedy_hitting(n, tri, cand, problem.weights if greedy_weights is None else greedy_weights)
+    picked, cnt = kept_graph.greedy_hitting(n, tri, cand, problem.weights if greedy_weights is None else greedy_weights)
     S = np.zeros((n, n), dtype=bool)
     S.flat[picked] = True
     keyval = np.zeros((n, n))
     keyval.flat[picked] = cnt
-    S = _support.sym(S)
+    S = kept_sets.sym(S)
     F = problem.observed & ~S
     S, F, extra = make_feasible(problem, S, F, budget)
     S_edges = np.argwhere(np.triu(S, 1))
     w = problem.weights[S_edges[:, 0], S_edges[:, 1]]
     keys = (keyval[S_edges[:, 0], S_edges[:, 1]] + 1.0) / np.maximum(w, 1e-300)  # free entries last
     before = len(S_edges)
-    S_edges = _support.prune(D, F, S_edges, keys, True, tol, budget)
+    S_edges = kept_sets.prune(D, F, S_edges, keys, True, tol, budget)
     return S_edges, F, {"greedy": int(len(picked)), "cycle_repairs": extra, "pruned": before - len(S_edges)}
 
 
@@ -136,32 +139,32 @@ def exact(problem: RepairProblem, tri, cand, incumbent_edges, budget, log):
     cuts = [[int(ids[s][t]) for s in range(3) if cand[t, s]] for t in range(len(tri))]
 
     def separate(S_ids):
-        S = _ids_to_mask(S_ids, n)
+        S = kept_sets.ids_to_mask(S_ids, n)
         F = obs & ~S
-        A = _support.kept_paths(D, F)
-        budget.charge(_support.cost_apsp(n))
-        bad = _support.broken_edges(D, A, obs, tol)
+        A = kept_sets.kept_paths(D, F)
+        budget.charge(kept_sets.cost_apsp(n))
+        bad = kept_sets.broken_edges(D, A, obs, tol)
         if len(bad) == 0:
             return [], None
         W = np.where(F, D, np.inf)
         np.fill_diagonal(W, 0.0)
         viol = D[bad[:, 0], bad[:, 1]] - A[bad[:, 0], bad[:, 1]]
         bad = bad[np.lexsort((np.arange(len(bad)), -viol))][:5000]
-        budget.charge(_support.cost_dijkstra(n) * len(np.unique(bad[:, 0])))
+        budget.charge(kept_sets.cost_dijkstra(n) * len(np.unique(bad[:, 0])))
         new = []
-        for path in _support.paths_for(W, bad):
+        for path in kept_sets.paths_for(W, bad):
             if path:
-                new.append([e for e in _support.path_edges(path, n) if var.flat[e]])
+                new.append([e for e in kept_sets.path_edges(path, n) if var.flat[e]])
         S2, F2, _ = make_feasible(problem, S, F, budget)
         S_edges = np.argwhere(np.triu(S2, 1))
         w = problem.weights[S_edges[:, 0], S_edges[:, 1]]
-        S_edges = _support.prune(D, F2, S_edges, -w, True, tol, budget)
-        return new, _edges_to_ids(S_edges, n)
+        S_edges = kept_sets.prune(D, F2, S_edges, -w, True, tol, budget)
+        return new, kept_sets.edges_to_ids(S_edges, n)
 
     inc_val = float(problem.weights[incumbent_edges[:, 0], incumbent_edges[:, 1]].sum()) if len(incumbent_edges) else 0.0
-    return _support.lazy_hitting_set(n, np.where(var, problem.weights, 0.0), cuts, separate,
-                                     (_edges_to_ids(incumbent_edges, n), inc_val), budget, problem.progress, log=log,
-                                     mip_scale=_support.GROW_MIP_SCALE)
+    return kept_sets.lazy_hitting_set(n, np.where(var, problem.weights, 0.0), cuts, separate,
+                                     (kept_sets.edges_to_ids(incumbent_edges, n), inc_val), budget, problem.progress, log=log,
+                                     mip_scale=kept_sets.GROW_MIP_SCALE)
 
 
 def solve(problem: RepairProblem) -> Solution:
@@ -176,8 +179,8 @@ def solve(problem: RepairProblem) -> Solution:
     budget = problem.budget()
     var = problem.observed & ~problem.locked
     w = problem.weights
-    tri = _cycles.violated_triangles(D, tol)
-    budget.charge(_support.TRIANGLES_PER_N3 * float(n) ** 3)
+    tri = kept_graph.violated_triangles(D, tol)
+    budget.charge(kept_sets.TRIANGLES_PER_N3 * float(n) ** 3)
     cand = _cand_light(tri, var)
     problem.report(0.05, f"{len(tri)} violated triangles")
     S_edges, F, hinfo = heuristic(problem, tri, cand, budget)
@@ -190,7 +193,7 @@ def solve(problem: RepairProblem) -> Solution:
     if not optimal and opts["lp_bound"]:
         left = budget.left()
         lp_stage = budget.stage(opts["lp_budget"] if left is None else min(opts["lp_budget"], 0.5 * left))
-        lpb, xlp = _support.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), lp_stage, return_x=True)
+        lpb, xlp = kept_sets.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), lp_stage, return_x=True)
         if lpb is not None:
             details["lp_bound"] = lpb
             lb = max(lb, min(value, lpb))
@@ -203,7 +206,7 @@ def solve(problem: RepairProblem) -> Solution:
             details["lp_guided_value"] = v2
             if v2 < value - 1e-12:
                 S_edges, F, value = S2, F2, v2
-    lb = _support.round_bound(lb, np.where(var, w, 0.0))
+    lb = kept_sets.round_bound(lb, np.where(var, w, 0.0))
     optimal = value <= lb + 1e-9 * value
     problem.report(1.0 if value == 0 else max(0.2, lb / value), "heuristic done")
     run_exact = not optimal and (method == "exact" or (
@@ -217,20 +220,20 @@ def solve(problem: RepairProblem) -> Solution:
                         "exact stage stopped early (" + res["status"] + "); best verified answer",
                         "rounds": res["rounds"], "cuts": res["cuts"], "nodes": res["nodes"],
                         "exact_status": res["status"], "exact_log": log[-20:]})
-        lb = max(lb, _support.round_bound(res["lower_bound"], np.where(var, w, 0.0)))
+        lb = max(lb, kept_sets.round_bound(res["lower_bound"], np.where(var, w, 0.0)))
         if res["value"] < value - 1e-12 or res["optimal"]:
-            S = _ids_to_mask(res["ids"], n)
+            S = kept_sets.ids_to_mask(res["ids"], n)
             F = problem.observed & ~S
             S_edges = np.argwhere(np.triu(S, 1))
             value = res["value"]
         optimal = res["optimal"] or value <= lb + 1e-9 * value
     lower = D[S_edges[:, 0], S_edges[:, 1]] if len(S_edges) else np.zeros(0)
-    X, sweeps = _support.complete(D, F, S_edges, tol, lower=lower)
+    X, sweeps = kept_sets.complete(D, F, S_edges, tol, lower=lower)
     inc = X[S_edges[:, 0], S_edges[:, 1]] - lower if len(S_edges) else np.zeros(0)
     details["total_increase"] = float(inc.sum())
     details["value_sweeps"] = sweeps
     details["work"] = round(budget.spent, 6)
     seconds["total"] = round(time.perf_counter() - t0, 3)
     details["seconds"] = seconds
-    value, lb = _support.unscale_weights(details, value, lb, wexp)
+    value, lb = kept_sets.unscale_weights(details, value, lb, wexp)
     return Solution(X=X, objective_value=value, lower_bound=min(lb, value), optimal=bool(optimal), details=details)

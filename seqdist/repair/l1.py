@@ -20,7 +20,7 @@ Two methods (details and derivations in docs/repair_convex.md):
   solution solves the LP: exact regularisation).
 
 Both report a certified gap: any non-negative duals give the Lagrangian
-bound :func:`._convex.bound_l1`, and the shortest-path closure of the primal
+bound :func:`seqdist.repair.convex.bound_l1`, and the shortest-path closure of the primal
 point is a feasible metric.
 
 Work, not time: ``time_limit`` is a work budget
@@ -47,9 +47,11 @@ import time
 
 import numpy as np
 
-from . import _convex as C
-from . import _convex_kernels as K
-from .problem import Option, RepairProblem, Solution, rescaled
+from seqdist.repair import convex as C
+from seqdist.kernels import convex as K
+from seqdist.repair.problem import Option, RepairProblem, Solution, rescaled
+
+__all__ = ["solve"]
 
 _DEFAULT_GAP = 1e-6
 _LP_MAX_N = 100
@@ -100,7 +102,7 @@ def _solve_lp(problem, S, budget, gap_tol, log):
     from scipy.optimize import linprog
     from scipy.sparse import vstack
 
-    from ..paths import apsp
+    from seqdist.kernels.shortest_paths import apsp
 
     n = S.n
     up = np.triu(np.ones((n, n), dtype=bool), 1)

@@ -14,7 +14,7 @@ Algorithm (details and the bound's derivation in docs/repair_convex.md):
    several times. When some entries are missing or have weight 0, a
    shortest-path oracle adds cycle constraints through them.
 2. **Certificate.** Any duals ``lam >= 0`` give a Lagrangian lower bound
-   (:func:`._convex.bound_l2`); the shortest-path closure of the iterate is
+   (:func:`seqdist.repair.convex.bound_l2`); the shortest-path closure of the iterate is
    a feasible metric whose objective is an upper bound. The reported gap is
    the difference.
 3. **Schedule.** Sweeps per round and scan frequency follow work counts
@@ -52,9 +52,11 @@ import time
 
 import numpy as np
 
-from . import _convex as C
-from . import _convex_kernels as K
-from .problem import Option, RepairProblem, Solution, rescaled
+from seqdist.repair import convex as C
+from seqdist.kernels import convex as K
+from seqdist.repair.problem import Option, RepairProblem, Solution, rescaled
+
+__all__ = ["solve"]
 
 _DEFAULT_GAP = 1e-6
 _MAX_POLISH = 12

@@ -22,6 +22,9 @@ from typing import Any, Callable
 
 import numpy as np
 
+__all__ = ["RepairProblem", "Solution", "Budget", "scale_exponent", "rescaled", "Option", "validate_options",
+           "objective_options"]
+
 #: Where the work rates of the solvers were measured (once; they are constants,
 #: never measured at run time). A budget of ``t`` reference seconds is about the
 #: work this machine does in ``t`` seconds, alone on it; elsewhere a run takes
@@ -383,13 +386,13 @@ def validate_options(objective: str, declared: dict, given: dict | None) -> dict
     >>> validate_options("shrink", {}, {"method": "exact"})
     Traceback (most recent call last):
     ...
-    seqdist.errors.InputError: objective 'shrink' has no option 'method' (its options: none)
+    seqdist.core.errors.InputError: objective 'shrink' has no option 'method' (its options: none)
     >>> validate_options("fewest", opts, {"method": "fast"})
     Traceback (most recent call last):
     ...
-    seqdist.errors.InputError: objective 'fewest' option 'method' must be one of auto, exact, heuristic, got 'fast'
+    seqdist.core.errors.InputError: objective 'fewest' option 'method' must be one of auto, exact, heuristic, got 'fast'
     """
-    from ..errors import InputError
+    from seqdist.core.errors import InputError
 
     given = dict(given or {})
     for key in given:

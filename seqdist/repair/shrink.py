@@ -28,7 +28,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from .problem import RepairProblem, Solution, validate_options
+from seqdist.repair.problem import RepairProblem, Solution, validate_options
+
+__all__ = ["closure", "solve"]
 
 #: shrink has no options (it is exact, with no stopping rule).
 OPTIONS: dict = {}
@@ -44,7 +46,7 @@ def closure(D: np.ndarray, tol: float = 0.0) -> np.ndarray:
     >>> float(closure(np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]]))[0, 1])
     2.0
     """
-    from ..paths import apsp
+    from seqdist.kernels.shortest_paths import apsp
 
     A = apsp(D)
     X = np.where(D > A + tol, A, D)

@@ -55,7 +55,11 @@ from dataclasses import dataclass, field
 import numpy as np
 from numba import njit
 
-from .problem import Budget
+from seqdist.repair.problem import Budget
+
+__all__ = ["TaxaCover", "taxon_counts", "violated_taxon_triangles", "preference_positions", "greedy_cover",
+           "link_matchings", "packing", "lp_bound", "exact_cover", "fewest_taxa", "reference_violated",
+           "reference_fewest_taxa"]
 
 #: Counted work per triple examined by the kernels here, in reference seconds
 #: (problem.REFERENCE_MACHINE; medians of n = 200 to 1000, measured once).
@@ -65,7 +69,7 @@ COUNT_TRIPLE_COST = 1.7e-9
 #: The cover programs (scipy's milp, HiGHS): the call up to its first node, per
 #: unit of size (non-zeros + rows + columns; measured 1.0e-4 to 2.0e-4 at n = 30
 #: to 200 on noisy matrices with 255 to 23,560 violated triangles). Nodes are
-#: charged by the model of :mod:`seqdist.repair._support` (``mip_cost``): the
+#: charged by the model of :mod:`seqdist.repair.kept_sets` (``mip_cost``): the
 #: first nodes cost most (strong branching; measured up to 2.7e-4 per unit of
 #: size each here), later ones far less; right within a factor of about 3.
 MIP_ROOT_PER_SIZE = 2e-4
@@ -429,7 +433,7 @@ def lp_bound(tri: np.ndarray, budget: Budget) -> float | None:
     """Linear relaxation of the cover (unit costs) over the triangles ``tri``: a lower bound, or None."""
     from scipy.optimize import linprog
 
-    from ._support import quiet_stdout
+    from seqdist.repair.kept_sets import quiet_stdout
 
     if len(tri) == 0:
         return 0.0
@@ -460,7 +464,7 @@ def exact_cover(tri: np.ndarray, cost: np.ndarray, budget: Budget) -> dict:
     budget, never a time limit; a call whose root would not fit in what is
     left is not started.
     """
-    from ._support import _milp, mip_cost, mip_nodes
+    from seqdist.repair.kept_sets import milp, mip_cost, mip_nodes
 
     cols = np.unique(tri)
     A = _incidence(tri, cols)
@@ -477,7 +481,7 @@ def exact_cover(tri: np.ndarray, cost: np.ndarray, budget: Budget) -> dict:
     if left is not None:
         node_limit = mip_nodes(left, size)
         opts["node_limit"] = node_limit
-    res = _milp(np.asarray(cost, dtype=np.float64)[cols], A, opts)
+    res = milp(np.asarray(cost, dtype=np.float64)[cols], A, opts)
     used = int(getattr(res, "mip_node_count", 0) or 0)
     budget.charge(mip_cost(used, size))
     bound = 0.0

@@ -5,7 +5,7 @@ Public API
 :class:`Tree`, :class:`Node`
     Our small tree type (``Tree.to_phylo()`` gives a Biopython tree).
 :func:`build_tree`, :func:`neighbor_joining`, :func:`bionj`, :func:`upgma`
-    Builders on a :class:`~seqdist.matrix.DistanceMatrix`.
+    Builders on a :class:`~seqdist.core.matrix.DistanceMatrix`.
 :func:`write_newick`, :func:`read_newick`, :func:`read_newick_file`
     Newick text.
 :func:`compare_trees`, :func:`splits`, :func:`robinson_foulds`,
@@ -20,8 +20,12 @@ Examples
 '(a:1.0,b:2.0,c:3.0);\\n'
 """
 
-from .build import METHODS, bionj, build_tree, check_matrix, neighbor_joining, upgma  # noqa: F401
-from .compare import (branch_score, compare_trees, cophenetic_correlation, robinson_foulds,  # noqa: F401
+from seqdist.trees.build import METHODS, bionj, build_tree, check_matrix, neighbor_joining, upgma  # noqa: F401
+from seqdist.trees.compare import (branch_score, compare_trees, cophenetic_correlation, robinson_foulds,  # noqa: F401
                       splits)
-from .newick import quote_label, read_newick, read_newick_file, write_newick  # noqa: F401
-from .tree import Node, Tree, rooted_for_drawing  # noqa: F401
+from seqdist.io.newick import quote_label, read_newick, read_newick_file, write_newick  # noqa: F401
+from seqdist.core.tree import Node, Tree, rooted_for_drawing  # noqa: F401
+
+__all__ = ["Tree", "Node", "rooted_for_drawing", "build_tree", "neighbor_joining", "bionj", "upgma", "METHODS",
+           "check_matrix", "write_newick", "read_newick", "read_newick_file", "quote_label", "compare_trees",
+           "splits", "robinson_foulds", "branch_score", "cophenetic_correlation"]

@@ -57,9 +57,11 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..errors import InputError
-from ..matrix import DistanceMatrix
-from .tree import Node, Tree
+from seqdist.core.errors import InputError
+from seqdist.core.matrix import DistanceMatrix
+from seqdist.core.tree import Node, Tree
+
+__all__ = ["check_matrix", "nj_q_matrix", "neighbor_joining", "bionj", "upgma", "build_tree"]
 
 METHODS = ("nj", "bionj", "upgma")
 
@@ -156,7 +158,7 @@ def neighbor_joining(dm: DistanceMatrix, *, bionj: bool = False, clamp_negative:
     check_matrix(dm)
     if search not in ("sorted", "full"):
         raise InputError(f"unknown search '{search}' (choose sorted or full)")
-    from ._kernels import nj_kernel
+    from seqdist.kernels.tree_building import nj_kernel
 
     D = np.array(dm.values, dtype=np.float64, order="C")
     V = D.copy() if bionj else np.zeros((1, 1))
@@ -195,7 +197,7 @@ def upgma(dm: DistanceMatrix) -> Tree:
     '((a:1.0,b:1.0):2.0,c:3.0);\\n'
     """
     check_matrix(dm)
-    from ._kernels import upgma_kernel
+    from seqdist.kernels.tree_building import upgma_kernel
 
     D = np.array(dm.values, dtype=np.float64, order="C")
     kids, hts = upgma_kernel(D)

@@ -33,8 +33,11 @@ from typing import Sequence
 
 import numpy as np
 
-from ..errors import InputError
-from .tree import Tree
+from seqdist.core.errors import InputError
+from seqdist.core.tree import Tree
+
+__all__ = ["common_taxa", "splits", "nontrivial", "split_labels", "sorted_splits", "robinson_foulds", "branch_score",
+           "branch_score_splits", "cophenetic_correlation", "compare_trees"]
 
 
 def common_taxa(t1: Tree, t2: Tree, names: tuple[str, str] = ("first tree", "second tree")) -> list[str]:
@@ -148,10 +151,10 @@ def branch_score(t1: Tree, t2: Tree) -> float:
     1.0
     """
     taxa = common_taxa(t1, t2)
-    return _branch_score(splits(t1, taxa), splits(t2, taxa))
+    return branch_score_splits(splits(t1, taxa), splits(t2, taxa))
 
 
-def _branch_score(s1: dict[int, float], s2: dict[int, float]) -> float:
+def branch_score_splits(s1: dict[int, float], s2: dict[int, float]) -> float:
     keys = sorted(set(s1) | set(s2))
     diffs = np.array([s1.get(k, 0.0) - s2.get(k, 0.0) for k in keys])
     return float(math.sqrt(float(np.dot(diffs, diffs)))) if keys else 0.0
@@ -203,7 +206,7 @@ def compare_trees(t1: Tree, t2: Tree, names: tuple[str, str] = ("first tree", "s
         "n": n,
         "rf": rf,
         "rf_normalized": rf / (2.0 * (n - 3)) if n > 3 else 0.0,
-        "branch_score": _branch_score(m1, m2),
+        "branch_score": branch_score_splits(m1, m2),
         "shared_splits": len(s1 & s2),
         "splits_only_1": sorted_splits(s1 - s2, taxa),
         "splits_only_2": sorted_splits(s2 - s1, taxa),

@@ -6,7 +6,7 @@ five dimensions, then 1% of the entries multiplied by a factor drawn from
 [0.3, 2], which breaks many triangles) is written to a tsv file. Measured in
 the same run, on the same matrix:
 
-* ``count``: :func:`seqdist.metric.count_violations` (the exact violation count);
+* ``count``: :func:`seqdist.kernels.triangles.count_violations` (the exact violation count);
 * ``audit``: the whole command ``seqdist audit FILE --json OUT`` as a user
   runs it (a new process: start-up, reading the file, the default report);
 * ``fw``: ``scipy.sparse.csgraph.floyd_warshall`` (dense, C-contiguous input),
@@ -57,7 +57,7 @@ def write_tsv(path, D):
 def main(ns):
     from scipy.sparse.csgraph import floyd_warshall
 
-    from seqdist.metric import count_violations
+    from seqdist.kernels.triangles import count_violations
 
     count_violations(matrix(10))  # load the compiled kernels once
     rows = []

@@ -183,7 +183,7 @@ def main(argv=None) -> int:
                                       if args.remedies is None or k in args.remedies))
     if args.json:
         sys.path.insert(0, rs.ROOT)
-        from seqdist.io import OutputSet
+        from seqdist.io.matrices import OutputSet
 
         doc = {"settings": settings, "versions": ver, "skipped": notes, "records": records,
                "tables": {m: rs.table(records, m) for m in args.methods},

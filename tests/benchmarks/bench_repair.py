@@ -102,7 +102,7 @@ def general_milp(D, objective, time_limit):
     from scipy.optimize import Bounds
 
     t = time.perf_counter()
-    from seqdist.repair._support import quiet_stdout
+    from seqdist.repair.kept_sets import quiet_stdout
 
     with quiet_stdout():
         res = milp(np.concatenate([np.zeros(m), np.ones(m)]), constraints=LinearConstraint(A, -np.inf, ub),
@@ -204,9 +204,9 @@ def bench_noise(sizes, sigmas, seeds, exact_limit):
 def bench_shrink_kernel(sizes):
     from scipy.sparse.csgraph import floyd_warshall
 
-    from seqdist.paths import apsp
+    from seqdist.kernels.shortest_paths import apsp
 
-    print("## Shrink kernel: seqdist.paths.apsp against scipy floyd_warshall (same matrix, float64)\n")
+    print("## Shrink kernel: seqdist.kernels.shortest_paths.apsp against scipy floyd_warshall (same matrix, float64)\n")
     rows = []
     rng = np.random.default_rng(0)
     apsp(np.ones((4, 4)))  # load the compiled kernel
@@ -236,8 +236,8 @@ pd.DataFrame(X, index=f.index, columns=f.columns).to_csv(sys.argv[2], sep="\t", 
 
 
 def bench_command(sizes):
-    from seqdist.io import write_matrix
-    from seqdist.matrix import DistanceMatrix
+    from seqdist.io.matrices import write_matrix
+    from seqdist.core.matrix import DistanceMatrix
 
     print("## Whole command: 'seqdist repair --objective shrink' against read + scipy floyd_warshall + write\n")
     rows = []

@@ -28,9 +28,9 @@ import numpy as np
 
 sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))))
 
-from seqdist.scores import (AMINO20, ROBINSON_1991, TRANSFORMS, check_score_matrix,  # noqa: E402
+from seqdist.scores.matrices import (AMINO20, ROBINSON_1991, TRANSFORMS, check_score_matrix,  # noqa: E402
                             load_score_matrix, score_statistics)
-from seqdist.pairscores import score_distances  # noqa: E402
+from seqdist.scores.pairwise import score_distances  # noqa: E402
 
 
 def simulate(n: int, length: int, seed: int) -> list[str]:

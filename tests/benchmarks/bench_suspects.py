@@ -1,5 +1,5 @@
 #!/usr/bin/env python
-"""Calibration of :func:`seqdist.suspects.find_suspects` on seeded simulations with planted trouble.
+"""Calibration of :func:`seqdist.audit.suspects.find_suspects` on seeded simulations with planted trouble.
 
 Each replicate simulates 32 taxa x 1,000 columns under K80 (seqdist.simulate,
 default tree scale), computes K80 distances (pairwise gap deletion), and runs
@@ -48,7 +48,7 @@ TARGETS = {"chimera": 0.8, "gappy": 0.8, "contaminant": 0.8}
 def make(scenario: str, rep: int, n: int = 32, length: int = 1000):
     """One seeded simulation of a scenario: (alignment, planted labels)."""
     from seqdist import simulate as S
-    from seqdist.alignment import Alignment
+    from seqdist.io.alignment import Alignment
 
     seed = 1000 * (SCENARIOS.index(scenario) + 1) + rep
     sim = S.simulate(n, length, seed=seed, model="k80")
@@ -75,8 +75,8 @@ def make(scenario: str, rep: int, n: int = 32, length: int = 1000):
 
 
 def run(scenario: str, rep: int, threshold, bootstrap: int):
-    from seqdist.distances import pairwise_distances
-    from seqdist.suspects import find_suspects
+    from seqdist.models.distances import pairwise_distances
+    from seqdist.audit.suspects import find_suspects
 
     aln, planted = make(scenario, rep)
     dm = pairwise_distances(aln, "k80", warn=False, progress=False).matrix
@@ -117,7 +117,7 @@ def main(argv=None):
     ap.add_argument("--scenarios", default=",".join(SCENARIOS))
     ap.add_argument("--sweep", action="store_true", help="also print the figures over a range of thresholds")
     a = ap.parse_args(argv)
-    from seqdist.suspects import THRESHOLD
+    from seqdist.audit.suspects import THRESHOLD
 
     thr = THRESHOLD if a.threshold is None else a.threshold
     print(f"find_suspects calibration: 32 taxa x 1000 columns, K80, {a.replicates} replicates per scenario, "

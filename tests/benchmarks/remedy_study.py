@@ -64,7 +64,7 @@ ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)
 if ROOT not in sys.path:
     sys.path.insert(0, ROOT)
 
-from seqdist.matrix import DistanceMatrix  # noqa: E402
+from seqdist.core.matrix import DistanceMatrix  # noqa: E402
 
 #: Every scenario, in a fixed order: the order number goes into each replicate's seed.
 SCENARIOS = ("clean", "chimera", "gappy", "misread", "contaminant", "saturated")
@@ -97,7 +97,7 @@ class Replicate:
     """One simulated data set and its distances.
 
     ``planted`` are the taxa whose data were spoiled (empty for ``clean``);
-    ``dres`` is the :class:`seqdist.distances.DistanceResult` (K80, with variances).
+    ``dres`` is the :class:`seqdist.models.distances.DistanceResult` (K80, with variances).
     """
 
     scenario: str
@@ -152,8 +152,8 @@ def make_replicate(scenario: str, index: int, seed: int = 1, alpha: float | None
     (32, 1)
     """
     from seqdist import simulate as S
-    from seqdist.alignment import Alignment
-    from seqdist.distances import pairwise_distances
+    from seqdist.io.alignment import Alignment
+    from seqdist.models.distances import pairwise_distances
 
     if scenario not in SCENARIOS:
         raise ValueError(f"unknown scenario '{scenario}' (choose from {', '.join(SCENARIOS)})")
@@ -269,14 +269,14 @@ def _repair(objective: str, weighted: bool):
 def audit_of(dm: DistanceMatrix, ctx: Context):
     """The audit of ``dm`` (cached in the context), without its lower bounds."""
     if "audit" not in ctx.cache:
-        from seqdist.audit import audit
+        from seqdist.audit.report import audit
 
         ctx.cache["audit"] = audit(dm, seed=ctx.seed, bounds=False)
     return ctx.cache["audit"]
 
 
 def suspects_of(dm: DistanceMatrix, ctx: Context, alignment: bool = True):
-    """``(suspect labels above the threshold, every label ranked)`` from seqdist.suspects, cached.
+    """``(suspect labels above the threshold, every label ranked)`` from seqdist.audit.suspects, cached.
 
     With ``alignment`` (what ``seqdist run`` has) the column statistics count
     too; without, only what the matrix shows (what ``seqdist repair`` and
@@ -286,9 +286,9 @@ def suspects_of(dm: DistanceMatrix, ctx: Context, alignment: bool = True):
     key = "suspects" if alignment else "suspects_matrix"
     if key not in ctx.cache:
         try:
-            from seqdist.suspects import find_suspects
+            from seqdist.audit.suspects import find_suspects
         except ImportError as exc:
-            raise Skipped(f"seqdist.suspects.find_suspects is not available ({exc})") from None
+            raise Skipped(f"seqdist.audit.suspects.find_suspects is not available ({exc})") from None
         kw = dict(alignment=ctx.alignment if alignment else None, model=ctx.model, gamma=ctx.gamma, gaps=ctx.gaps,
                   seed=ctx.seed)
         params = inspect.signature(find_suspects).parameters
@@ -311,7 +311,7 @@ def remedy_none(dm, ctx):
 
 def remedy_none_drop_incomplete(dm, ctx):
     """Leave out every taxon with a missing entry, worst first (``run``'s "measured" tree)."""
-    from seqdist.trees.impact import incomplete_taxa
+    from seqdist.impact.compare import incomplete_taxa
 
     return _leave_out(dm, incomplete_taxa(dm))
 
@@ -331,7 +331,7 @@ def remedy_planted(dm, ctx):
 
 
 def remedy_suspects(dm, ctx):
-    """Leave out every taxon in ``suspect_taxa`` (above the threshold of seqdist.suspects)."""
+    """Leave out every taxon in ``suspect_taxa`` (above the threshold of seqdist.audit.suspects)."""
     above, _ = suspects_of(dm, ctx)
     return _leave_out(dm, above)
 
@@ -378,7 +378,7 @@ def remedy_fewest_taxa(dm, ctx):
     Shrink only fills the missing entries of what is left (a metric needs no
     other change), so the rest of the matrix is the measured one.
     """
-    from seqdist.errors import InputError
+    from seqdist.core.errors import InputError
     from seqdist.repair import repair
 
     try:
@@ -423,7 +423,7 @@ DESCRIPTIONS = {
     "l2_weighted": "repair, objective l2, inverse-variance weights",
     "l1": "repair, objective l1 (unweighted)",
     "leave_out_audit_top_k": "leave out the audit's k worst taxa by violated triangles (k = taxa planted)",
-    "leave_out_suspects": "leave out the taxa in suspect_taxa (seqdist.suspects with the alignment, as run has it)",
+    "leave_out_suspects": "leave out the taxa in suspect_taxa (seqdist.audit.suspects with the alignment, as run has it)",
     "leave_out_suspects_matrix": "leave out the suspects found from the matrix alone (as repair and audit have it)",
     "leave_out_fewest_taxa": "leave out the fewest taxa whose removal leaves a metric (repair leave_out='fewest')",
     "suspects_then_l2_weighted": "leave out the suspects (as run picks them), then l2 with inverse-variance weights",
@@ -504,7 +504,7 @@ def run_replicate(scenario: str, index: int, seed: int = 1, alpha: float | None 
     The record holds the scenario, replicate number, kappa, planted taxa,
     undefined pairs, and per remedy either ``{"left_out": [...], "nj": {"rf",
     "n", "rf_norm"}, ...}`` or ``{"skipped": note}``; plus the planted taxa's
-    ranks by the audit and (when seqdist.suspects exists) by the suspects.
+    ranks by the audit and (when seqdist.audit.suspects exists) by the suspects.
     No clock time is recorded: the record depends only on the inputs.
 
     Examples
@@ -513,7 +513,7 @@ def run_replicate(scenario: str, index: int, seed: int = 1, alpha: float | None 
     >>> 0 <= rec["remedies"]["none"]["nj"]["rf_norm"] <= 1  # doctest: +SKIP
     True
     """
-    from seqdist.errors import SeqdistWarning
+    from seqdist.core.errors import SeqdistWarning
     from seqdist.trees.build import build_tree
 
     names = list(REMEDIES) if remedies is None else list(remedies)

@@ -1,0 +1,23 @@
+"""``seqdist convert``: read, validate and rewrite a matrix in another format."""
+
+from __future__ import annotations
+
+from seqdist.io.matrices import read_matrix, write_matrix
+from seqdist.cli.commands._shared import add_matrix_in, add_matrix_out, add_subcommand
+
+
+def register(subs, common):
+    p = add_subcommand(subs, common, "convert", "validate a distance matrix and write it in another format",
+                       "Reads a matrix file (tsv, csv, square or lower), checks it (square, unique labels,\n"
+                       "symmetric, zero diagonal, non-negative) and writes it in the chosen format.\n\n"
+                       "example:\n  seqdist convert dist.tsv -o dist.phy --out-format square")
+    p.add_argument("matrix", help="input matrix file ('-' for standard input)")
+    add_matrix_in(p)
+    add_matrix_out(p)
+    p.set_defaults(func=_run)
+
+
+def _run(args) -> int:
+    dm = read_matrix(args.matrix, args.in_format)
+    write_matrix(args.out, dm, args.out_format)
+    return 0

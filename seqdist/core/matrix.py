@@ -1,0 +1,290 @@
+"""The labelled distance matrix at the bottom of the package.
+
+A :class:`DistanceMatrix` is a tuple of labels plus a square float64 array.
+Missing entries are NaN; a distance of 0 is a real value (identical
+sequences). All validation of outside data happens in one place,
+:meth:`DistanceMatrix.from_array`, and every failure names the label or pair.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Iterable, Sequence
+
+import numpy as np
+
+from seqdist.core.errors import InputError
+
+__all__ = ["default_tol", "bad_label_char", "DistanceMatrix"]
+
+
+def default_tol(values: np.ndarray) -> float:
+    """The contract's default tolerance: 1e-9 times the largest finite entry.
+
+    Examples
+    --------
+    >>> default_tol(np.array([[0.0, 2.0], [2.0, 0.0]]))
+    2e-09
+    """
+    finite = values[np.isfinite(values)]
+    top = float(np.max(np.abs(finite))) if finite.size else 0.0
+    return 1e-9 * top
+
+
+def bad_label_char(label: str) -> str | None:
+    r"""The first control character of a label (line break, escape, bell...), or None.
+
+    Control characters (Unicode category Cc) and the Unicode line and
+    paragraph separators would break line-based files and messages that show
+    the label, so labels may not hold them. A tab is the one exception: tsv
+    and csv files quote it, Newick quotes it, and the square formats refuse
+    white space in labels with their own message.
+
+    Examples
+    --------
+    >>> bad_label_char("taxon 1"), bad_label_char("a\nb"), bad_label_char("a\tb")
+    (None, '\n', None)
+    """
+    if label.isprintable():  # the common case, fast
+        return None
+    import unicodedata
+
+    for ch in label:
+        if ch != "\t" and unicodedata.category(ch) in ("Cc", "Zl", "Zp"):
+            return ch
+    return None
+
+
+def _where(source: str | None) -> str:
+    return f"{source}: " if source else ""
+
+
+@dataclass(frozen=True, eq=False)
+class DistanceMatrix:
+    """Labels plus a symmetric, zero-diagonal, non-negative float64 array.
+
+    Build one from outside data with :meth:`from_array` or
+    :meth:`from_frame`, which validate. The array is read-only; derive new
+    matrices with :meth:`with_values`.
+
+    Examples
+    --------
+    >>> dm = DistanceMatrix.from_array([[0, 1], [1, 0]], ["a", "b"])
+    >>> dm["a", "b"]
+    1.0
+    >>> dm.condensed()
+    array([1.])
+    """
+
+    labels: tuple
+    values: np.ndarray
+
+    # -- construction ----------------------------------------------------
+    @classmethod
+    def from_array(cls, values, labels: Sequence[str] | None = None, *, source: str | None = None,
+                   col_labels: Sequence[str] | None = None, sym_tol: float | None = None) -> "DistanceMatrix":
+        """Validate outside data and build a matrix.
+
+        Parameters
+        ----------
+        values : array_like, shape (n, n)
+            Distances; NaN marks a missing entry.
+        labels : sequence of str, optional
+            Row labels (default ``t0 .. t{n-1}``).
+        source : str, optional
+            Where the data came from (a file name), used in error messages.
+        col_labels : sequence of str, optional
+            Column labels when they were read separately; they must equal
+            ``labels``.
+        sym_tol : float, optional
+            Tolerance for symmetry and the zero diagonal (default: 1e-9 times
+            the largest entry, plus a tiny absolute floor). Entries within it
+            are averaged to exact symmetry.
+
+        Raises
+        ------
+        InputError
+            Not square, labels not unique, empty or holding a control
+            character (see :func:`bad_label_char`), rows and columns differ,
+            asymmetric, non-zero diagonal, negative or infinite entries.
+
+        Examples
+        --------
+        >>> DistanceMatrix.from_array([[0, 2], [2, 0]], ["x", "y"]).n
+        2
+        """
+        where = _where(source)
+        try:
+            arr = np.array(values, dtype=np.float64)
+        except (TypeError, ValueError) as exc:
+            raise InputError(f"{where}values are not numeric ({exc})") from None
+        if arr.ndim != 2 or arr.shape[0] != arr.shape[1]:
+            raise InputError(f"{where}matrix is not square (shape {arr.shape})")
+        n = arr.shape[0]
+        if n == 0:
+            raise InputError(f"{where}matrix is empty")
+        if labels is None:
+            labels = [f"t{i}" for i in range(n)]
+        labels = tuple(str(x) for x in labels)
+        if len(labels) != n:
+            raise InputError(f"{where}{len(labels)} labels for a {n} x {n} matrix")
+        if col_labels is not None:
+            col_labels = tuple(str(x) for x in col_labels)
+            if len(col_labels) != n:
+                raise InputError(f"{where}{len(col_labels)} column labels for {n} rows")
+            for i, (r, c) in enumerate(zip(labels, col_labels)):
+                if r != c:
+                    raise InputError(f"{where}row and column labels differ at position {i + 1}: "
+                                     f"row '{r}', column '{c}'")
+        seen: dict[str, int] = {}
+        for i, lab in enumerate(labels):
+            if lab == "":
+                raise InputError(f"{where}empty label at position {i + 1}")
+            bad = bad_label_char(lab)
+            if bad is not None:
+                from seqdist.core.console import one_line
+
+                raise InputError(f"{where}label '{one_line(lab)}' at position {i + 1} holds a control character "
+                                 f"({one_line(bad)}); labels must be printable text")
+            if lab in seen:
+                raise InputError(f"{where}duplicate label '{lab}' (positions {seen[lab] + 1} and {i + 1})")
+            seen[lab] = i
+        if np.isinf(arr).any():
+            i, j = np.argwhere(np.isinf(arr))[0]
+            raise InputError(f"{where}entry ({labels[i]}, {labels[j]}) is infinite; "
+                             "write a missing entry (empty cell or NA) instead")
+        nan = np.isnan(arr)
+        diag = np.diagonal(arr)
+        if np.isnan(diag).any():
+            i = int(np.flatnonzero(np.isnan(diag))[0])
+            raise InputError(f"{where}diagonal entry of '{labels[i]}' is missing; it must be 0")
+        if (arr[~nan] < 0).any():
+            neg = np.argwhere(np.where(nan, 0.0, arr) < 0)
+            i, j = neg[0]
+            raise InputError(f"{where}negative entry {float(arr[i, j])!r} at ({labels[i]}, {labels[j]})")
+        if sym_tol is None:
+            sym_tol = default_tol(arr) + 1e-12
+        bad = np.abs(diag) > sym_tol
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            raise InputError(f"{where}non-zero diagonal entry {float(diag[i])!r} for '{labels[i]}'")
+        nan_asym = nan != nan.T
+        if nan_asym.any():
+            i, j = np.argwhere(nan_asym)[0]
+            present = (i, j) if not nan[i, j] else (j, i)
+            raise InputError(f"{where}asymmetric: ({labels[present[0]]}, {labels[present[1]]}) = "
+                             f"{float(arr[present])!r} but ({labels[present[1]]}, {labels[present[0]]}) is missing")
+        diff = np.abs(np.where(nan, 0.0, arr - arr.T))
+        if (diff > sym_tol).any():
+            i, j = np.unravel_index(int(np.argmax(diff)), diff.shape)
+            raise InputError(f"{where}asymmetric: ({labels[i]}, {labels[j]}) = {float(arr[i, j])!r} but "
+                             f"({labels[j]}, {labels[i]}) = {float(arr[j, i])!r}")
+        if diff.any():
+            arr = 0.5 * (arr + arr.T)
+        np.fill_diagonal(arr, 0.0)
+        return cls._trusted(arr, labels)
+
+    @classmethod
+    def _trusted(cls, arr: np.ndarray, labels: Iterable[str]) -> "DistanceMatrix":
+        """Wrap an array already known to be valid (no checks; internal)."""
+        # A read-only view: callers hand over the array and must not keep writing to it.
+        arr = np.ascontiguousarray(arr, dtype=np.float64).view()
+        arr.setflags(write=False)
+        return cls(tuple(labels), arr)
+
+    @classmethod
+    def from_frame(cls, frame, *, source: str | None = None) -> "DistanceMatrix":
+        """Build from a pandas DataFrame indexed and columned by label.
+
+        Examples
+        --------
+        >>> import pandas as pd
+        >>> f = pd.DataFrame([[0, 3], [3, 0]], index=["a", "b"], columns=["a", "b"])
+        >>> DistanceMatrix.from_frame(f)["b", "a"]
+        3.0
+        """
+        return cls.from_array(frame.to_numpy(dtype=np.float64, na_value=np.nan), list(frame.index),
+                              col_labels=list(frame.columns), source=source)
+
+    @classmethod
+    def from_condensed(cls, vector, labels: Sequence[str], *, source: str | None = None) -> "DistanceMatrix":
+        """Build from the upper triangle read row by row (scipy's condensed form).
+
+        Examples
+        --------
+        >>> DistanceMatrix.from_condensed([1, 2, 3], ["a", "b", "c"])["b", "c"]
+        3.0
+        """
+        v = np.asarray(vector, dtype=np.float64)
+        n = len(labels)
+        if v.shape != (n * (n - 1) // 2,):
+            raise InputError(f"{_where(source)}condensed vector of length {v.size} does not fit {n} labels")
+        arr = np.zeros((n, n))
+        iu = np.triu_indices(n, 1)
+        arr[iu] = v
+        arr[(iu[1], iu[0])] = v
+        return cls.from_array(arr, labels, source=source)
+
+    # -- views -----------------------------------------------------------
+    @property
+    def n(self) -> int:
+        return len(self.labels)
+
+    def __len__(self) -> int:
+        return self.n
+
+    def __repr__(self) -> str:
+        return f"DistanceMatrix(n={self.n}, missing={self.missing_count()})"
+
+    def index(self, label: str) -> int:
+        """Position of a label (raises :class:`InputError` when absent)."""
+        try:
+            return self._index_map()[label]
+        except KeyError:
+            raise InputError(f"unknown label '{label}'") from None
+
+    def _index_map(self) -> dict:
+        cache = self.__dict__.get("_idx")
+        if cache is None:
+            cache = {lab: i for i, lab in enumerate(self.labels)}
+            object.__setattr__(self, "_idx", cache)
+        return cache
+
+    def __getitem__(self, pair) -> float:
+        a, b = pair
+        return float(self.values[self.index(a), self.index(b)])
+
+    def missing_mask(self) -> np.ndarray:
+        """Boolean (n, n) array, True where the entry is missing."""
+        return np.isnan(self.values)
+
+    def missing_count(self) -> int:
+        """Number of missing unordered pairs."""
+        return int(np.isnan(self.values).sum() // 2)
+
+    @property
+    def has_missing(self) -> bool:
+        return bool(np.isnan(self.values).any())
+
+    def condensed(self) -> np.ndarray:
+        """The upper triangle row by row (scipy's condensed distance vector)."""
+        return self.values[np.triu_indices(self.n, 1)].copy()
+
+    def to_frame(self):
+        """A pandas DataFrame with the labels as index and columns."""
+        import pandas as pd
+
+        return pd.DataFrame(np.array(self.values), index=list(self.labels), columns=list(self.labels))
+
+    def with_values(self, values: np.ndarray) -> "DistanceMatrix":
+        """Same labels, new values (validated like outside data)."""
+        return DistanceMatrix.from_array(values, self.labels)
+
+    def subset(self, labels: Sequence[str]) -> "DistanceMatrix":
+        """The sub-matrix over the given labels, in that order."""
+        idx = np.array([self.index(lab) for lab in labels], dtype=np.intp)
+        return DistanceMatrix._trusted(self.values[np.ix_(idx, idx)], labels)
+
+    def equals(self, other: "DistanceMatrix") -> bool:
+        """Same labels in the same order and the same values (NaN equal to NaN)."""
+        return self.labels == other.labels and np.array_equal(self.values, other.values, equal_nan=True)

@@ -1,0 +1,6 @@
+"""What a matrix change does to the tree: comparisons on one taxon set, and bootstrap support."""
+
+from seqdist.impact.compare import ImpactResult, impact, remedy_table
+from seqdist.impact.support import add_support, split_support
+
+__all__ = ["impact", "ImpactResult", "remedy_table", "add_support", "split_support"]

@@ -1,0 +1,450 @@
+"""Shared machinery of the convex repair objectives :mod:`.l1` and :mod:`.l2`.
+
+* :class:`Setup` - the optimisation graph ``G`` (observed entries with a
+  positive weight, locked entries included; entries of weight 0 and missing
+  entries are left out, see below), the weights and the box ``[0, M]``.
+* :class:`Pool` - the stored constraints and their duals: triangle keys and
+  cycle constraints (only needed when ``G`` is not complete), with
+  "forgetting" of constraints whose dual is 0 and which are satisfied.
+* :func:`find_violations` - the separation oracle: a full scan of the
+  triangles of ``G``, plus shortest paths over ``G`` for violated cycles
+  through left-out entries.
+* :func:`feasible_point` - turns any iterate into a complete metric that
+  keeps the locks (shortest-path closure over ``G``, then a blend with a
+  lock-keeping metric if a locked entry ended up too long, then entries of
+  weight 0 moved as close to their input as the rest allows).
+* :func:`bound_l2` / :func:`bound_l1` - Lagrangian lower bounds at any
+  non-negative duals (derivations in docs/repair_convex.md).
+
+Why entries of weight 0 and missing entries are left out of ``G``: they have
+no cost, so a vector on ``G`` is part of an optimal metric exactly when it
+can be completed to a metric, i.e. when no entry of ``G`` is longer than a
+path of ``G`` between its ends (the cycle inequalities of ``G``). Shortest
+paths over ``G`` give the completion. For a complete ``G`` the cycle
+inequalities reduce to the triangle inequalities.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from seqdist.kernels import convex as K
+
+
+@dataclass
+class Setup:
+    n: int
+    D: np.ndarray          # input, NaN where missing
+    d: np.ndarray          # input on G (upper triangle), 0 elsewhere
+    w: np.ndarray          # weights on G (upper triangle; inf locked), 0 elsewhere
+    winv: np.ndarray       # 1 / w on G (0 locked and off G)
+    G: np.ndarray          # symmetric bool: in the optimisation graph
+    full: bool             # G is the complete graph
+    locked: np.ndarray     # symmetric bool
+    observed: np.ndarray
+    M: float               # an optimal solution exists with every entry in [0, M]
+    gi: np.ndarray         # upper-triangle indices of G
+    gj: np.ndarray
+    free_i: np.ndarray     # observed entries of weight 0 (upper), moved last
+    free_j: np.ndarray
+    thr: float             # violations below this are numerical noise
+
+
+def rescale_solution(sol, a: int, b: int, power: int):
+    """The :class:`~.problem.Solution` of a problem rescaled by :func:`.problem.rescaled`, scaled back.
+
+    Distances were multiplied by ``2**a`` and weights by ``2**b``; the
+    objective is homogeneous of degree ``power`` in the distances (1 for l1,
+    2 for l2) and 1 in the weights. Powers of two make this exact.
+    """
+    if a == 0 and b == 0:
+        return sol
+    k = -(b + power * a)
+    sol.X = np.ldexp(sol.X, -a)
+    sol.objective_value = float(np.ldexp(sol.objective_value, k))
+    sol.lower_bound = float(np.ldexp(sol.lower_bound, k))
+    for key in ("gap", "certified_lower_bound"):
+        if key in sol.details:
+            sol.details[key] = float(np.ldexp(sol.details[key], k))
+    sol.details["scaled_by"] = {"distances": float(np.ldexp(1.0, a)), "weights": float(np.ldexp(1.0, b))}
+    return sol
+
+
+def setup(problem) -> Setup:
+    """Build the optimisation graph and arrays from a :class:`RepairProblem`."""
+    D = np.asarray(problem.D, dtype=np.float64)
+    n = D.shape[0]
+    if n >= K.MAX_N:
+        raise ValueError(f"n = {n} is too large for the convex objectives")
+    W = np.asarray(problem.weights, dtype=np.float64)
+    # a weight below 1e-290 times the largest cannot move any sum in floating
+    # point that involves the others (and 1 / w would overflow): it counts as 0
+    fw = W[np.isfinite(W) & (W > 0)]
+    if fw.size:
+        W = np.where(np.isfinite(W) & (W < 1e-290 * float(fw.max())), 0.0, W)
+    obs = np.asarray(problem.observed, dtype=bool).copy()
+    np.fill_diagonal(obs, False)
+    locked = np.asarray(problem.locked, dtype=bool) & obs
+    G = obs & ((W > 0) | locked)
+    up = np.triu(np.ones((n, n), dtype=bool), 1)
+    d = np.where(G & up, np.nan_to_num(D, nan=0.0), 0.0)
+    d = np.maximum(d, 0.0)
+    w = np.where(G & up, np.where(locked, np.inf, W), 0.0)
+    winv = np.where(G & up & ~locked, 1.0 / np.where(w > 0, w, 1.0), 0.0)
+    gi, gj = np.nonzero(G & up)
+    fi, fj = np.nonzero(obs & ~G & up)
+    M = float(d[gi, gj].max()) if gi.size else 0.0
+    full = bool(gi.size == n * (n - 1) // 2)
+    thr = 1e-13 * max(M, 1e-300)
+    return Setup(n=n, D=D, d=d, w=w, winv=winv, G=G, full=full, locked=locked, observed=obs, M=M,
+                 gi=gi, gj=gj, free_i=fi, free_j=fj, thr=thr)
+
+
+# work of one triangle in a full scan against one constraint in a sweep
+# (measured: about 7 ns against 10-13 ns per item on these machines)
+SCAN_PER_SWEEP = 0.5
+
+# ------------------------------------------------------------ work model
+# Cost of each counted step in reference seconds (problem.REFERENCE_MACHINE),
+# measured once there and fixed: budgets are spent by these counts, never by
+# the clock, so the same input and options give the same iterates and the
+# same answer on any machine and under any load.
+SCAN_PER_TRIANGLE = 1.5e-8     # full triangle scan (two threads), per triangle C(n, 3)
+L2_PER_CONSTRAINT = 1e-8       # one Hildreth update (sweep_l2_tri), per triangle constraint
+L1_PER_CONSTRAINT = 9e-8       # one exact line maximisation (sweep_l1_tri), per triangle constraint
+PER_CYCLE_EDGE = 5e-9          # cycle constraints, per edge of the cycle (either sweep)
+CERTIFICATE_PER_N3 = 8e-10     # feasible point + bound (a shortest-path closure), per n^3
+CG_PER_CONSTRAINT = 2e-8       # one conjugate-gradient product (polish), per constraint
+ROUND = 2e-3                   # fixed part of one round (Python, small arrays)
+SCAN_CALL = 5e-3               # fixed part of one scan (starting the threads, merging the pool)
+# the l1 LP's HiGHS calls are counted as those of fewest and grow
+from seqdist.repair.kept_sets import LP_CALL, LP_ITER_PER_NZ  # noqa: E402
+
+__all__ = ["Setup", "rescale_solution", "setup", "scan_cost", "certificate_cost", "sweep_cost", "sweeps_per_round",
+           "run_context", "Pool", "find_violations", "feasible_point", "objective_l2", "objective_l1", "bound_l2",
+           "bound_l1", "relative_gap", "output_matrix"]
+
+
+def scan_cost(S) -> float:
+    """Counted work of one separation: the triangle scan, plus shortest paths when G is not complete."""
+    n = float(S.n)
+    c = SCAN_CALL + SCAN_PER_TRIANGLE * n * (n - 1) * (n - 2) / 6.0
+    if not S.full:
+        c += CERTIFICATE_PER_N3 * n ** 3
+    return c
+
+
+def certificate_cost(S) -> float:
+    """Counted work of one certificate (feasible point and bound) and the round around it."""
+    return ROUND + CERTIFICATE_PER_N3 * float(S.n) ** 3
+
+
+def sweep_cost(pool, per_constraint: float) -> float:
+    """Counted work of one sweep over the pool."""
+    return per_constraint * pool.keys.size + PER_CYCLE_EDGE * pool.edges.size
+
+
+def sweeps_per_round(n: int, pool_size: int, max_sweeps: int = 256) -> int:
+    """Sweeps over the pool between two scans: about one scan's work.
+
+    A pure function of sizes (no clock), so runs are reproducible.
+
+    >>> sweeps_per_round(500, 8_000_000), sweeps_per_round(500, 100_000)
+    (2, 104)
+    """
+    triangles = n * (n - 1) * (n - 2) / 6.0
+    return int(min(max_sweeps, max(2, round(SCAN_PER_SWEEP * triangles / max(pool_size, 1)))))
+
+
+def run_context(problem, name: str, declared: dict):
+    """Start-up shared by the convex solvers: ``(t0, options, budget, log)``.
+
+    ``options`` are the validated options (:func:`.problem.validate_options`
+    against ``declared``); ``budget`` is the work budget of ``time_limit``
+    (reference seconds; never the clock); ``log`` prints a timed line on
+    standard error when the ``verbose`` option is set (the time is shown,
+    never used for a decision). ``t0`` is for the report's ``seconds`` only.
+    """
+    import sys
+    import time
+
+    from seqdist.repair.problem import validate_options
+
+    t0 = time.perf_counter()
+    opts = validate_options(name, declared, problem.options)
+    budget = problem.budget()
+    verbose = opts.get("verbose", False)
+
+    def log(msg):
+        if verbose:
+            print(f"[{name} {time.perf_counter() - t0:7.2f}s] {msg}", file=sys.stderr, flush=True)
+
+    return t0, opts, budget, log
+
+
+# ------------------------------------------------------------ constraints and duals
+@dataclass
+class Pool:
+    """Stored constraints with their duals (triangles as keys, cycles in CSR form)."""
+
+    n: int
+    keys: np.ndarray = field(default_factory=lambda: np.empty(0, np.int64))
+    lam: np.ndarray = field(default_factory=lambda: np.empty(0))
+    ptr: np.ndarray = field(default_factory=lambda: np.zeros(1, np.int64))
+    edges: np.ndarray = field(default_factory=lambda: np.empty(0, np.int64))
+    clam: np.ndarray = field(default_factory=lambda: np.empty(0))
+    _seen: set = field(default_factory=set)
+
+    @property
+    def size(self) -> int:
+        return int(self.keys.size + self.clam.size)
+
+    @property
+    def nonzero(self) -> int:
+        return int((self.lam > 0).sum() + (self.clam > 0).sum())
+
+    @property
+    def cycles(self) -> int:
+        return int(self.clam.size)
+
+    def copy(self) -> "Pool":
+        return Pool(self.n, self.keys.copy(), self.lam.copy(), self.ptr.copy(), self.edges.copy(),
+                    self.clam.copy(), set(self._seen))
+
+    def add(self, new_keys: np.ndarray, new_cycles=None) -> int:
+        """Merge new violated constraints in; forget satisfied ones with dual 0.
+
+        Returns how many constraints were not in the pool before."""
+        self.keys, self.lam, added = K.merge_active(self.keys, self.lam, new_keys)
+        if new_cycles is not None or self.clam.size:
+            before = self.clam.size
+            self._merge_cycles(new_cycles)
+            added += max(0, self.clam.size - before)
+        return int(added)
+
+    def _merge_cycles(self, new_cycles) -> None:
+        ptr, edges, lam = self.ptr, self.edges, self.clam
+        keep = [t for t in range(lam.size) if lam[t] > 0]
+        segs = [edges[ptr[t]:ptr[t + 1]] for t in keep]
+        lams = [lam[t] for t in keep]
+        seen = {tuple(s.tolist()) for s in segs}
+        if new_cycles is not None:
+            nptr, nedges = new_cycles
+            for t in range(nptr.size - 1):
+                seg = nedges[nptr[t]:nptr[t + 1]]
+                key = tuple(seg.tolist())
+                if key not in seen:
+                    seen.add(key)
+                    segs.append(seg)
+                    lams.append(0.0)
+        self.ptr = np.zeros(len(segs) + 1, np.int64)
+        if segs:
+            self.ptr[1:] = np.cumsum([s.size for s in segs])
+            self.edges = np.concatenate(segs).astype(np.int64)
+        else:
+            self.edges = np.empty(0, np.int64)
+        self.clam = np.array(lams, dtype=np.float64)
+        self._seen = seen
+
+    def positive(self) -> "Pool":
+        """The constraints with a positive dual."""
+        out = Pool(self.n)
+        m = self.lam > 0
+        out.keys, out.lam = self.keys[m].copy(), self.lam[m].copy()
+        if self.clam.size:
+            out.ptr, out.edges, out.clam = self.ptr.copy(), self.edges.copy(), self.clam.copy()
+            out._merge_cycles(None)
+        return out
+
+    def accumulate(self, lam=None, clam=None) -> np.ndarray:
+        """``A^T lam`` as an upper-triangular (n, n) array."""
+        c = np.zeros((self.n, self.n))
+        K.accumulate_tri(self.keys, self.lam if lam is None else lam, c)
+        if self.clam.size:
+            K.accumulate_cyc(self.ptr, self.edges, self.clam if clam is None else clam, c.reshape(-1))
+        return c
+
+    def apply(self, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``A y`` split into the triangle and the cycle parts."""
+        r1 = K.apply_tri(self.keys, y)
+        r2 = K.apply_cyc(self.ptr, self.edges, y.reshape(-1)) if self.clam.size else np.empty(0)
+        return r1, r2
+
+    def denominators(self, winv: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``a^T W^-1 a`` per constraint."""
+        r1 = K.denominators_tri(self.keys, winv)
+        if self.clam.size:
+            wf = winv.reshape(-1)[self.edges]
+            r2 = np.add.reduceat(wf, self.ptr[:-1]) if self.edges.size else np.empty(0)
+        else:
+            r2 = np.empty(0)
+        return r1, r2
+
+
+def find_violations(x: np.ndarray, S: Setup, pool: Pool | None = None, max_cycles: int | None = None):
+    """Violated constraints of the iterate ``x``: triangle keys and cycles (or None).
+
+    Cycles are searched only when ``G`` is not complete: shortest paths over
+    ``G`` (:func:`seqdist.kernels.shortest_paths.apsp`) find every entry longer than a path
+    between its ends; a Dijkstra per source reads the paths, and those with
+    three or more edges (through left-out entries) become cycle constraints.
+    """
+    keys = K.violated_triangles(x, S.G, S.full, S.thr)
+    if S.full:
+        return keys, None
+    from seqdist.kernels.shortest_paths import apsp
+
+    Wg = np.where(S.G, _sym(x), np.inf)
+    np.fill_diagonal(Wg, 0.0)
+    A = apsp(Wg)
+    xv = _sym(x)
+    viol = np.triu(S.G, 1) & (xv - A > S.thr)
+    si, sj = np.nonzero(viol)
+    if si.size == 0:
+        return keys, None
+    if max_cycles is None:
+        max_cycles = 4 * S.n + 100
+    if si.size > max_cycles:
+        amount = (xv - A)[si, sj]
+        top = np.sort(np.argsort(-amount, kind="stable")[:max_cycles])
+        si, sj = si[top], sj[top]
+    ptr, edges = K.violated_cycles(Wg, si.astype(np.int64), sj.astype(np.int64), 3)
+    if ptr.size <= 1:
+        return keys, None
+    return keys, (ptr, edges)
+
+
+def _sym(x: np.ndarray) -> np.ndarray:
+    u = np.triu(x, 1)
+    return u + u.T
+
+
+# ------------------------------------------------------------ a feasible point
+def feasible_point(x: np.ndarray, S: Setup) -> tuple[np.ndarray, dict]:
+    """A complete metric near the iterate ``x`` that keeps every lock exactly.
+
+    1. Shortest paths over ``G`` with the iterate's values (locked entries at
+       their input): every unlocked entry then lies on a shortest path, and
+       pairs of different connected groups get the largest finite distance
+       (which keeps the matrix a metric).
+    2. Locked entries are set back to their input. If one is now longer than
+       a path between its ends (the iterate was not exactly feasible), the
+       matrix is blended with a metric ``Z`` that keeps the locks (shortest
+       paths over the locked entries, a large constant elsewhere) by the
+       smallest step that restores every triangle.
+    3. Observed entries of weight 0 move, one at a time, as close to their
+       input as the triangle inequalities with all other entries allow.
+    """
+    from seqdist.kernels.shortest_paths import apsp
+
+    n = S.n
+    info = {"blend": 0.0}
+    W = np.where(S.G, _sym(x), np.inf)
+    W[S.locked] = S.D[S.locked]
+    np.fill_diagonal(W, 0.0)
+    Y = apsp(W)
+    fin = np.isfinite(Y)
+    C = float(Y[fin].max()) if fin.any() else 0.0
+    if not fin.all():
+        Y[~fin] = C
+    if S.locked.any():
+        short = float((S.D[S.locked] - Y[S.locked]).max())
+        Y[S.locked] = S.D[S.locked]
+        if short > 0.0:
+            H = max(C, float(S.D[S.locked].max()))
+            WZ = np.where(S.locked, S.D, H)
+            np.fill_diagonal(WZ, 0.0)
+            Z = apsp(WZ)
+            Z[S.locked] = S.D[S.locked]
+            t = K.blend_step(Y, Z)
+            if t > 0.0:
+                # a hair more than the exact step, against rounding
+                t = min(1.0, t * (1 + 1e-9) + 1e-15)
+                Y = (1.0 - t) * Y + t * Z
+                Y[S.locked] = S.D[S.locked]
+            info["blend"] = t
+    np.fill_diagonal(Y, 0.0)
+    if S.free_i.size:
+        K.clamp_free(Y, S.free_i.astype(np.int64), S.free_j.astype(np.int64), S.D[S.free_i, S.free_j])
+    Y = 0.5 * (Y + Y.T)
+    return Y, info
+
+
+# ------------------------------------------------------------ objectives and bounds
+def objective_l2(Y: np.ndarray, S: Setup) -> float:
+    """``sum w (Y - D)^2`` over the costed entries (upper triangle; locks excluded)."""
+    m = np.isfinite(S.w[S.gi, S.gj])
+    dd = Y[S.gi, S.gj][m] - S.d[S.gi, S.gj][m]
+    return float((S.w[S.gi, S.gj][m] * dd * dd).sum())
+
+
+def objective_l1(Y: np.ndarray, S: Setup) -> float:
+    """``sum w |Y - D|`` over the costed entries (upper triangle; locks excluded)."""
+    m = np.isfinite(S.w[S.gi, S.gj])
+    dd = Y[S.gi, S.gj][m] - S.d[S.gi, S.gj][m]
+    return float((S.w[S.gi, S.gj][m] * np.abs(dd)).sum())
+
+
+def _safe(terms: np.ndarray) -> float:
+    # the sum, lowered by a bound on its rounding error (pairwise summation)
+    return float(terms.sum() - 1e-13 * np.abs(terms).sum())
+
+
+def bound_l2(c: np.ndarray, S: Setup) -> float:
+    """Lagrangian lower bound on ``min sum w (x - d)^2`` at duals with ``A^T lam = c / 2``.
+
+    ``c`` is ``A^T lam`` for the problem ``min 1/2 sum w (x - d)^2`` (Hildreth's
+    scaling); for the reported objective (without the 1/2) the bound is
+    ``sum_e min_{0 <= x <= M} [w (x - d)^2 + 2 c x]`` (locked entries: ``2 c d``).
+    """
+    cc = c[S.gi, S.gj]
+    dd = S.d[S.gi, S.gj]
+    ww = S.w[S.gi, S.gj]
+    lk = ~np.isfinite(ww)
+    wf = np.where(lk, 1.0, ww)
+    with np.errstate(over="ignore"):  # c / w for a tiny weight: +-inf, clipped to the box
+        xs = np.clip(dd - cc / wf, 0.0, S.M)
+    terms = np.where(lk, 2.0 * cc * dd, wf * (xs - dd) ** 2 + 2.0 * cc * xs)
+    return _safe(terms)
+
+
+def bound_l1(c: np.ndarray, S: Setup, off_graph: bool = False) -> float:
+    """Lagrangian lower bound on ``min sum w |x - d|`` at duals with ``A^T lam = c``:
+    ``sum_e min_{0 <= x <= M} [w |x - d| + c x]`` (locked entries: ``c d``).
+
+    With ``off_graph`` the duals may also touch entries outside ``G`` (free
+    variables of a complete-graph LP): each adds ``min(0, c M)``.
+    """
+    cc = c[S.gi, S.gj]
+    dd = S.d[S.gi, S.gj]
+    ww = S.w[S.gi, S.gj]
+    lk = ~np.isfinite(ww)
+    wf = np.where(lk, 0.0, ww)
+    low = np.minimum(0.0, np.minimum((wf + cc) * (S.M - dd), (wf - cc) * dd))
+    terms = cc * dd + np.where(lk, 0.0, low)
+    if off_graph:
+        off = np.triu(~S.G, 1)
+        terms = np.concatenate([terms, np.minimum(0.0, c[off]) * S.M])
+    return _safe(terms)
+
+
+def relative_gap(p: float, g: float) -> float:
+    """``(p - g) / p`` (0 when ``p - g <= 0``)."""
+    gap = p - g
+    if gap <= 0:
+        return 0.0
+    # below 1e-300 values are at the end of floating point (subnormal from
+    # 2.2e-308): an absolute gap under gap_tol * 1e-300 counts as closed
+    return float(gap / max(abs(p), 1e-300))
+
+
+def output_matrix(Y: np.ndarray, S: Setup) -> np.ndarray:
+    """The solution handed to the engine: observed entries of ``Y``, NaN where missing."""
+    X = np.array(Y, dtype=np.float64)
+    miss = ~S.observed
+    np.fill_diagonal(miss, False)
+    X[miss] = np.nan
+    np.fill_diagonal(X, 0.0)
+    return X
