@@ -15,13 +15,11 @@ import platform
 import time
 from dataclasses import dataclass, field
 
-import numpy as np
-
 from seqdist import __version__
 from seqdist.core.console import info
-from seqdist.models.distances import inverse_variance_weights  # noqa: F401  (the weights of --weighted; public here too)
 from seqdist.core.errors import InputError
-from seqdist.repair.engine import WEIGHTED_OBJECTIVES
+from seqdist.models.distances import inverse_variance_weights  # noqa: F401  (the weights of --weighted; public here too)
+from seqdist.repair.registry import WEIGHTED_OBJECTIVES
 
 __all__ = ["JobResult", "split_times", "check_outdir", "unmeasured_reasons", "rres_unmeasured",
            "suspects_to_leave_out", "command_line", "run_job", "left_out_section", "suspects_section", "job_section"]
@@ -61,6 +59,9 @@ FILES = {
 @dataclass
 class JobResult:
     """What :func:`run_job` did: the output folder, file paths and the step reports."""
+
+    def __repr__(self) -> str:
+        return f"JobResult(outdir={self.outdir!r}, files={len(self.files)})"
 
     outdir: str
     files: dict
@@ -302,15 +303,15 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     >>> r.repair["changed_entries"]  # doctest: +SKIP
     0
     """
-    from seqdist.io.alignment import read_alignment
     from seqdist.audit.report import audit
-    from seqdist.models.distances import pairwise_distances, undefined_message
-    from seqdist.io.matrices import OutputSet, format_matrix
-    from seqdist.repair import repair
-    from seqdist.trees.build import build_tree
-    from seqdist.report.html import render_html
     from seqdist.impact.compare import impact, remedy_table
+    from seqdist.io.alignment import read_alignment
+    from seqdist.io.matrices import OutputSet, format_matrix
     from seqdist.io.newick import read_newick_file
+    from seqdist.models.distances import pairwise_distances, undefined_message
+    from seqdist.repair import repair
+    from seqdist.report.html import render_html
+    from seqdist.trees.build import build_tree
 
     t_all = time.perf_counter()
     seconds = {}
@@ -454,8 +455,9 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     texts["sites"] = format_matrix(dres.sites, "tsv")
     if dres.variance is not None:
         texts["variance"] = format_matrix(dres.variance, "tsv")
-    from seqdist.io.matrices import to_jsonable
     import json
+
+    from seqdist.io.matrices import to_jsonable
 
     def js(obj):
         return json.dumps(to_jsonable(obj), indent=2, allow_nan=False) + "\n"

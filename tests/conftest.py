@@ -37,3 +37,9 @@ def euclidean(n, dim=2, seed=0):
     rng = np.random.default_rng(seed)
     X = rng.uniform(0, 10, (n, dim))
     return np.sqrt(((X[:, None] - X[None]) ** 2).sum(-1))
+
+
+def open_text(path, encoding=None) -> str:
+    """A file's text, closing the file at once (a bare ``open(p).read()`` leaves that to the collector)."""
+    with open(path, encoding=encoding) as f:
+        return f.read()

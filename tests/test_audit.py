@@ -12,9 +12,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from conftest import euclidean
 from seqdist.audit.report import HIST_EDGES, audit, sample_quartets
 from seqdist.core.matrix import DistanceMatrix
+
+from conftest import euclidean
 
 # ---------------------------------------------------------------- references
 

@@ -9,8 +9,10 @@ import os
 import numpy as np
 import pytest
 
-from seqdist.io.matrices import format_matrix, read_matrix, read_pairs
 from seqdist.core.matrix import DistanceMatrix
+from seqdist.io.matrices import format_matrix, read_matrix, read_pairs
+
+from conftest import open_text
 
 BASE = "ACGTACGTTAGCCGATAGCTAGGCTTAACGGATCCGATCGATGCTAGCTAGGATCGATCG"
 FAR = "".join({"A": "C", "C": "A", "G": "T", "T": "G"}[c] for c in BASE)
@@ -46,7 +48,7 @@ def test_outputs(cli, aln, tmp_path):
     assert np.isnan(D["one", "far"]) and np.isnan(V["one", "far"]) and np.isnan(D["right", "left"])
     pairs = read_pairs(und, D)  # the undefined list is a pair file the other commands read
     assert {tuple(sorted((D.labels[a], D.labels[b]))) for a, b in pairs} >= {("far", "one"), ("left", "right")}
-    r = json.load(open(js))
+    r = json.loads(open_text(js))
     assert r["model"] == "jc69" and r["n"] == 6 and r["undefined_pairs"] == len(pairs)
 
 
@@ -59,7 +61,7 @@ def test_formats_stdout_and_determinism(cli, aln, tmp_path):
         out = str(tmp_path / f"d.{fmt}")
         assert cli("distances", aln, "-o", out, "--out-format", fmt, "--quiet").returncode == 0
         assert read_matrix(out, fmt).equals(read_matrix(str(tmp_path / "d.csv"), "csv"))
-    p = cli("distances", "-", "-o", "-", "--model", "p", "--quiet", input=open(aln).read())
+    p = cli("distances", "-", "-o", "-", "--model", "p", "--quiet", input=open_text(aln))
     assert p.returncode == 0 and p.stdout.count("\n") == 7
 
 
@@ -76,7 +78,6 @@ def test_protein_and_gamma(cli, tmp_path):
 
 def test_shared_writer_matches_plain_formatting():
     # the table-assembly writer (n >= 50) against an obvious per-cell repr loop
-    from seqdist.io.matrices import format_matrix
 
     rng = np.random.default_rng(0)
     n = 260

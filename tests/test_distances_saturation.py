@@ -32,9 +32,11 @@ from fractions import Fraction
 import numpy as np
 import pytest
 
+from seqdist.core.errors import DataWarning
 from seqdist.io.alignment import Alignment
 from seqdist.models.distances import distances_from_counts, pairwise_distances
-from seqdist.core.errors import DataWarning
+
+from conftest import open_text
 
 BASES = "ACGT"
 
@@ -120,7 +122,6 @@ def exact_distance(model, a, b, composition=None, gamma=None):
         return None
     N = _counts(a, b)
     S = sum(map(sum, N))
-    p = 1 - Fraction(sum(N[i][i] for i in range(4)), S)
     c = composition if composition is not None else [sum(N[i]) + sum(r[i] for r in N) for i in range(4)]
     pi = [Fraction(x, sum(c)) for x in c]
 
@@ -379,7 +380,7 @@ def test_simulated_regression_through_the_command_line(cli, tmp_path):
     assert p.returncode == 0, p.stderr
     D = _read_na(out)
     n_missing = int(np.isnan(D.values[np.triu_indices(D.n, 1)]).sum())
-    listed = [tuple(ln.split("\t")) for ln in open(und).read().splitlines() if ln and not ln.startswith("#")]
+    listed = [tuple(ln.split("\t")) for ln in open_text(und).splitlines() if ln and not ln.startswith("#")]
     assert n_missing == len(listed) == len(want)
     assert sorted(listed) == sorted(want)
     warn = [ln for ln in p.stderr.splitlines() if "warning" in ln]

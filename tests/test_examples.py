@@ -16,9 +16,7 @@ import shutil
 import subprocess
 import sys
 
-import pytest
-
-from conftest import ROOT
+from conftest import ROOT, open_text
 
 HELP_ORDER = ["simulate", "distances", "scores", "pairscores", "audit", "repair", "tree", "impact", "convert", "run"]
 
@@ -48,7 +46,7 @@ def shell_commands(block: str) -> list[str]:
 
 
 def readme_blocks():
-    text = open(os.path.join(ROOT, "README.md"), encoding="utf-8").read()
+    text = open_text(os.path.join(ROOT, "README.md"), encoding="utf-8")
     return [(m.group(1), m.group(2)) for m in re.finditer(r"```(\w*)\n(.*?)```", text, flags=re.S)]
 
 

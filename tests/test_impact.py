@@ -10,10 +10,11 @@ from itertools import combinations
 import numpy as np
 import pytest
 
-from conftest import write_tsv
 from seqdist import DistanceMatrix
-from seqdist.trees import read_newick
 from seqdist.impact.compare import impact
+from seqdist.trees import read_newick
+
+from conftest import write_tsv
 
 CONTRACT_KEYS = ["rf", "rf_normalized", "branch_score", "splits_only_before", "splits_only_after",
                  "negative_branches_before", "negative_branches_after"]

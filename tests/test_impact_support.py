@@ -81,8 +81,11 @@ def test_support_depends_on_seed(cli, inputs):
     a, _ = run_support(cli, inputs, 1, seed=3)
     b, _ = run_support(cli, inputs, 1, seed=4)
     assert a["support"]["seed"] != b["support"]["seed"]
-    assert [x["support_before"] for x in a["support"]["splits"]] != [x["support_before"] for x in b["support"]["splits"]] \
-        or [x["support_after"] for x in a["support"]["splits"]] != [x["support_after"] for x in b["support"]["splits"]]
+    def values(r, key):
+        return [x[key] for x in r["support"]["splits"]]
+
+    assert values(a, "support_before") != values(b, "support_before") \
+        or values(a, "support_after") != values(b, "support_after")
 
 
 def test_support_option_errors(cli, inputs):

@@ -17,7 +17,7 @@ import os
 
 import pytest
 
-from conftest import ROOT
+from conftest import ROOT, open_text
 
 PKG = os.path.join(ROOT, "seqdist")
 
@@ -67,7 +67,7 @@ def family(name: str) -> str:
 
 def imports(path: str):
     """``(target module, imported name or None, at module level)`` for every seqdist import."""
-    tree = ast.parse(open(path).read())
+    tree = ast.parse(open_text(path))
     top = set(map(id, tree.body))
     for node in ast.walk(tree):
         if isinstance(node, ast.ImportFrom):
@@ -125,7 +125,7 @@ def test_no_import_cycle_at_import_time():
 @pytest.mark.parametrize("name", sorted(m for m in MODULES if not any(p.startswith("_") for p in m.split(".")[1:])
                                          and family(m) not in ("cli", "__main__")))
 def test_public_modules_declare_all(name):
-    tree = ast.parse(open(MODULES[name]).read())
+    tree = ast.parse(open_text(MODULES[name]))
     names = [t.id for node in tree.body if isinstance(node, (ast.Assign, ast.AnnAssign))
              for t in (node.targets if isinstance(node, ast.Assign) else [node.target]) if isinstance(t, ast.Name)]
     assert "__all__" in names, f"{name} has no __all__"

@@ -10,8 +10,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.sparse.csgraph import floyd_warshall
 
-from seqdist.kernels.triangles import count_violations, is_metric, max_violation
 from seqdist.kernels.shortest_paths import apsp
+from seqdist.kernels.triangles import count_violations, is_metric, max_violation
+
 from conftest import euclidean
 
 

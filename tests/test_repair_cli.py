@@ -7,8 +7,9 @@ import json
 import numpy as np
 import pytest
 
-from conftest import euclidean, write_tsv
 from seqdist.kernels.triangles import is_metric
+
+from conftest import euclidean, open_text, write_tsv
 
 OBJS = ["shrink", "fewest", "grow", "l1", "l2"]
 
@@ -32,7 +33,7 @@ def mfile(tmp_path):
 
 
 def read_out(path):
-    rows = [ln.rstrip("\n").split("\t") for ln in open(path) if ln.strip()]
+    rows = [ln.rstrip("\n").split("\t") for ln in open_text(path).splitlines() if ln.strip()]
     return np.array([[float(x) if x not in ("", "NA") else np.nan for x in r[1:]] for r in rows[1:]])
 
 
@@ -41,13 +42,13 @@ def test_outputs_and_report(tmp_path, cli, mfile, obj):
     out, js, ch = tmp_path / "o.tsv", tmp_path / "r.json", tmp_path / "c.tsv"
     p = cli("repair", mfile, "-o", out, "--objective", obj, "--json", js, "--changes", ch)
     assert p.returncode == 0, p.stderr
-    r = json.load(open(js))
+    r = json.loads(open_text(js))
     for k in ["objective", "changed_entries", "l1_change", "l2_change", "max_change", "violated_before",
               "violated_after", "objective_value", "lower_bound", "optimal", "seconds"]:
         assert k in r
     assert r["violated_after"] == 0 and r["lower_bound"] <= r["objective_value"]
     assert "altered data" in r["note"] and "altered data" in p.stderr
-    lines = open(ch).read().splitlines()
+    lines = open_text(ch).splitlines()
     assert lines[0] == "label_a\tlabel_b\tbefore\tafter\tchange\thow"
     assert len(lines) - 1 == r["changed_entries"]
     X = read_out(out)
@@ -169,7 +170,7 @@ def test_weights_zero_means_free(tmp_path, cli, mfile):
     js = tmp_path / "r.json"
     p = cli("repair", mfile, "-o", tmp_path / "o.tsv", "--objective", "fewest", "--weights", wf, "--json", js)
     assert p.returncode == 0, p.stderr
-    r = json.load(open(js))
+    r = json.loads(open_text(js))
     assert r["objective_value"] == 0 and r["lower_bound"] == 0 and r["free_entries"] == 2
 
 
@@ -218,7 +219,7 @@ def test_convex_objectives_report_a_certified_gap(tmp_path, cli, obj):
     out, js = tmp_path / "o.tsv", tmp_path / "r.json"
     p = cli("repair", m, "-o", out, "--objective", obj, "--json", js)
     assert p.returncode == 0, p.stderr
-    r = json.load(open(js))
+    r = json.loads(open_text(js))
     assert r["optimal"] and r["violated_after"] == 0
     assert 0 < r["lower_bound"] <= r["objective_value"]
     assert r["relative_gap"] <= 1e-6
@@ -239,7 +240,7 @@ def test_cli_time_limit_reports_a_gap(tmp_path, cli, obj):
     p = cli("repair", m, "-o", out, "--objective", obj, "--json", js, "--time-limit", "1",
             "--option", "gap_tol=1e-13", *extra)
     assert p.returncode == 0, p.stderr
-    r = json.load(open(js))
+    r = json.loads(open_text(js))
     assert r["optimal"] is False and r["violated_after"] == 0 and r["details"]["status"] == "time limit"
     assert 0 <= r["lower_bound"] < r["objective_value"] and r["relative_gap"] > 1e-6
     assert is_metric(read_out(out), r["tol"])

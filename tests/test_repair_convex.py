@@ -23,10 +23,11 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from conftest import euclidean
 from seqdist.kernels.triangles import is_metric
 from seqdist.repair import l1, l2, repair
 from seqdist.repair.problem import RepairProblem
+
+from conftest import euclidean
 
 cp = pytest.importorskip("cvxpy")
 

@@ -13,8 +13,8 @@ import pytest
 from scipy.optimize import minimize_scalar
 from scipy.sparse.csgraph import shortest_path
 
-from seqdist.kernels.triangles import is_metric
 from seqdist.kernels import convex as K
+from seqdist.kernels.triangles import is_metric
 
 
 def rand_sym(rng, n, zeros=0.0):

@@ -24,11 +24,12 @@ import time
 import numpy as np
 import pytest
 
-from conftest import euclidean, write_tsv
 from seqdist.core.errors import InputError
 from seqdist.kernels.triangles import is_metric
 from seqdist.repair import OBJECTIVES, repair
 from seqdist.repair.problem import Option, objective_options, validate_options
+
+from conftest import euclidean, open_text, write_tsv
 
 
 def noisy(n, seed, sigma):
@@ -145,7 +146,7 @@ def test_command_line_time_limit_gives_identical_files(tmp_path, cli):
         p = cli("repair", m, "-o", out, "--objective", "l2", "--time-limit", "0.05", "--option", "gap_tol=1e-13",
                 "--json", js, "--changes", ch)
         assert p.returncode == 0, p.stderr
-        rep = json.load(open(js))
+        rep = json.loads(open_text(js))
         runs.append((out.read_bytes(), ch.read_bytes(), without_seconds(rep)))
     assert runs[0][2]["optimal"] is False and runs[0][2]["details"]["status"] == "time limit"
     assert runs[0] == runs[1]
@@ -185,7 +186,7 @@ def test_validate_options_messages_and_types():
     ("shrink", {"method": "exact"}, "objective 'shrink' has no option 'method' (its options: none)"),
     ("l2", {"method": "exact"}, "objective 'l2' has no option 'method'"),
     ("l1", {"polish": True}, "objective 'l1' has no option 'polish'"),
-    ("fewest", {"method": "fast"}, "objective 'fewest' option 'method' must be one of auto, exact, heuristic, got 'fast'"),
+    ("fewest", {"method": "fast"}, "objective 'fewest' option 'method' must be one of auto, exact, heuristic, got 'fast'"),  # noqa: E501 (the exact message)
     ("grow", {"exact_max_n": -1}, "objective 'grow' option 'exact_max_n' must be an integer >= 0, got -1"),
     ("l2", {"gap_tol": -1}, "objective 'l2' option 'gap_tol' must be a number > 0, got -1"),
 ])

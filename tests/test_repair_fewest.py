@@ -18,10 +18,11 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.optimize import linprog
 
-from conftest import euclidean
 from seqdist.core.errors import InfeasibleError
 from seqdist.kernels.triangles import is_metric
 from seqdist.repair import repair
+
+from conftest import euclidean
 
 
 def feasible_lp(D, S, grow=False):

@@ -4,12 +4,13 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from test_repair_fewest import brute_force, feasible_lp, small_cases
 
-from conftest import euclidean
 from seqdist.core.errors import InfeasibleError
 from seqdist.kernels.triangles import is_metric
 from seqdist.repair import repair
-from test_repair_fewest import brute_force, feasible_lp, small_cases
+
+from conftest import euclidean
 
 
 @pytest.mark.parametrize("case", range(6))

@@ -15,10 +15,11 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.sparse.csgraph import shortest_path
 
-from conftest import euclidean
-from seqdist.kernels.triangles import count_violations, is_metric
 from seqdist.kernels.shortest_paths import apsp, apsp_reference
+from seqdist.kernels.triangles import count_violations, is_metric
 from seqdist.repair import repair
+
+from conftest import euclidean
 
 
 def scipy_apsp(D):

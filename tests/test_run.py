@@ -10,7 +10,7 @@ import sys
 
 import pytest
 
-from conftest import EXAMPLES, ROOT
+from conftest import EXAMPLES, ROOT, open_text
 
 ALIGNMENTS = ["dna_clean.fasta", "protein.fasta", "dna_trouble.fasta", "protein_small.sto"]
 EXPECTED = ["distances.tsv", "sites.tsv", "variance.tsv", "distances.json", "audit.json", "audit.txt",
@@ -35,19 +35,19 @@ def runs(tmp_path_factory):
 def test_run_end_to_end(runs, name):
     p, out = runs[name]
     assert p.returncode == 0, p.stderr
-    audit = json.load(open(out / "audit.json"))
+    audit = json.loads(open_text(out / "audit.json"))
     # the default objective (shrink) does not depend on weights, so none are written; with
     # suspects, the tree of the other choice is written too
     extra = ["tree_with_suspects.nwk"] if audit["suspect_taxa"] else []
     assert sorted(os.listdir(out)) == sorted(EXPECTED + extra)
-    rep = json.load(open(out / "repair.json"))
+    rep = json.loads(open_text(out / "repair.json"))
     assert rep["violated_after"] == 0 and rep["objective"] == "shrink" and rep["weights"] != "given"
     if not rep["left_out_taxa"]:
         # the audit's bound is proven, so a fewest repair of the same matrix can never beat it
         assert audit["violated_triangles"] == 0 or rep["changed_entries"] >= audit["min_changes_lower_bound"]
     page = (out / "report.html").read_text()
     assert page.startswith("<!DOCTYPE html>") and "altered data" in page and "<script" not in page
-    man = json.load(open(out / "manifest.json"))
+    man = json.loads(open_text(out / "manifest.json"))
     assert man["seqdist_version"] and man["options"]["objective"] == "shrink"
     import hashlib
 
@@ -58,9 +58,9 @@ def test_run_end_to_end(runs, name):
 def test_planted_trouble_repair_does_not_hurt_the_tree(runs):
     # The true tree is known (simulated data); Robinson-Foulds as in the contract.
     p, out = runs["dna_trouble.fasta"]
-    imp = json.load(open(out / "impact.json"))
+    imp = json.loads(open_text(out / "impact.json"))
     assert imp["rf_to_truth_after"] <= imp["rf_to_truth_before"]
-    audit = json.load(open(out / "audit.json"))
+    audit = json.loads(open_text(out / "audit.json"))
     assert audit["violated_triangles"] > 0 and audit["missing_entries"] > 0
 
 
@@ -116,5 +116,5 @@ def test_snakemake_workflow(tmp_path):
                   "tree_repaired.nwk", "impact.json", "report.html"):
             assert (res / f).exists(), f"{name}/{f}"
         assert (res / "logs" / "repair.log").exists()
-    imp = json.load(open(tmp_path / "results" / "dna_trouble" / "impact.json"))
+    imp = json.loads(open_text(tmp_path / "results" / "dna_trouble" / "impact.json"))
     assert "rf_to_truth_after" in imp

@@ -185,8 +185,8 @@ def test_suspects_to_leave_out_rules():
     import numpy as np
 
     from seqdist import DistanceMatrix
-    from seqdist.pipeline import suspects_to_leave_out
     from seqdist.audit.suspects import SuspectReport
+    from seqdist.pipeline import suspects_to_leave_out
 
     class S:  # the two fields the rule reads
         def __init__(self, label, reasons):

@@ -10,15 +10,28 @@ import re
 
 import numpy as np
 import pytest
-from hypothesis import assume, given, settings, strategies as st
-
-from seqdist.core.errors import InputError
-from seqdist.scores.matrices import (AMINO20, ROBINSON_1991, TRANSFORMS, ScoreMatrix, ambiguity_letters,
-                            check_score_matrix, choose_background, implied_background, karlin_altschul_lambda,
-                            load_score_matrix, parse_score_matrix, score_statistics, transform_scores,
-                            triangle_details)
-
 from Bio.Align import substitution_matrices as bio_sm
+from hypothesis import assume, given, settings
+from hypothesis import strategies as st
+
+from seqdist.core.errors import DataWarning, InputError
+from seqdist.scores.matrices import (
+    AMINO20,
+    ROBINSON_1991,
+    TRANSFORMS,
+    ScoreMatrix,
+    ambiguity_letters,
+    check_score_matrix,
+    choose_background,
+    implied_background,
+    karlin_altschul_lambda,
+    load_score_matrix,
+    score_statistics,
+    transform_scores,
+    triangle_details,
+)
+
+from conftest import open_text
 
 BIO_DATA = os.path.join(os.path.dirname(bio_sm.__file__), "data")
 
@@ -35,7 +48,7 @@ def header_figures(name):
     'Entropy = x, Expected = y', both in bits. PAM files: written by the 'pam' program
     (Dayhoff et al. 1978 model), 'Expected score = y, Entropy = x bits', y in score units.
     """
-    text = open(os.path.join(BIO_DATA, name)).read()
+    text = open_text(os.path.join(BIO_DATA, name))
     m = re.search(r"Entropy =\s*([-\d.]+), Expected =\s*([-\d.]+)", text)
     if m:
         return float(m.group(1)), float(m.group(2)), "bits"
@@ -238,7 +251,7 @@ def test_no_positive_lambda_is_reported(tmp_path, cli):
     p = cli("scores", "FENG", "-o", str(tmp_path / "f.tsv"), "--json", str(js))
     assert p.returncode == 0
     assert "lambda" in p.stdout and "none: expected score" in p.stdout
-    assert json.load(open(js))["lambda"] is None
+    assert json.loads(open_text(js))["lambda"] is None
     p = cli("scores", "FENG", "-o", str(tmp_path / "g.tsv"), "--transform", "logodds")
     assert p.returncode == 2 and "needs a positive lambda" in p.stderr
 
@@ -246,10 +259,13 @@ def test_no_positive_lambda_is_reported(tmp_path, cli):
 def test_background_file(tmp_path):
     sm = load_score_matrix("BLOSUM62")
     p = tmp_path / "bg.txt"
-    p.write_text("# Robinson & Robinson 1991, per 1000\n" + "".join(f"{a}\t{v}\n" for a, v in zip(AMINO20, ROBINSON_1991)))
-    bg = choose_background(sm, str(p))
+    p.write_text("# Robinson & Robinson 1991, per 1000\n"
+                 + "".join(f"{a}\t{v}\n" for a, v in zip(AMINO20, ROBINSON_1991)))
+    with pytest.warns(DataWarning, match="background frequencies sum to 1000; scaled to sum to 1"):
+        bg = choose_background(sm, str(p))
     assert bg.method == "file"
-    assert check_score_matrix(sm, background=str(p)).data["lambda"] == pytest.approx(0.3176, abs=2e-4)
+    with pytest.warns(DataWarning, match="sum to 1000"):
+        assert check_score_matrix(sm, background=str(p)).data["lambda"] == pytest.approx(0.3176, abs=2e-4)
     p.write_text("A 0.5\nR 0.5\n")
     with pytest.raises(InputError, match=r"bg\.txt: no frequency for letter\(s\) N"):
         choose_background(sm, str(p))
@@ -371,14 +387,15 @@ def test_per_letter_counts_match_a_plain_loop(n, seed):
 def test_asymmetric_matrix_reported(tmp_path, cli):
     p = tmp_path / "asym.txt"
     p.write_text("   A  C  G\nA  2 -1 -1\nC -3  2 -1\nG -1 -1  2\n")
-    r = check_score_matrix(load_score_matrix(str(p)))
+    with pytest.warns(DataWarning, match=r"not symmetric \(1 pair\(s\), e.g. s\(A,C\) = -1 but s\(C,A\) = -3\)"):
+        r = check_score_matrix(load_score_matrix(str(p)))
     assert r.data["symmetric"] is False
     assert r.data["asymmetric_pairs"] == [["A", "C", -1.0, -3.0]] and r.data["max_asymmetry"] == 2.0
     js = tmp_path / "a.json"
     out = cli("scores", str(p), "-o", str(tmp_path / "a.tsv"), "--json", str(js))
     assert out.returncode == 0 and "not symmetric" in out.stderr
     assert "symmetric            NO" in out.stdout or "NO:" in out.stdout
-    assert json.load(open(js))["symmetric"] is False
+    assert json.loads(open_text(js))["symmetric"] is False
 
 
 # ----------------------------------------------------------------- the command
@@ -386,7 +403,7 @@ def test_cli_json_keys_outputs_and_determinism(tmp_path, cli):
     js, out = tmp_path / "s.json", tmp_path / "s.tsv"
     r = cli("scores", "BLOSUM62", "-o", str(out), "--json", str(js), "--transform", "cosine")
     assert r.returncode == 0, r.stderr
-    data = json.load(open(js))
+    data = json.loads(open_text(js))
     for k in ("symmetric", "expected_score", "relative_entropy_bits", "lambda", "violated_triangles"):
         assert k in data
     assert data["symmetric"] is True and data["lambda"] > 0 and "lambda" in r.stdout

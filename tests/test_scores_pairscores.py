@@ -10,8 +10,10 @@ import pytest
 from Bio.Align import PairwiseAligner, substitution_matrices
 
 from seqdist.core.errors import InputError
-from seqdist.scores.pairwise import distances_from_scores, read_fasta, score_distances
 from seqdist.scores.matrices import ScoreMatrix
+from seqdist.scores.pairwise import distances_from_scores, read_fasta, score_distances
+
+from conftest import open_text
 
 # A tiny matrix for hand computation: match +2, mismatch -1 over {A, C}.
 TINY = ScoreMatrix.from_array([[2, -1], [-1, 2]], "AC", name="tiny")
@@ -136,7 +138,7 @@ def test_undefined_distance_is_missing_with_a_warning(tmp_path, cli):
     assert "warning" in r.stderr and "x-y" in r.stderr and "S_ab <= S_rand" in r.stderr
     rows = [line.split("\t") for line in out.read_text().splitlines()]
     assert rows[1][2] == "NA" and rows[2][1] == "NA"
-    assert json.load(open(js))["missing_pairs"][0][:2] == ["x", "y"]
+    assert json.loads(open_text(js))["missing_pairs"][0][:2] == ["x", "y"]
 
 
 def test_read_fasta(tmp_path):
@@ -150,7 +152,7 @@ def test_read_fasta(tmp_path):
     (">a\nMKV\n>a\nMKV\n", r"s\.fasta: line 3: duplicate record id 'a'"),
     ("MKV\n>a\nMKV\n", r"s\.fasta: line 1: sequence data before the first '>'"),
     ("", r"s\.fasta: no FASTA records"),
-    (">a\nMKV\n>b\nMK1V\n", r"s\.fasta: record 'b' \(line 3\): letter '1' \(position 3\) is not in score matrix BLOSUM62"),
+    (">a\nMKV\n>b\nMK1V\n", r"s\.fasta: record 'b' \(line 3\): letter '1' \(position 3\) is not in score matrix BLOSUM62"),  # noqa: E501 (the exact message)
 ])
 def test_bad_sequences_exit_2(tmp_path, cli, text, msg):
     import re
@@ -260,7 +262,7 @@ def test_cli_dna_default_matrix_json_and_help(tmp_path, cli):
     out, js = tmp_path / "d.tsv", tmp_path / "d.json"
     r = cli("pairscores", fa, "-o", out, "--json", js, "--processes", "1")
     assert r.returncode == 0, r.stderr
-    info = json.load(open(js))
+    info = json.loads(open_text(js))
     assert info["matrix"] == "NUC.4.4" and info["alphabet"] == "dna" and "warning" not in r.stderr
     first = (out.read_bytes(), js.read_bytes())
     assert cli("pairscores", fa, "-o", out, "--json", js, "--processes", "1").returncode == 0

@@ -30,11 +30,25 @@ import numpy as np
 import pytest
 
 from seqdist.core.errors import InputError
-from seqdist.simulate import (format_fasta, format_stockholm, gamma_rates, hky85, k80, make_model,
-                              plant_chimera, plant_contaminant, plant_gappy, plant_misread, plant_saturated_pair,
-                              protein_poisson, random_tree, simulate, summary)
+from seqdist.simulate import (
+    format_fasta,
+    format_stockholm,
+    gamma_rates,
+    hky85,
+    k80,
+    make_model,
+    plant_chimera,
+    plant_contaminant,
+    plant_gappy,
+    plant_misread,
+    plant_saturated_pair,
+    protein_poisson,
+    random_tree,
+    simulate,
+    summary,
+)
 
-from conftest import EXAMPLES, ROOT, run_cli
+from conftest import EXAMPLES, ROOT, open_text, run_cli
 
 DATA_FILES = ["dna_clean.fasta", "dna_clean.true.nwk", "dna_clean.sim.json",
               "protein.fasta", "protein.true.nwk", "protein.sim.json", "protein_small.sto",
@@ -441,9 +455,9 @@ def test_demo_sets_shape(stem):
     ids = [r[0] for r in recs]
     assert all(LABEL_RE.match(x) for x in ids) and len(set(ids)) == len(ids)
     assert len({len(s) for _, s in recs}) == 1
-    meta = json.load(open(os.path.join(EXAMPLES, stem + ".sim.json")))
+    meta = json.loads(open_text(os.path.join(EXAMPLES, stem + ".sim.json")))
     assert (len(recs), len(recs[0][1])) == (meta["taxa"], meta["length"])
-    text = open(os.path.join(EXAMPLES, stem + ".true.nwk")).read()
+    text = open_text(os.path.join(EXAMPLES, stem + ".true.nwk"))
     _, bio = biopython_leaves(text)
     assert sorted(bio) == sorted(ids)
     tree = dendropy_tree(os.path.join(EXAMPLES, stem + ".true.nwk"))
@@ -460,8 +474,8 @@ def test_clean_dna_set_is_clean():
 
 def test_trouble_set_has_what_the_readme_says():
     recs = dict(read_fasta(os.path.join(EXAMPLES, "dna_trouble.fasta")))
-    planted = {n["kind"]: n for n in json.load(open(os.path.join(EXAMPLES, "dna_trouble.sim.json")))["planted"]}
-    readme = open(os.path.join(EXAMPLES, "README.md")).read()
+    planted = {n["kind"]: n for n in json.loads(open_text(os.path.join(EXAMPLES, "dna_trouble.sim.json")))["planted"]}
+    readme = open_text(os.path.join(EXAMPLES, "README.md"))
     g = planted["gappy"]["labels"][0]
     assert recs[g].count("-") >= 0.7 * 1200 and f"`{g}`" in readme
     c, donor = planted["chimera"]["label"], planted["chimera"]["donor"]
@@ -484,7 +498,7 @@ def test_stockholm_copy_reads_back_with_biopython():
     expect = [bytes(row[keep]).decode() for row in X]
     got = [str(r.seq).replace(".", "-").upper() for r in aln]
     assert got == expect
-    raw = open(os.path.join(EXAMPLES, "protein_small.sto")).read()
+    raw = open_text(os.path.join(EXAMPLES, "protein_small.sto"))
     body = "".join(line.split()[1] for line in raw.splitlines() if line and not line.startswith(("#", "//")))
     assert "." in body and any(ch.islower() for ch in body)      # insert columns are there
 

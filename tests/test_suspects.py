@@ -14,13 +14,21 @@ import numpy as np
 import pytest
 from scipy.stats import spearmanr
 
-from seqdist.io.alignment import Alignment
-from seqdist.models.distances import pairwise_distances
+from seqdist.audit.suspects import (
+    THRESHOLD,
+    Suspect,
+    SuspectReport,
+    complete_core,
+    find_suspects,
+    nearest_shift,
+    robust_z,
+    spearman_rows,
+)
 from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix
+from seqdist.io.alignment import Alignment
+from seqdist.models.distances import pairwise_distances
 from seqdist.simulate import plant_chimera, plant_contaminant, plant_gappy, simulate
-from seqdist.audit.suspects import (THRESHOLD, Suspect, SuspectReport, complete_core, find_suspects, nearest_shift,
-                              robust_z, spearman_rows)
 
 
 def _data(sim):

@@ -5,12 +5,19 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from test_trees import labels_for, noisy, path_matrix, random_tree
 
 from seqdist import DistanceMatrix, InputError
-from seqdist.trees import (branch_score, build_tree, compare_trees, cophenetic_correlation, read_newick,
-                           robinson_foulds, splits, upgma)
-
-from test_trees import labels_for, noisy, path_matrix, random_tree
+from seqdist.trees import (
+    branch_score,
+    build_tree,
+    compare_trees,
+    cophenetic_correlation,
+    read_newick,
+    robinson_foulds,
+    splits,
+    upgma,
+)
 
 
 def dendropy_pair(a: str, b: str):

@@ -98,7 +98,8 @@ def test_run_outdir_not_writable_fails_before_any_work(tmp_path, monkeypatch):
     ro = tmp_path / "ro"
     ro.mkdir()
     real = os.access
-    monkeypatch.setattr(pipeline.os, "access", lambda p, mode: False if os.path.abspath(p) == str(ro) else real(p, mode))
+    monkeypatch.setattr(pipeline.os, "access",
+                        lambda p, mode: False if os.path.abspath(p) == str(ro) else real(p, mode))
     called = []
     monkeypatch.setattr("seqdist.io.alignment.read_alignment", lambda *a, **k: called.append(1))
     with pytest.raises(InputError, match="cannot be made: .* is not writable"):
@@ -163,9 +164,9 @@ def test_large_but_safe_values_repair_with_finite_report(tmp_path):
 
 # ------------------------------------------------------------- warnings
 def test_library_warnings_are_seqdist_warnings_that_can_be_errors():
+    from seqdist.core.errors import DataWarning, SeqdistWarning
     from seqdist.io.alignment import read_alignment
     from seqdist.models.distances import pairwise_distances
-    from seqdist.core.errors import DataWarning, SeqdistWarning
 
     aln = read_alignment(TROUBLE)
     with warnings.catch_warnings():

@@ -67,6 +67,13 @@ class AuditReport:
     taxon (NaN when none).
     """
 
+    def __repr__(self) -> str:
+        bound = self.lower_bound.get("value") if isinstance(self.lower_bound, dict) else None
+        suspects = [s.label for s in self.suspects.suspects] if self.suspects is not None else None
+        return (f"AuditReport(n={self.n}, violated={self.violated} of {self.checked_triangles} checked, "
+                f"max_violation={self.max_violation:.4g}, min_changes_lower_bound={bound}, "
+                f"suspects={suspects})")
+
     labels: tuple
     tol: float
     largest: float
@@ -295,7 +302,7 @@ class AuditReport:
         fit, line, _ = self.verdict()
         L.append(f"audit of {source}" if source else "audit")
         miss = f"{self.missing_entries} missing" if self.missing_entries else "none missing"
-        chk = (f"all checked" if self.checked_triangles == self.triangles
+        chk = ("all checked" if self.checked_triangles == self.triangles
                else f"{self.checked_triangles} checked{self._unchecked_note('; ')}")
         L.append(f"  {self.n} taxa, {_comb(self.n, 2)} entries ({miss}), {self.triangles} triangles ({chk})")
         L.append(f"  tolerance {_g(self.tol)}; largest entry {_g(self.largest)}")

@@ -154,6 +154,9 @@ class Suspect:
     evidence: dict
     reasons: tuple
 
+    def __repr__(self) -> str:
+        return f"Suspect({self.label!r}, score={self.score:.3g}, reasons={list(self.reasons)})"
+
     def to_dict(self) -> dict:
         return {"label": self.label, "score": self.score, "evidence": self.evidence,
                 "reasons": list(self.reasons)}
@@ -167,6 +170,10 @@ class SuspectReport:
     suspicious first; ``ranking`` holds every taxon in the same order;
     ``statistics`` names the statistics that were computed.
     """
+
+    def __repr__(self) -> str:
+        return (f"SuspectReport(suspects={[s.label for s in self.suspects]}, threshold={self.threshold}, "
+                f"ranked={len(self.ranking)})")
 
     suspects: list
     ranking: list

@@ -22,10 +22,9 @@ import numpy as np
 
 from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix, default_tol
-from seqdist.trees.build import build_tree, check_matrix
-from seqdist.trees.compare import branch_score_splits, nontrivial, sorted_splits, splits
-from seqdist.trees.compare import cophenetic_correlation
 from seqdist.core.tree import Tree
+from seqdist.trees.build import build_tree, check_matrix
+from seqdist.trees.compare import branch_score_splits, cophenetic_correlation, nontrivial, sorted_splits, splits
 
 __all__ = ["ImpactResult", "align", "shared_labels", "incomplete_taxa", "matrix_change", "impact", "prune",
            "summary_lines", "remedy_table"]
@@ -38,6 +37,12 @@ CAUTION = ("A repaired matrix is altered data: trees built from it are not what 
 @dataclass
 class ImpactResult:
     """The report (a JSON-ready dict) plus the objects the html page draws."""
+
+    def __repr__(self) -> str:
+        r = self.report
+        return (f"ImpactResult(n_compared={r.get('n_compared')}, rf={r.get('rf')}, "
+                f"rf_to_truth_before={r.get('rf_to_truth_before')}, rf_to_truth_after={r.get('rf_to_truth_after')}, "
+                f"left_out_taxa={r.get('left_out_taxa')})")
 
     report: dict
     before: DistanceMatrix

@@ -194,10 +194,9 @@ def add_support(res, alignment, *, replicates: int, model: str, objective: str, 
     :class:`~seqdist.io.alignment.Alignment` (as read for the distances, with
     the same format and alphabet) or a file path read with the defaults.
     """
-    from seqdist.io.alignment import read_alignment
     from seqdist.core.console import warn
+    from seqdist.io.alignment import read_alignment
     from seqdist.models.distances import pairwise_distances
-
     from seqdist.repair import OBJECTIVES
 
     del clamp_negative  # lengths do not enter split support

@@ -283,7 +283,8 @@ def read_alignment(path: str, fmt: str | None = None, alphabet: str = "auto") ->
     --------
     >>> import tempfile, os
     >>> p = os.path.join(tempfile.mkdtemp(), "a.fasta")
-    >>> _ = open(p, "w").write(">x first\\nACGT\\n>y\\nAC-T\\n")
+    >>> from pathlib import Path
+    >>> _ = Path(p).write_text(">x first\\nACGT\\n>y\\nAC-T\\n")
     >>> aln = read_alignment(p)
     >>> aln.labels, aln.codes.shape
     (('x', 'y'), (2, 4))

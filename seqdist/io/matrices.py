@@ -111,7 +111,6 @@ def _sniff_square(text: str) -> str | None:
     first = text.lstrip("\n").split("\n", 1)[0].strip()
     if not first.isdigit():
         return None
-    n = int(first)
     lines = [ln for ln in text.split("\n")[1:] if ln.strip()]
     if lines and len(lines[0].split()) == 1:
         return "lower"
@@ -141,7 +140,8 @@ def read_matrix(path: str, fmt: str | None = None) -> DistanceMatrix:
     --------
     >>> import tempfile, os
     >>> p = os.path.join(tempfile.mkdtemp(), "d.tsv")
-    >>> _ = open(p, "w").write("\\ta\\tb\\na\\t0\\t1.5\\nb\\t1.5\\t0\\n")
+    >>> from pathlib import Path
+    >>> _ = Path(p).write_text("\\ta\\tb\\na\\t0\\t1.5\\nb\\t1.5\\t0\\n")
     >>> read_matrix(p)["a", "b"]
     1.5
     """
@@ -463,7 +463,8 @@ class OutputSet:
     >>> d = tempfile.mkdtemp()
     >>> with OutputSet() as out:
     ...     out.add_text(os.path.join(d, "a.txt"), "hello\\n")
-    >>> open(os.path.join(d, "a.txt")).read()
+    >>> from pathlib import Path
+    >>> Path(d, "a.txt").read_text()
     'hello\\n'
     """
 
@@ -676,7 +677,8 @@ def write_matrix(path: str, dm: DistanceMatrix, fmt: str | None = None) -> None:
     >>> import tempfile, os
     >>> p = os.path.join(tempfile.mkdtemp(), "d.csv")
     >>> write_matrix(p, DistanceMatrix.from_array([[0, 2], [2, 0]], ["a", "b"]))
-    >>> open(p).read().splitlines()[1]
+    >>> from pathlib import Path
+    >>> Path(p).read_text().splitlines()[1]
     'a,0.0,2.0'
     """
     with OutputSet() as out:

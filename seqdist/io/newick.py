@@ -23,9 +23,9 @@ from __future__ import annotations
 import re
 
 from seqdist.core.errors import InputError
-from seqdist.core.tree import Node, Tree
+
 # the writer lives with the tree type; re-exported here beside the reader
-from seqdist.core.tree import format_length, quote_label, write_newick  # noqa: F401
+from seqdist.core.tree import Node, Tree, format_length, quote_label, write_newick  # noqa: F401
 
 __all__ = ["read_newick", "read_newick_file", "write_newick", "quote_label", "format_length"]
 

@@ -303,7 +303,6 @@ def _greedy_hit(n, tri, cand, w, alive, start_score):  # pragma: no cover - comp
                     cnt[a, b] += 1
     picked = []
     picked_cnt = []
-    score = np.empty((n, n))
     while True:
         best = 0.0
         be = -1

@@ -34,9 +34,9 @@ from fractions import Fraction
 
 import numpy as np
 
-from seqdist.io.alignment import Alignment
 from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix
+from seqdist.io.alignment import Alignment
 
 __all__ = ["DistanceResult", "check_options", "pairwise_distances", "undefined_message", "distances_from_counts",
            "inverse_variance_weights"]
@@ -98,6 +98,10 @@ class DistanceResult:
         Every undefined pair, ``reason`` one of ``no shared column``,
         ``saturated``, ``undefined``.
     """
+
+    def __repr__(self) -> str:
+        return (f"DistanceResult(model={self.model!r}, gamma={self.gamma}, gaps={self.gaps!r}, "
+                f"n={self.matrix.n}, undefined={len(self.undefined)})")
 
     matrix: DistanceMatrix
     sites: DistanceMatrix

@@ -20,8 +20,8 @@ changed entries with any result you publish.
 
 from __future__ import annotations
 
-from seqdist.repair.engine import (ALTERED_NOTE, OBJECTIVE_GUIDE, OBJECTIVES, WEIGHTED_OBJECTIVES, RepairResult, format_changes,
-                     load_objective, unmeasured_taxa)
+from seqdist.repair.engine import ALTERED_NOTE, RepairResult, format_changes, load_objective, unmeasured_taxa
+from seqdist.repair.registry import OBJECTIVE_GUIDE, OBJECTIVES, REGISTRY, WEIGHTED_OBJECTIVES
 
 
 def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, seed: int = 0,
@@ -123,5 +123,5 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
                weights_source=weights_source, leave_out=leave_out, **options)
 
 
-__all__ = ["repair", "RepairResult", "OBJECTIVES", "OBJECTIVE_GUIDE", "WEIGHTED_OBJECTIVES", "ALTERED_NOTE",
+__all__ = ["repair", "RepairResult", "OBJECTIVES", "OBJECTIVE_GUIDE", "WEIGHTED_OBJECTIVES", "REGISTRY", "ALTERED_NOTE",
            "format_changes", "load_objective", "unmeasured_taxa"]

@@ -120,7 +120,6 @@ CG_PER_CONSTRAINT = 2e-8       # one conjugate-gradient product (polish), per co
 ROUND = 2e-3                   # fixed part of one round (Python, small arrays)
 SCAN_CALL = 5e-3               # fixed part of one scan (starting the threads, merging the pool)
 # the l1 LP's HiGHS calls are counted as those of fewest and grow
-from seqdist.repair.kept_sets import LP_CALL, LP_ITER_PER_NZ  # noqa: E402
 
 __all__ = ["Setup", "rescale_solution", "setup", "scan_cost", "certificate_cost", "sweep_cost", "sweeps_per_round",
            "run_context", "Pool", "find_violations", "feasible_point", "objective_l2", "objective_l1", "bound_l2",
@@ -339,7 +338,6 @@ def feasible_point(x: np.ndarray, S: Setup) -> tuple[np.ndarray, dict]:
     """
     from seqdist.kernels.shortest_paths import apsp
 
-    n = S.n
     info = {"blend": 0.0}
     W = np.where(S.G, _sym(x), np.inf)
     W[S.locked] = S.D[S.locked]

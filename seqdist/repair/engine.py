@@ -32,72 +32,22 @@ give the objective and the list of changes with any result they publish.
 
 from __future__ import annotations
 
-import importlib
 import time
+
 import numpy as np
 
 from seqdist.core.errors import InfeasibleError, InputError
 from seqdist.core.matrix import DistanceMatrix, default_tol
+from seqdist.repair import registry
 from seqdist.repair.problem import RepairProblem, Solution
 
-__all__ = ["objective_guide", "RepairResult", "load_objective", "check_options", "as_matrix", "weights_array",
+# the objective registry's names, re-exported for the engine's callers
+from seqdist.repair.registry import OBJECTIVE_GUIDE, OBJECTIVES, WEIGHTED_OBJECTIVES  # noqa: F401
+
+__all__ = ["RepairResult", "load_objective", "check_options", "as_matrix", "weights_array",
            "lock_mask", "build_problem", "describe_path", "check_locks", "fill_missing", "measured_groups",
            "unmeasured_taxa", "verify_metric", "finish", "change_rows", "format_changes", "build_report",
            "checked_triangles", "leave_out_request", "suspect_reasons", "fewest_left_out", "check_magnitude", "run"]
-
-OBJECTIVES = ("shrink", "grow", "fewest", "l1", "l2")
-
-#: Objectives whose result depends on the weights: the shortest-path closure
-#: (shrink) is the least-change decrease-only repair for every weighting.
-WEIGHTED_OBJECTIVES = ("grow", "fewest", "l1", "l2")
-
-#: What each objective does, what it is good for and when it hurts the tree:
-#: ``name -> (does, good for, hurts)``. Read by ``repair --help``, ``run
-#: --help`` and the tests. "Good for" and "hurts" summarise the simulation
-#: study in docs/remedies.md (NJ and BIONJ, 100 replicates per scenario,
-#: sign tests against no repair).
-OBJECTIVE_GUIDE = {
-    "shrink": ("only decrease entries: the shortest-path closure (exact)",
-               "run's default, after the suspects are left out; pulls down noisy over-long "
-               "(saturated) distances; needs no variances",
-               "with chimeras kept in, the placement of the other taxa (NJ); otherwise never "
-               "significantly worse than no repair in the study"),
-    "grow": ("only increase entries: fewest increased entries, then least increase",
-             "a matrix whose entries can only be too short (not tested in the study)",
-             "trees on clean, gappy, misread and contaminated data, and under saturation (it "
-             "lengthens distances that are already too long)"),
-    "fewest": ("change as few entries as possible, in either direction",
-               "finding a few entries to inspect; with inverse-variance weights, saturation",
-               "unweighted, trees on clean, gappy, misread and contaminated data (it moves a few "
-               "entries far, and tree methods believe them); weighted, still on clean data"),
-    "l1": ("least total absolute change",
-           "a repair that moves few entries, each by no more than needed",
-           "unweighted, trees on clean, gappy, misread and contaminated data, like fewest"),
-    "l2": ("least sum of squared changes (the nearest metric)",
-           "with inverse-variance weights, saturation (NJ); weighted, it was never significantly worse "
-           "than no repair in the study",
-           "unweighted, trees on clean, gappy and saturated data"),
-}
-
-
-def objective_guide(indent: str = "  ", width: int = 88) -> str:
-    """The objectives, one block each, for ``--help`` texts.
-
-    Examples
-    --------
-    >>> print(objective_guide().splitlines()[0])
-      shrink   only decrease entries: the shortest-path closure (exact)
-    """
-    import textwrap
-
-    lines = []
-    pad = indent + " " * 11
-    for name in OBJECTIVES:
-        does, good, hurts = OBJECTIVE_GUIDE[name]
-        lines.append(f"{indent}{name:<8} {does}")
-        for label, text in (("good for", good), ("hurts", hurts)):
-            lines += textwrap.wrap(f"{label}: {text}", width, initial_indent=pad, subsequent_indent=pad + "  ")
-    return "\n".join(lines)
 
 ALTERED_NOTE = ("A repaired matrix is altered data: report the objective and the list of changed "
                 "entries with any result you publish.")
@@ -142,6 +92,20 @@ class RepairResult:
                                         self._tol, self._no_evidence)
         return self._changes
 
+    def changes_frame(self):
+        """The changes as a pandas DataFrame (columns ``label_a, label_b, before, after, change, how``).
+
+        Examples
+        --------
+        >>> r = run(DistanceMatrix.from_array([[0, 1, 5], [1, 0, 1], [5, 1, 0]], list("abc")), "shrink",
+        ...         progress=False)
+        >>> r.changes_frame()[["label_a", "label_b", "after", "how"]].to_dict("records")
+        [{'label_a': 'a', 'label_b': 'c', 'after': 2.0, 'how': 'changed'}]
+        """
+        import pandas as pd
+
+        return pd.DataFrame(self.changes, columns=["label_a", "label_b", "before", "after", "change", "how"])
+
     def changes_text(self) -> str:
         """The ``--changes`` file (see :func:`format_changes`), built without Python tuples per entry."""
         if self._changes is not None or self._before is None:
@@ -156,23 +120,14 @@ class RepairResult:
 
 # ------------------------------------------------------------- dispatch
 def load_objective(name: str):
-    """The ``solve`` function of objective ``name`` (module ``seqdist.repair.<name>``).
+    """The ``solve`` function of objective ``name`` (see :mod:`seqdist.repair.registry`).
 
     Raises
     ------
     InputError
-        Unknown objective, or one this installation does not provide.
+        Unknown objective.
     """
-    if name not in OBJECTIVES:
-        raise InputError(f"unknown objective '{name}' (choose from {', '.join(OBJECTIVES)})")
-    modname = f"{__package__}.{name}"
-    try:
-        mod = importlib.import_module(modname)
-    except ModuleNotFoundError as exc:
-        if exc.name == modname:
-            raise InputError(f"objective '{name}' is not available in this installation") from None
-        raise
-    return mod.solve
+    return registry.get(name).solver()
 
 
 def check_options(name: str, options: dict | None) -> dict:
@@ -192,9 +147,7 @@ def check_options(name: str, options: dict | None) -> dict:
     """
     from seqdist.repair.problem import validate_options
 
-    load_objective(name)
-    mod = importlib.import_module(f"{__package__}.{name}")
-    return validate_options(name, getattr(mod, "OPTIONS", {}), options)
+    return validate_options(name, registry.get(name).options(), options)
 
 
 # ---------------------------------------------------------------- input
@@ -286,7 +239,6 @@ def build_problem(dm: DistanceMatrix, weights=None, lock=None, tol=None, time_li
                   options=None, progress=None, weights_source: str = "weights") -> RepairProblem:
     """Turn user input into a :class:`RepairProblem` (validated)."""
     D = np.array(dm.values, dtype=np.float64)
-    n = dm.n
     observed = ~np.isnan(D)
     np.fill_diagonal(observed, False)
     if tol is None:
@@ -366,7 +318,8 @@ def check_locks(problem: RepairProblem, objective: str) -> None:
     elif objective == "grow":
         bad = problem.observed & ~L & (D > UL + tol)
         if bad.any():
-            _raise_conflicts(problem, bad, WL, False, "{pair} may not decrease but is longer than the locked path {path}",
+            _raise_conflicts(problem, bad, WL, False,
+                             "{pair} may not decrease but is longer than the locked path {path}",
                              "grow only increases entries, so it cannot keep these locks: ",
                              " (try --objective fewest or l1)")
 

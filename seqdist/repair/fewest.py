@@ -237,9 +237,11 @@ def exact(problem: RepairProblem, tri, cand, incumbent_edges, budget, log):
         S_edges = kept_sets.prune(D, F2, S_edges, -w, False, tol, budget)
         return new, kept_sets.edges_to_ids(S_edges, n)
 
-    inc_val = float(problem.weights[incumbent_edges[:, 0], incumbent_edges[:, 1]].sum()) if len(incumbent_edges) else 0.0
+    inc_val = (float(problem.weights[incumbent_edges[:, 0], incumbent_edges[:, 1]].sum())
+               if len(incumbent_edges) else 0.0)
     return kept_sets.lazy_hitting_set(n, np.where(var, problem.weights, 0.0), cuts, separate,
-                                     (kept_sets.edges_to_ids(incumbent_edges, n), inc_val), budget, problem.progress, log=log)
+                                     (kept_sets.edges_to_ids(incumbent_edges, n), inc_val), budget,
+                                     problem.progress, log=log)
 
 
 def solve(problem: RepairProblem) -> Solution:

@@ -26,8 +26,8 @@ import os
 
 import numpy as np
 
-from seqdist.kernels.shortest_paths import apsp
 from seqdist.kernels import kept_graph
+from seqdist.kernels.shortest_paths import apsp
 from seqdist.repair.problem import Budget
 
 __all__ = ["mip_cost", "mip_nodes", "cost_apsp", "cost_dijkstra", "kept_paths", "broken_edges", "sym", "prune",

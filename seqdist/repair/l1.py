@@ -47,8 +47,9 @@ import time
 
 import numpy as np
 
-from seqdist.repair import convex as C
 from seqdist.kernels import convex as K
+from seqdist.repair import convex as C
+from seqdist.repair import kept_sets
 from seqdist.repair.problem import Option, RepairProblem, Solution, rescaled
 
 __all__ = ["solve"]
@@ -150,8 +151,8 @@ def _solve_lp(problem, S, budget, gap_tol, log):
             break
         opts = {"presolve": True}
         # one simplex iteration of HiGHS, counted by the problem's size
-        per_iter = C.LP_ITER_PER_NZ * float(A.nnz + A.shape[0] + nv)
-        budget.charge(C.LP_CALL)
+        per_iter = kept_sets.LP_ITER_PER_NZ * float(A.nnz + A.shape[0] + nv)
+        budget.charge(kept_sets.LP_CALL)
         maxiter = budget.count(per_iter)
         if maxiter is not None:
             if maxiter < 1:
@@ -375,7 +376,8 @@ def _solve(problem: RepairProblem) -> Solution:
                "relative_gap": rel, "gap_tol": gap_tol, "certified_lower_bound": g}
     for k_ in ("rows", "sweeps", "scans", "pool", "cycles", "prox_steps"):
         if k_ in res:
-            details[{"rows": "lp_rows", "cycles": "cycle_constraints", "pool": "pool_constraints"}.get(k_, k_)] = res[k_]
+            key = {"rows": "lp_rows", "cycles": "cycle_constraints", "pool": "pool_constraints"}.get(k_, k_)
+            details[key] = res[k_]
     details["work"] = round(budget.spent, 6)
     details["seconds"] = dict(res.get("seconds", {}), total=round(time.perf_counter() - t0, 3))
     return Solution(X=C.output_matrix(res["Y"], S), objective_value=p, lower_bound=g,

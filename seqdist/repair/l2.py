@@ -52,8 +52,8 @@ import time
 
 import numpy as np
 
-from seqdist.repair import convex as C
 from seqdist.kernels import convex as K
+from seqdist.repair import convex as C
 from seqdist.repair.problem import Option, RepairProblem, Solution, rescaled
 
 __all__ = ["solve"]

@@ -414,7 +414,7 @@ def validate_options(objective: str, declared: dict, given: dict | None) -> dict
 
 
 def objective_options(objective: str) -> dict:
-    """The ``OPTIONS`` declaration of objective ``objective`` (its module ``seqdist.repair.<objective>``)."""
-    import importlib
+    """The ``OPTIONS`` declaration of objective ``objective`` (see :mod:`seqdist.repair.registry`)."""
+    from seqdist.repair.registry import get
 
-    return getattr(importlib.import_module(f"{__package__}.{objective}"), "OPTIONS")
+    return get(objective).options()

@@ -28,9 +28,9 @@ import zlib
 
 import numpy as np
 
-from seqdist.trees.compare import nontrivial, splits
-from seqdist.impact.compare import CAUTION, ImpactResult, summary_lines
 from seqdist.core.tree import Tree, rooted_for_drawing
+from seqdist.impact.compare import CAUTION, ImpactResult, summary_lines
+from seqdist.trees.compare import nontrivial, splits
 
 __all__ = ["png_bytes", "draw_tree", "draw_heatmap", "render_html"]
 
@@ -358,7 +358,8 @@ def _split_rows(split_list, support, taxa, limit=60) -> str:
             cells += f"<td>{100 * sb:.0f}%</td><td>{100 * sa:.0f}%</td>"
         rows.append(f"<tr>{cells}</tr>")
     if len(split_list) > limit:
-        rows.append(f'<tr><td colspan="4" class="l note">... and {len(split_list) - limit} more (see the JSON)</td></tr>')
+        rows.append(f'<tr><td colspan="4" class="l note">... and {len(split_list) - limit} more '
+                    '(see the JSON)</td></tr>')
     return "".join(rows)
 
 
@@ -416,7 +417,8 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
                  "reference taxon, the same for both).")
     out.append(f'<p class="note">{root_note}<span class="key" style="border-color:{HIGHLIGHT}"></span>split '
                f'found only in this tree<span class="key dash" style="border-color:{PLAIN}"></span>negative '
-               "branch length &middot; // a very long branch drawn shortened (true length written on it)" + (" &middot; green numbers: % of bootstrap replicates with the split" if sup else "")
+               "branch length &middot; // a very long branch drawn shortened (true length written on it)"
+               + (" &middot; green numbers: % of bootstrap replicates with the split" if sup else "")
                + "</p>")
     if n <= MAX_TREE_LEAVES:
         svg_b, order_b = draw_tree(res.tree_before, taxa, nb - na, sup_b, outgroup=outgroup)

@@ -20,7 +20,6 @@ Biopython, numba kernels) are imported inside the functions that need them.
 from __future__ import annotations
 
 import csv
-
 import math
 import os
 from dataclasses import dataclass, field
@@ -186,7 +185,10 @@ def load_score_matrix(spec: str, fmt: str | None = None) -> ScoreMatrix:
         from Bio.Align import substitution_matrices
 
         real = by_upper[spec.upper()]
-        m = substitution_matrices.load(real)
+        # read through our own handle: substitution_matrices.load leaves its file for the collector
+        path = os.path.join(os.path.dirname(substitution_matrices.__file__), "data", real)
+        with open(path) as handle:
+            m = substitution_matrices.read(handle)
         letters = list(m.alphabet)
         return ScoreMatrix.from_array(np.array(m, dtype=np.float64), letters, name=real, origin="biopython")
     raise InputError(f"{spec}: no such file, and not a standard matrix name "
@@ -486,7 +488,8 @@ def read_background(path: str, letters: Sequence[str], weighted: Sequence[str]) 
     --------
     >>> import tempfile, os
     >>> p = os.path.join(tempfile.mkdtemp(), "bg.txt")
-    >>> _ = open(p, "w").write("A 0.5\\nC 0.5\\n")
+    >>> from pathlib import Path
+    >>> _ = Path(p).write_text("A 0.5\\nC 0.5\\n")
     >>> read_background(p, "AC", "AC").tolist()
     [0.5, 0.5]
     """

@@ -71,7 +71,8 @@ def read_fasta(path: str) -> tuple[list[str], list[str], list[int]]:
     --------
     >>> import tempfile, os
     >>> p = os.path.join(tempfile.mkdtemp(), "s.fasta")
-    >>> _ = open(p, "w").write(">a first\\nMK-V\\nL\\n>b\\nmkv\\n")
+    >>> from pathlib import Path
+    >>> _ = Path(p).write_text(">a first\\nMK-V\\nL\\n>b\\nmkv\\n")
     >>> read_fasta(p)[:2]
     (['a', 'b'], ['MKVL', 'MKV'])
     """
@@ -163,7 +164,7 @@ def _random_score(aln, i: int, j: int, s_ab: float) -> float:
 
 def _score_chunk(pairs: np.ndarray) -> np.ndarray:
     """(S_ab, S_rand) for each pair of sequence indices (S_rand NaN when not needed/undefined)."""
-    al, seqs, codes = _W["aligner"], _W["seqs"], _W["codes"]
+    al, seqs = _W["aligner"], _W["seqs"]
     out = np.full((len(pairs), 2), np.nan)
     fd = _W["formula"] == "fd"
     for r, (i, j) in enumerate(pairs):

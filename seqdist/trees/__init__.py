@@ -20,11 +20,10 @@ Examples
 '(a:1.0,b:2.0,c:3.0);\\n'
 """
 
-from seqdist.trees.build import METHODS, bionj, build_tree, check_matrix, neighbor_joining, upgma  # noqa: F401
-from seqdist.trees.compare import (branch_score, compare_trees, cophenetic_correlation, robinson_foulds,  # noqa: F401
-                      splits)
-from seqdist.io.newick import quote_label, read_newick, read_newick_file, write_newick  # noqa: F401
 from seqdist.core.tree import Node, Tree, rooted_for_drawing  # noqa: F401
+from seqdist.io.newick import quote_label, read_newick, read_newick_file, write_newick  # noqa: F401
+from seqdist.trees.build import METHODS, bionj, build_tree, check_matrix, neighbor_joining, upgma  # noqa: F401
+from seqdist.trees.compare import branch_score, compare_trees, cophenetic_correlation, robinson_foulds, splits  # noqa: F401
 
 __all__ = ["Tree", "Node", "rooted_for_drawing", "build_tree", "neighbor_joining", "bionj", "upgma", "METHODS",
            "check_matrix", "write_newick", "read_newick", "read_newick_file", "quote_label", "compare_trees",

@@ -12,7 +12,8 @@ tree holds. Prints one markdown table per tree method (rows: remedies;
 columns: scenarios; cells: mean normalised RF; with --detail also the
 replicates better/worse than no repair and the two-sided sign-test p), the
 same on the taxa not planted (every tree pruned to them: does the remedy
-protect the rest of the tree?), the suspect table and the issue's targets. The functions are in remedy_study.py beside this file;
+protect the rest of the tree?), the suspect table and the issue's targets. The functions are in
+remedy_study.py beside this file;
 docs/remedies.md has the results and what they say.
 
 Seeded and deterministic: the tables and the --json file depend only on the

@@ -236,8 +236,8 @@ pd.DataFrame(X, index=f.index, columns=f.columns).to_csv(sys.argv[2], sep="\t", 
 
 
 def bench_command(sizes):
-    from seqdist.io.matrices import write_matrix
     from seqdist.core.matrix import DistanceMatrix
+    from seqdist.io.matrices import write_matrix
 
     print("## Whole command: 'seqdist repair --objective shrink' against read + scipy floyd_warshall + write\n")
     rows = []
@@ -281,7 +281,8 @@ def main():
         parts = dict(planted=([50, 100], [0], 50, 20.0), noise=([12, 18], [0.3], [0], 20.0),
                      kernel=[600, 1000], command=[600])
     else:
-        parts = dict(planted=([50, 100, 200, 500], [0, 1, 2], 50, 60.0), noise=([15, 20, 25], [0.1, 0.3], [0, 1], 120.0),
+        parts = dict(planted=([50, 100, 200, 500], [0, 1, 2], 50, 60.0),
+                     noise=([15, 20, 25], [0.1, 0.3], [0, 1], 120.0),
                      kernel=[1500, 3000], command=[1500, 3000])
     if a.part in ("all", "planted"):
         bench_planted(*parts["planted"])

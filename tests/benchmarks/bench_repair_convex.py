@@ -156,13 +156,13 @@ def main() -> int:
                 D = matrix(kind, n, a.seed + n)
                 if obj == "l2":
                     s, ts = run_ours("l2", D, a.limit_l2)
-                    ref = "-"
                     cells = ["-", "-", "-", "-"]
                     if n <= a.ref_max_l2:
                         rv, rt = ref_l2_cvxpy(D)
                         cells = [f"{rv:.10g}", f"{rt:.2f}", f"{abs(s.objective_value - rv) / rv:.1e}",
                                  f"{rt / ts:.1f}"]
-                    print(f"| {kind} | {n} | {s.objective_value:.10g} | {s.details['relative_gap']:.1e}{'' if s.optimal else ' (limit)'} | "
+                    limit = "" if s.optimal else " (limit)"
+                    print(f"| {kind} | {n} | {s.objective_value:.10g} | {s.details['relative_gap']:.1e}{limit} | "
                           f"{ts:.2f} | " + " | ".join(cells) + " |", flush=True)
                 else:
                     method = "lp" if n <= a.lp_max else "projection"
@@ -172,8 +172,9 @@ def main() -> int:
                         rv, rt = ref_l1_linprog(D)
                         cells = [f"{rv:.10g}", f"{rt:.2f}", f"{abs(s.objective_value - rv) / rv:.1e}",
                                  f"{rt / ts:.1f}"]
+                    limit = "" if s.optimal else " (limit)"
                     print(f"| {kind} | {n} | {method} | {s.objective_value:.10g} | "
-                          f"{s.details['relative_gap']:.1e}{'' if s.optimal else ' (limit)'} | {ts:.2f} | " + " | ".join(cells) + " |",
+                          f"{s.details['relative_gap']:.1e}{limit} | {ts:.2f} | " + " | ".join(cells) + " |",
                           flush=True)
     return 0
 

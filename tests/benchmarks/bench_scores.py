@@ -28,8 +28,14 @@ import numpy as np
 
 sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))))
 
-from seqdist.scores.matrices import (AMINO20, ROBINSON_1991, TRANSFORMS, check_score_matrix,  # noqa: E402
-                            load_score_matrix, score_statistics)
+from seqdist.scores.matrices import (  # noqa: E402
+    AMINO20,
+    ROBINSON_1991,
+    TRANSFORMS,
+    check_score_matrix,
+    load_score_matrix,
+    score_statistics,
+)
 from seqdist.scores.pairwise import score_distances  # noqa: E402
 
 

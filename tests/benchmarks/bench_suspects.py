@@ -75,8 +75,8 @@ def make(scenario: str, rep: int, n: int = 32, length: int = 1000):
 
 
 def run(scenario: str, rep: int, threshold, bootstrap: int):
-    from seqdist.models.distances import pairwise_distances
     from seqdist.audit.suspects import find_suspects
+    from seqdist.models.distances import pairwise_distances
 
     aln, planted = make(scenario, rep)
     dm = pairwise_distances(aln, "k80", warn=False, progress=False).matrix

@@ -351,8 +351,12 @@ def _suspects_then(objective: str | None, weighted: bool | None):
     (weighted when the objective's result depends on weights).
     """
     def remedy(dm, ctx):
-        from seqdist.pipeline import (DEFAULT_OBJECTIVE, WEIGHTED_OBJECTIVES, inverse_variance_weights,
-                                      suspects_to_leave_out)
+        from seqdist.pipeline import (
+            DEFAULT_OBJECTIVE,
+            WEIGHTED_OBJECTIVES,
+            inverse_variance_weights,
+            suspects_to_leave_out,
+        )
         from seqdist.repair import repair
 
         suspects_of(dm, ctx)
@@ -423,7 +427,8 @@ DESCRIPTIONS = {
     "l2_weighted": "repair, objective l2, inverse-variance weights",
     "l1": "repair, objective l1 (unweighted)",
     "leave_out_audit_top_k": "leave out the audit's k worst taxa by violated triangles (k = taxa planted)",
-    "leave_out_suspects": "leave out the taxa in suspect_taxa (seqdist.audit.suspects with the alignment, as run has it)",
+    "leave_out_suspects": ("leave out the taxa in suspect_taxa (seqdist.audit.suspects with the alignment, "
+                           "as run has it)"),
     "leave_out_suspects_matrix": "leave out the suspects found from the matrix alone (as repair and audit have it)",
     "leave_out_fewest_taxa": "leave out the fewest taxa whose removal leaves a metric (repair leave_out='fewest')",
     "suspects_then_l2_weighted": "leave out the suspects (as run picks them), then l2 with inverse-variance weights",

@@ -5,9 +5,9 @@ from __future__ import annotations
 
 import os
 
+from seqdist.cli.commands._shared import add_matrix_in, add_seed, add_subcommand, add_tol, int_range, nonneg_int
 from seqdist.core.errors import InputError, StrictFailure
 from seqdist.io.matrices import MATRIX_FORMATS
-from seqdist.cli.commands._shared import add_matrix_in, add_seed, add_subcommand, add_tol, int_range, nonneg_int
 
 #: Upper limits of the size options: the worst-triangle lists are kept per row
 #: (n x K arrays, a linear scan per insertion), and the quartet sample is held
@@ -59,8 +59,8 @@ def register(subs, common):
 def _run(args) -> int:
     from seqdist.audit.report import audit
     from seqdist.core.console import info
-    from seqdist.io.matrices import OutputSet, check_distinct_outputs, read_matrix
     from seqdist.core.matrix import DistanceMatrix
+    from seqdist.io.matrices import OutputSet, check_distinct_outputs, read_matrix
 
     # The readable summary takes standard output unless a data output does.
     summary_to_stdout = "-" not in (args.json, args.entry_counts)

@@ -2,8 +2,8 @@
 
 from __future__ import annotations
 
-from seqdist.io.matrices import read_matrix, write_matrix
 from seqdist.cli.commands._shared import add_matrix_in, add_matrix_out, add_subcommand
+from seqdist.io.matrices import read_matrix, write_matrix
 
 
 def register(subs, common):

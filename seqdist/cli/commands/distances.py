@@ -2,11 +2,6 @@
 
 from __future__ import annotations
 
-import csv
-import io
-
-import numpy as np
-
 from seqdist.cli.commands._shared import add_matrix_out, add_subcommand
 
 _DESCRIPTION = """\
@@ -70,11 +65,11 @@ def register(subs, common):
 
 
 def _run(args) -> int:
-    from seqdist.io.alignment import read_alignment
     from seqdist.core.console import info, warn
-    from seqdist.models.distances import pairwise_distances, undefined_message
     from seqdist.core.errors import InputError
+    from seqdist.io.alignment import read_alignment
     from seqdist.io.matrices import OutputSet, check_distinct_outputs, format_matrix, matrix_format
+    from seqdist.models.distances import pairwise_distances, undefined_message
 
     if args.memory < 16:
         raise InputError("--memory must be at least 16 (MB)")

@@ -2,12 +2,21 @@
 
 from __future__ import annotations
 
-from seqdist.cli.commands._shared import add_matrix_in, add_seed, add_subcommand, add_tol, nonneg_int, positive_float, positive_int
+from seqdist.cli.commands._shared import (
+    add_matrix_in,
+    add_seed,
+    add_subcommand,
+    add_tol,
+    nonneg_int,
+    positive_float,
+    positive_int,
+)
 
 
 def register(subs, common):
     p = add_subcommand(
-        subs, common, "impact", "build trees from two matrices (e.g. before and after repair) and report how they differ",
+        subs, common, "impact",
+        "build trees from two matrices (e.g. before and after repair) and report how they differ",
         "Builds one tree from BEFORE and one from AFTER with the same method and compares them:\n"
         "Robinson-Foulds distance (unrooted, non-trivial splits in one tree and not the other,\n"
         "summed over both), branch score distance, the splits found in only one tree, negative\n"
@@ -62,8 +71,8 @@ def register(subs, common):
 
 def _run(args) -> int:
     from seqdist.core.errors import InputError
-    from seqdist.io.matrices import check_distinct_outputs, read_matrix
     from seqdist.impact.compare import impact
+    from seqdist.io.matrices import check_distinct_outputs, read_matrix
     from seqdist.io.newick import read_newick_file
 
     check_distinct_outputs({"--json": args.json, "--html": args.html, "--before-tree": args.before_tree,
@@ -106,8 +115,8 @@ def _checked_truth(truth, before, args):
 def _finish(args, res) -> int:
     import sys
 
-    from seqdist.io.matrices import OutputSet
     from seqdist.impact.compare import summary_lines
+    from seqdist.io.matrices import OutputSet
 
     if args.bootstrap:
         from seqdist.impact.support import add_support

@@ -2,9 +2,8 @@
 
 from __future__ import annotations
 
-
-from seqdist.io.matrices import MATRIX_FORMATS, OutputSet
 from seqdist.cli.commands._shared import add_subcommand, positive_int
+from seqdist.io.matrices import MATRIX_FORMATS, OutputSet
 
 _HELP = """Aligns every pair of sequences with Biopython's PairwiseAligner (score only where
 the formula allows) under a substitution matrix and affine gap costs, and turns

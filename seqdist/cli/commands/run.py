@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-from seqdist.pipeline import DEFAULT_OBJECTIVE
-from seqdist.repair.engine import OBJECTIVES
 from seqdist.cli.commands._shared import add_seed, add_subcommand, nonneg_int, positive_float, positive_int
+from seqdist.pipeline import DEFAULT_OBJECTIVE
+from seqdist.repair.registry import OBJECTIVES
 
 
 def register(subs, common):

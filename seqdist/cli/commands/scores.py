@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import sys
 
-from seqdist.io.matrices import MATRIX_FORMATS, OutputSet
 from seqdist.cli.commands._shared import add_subcommand
+from seqdist.io.matrices import MATRIX_FORMATS, OutputSet
 
 _TRANSFORM_HELP = """transforms (--transform):
   diag-mean  d(a,b) = (s(a,a) + s(b,b))/2 - s(a,b)               (default)

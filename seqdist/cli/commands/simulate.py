@@ -2,10 +2,18 @@
 
 from __future__ import annotations
 
-from seqdist.core.errors import InputError
-from seqdist.simulate import (MAX_CELLS, MAX_INDEL_WORK, MAX_LENGTH, MAX_RATE_CATEGORIES, MAX_SATURATE, MAX_SCALE,
-                        MAX_TAXA, MISREAD_HOWS)
 from seqdist.cli.commands._shared import add_seed, add_subcommand, float_range, int_range, positive_float
+from seqdist.core.errors import InputError
+from seqdist.simulate import (
+    MAX_CELLS,
+    MAX_INDEL_WORK,
+    MAX_LENGTH,
+    MAX_RATE_CATEGORIES,
+    MAX_SATURATE,
+    MAX_SCALE,
+    MAX_TAXA,
+    MISREAD_HOWS,
+)
 
 _DESCRIPTION = """\
 Draws a random tree and evolves sequences down it (DNA: K80 or HKY85; protein:
@@ -45,7 +53,8 @@ def _floats(text: str) -> list[float]:
 
 def register(subs, common):
     p = add_subcommand(subs, common, "simulate", "simulate an alignment and its true tree (seeded)", _DESCRIPTION)
-    p.add_argument("-o", "--out", required=True, metavar="FASTA", help="alignment output, FASTA ('-' for standard output)")
+    p.add_argument("-o", "--out", required=True, metavar="FASTA",
+                   help="alignment output, FASTA ('-' for standard output)")
     p.add_argument("--tree-out", required=True, metavar="NEWICK", help="true tree output, Newick")
     p.add_argument("--taxa", type=int_range(3, MAX_TAXA), required=True, metavar="N",
                    help=f"number of sequences (3 to {MAX_TAXA}; taxa x length at most {MAX_CELLS})")

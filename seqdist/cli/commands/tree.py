@@ -19,7 +19,8 @@ def register(subs, common):
         "example:\n  seqdist tree dist.tsv -o tree.nwk --method bionj")
     p.add_argument("matrix", help="input matrix file ('-' for standard input)")
     add_matrix_in(p)
-    p.add_argument("-o", "--out", required=True, metavar="TREE.nwk", help="output Newick file ('-' for standard output)")
+    p.add_argument("-o", "--out", required=True, metavar="TREE.nwk",
+                   help="output Newick file ('-' for standard output)")
     p.add_argument("--method", choices=("nj", "bionj", "upgma"), default="nj", help="tree method (default: nj)")
     p.add_argument("--clamp-negative", action="store_true",
                    help="set negative branch lengths to zero (off by default; the count is reported)")
