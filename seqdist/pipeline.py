@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 
 from seqdist import __version__
 from seqdist.core.console import info
-from seqdist.core.errors import InputError
+from seqdist.core.errors import InputError, ParameterError
 from seqdist.models.distances import inverse_variance_weights  # noqa: F401  (the weights of --weighted; public here too)
 from seqdist.repair.registry import WEIGHTED_OBJECTIVES
 
@@ -373,7 +373,8 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
             say(f"      model {dres.model} has no variance formula: the repair is unweighted")
     if weighted:
         if dres.variance is None:
-            raise InputError(f"model {dres.model} has no variance formula; run without --weighted")
+            raise ParameterError.text(f"{{weighted}} needs variances, and model {dres.model} has no variance "
+                                      "formula", "weighted")
         weights = inverse_variance_weights(dres.variance, dm)
     unmeasured = unmeasured_reasons(dres.undefined, dm.labels)
     common = dict(weights=weights, time_limit=time_limit, seed=seed, progress=progress,

@@ -33,7 +33,7 @@ from typing import Sequence
 
 import numpy as np
 
-from seqdist.core.errors import InputError
+from seqdist.core.errors import InputError, ParameterError
 
 DNA_LETTERS = "ACGT"
 PROTEIN_LETTERS = "ACDEFGHIKLMNPQRSTVWY"
@@ -591,30 +591,31 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
         raise InputError(f"label prefix '{prefix}' must be letters, digits or underscores")
     gap_rate, gap_length = float(gap_rate), float(gap_length)
     if not np.isfinite(gap_rate) or gap_rate < 0:
-        raise InputError(f"--gap-rate must be a non-negative number (got {gap_rate})")
+        raise ParameterError("gap_rate", "a non-negative number", gap_rate)
     if not np.isfinite(gap_length) or gap_length < 1:
-        raise InputError(f"--gap-length must be at least 1 (got {gap_length})")
+        raise ParameterError("gap_length", "at least 1", gap_length)
     if not (0 < float(scale) <= MAX_SCALE):
-        raise InputError(f"--scale must be above 0 and at most {MAX_SCALE:g} (got {scale})")
+        raise ParameterError("scale", f"above 0 and at most {MAX_SCALE:g}", scale)
     if gap_rate > 0:
         # Expected events: rate x tree length (2n - 2 branches of mean `scale`) x residues.
         events = gap_rate * (2 * n_taxa - 2) * float(scale) * length
         columns = length + 0.5 * events * gap_length   # half the events insert a run
         if events * columns > MAX_INDEL_WORK:
-            raise InputError(f"--gap-rate {gap_rate:g} with --gap-length {gap_length:g} means about {events:.3g} "
-                             f"indel events over about {columns:.3g} columns, more than the limit of "
-                             f"{MAX_INDEL_WORK:.3g} (events x columns, about a minute); lower --gap-rate or "
-                             "--gap-length")
+            raise ParameterError.text(
+                f"{{gap_rate}} {gap_rate:g} with {{gap_length}} {gap_length:g} means about {events:.3g} indel "
+                f"events over about {columns:.3g} columns, more than the limit of {MAX_INDEL_WORK:.3g} (events x "
+                "columns, about a minute); lower {gap_rate} or {gap_length}", "gap_rate", "gap_length")
         if n_taxa * columns > MAX_CELLS:
-            raise InputError(f"--gap-rate {gap_rate:g} with --gap-length {gap_length:g} inserts about "
-                             f"{columns - length:.3g} columns; {n_taxa} taxa x {columns:.3g} columns is more "
-                             f"than the limit of {MAX_CELLS} cells; lower --gap-rate or --gap-length")
+            raise ParameterError.text(
+                f"{{gap_rate}} {gap_rate:g} with {{gap_length}} {gap_length:g} inserts about {columns - length:.3g} "
+                f"columns; {n_taxa} taxa x {columns:.3g} columns is more than the limit of {MAX_CELLS} cells; "
+                "lower {gap_rate} or {gap_length}", "gap_rate", "gap_length")
     m = make_model(alphabet, model, kappa, freqs)
     cats = None
     if alpha is not None:
         if int(rate_categories) < 0 or int(rate_categories) > MAX_RATE_CATEGORIES:
-            raise InputError(f"--rate-categories must be 0 (continuous) or from 1 to {MAX_RATE_CATEGORIES} "
-                             f"(got {rate_categories})")
+            raise ParameterError("rate_categories", f"0 (continuous) or from 1 to {MAX_RATE_CATEGORIES}",
+                                 rate_categories)
         if int(rate_categories) > 0:
             cats = gamma_rates(alpha, int(rate_categories))
         elif not np.isfinite(float(alpha)) or float(alpha) <= 0:
@@ -634,8 +635,9 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
             break
         root_length += (length - keep.size) + 8        # deletions won; try a longer root
         if root_length > 20 * length + 1000 or n_taxa * root_length > MAX_CELLS:
-            raise InputError(f"deletions remove nearly every column (--gap-rate {gap_rate:g}, --gap-length "
-                             f"{gap_length:g}): lower --gap-length or --gap-rate")
+            raise ParameterError.text(
+                f"deletions remove nearly every column ({{gap_rate}} {gap_rate:g}, {{gap_length}} {gap_length:g}): "
+                "lower {gap_length} or {gap_rate}", "gap_rate", "gap_length")
     n_cols = present.shape[1]
 
     # Site rates: a category per column (discrete gamma) or a rate per column (continuous).
@@ -699,19 +701,19 @@ def check_size(n_taxa: int, length: int) -> None:
     >>> check_size(1000, 1000000)  # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...
-    seqdist.core.errors.InputError: --taxa 1000 x --length 1000000 is 1000000000 cells, more than the limit ...
+    seqdist.core.errors.ParameterError: parameter 'n_taxa' 1000 x parameter 'length' 1000000 is ...
     """
     if n_taxa < 3:
-        raise InputError(f"--taxa must be at least 3 (got {n_taxa})")
+        raise ParameterError("n_taxa", "at least 3", n_taxa)
     if n_taxa > MAX_TAXA:
-        raise InputError(f"--taxa must be at most {MAX_TAXA} (got {n_taxa})")
+        raise ParameterError("n_taxa", f"at most {MAX_TAXA}", n_taxa)
     if length < 1:
-        raise InputError(f"--length must be at least 1 (got {length})")
+        raise ParameterError("length", "at least 1", length)
     if length > MAX_LENGTH:
-        raise InputError(f"--length must be at most {MAX_LENGTH} (got {length})")
+        raise ParameterError("length", f"at most {MAX_LENGTH}", length)
     if n_taxa * length > MAX_CELLS:
-        raise InputError(f"--taxa {n_taxa} x --length {length} is {n_taxa * length} cells, more than the "
-                         f"limit of {MAX_CELLS} (about 0.5 GB of memory)")
+        raise ParameterError.text(f"{{n_taxa}} {n_taxa} x {{length}} {length} is {n_taxa * length} cells, more "
+                                  f"than the limit of {MAX_CELLS} (about 0.5 GB of memory)", "n_taxa", "length")
 
 
 def _one_blas_thread():

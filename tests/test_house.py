@@ -105,3 +105,21 @@ def test_report_names_the_taxa_most_involved(tmp_path):
     assert p.returncode == 0
     page = (tmp_path / "o" / "report.html").read_text()
     assert "Taxa most involved: x19, x24, x18, x17, x11." in page
+
+
+def test_parameter_errors_name_the_parameter_in_python_and_the_flag_on_the_command_line(tmp_path):
+    from seqdist.core.errors import ParameterError
+    from seqdist.simulate import simulate
+
+    with pytest.raises(ParameterError) as err:
+        simulate(2, 10, seed=1)
+    assert str(err.value) == "parameter 'n_taxa' must be at least 3, got 2"
+    with pytest.raises(ParameterError) as err:
+        simulate(5, 10, seed=1, gap_rate=1e6)
+    assert str(err.value).startswith("parameter 'gap_rate' 1e+06 with parameter 'gap_length' 3 means about")
+    p = run_cli("simulate", "--taxa", 5, "--length", 10, "--gap-rate", 1e6, "-o", tmp_path / "a.fasta",
+                "--tree-out", tmp_path / "t.nwk")
+    assert p.returncode == 2 and p.stderr.count("\n") == 1
+    assert p.stderr.startswith("seqdist: error: --gap-rate 1e+06 with --gap-length 3 means about")
+    assert p.stderr.rstrip().endswith("lower --gap-rate or --gap-length")
+    assert "parameter '" not in p.stderr and not os.path.exists(tmp_path / "a.fasta")

@@ -252,7 +252,7 @@ def test_matrix_must_cover_every_letter_and_processes_must_be_positive():
                                          r"score matrix tiny .*--matrix"):
         score_distances(["a", "b"], ["ACCA", "ACGA"], TINY, source="s.fa", record_lines=[1, 3], progress=False)
     for bad in (0, -1, 1.5):
-        with pytest.raises(InputError, match="--processes"):
+        with pytest.raises(InputError, match="parameter 'processes' must be a whole number of at least 1, got "):
             score_distances(["a", "b"], ["MKV", "MKL"], processes=bad, progress=False)
 
 

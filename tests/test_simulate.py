@@ -580,7 +580,7 @@ def test_size_limits_in_the_api():
 
     with pytest.raises(InputError, match="more than the limit of 20000000"):
         simulate(1000, 1_000_000, seed=1)
-    with pytest.raises(InputError, match="--taxa must be at most 20000"):
+    with pytest.raises(InputError, match="parameter 'n_taxa' must be at most 20000, got 1000000"):
         simulate(1_000_000, 10, seed=1)
     check_size(20, MAX_CELLS // 20)        # the limits themselves are allowed
     with pytest.raises(InputError, match="saturation branch length must be above 0 and at most 1000"):

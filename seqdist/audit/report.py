@@ -26,7 +26,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from seqdist.core.errors import InputError
+from seqdist.core.errors import InputError, ParameterError
 from seqdist.core.matrix import DistanceMatrix, default_tol
 
 __all__ = ["AuditReport", "sample_quartets", "audit"]
@@ -654,7 +654,7 @@ def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
     if not isinstance(dm, DistanceMatrix):
         dm = DistanceMatrix.from_array(dm)
     if top < 0:
-        raise InputError(f"--top must be non-negative (got {top})")
+        raise ParameterError("top", "a non-negative whole number", top)
     d = np.ascontiguousarray(dm.values, dtype=np.float64)
     n = dm.n
     finite = d[~np.isnan(d)]

@@ -22,6 +22,9 @@ from seqdist import __version__
 from seqdist.core.errors import SeqdistError
 
 # In the order of the contract's table; a module that is not there yet is skipped.
+#: Python parameters whose flag is not ``--`` + the name with ``-`` for ``_``.
+_FLAGS = {"n_taxa": "--taxa", "replicates": "--bootstrap"}
+
 COMMANDS = ["distances", "scores", "audit", "repair", "tree", "impact", "run", "convert", "simulate", "pairscores"]
 
 
@@ -84,8 +87,11 @@ def main(argv: list[str] | None = None) -> int:
 
             traceback.print_exc()
         from seqdist.core.console import one_line
+        from seqdist.core.errors import ParameterError, flag
 
-        sys.stderr.write(f"seqdist: error: {one_line(exc)}\n")
+        # the library names its parameters; the command line names the flags
+        text = (exc.render(lambda p: _FLAGS.get(p) or flag(p)) if isinstance(exc, ParameterError) else str(exc))
+        sys.stderr.write(f"seqdist: error: {one_line(text)}\n")
         return exc.exit_code
     except KeyboardInterrupt:
         sys.stderr.write("seqdist: error: interrupted\n")

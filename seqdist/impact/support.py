@@ -31,7 +31,7 @@ import os
 
 import numpy as np
 
-from seqdist.core.errors import InputError
+from seqdist.core.errors import InputError, ParameterError
 from seqdist.trees.compare import nontrivial, split_labels, splits
 
 __all__ = ["split_support", "add_support"]
@@ -203,7 +203,7 @@ def add_support(res, alignment, *, replicates: int, model: str, objective: str, 
     if objective not in OBJECTIVES:
         raise InputError(f"unknown repair objective '{objective}' (choose from {', '.join(OBJECTIVES)})")
     if replicates < 1:
-        raise InputError("--bootstrap needs at least 1 replicate")
+        raise ParameterError("replicates", "at least 1", replicates)
     if isinstance(alignment, str):
         alignment_path, aln = alignment, read_alignment(alignment)
     else:

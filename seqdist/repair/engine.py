@@ -36,7 +36,7 @@ import time
 
 import numpy as np
 
-from seqdist.core.errors import InfeasibleError, InputError
+from seqdist.core.errors import InfeasibleError, InputError, ParameterError
 from seqdist.core.matrix import DistanceMatrix, default_tol
 from seqdist.repair import registry
 from seqdist.repair.problem import RepairProblem, Solution
@@ -245,11 +245,11 @@ def build_problem(dm: DistanceMatrix, weights=None, lock=None, tol=None, time_li
         tol = default_tol(D)
     tol = float(tol)
     if not np.isfinite(tol) or tol < 0:
-        raise InputError(f"--tol must be a finite non-negative number, got {tol!r}")
+        raise ParameterError("tol", "a finite non-negative number", tol)
     if time_limit is not None:
         time_limit = float(time_limit)
         if not (time_limit > 0):
-            raise InputError(f"--time-limit must be a positive number of seconds, got {time_limit!r}")
+            raise ParameterError("time_limit", "a positive number of seconds", time_limit)
     w = weights_array(weights, dm, observed, weights_source)
     locked = lock_mask(lock, dm, observed)
     w[locked] = np.inf

@@ -50,7 +50,7 @@ from typing import Sequence
 
 import numpy as np
 
-from seqdist.core.errors import InputError
+from seqdist.core.errors import InputError, ParameterError
 
 FORMULAS = ("fd", "cosine")
 MODES = ("global", "local")
@@ -345,7 +345,7 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix=None, *, mod
     if alphabet not in ALPHABETS:
         raise InputError(f"unknown alphabet '{alphabet}' (choose from {', '.join(ALPHABETS)})")
     if processes is not None and (isinstance(processes, bool) or int(processes) != processes or processes < 1):
-        raise InputError(f"--processes must be a whole number of at least 1 (got {processes})")
+        raise ParameterError("processes", "a whole number of at least 1", processes)
     where = f"{source}: " if source else ""
     kind = guess_alphabet(seqs) if alphabet == "auto" else alphabet
     if matrix is None:
