@@ -123,3 +123,19 @@ def test_parameter_errors_name_the_parameter_in_python_and_the_flag_on_the_comma
     assert p.stderr.startswith("seqdist: error: --gap-rate 1e+06 with --gap-length 3 means about")
     assert p.stderr.rstrip().endswith("lower --gap-rate or --gap-length")
     assert "parameter '" not in p.stderr and not os.path.exists(tmp_path / "a.fasta")
+
+
+def test_tree_method_registry_is_what_every_layer_reads():
+    from seqdist.core.errors import InputError
+    from seqdist.core.matrix import DistanceMatrix
+    from seqdist.trees.build import METHODS, REGISTRY, build_tree, neighbor_joining, upgma
+
+    assert METHODS == tuple(REGISTRY) == ("nj", "bionj", "upgma")
+    dm = DistanceMatrix.from_array([[0, 5, 9, 9], [5, 0, 10, 10], [9, 10, 0, 8], [9, 10, 8, 0]], list("abcd"))
+    direct = {"nj": neighbor_joining(dm), "bionj": neighbor_joining(dm, bionj=True), "upgma": upgma(dm)}
+    for name in METHODS:
+        assert build_tree(dm, name).to_newick() == direct[name].to_newick()
+    with pytest.raises(InputError, match=r"unknown tree method 'ml' \(choose from nj, bionj, upgma\)"):
+        build_tree(dm, "ml")
+    for command in ("tree", "impact", "run"):
+        assert "--method {nj,bionj,upgma}" in run_cli(command, "--help").stdout

@@ -55,15 +55,17 @@ rescan when its partner was just merged), close to ``O(n^2)`` in practice.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+from typing import Callable
+
 import numpy as np
 
 from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix
 from seqdist.core.tree import Node, Tree
 
-__all__ = ["check_matrix", "nj_q_matrix", "neighbor_joining", "bionj", "upgma", "build_tree"]
-
-METHODS = ("nj", "bionj", "upgma")
+__all__ = ["check_matrix", "nj_q_matrix", "neighbor_joining", "bionj", "upgma", "build_tree", "TreeMethod",
+           "REGISTRY", "METHODS"]
 
 
 def check_matrix(dm: DistanceMatrix, source: str | None = None, hint: str = "") -> None:
@@ -213,8 +215,35 @@ def upgma(dm: DistanceMatrix) -> Tree:
     return _assemble(dm, kids[:-1], lens, top, top_lens, True, "upgma")
 
 
+@dataclass(frozen=True)
+class TreeMethod:
+    """One tree-building method: its name, what it is, and its builder ``(dm, clamp_negative) -> Tree``."""
+
+    name: str
+    description: str
+    build: Callable
+
+
+def _upgma(dm: DistanceMatrix, clamp_negative: bool = False) -> Tree:
+    t = upgma(dm)
+    if clamp_negative:
+        t.clamp_negative()
+    return t
+
+
+#: The tree methods, read by :func:`build_tree`, the command line's ``--method`` choices and the tests.
+REGISTRY = {m.name: m for m in (
+    TreeMethod("nj", "neighbor joining (Saitou & Nei 1987)",
+               lambda dm, clamp_negative=False: neighbor_joining(dm, clamp_negative=clamp_negative)),
+    TreeMethod("bionj", "BIONJ (Gascuel 1997)",
+               lambda dm, clamp_negative=False: neighbor_joining(dm, bionj=True, clamp_negative=clamp_negative)),
+    TreeMethod("upgma", "UPGMA (Sokal & Michener 1958)", _upgma),
+)}
+METHODS = tuple(REGISTRY)
+
+
 def build_tree(dm: DistanceMatrix, method: str = "nj", *, clamp_negative: bool = False) -> Tree:
-    """Build a tree with ``method`` in ``{"nj", "bionj", "upgma"}``.
+    """Build a tree with ``method``, one of :data:`METHODS` (``nj``, ``bionj``, ``upgma``).
 
     Examples
     --------
@@ -222,13 +251,7 @@ def build_tree(dm: DistanceMatrix, method: str = "nj", *, clamp_negative: bool =
     >>> build_tree(dm, "nj").labels()
     ['a', 'b', 'c']
     """
-    if method == "nj":
-        return neighbor_joining(dm, clamp_negative=clamp_negative)
-    if method == "bionj":
-        return neighbor_joining(dm, bionj=True, clamp_negative=clamp_negative)
-    if method == "upgma":
-        t = upgma(dm)
-        if clamp_negative:
-            t.clamp_negative()
-        return t
-    raise InputError(f"unknown tree method '{method}' (choose from {', '.join(METHODS)})")
+    entry = REGISTRY.get(method) if isinstance(method, str) else None
+    if entry is None:
+        raise InputError(f"unknown tree method '{method}' (choose from {', '.join(METHODS)})")
+    return entry.build(dm, clamp_negative=clamp_negative)

@@ -11,6 +11,7 @@ from seqdist.cli.commands._shared import (
     positive_float,
     positive_int,
 )
+from seqdist.trees.build import METHODS
 
 
 def register(subs, common):
@@ -38,7 +39,7 @@ def register(subs, common):
     p.add_argument("before", help="matrix before the change (e.g. as measured)")
     p.add_argument("after", help="matrix after the change (e.g. repaired)")
     add_matrix_in(p)
-    p.add_argument("--method", choices=("nj", "bionj", "upgma"), default="nj", help="tree method (default: nj)")
+    p.add_argument("--method", choices=METHODS, default="nj", help="tree method (default: nj)")
     p.add_argument("--json", metavar="FILE", default=None, help="write the report as JSON ('-' for standard output)")
     p.add_argument("--html", metavar="FILE", default=None, help="write a self-contained html page")
     p.add_argument("--truth", metavar="TREE.nwk", default=None, help="a reference tree to score both trees against")

@@ -5,6 +5,7 @@ from __future__ import annotations
 from seqdist.cli.commands._shared import add_seed, add_subcommand, nonneg_int, positive_float, positive_int
 from seqdist.pipeline import DEFAULT_OBJECTIVE
 from seqdist.repair.registry import OBJECTIVES
+from seqdist.trees.build import METHODS
 
 
 def register(subs, common):
@@ -61,7 +62,7 @@ def register(subs, common):
     p.add_argument("--keep-suspects", action="store_true",
                    help="keep the suspect sequences in the repaired matrix and its tree (default: leave "
                         "them out; the other choice is built too and compared in the report)")
-    p.add_argument("--method", choices=("nj", "bionj", "upgma"), default="nj", help="tree method (default: nj)")
+    p.add_argument("--method", choices=METHODS, default="nj", help="tree method (default: nj)")
     g = p.add_mutually_exclusive_group()
     g.add_argument("--truth", metavar="TREE.nwk", default="auto", help="reference tree to score both trees against")
     g.add_argument("--no-truth", action="store_true", help="do not look for a reference tree")

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from seqdist.cli.commands._shared import add_matrix_in, add_subcommand
+from seqdist.trees.build import METHODS
 
 
 def register(subs, common):
@@ -21,7 +22,7 @@ def register(subs, common):
     add_matrix_in(p)
     p.add_argument("-o", "--out", required=True, metavar="TREE.nwk",
                    help="output Newick file ('-' for standard output)")
-    p.add_argument("--method", choices=("nj", "bionj", "upgma"), default="nj", help="tree method (default: nj)")
+    p.add_argument("--method", choices=METHODS, default="nj", help="tree method (default: nj)")
     p.add_argument("--clamp-negative", action="store_true",
                    help="set negative branch lengths to zero (off by default; the count is reported)")
     p.add_argument("--json", metavar="FILE", default=None,
