@@ -16,6 +16,7 @@ import time
 from dataclasses import dataclass, field
 
 from seqdist import __version__
+from seqdist.audit.suspects import REASON_PREFIX
 from seqdist.core.console import info
 from seqdist.core.errors import InputError, ParameterError
 from seqdist.models.distances import inverse_variance_weights  # noqa: F401  (the weights of --weighted; public here too)
@@ -388,7 +389,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     if drop:
         from seqdist.core.console import warn
 
-        shown = "; ".join(f"{lab} ({why.removeprefix('suspect sequence: ')})"
+        shown = "; ".join(f"{lab} ({why.removeprefix(REASON_PREFIX)})"
                           for lab, why in list(suspects.items())[:5])
         more = f"; and {len(suspects) - 5} more" if len(suspects) > 5 else ""
         warn(f"{len(suspects)} suspect sequence{'s' if len(suspects) != 1 else ''} left out of the repaired "
@@ -662,7 +663,7 @@ def job_section(job: dict) -> str:
     filled_text = f"{filled:,} missing entries filled" + (f" ({'; '.join(how)})" if how else "")
     left = r.get("left_out_taxa") or []
     reasons = r.get("left_out_reasons") or {}
-    suspects = [lab for lab in left if str(reasons.get(lab, "")).startswith("suspect sequence")]
+    suspects = [lab for lab in left if str(reasons.get(lab, "")).startswith(REASON_PREFIX)]
     unmeasured = [lab for lab in left if lab not in suspects]
     parts = ([f"{_names(unmeasured)} left out (no measured distance to the others)"] if unmeasured else []) + (
         [f"{_names(suspects)} left out as suspect sequences"] if suspects else [])

@@ -59,8 +59,8 @@ import numpy as np
 from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix
 
-__all__ = ["combine", "Suspect", "SuspectReport", "robust_z", "spearman_rows", "complete_core", "group_counts",
-           "nearest_shift", "find_suspects"]
+__all__ = ["REASON_PREFIX", "combine", "Suspect", "SuspectReport", "robust_z", "spearman_rows", "complete_core",
+           "group_counts", "nearest_shift", "find_suspects"]
 
 #: Default threshold on the combined score (the largest robust z-score of a
 #: taxon); calibrated in tests/benchmarks/bench_suspects.py (docs/suspects.md).
@@ -140,6 +140,10 @@ _STATS = {
 STATISTICS = tuple(_STATS)
 
 
+#: How a suspect's reason for being left out begins (``SuspectReport.reasons``); the report
+#: tells suspects from other taxa left out by it.
+REASON_PREFIX = "suspect sequence: "
+
 @dataclass(frozen=True)
 class Suspect:
     """One taxon: its combined score, the evidence and the reasons in plain words.
@@ -206,7 +210,7 @@ class SuspectReport:
         >>> find_suspects(DistanceMatrix.from_array([[0, 1, 2], [1, 0, 2], [2, 2, 0]])).reasons()
         {}
         """
-        return {s.label: f"suspect sequence: {s.reasons[0] if s.reasons else f'score {s.score:.3g}'}"
+        return {s.label: REASON_PREFIX + (s.reasons[0] if s.reasons else f"score {s.score:.3g}")
                 for s in self.suspects}
 
 
