@@ -14,6 +14,7 @@ import os
 import platform
 import time
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 from seqdist import __version__
 from seqdist.audit.suspects import REASON_PREFIX
@@ -21,6 +22,14 @@ from seqdist.core.console import info
 from seqdist.core.errors import InputError, ParameterError
 from seqdist.models.distances import inverse_variance_weights  # noqa: F401  (the weights of --weighted; public here too)
 from seqdist.repair.registry import WEIGHTED_OBJECTIVES
+
+if TYPE_CHECKING:  # the types of JobResult's fields, without importing them for `seqdist --help`
+    from seqdist.audit.report import AuditReport
+    from seqdist.impact.compare import ImpactResult
+    from seqdist.impact.result import ImpactReport
+    from seqdist.models.distances import DistanceResult
+    from seqdist.repair.engine import RepairResult
+    from seqdist.repair.result import RepairReport
 
 __all__ = ["JobResult", "split_times", "check_outdir", "unmeasured_reasons", "rres_unmeasured",
            "suspects_to_leave_out", "command_line", "run_job", "left_out_section", "suspects_section", "job_section"]
@@ -59,17 +68,43 @@ FILES = {
 
 @dataclass
 class JobResult:
-    """What :func:`run_job` did: the output folder, file paths and the step reports."""
+    """What :func:`run_job` did: the output folder, its files and the typed result of each step.
+
+    The JSON files of the folder are these results' documents with the
+    wall-clock times taken out (they go to ``manifest.json``).
+
+    Attributes
+    ----------
+    outdir : str
+        The output folder.
+    files : dict of str to str
+        Path of each file written, by its key in ``FILES``.
+    distances : DistanceResult
+        The distances step (:func:`seqdist.models.distances.pairwise_distances`);
+        ``distances.summary()`` is ``distances.json``.
+    audit : AuditReport
+        The audit with the suspect sequences (:func:`seqdist.audit.report.audit`);
+        ``audit.to_dict()`` is ``audit.json``.
+    repair : RepairResult
+        The repair (:func:`seqdist.repair.repair`); ``repair.report`` is its
+        :class:`~seqdist.repair.result.RepairReport` (``repair.json``).
+    impact : ImpactResult
+        The trees and their comparison (:func:`seqdist.impact.compare.impact`);
+        ``impact.report`` is its :class:`~seqdist.impact.result.ImpactReport`
+        (``impact.json``), with the remedies and any bootstrap support.
+    seconds : dict of str to float
+        Wall-clock time of each step (seconds).
+    """
 
     def __repr__(self) -> str:
         return f"JobResult(outdir={self.outdir!r}, files={len(self.files)})"
 
     outdir: str
     files: dict
-    distances: dict
-    audit: dict
-    repair: dict
-    impact: dict
+    distances: DistanceResult
+    audit: AuditReport
+    repair: RepairResult
+    impact: ImpactResult
     seconds: dict = field(default_factory=dict)
 
 
@@ -301,7 +336,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     --------
     >>> import tempfile
     >>> r = run_job("example_sequences/dna_clean.fasta", tempfile.mkdtemp(), progress=False)  # doctest: +SKIP
-    >>> r.repair["changed_entries"]  # doctest: +SKIP
+    >>> r.repair.report.changed_entries  # doctest: +SKIP
     0
     """
     from seqdist.audit.report import audit
@@ -357,7 +392,6 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     # with --bootstrap, the placement instability (leaf stability) joins the evidence (shown, not scored)
     arep.suspects = find_suspects(dm, audit_report=arep, alignment=aln, model=dres.model, gamma=gamma,
                                   gaps=gaps, seed=seed, replicates=bootstrap)
-    audit_dict, audit_times = split_times(arep.to_dict())
     seconds["audit"] = time.perf_counter() - t
     sus = arep.suspects.suspects
     say(f"      {arep.violated} of {arep.checked_triangles} checked triangles violated; "
@@ -404,13 +438,13 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", DataWarning)  # the main repair has said it already
             other = repair(dm, objective, leave_out=None if drop else suspects, **{**common, "progress": False})
-    rep, repair_times = split_times(dict(rres.report))
+    rep = rres.report
     seconds["repair"] = time.perf_counter() - t
-    left = f", {len(rep['left_out_taxa'])} taxa left out" if rep["left_out_taxa"] else ""
-    made_up = (f" ({rep['filled_without_evidence']} without evidence)" if rep["filled_without_evidence"] else "")
-    say(f"      {rep['changed_entries']} of {rep['observed_entries']} measured entries changed, "
-        f"{rep['filled_entries']} missing filled{made_up}{left}, "
-        f"{'optimal' if rep['optimal'] else 'not proven optimal'} ({seconds['repair']:.2f} s)")
+    left = f", {len(rep.left_out_taxa)} taxa left out" if rep.left_out_taxa else ""
+    made_up = (f" ({rep.filled_without_evidence} without evidence)" if rep.filled_without_evidence else "")
+    say(f"      {rep.changed_entries} of {rep.observed_entries} measured entries changed, "
+        f"{rep.filled_entries} missing filled{made_up}{left}, "
+        f"{'optimal' if rep.optimal else 'not proven optimal'} ({seconds['repair']:.2f} s)")
 
     t = time.perf_counter()
     say(f"[4/5] trees ({method}) before and after repair, compared")
@@ -421,7 +455,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         if set(truth_tree.labels()) != set(dm.labels):
             raise InputError(f"{truth}: the reference tree's leaves differ from the alignment's ids")
     reasons = {lab: (f"kept by the repair with a made-up value, {why}" if keep_unmeasured
-                     else f"left out by the repair, {why}") for lab, why in rep["unmeasured_taxa"].items()}
+                     else f"left out by the repair, {why}") for lab, why in rep.unmeasured_taxa.items()}
     reasons.update({lab: f"left out as a {why}" for lab, why in suspects.items() if drop})
     ires = impact(dm, rres.matrix, method, truth=truth_tree, drop_incomplete=True,
                   names=("measured", "repaired"), reasons=reasons)
@@ -431,11 +465,11 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         alt = "repaired, suspects kept" if drop else "repaired, suspects left out"
         table = remedy_table({"measured": ires.tree_before, chosen: ires.tree_after, alt: other_tree},
                              truth_tree)
-        table["chosen"] = chosen
-        table["suspects"] = list(suspects)
+        table.chosen = chosen
+        table.suspects = list(suspects)
         # the two choices about the suspects, on the taxa both trees hold
-        table["rf_with_without_suspects"] = table["rf_between"][1][2]
-        ires.report["remedies"] = table
+        table.rf_with_without_suspects = table.rf_between[1][2]
+        ires.report.remedies = table
     if bootstrap:
         from seqdist.impact.support import add_support
 
@@ -451,7 +485,9 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
                "truth": truth, "time_limit": time_limit, "seed": seed, "bootstrap": bootstrap,
                "keep_unmeasured": keep_unmeasured, "keep_suspects": keep_suspects}
     command = command_line(alignment, options)
-    irep, impact_times = split_times(dict(ires.report))
+    audit_dict, audit_times = split_times(arep.to_dict())
+    rep_dict, repair_times = split_times(rep.to_dict())
+    irep, impact_times = split_times(ires.report.to_dict())
     texts = {}
     texts["distances"] = format_matrix(dm, "tsv")
     texts["sites"] = format_matrix(dres.sites, "tsv")
@@ -468,9 +504,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     texts["audit_json"] = js(audit_dict)
     texts["audit_text"] = arep.summary(source=FILES["distances"])
     texts["repaired"] = format_matrix(rres.matrix, "tsv")
-    rep_out = dict(rep)
-    rep_out["input"] = FILES["distances"]
-    texts["repair_json"] = js(rep_out)
+    texts["repair_json"] = js({**rep_dict, "input": FILES["distances"]})
     texts["changes"] = rres.changes_text()
     if weights is not None:
         texts["weights"] = format_matrix(weights, "tsv")
@@ -480,14 +514,14 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         texts["tree_with_suspects" if drop else "tree_without_suspects"] = other_tree.to_newick()
     texts["impact_json"] = js(irep)
     job = {"alignment": os.path.basename(alignment), "n": dm.n, "columns": aln.length, "alphabet": dres.alphabet,
-           "model": dres.model, "undefined": list(dres.undefined), "audit": audit_dict, "repair": rep,
+           "model": dres.model, "undefined": list(dres.undefined), "audit": arep, "repair": rep,
            "objective": objective, "weighted": weighted}
     made_up_pairs = [(c[0], c[1]) for c in rres.changes if c[5] == "filled_without_evidence"]
     texts["report"] = render_html(ires, names=("measured", "repaired"),
                                   title=f"seqdist report: {os.path.basename(alignment)}",
                                   preamble=job_section(job), reference=truth, command=command,
                                   made_up_pairs=made_up_pairs,
-                                  lead=left_out_section(rep) + suspects_section(audit_dict, irep, keep_suspects),
+                                  lead=left_out_section(rep) + suspects_section(arep, ires.report, keep_suspects),
                                   extra_trees=[("repaired, suspects kept" if drop else "repaired, suspects left out",
                                                 other_tree)] if other_tree is not None else None)
     seconds["report"] = time.perf_counter() - t
@@ -517,8 +551,8 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
             paths[key] = os.path.join(outdir, FILES[key])
             out.add_text(paths[key], text)
     say(f"done in {seconds['total']:.1f} s: report {paths['report']}")
-    return JobResult(outdir=outdir, files=paths, distances=dres.summary(), audit=audit_dict, repair=rep,
-                     impact=irep, seconds=seconds)
+    return JobResult(outdir=outdir, files=paths, distances=dres, audit=arep, repair=rres, impact=ires,
+                     seconds=seconds)
 
 
 def _esc(x) -> str:
@@ -532,45 +566,46 @@ def _names(labels, limit: int = 8) -> str:
     return shown + (f" and {len(labels) - limit} more" if len(labels) > limit else "")
 
 
-def left_out_section(rep: dict) -> str:
+def left_out_section(rep: RepairReport) -> str:
     """The html box, first on the page, naming taxa left out or kept with made-up values."""
-    why = rep.get("unmeasured_taxa") or {}
+    why = rep.unmeasured_taxa
     if not why:
         return ""
     labels = list(why)
     detail = "; ".join(f"{_esc(lab)}: {_esc(why[lab])}" for lab in labels[:8])
-    rest = rep.get("n_input", 0) - len(labels)
-    if set(labels) <= set(rep.get("left_out_taxa") or []):
+    rest = rep.n_input - len(labels)
+    if set(labels) <= set(rep.left_out_taxa):
         return (f'<div class="caution"><b>Left out: {_names(labels)}.</b> No measured distance joins '
                 f"{'it' if len(labels) == 1 else 'them'} to the other {rest:,} taxa ({detail}), so nothing "
                 "can be said of where they belong. They are not in <code>repaired.tsv</code> nor in the trees. "
                 "(<code>--keep-unmeasured</code> keeps them with a made-up value instead.)</div>")
     return (f'<div class="caution"><b>Made-up values: {_names(labels)}.</b> No measured distance joins '
             f"{'it' if len(labels) == 1 else 'them'} to the other taxa ({detail}). Kept on request "
-            f"(<code>--keep-unmeasured</code>), their {rep.get('filled_without_evidence', 0):,} distances to the rest "
-            f"are one made-up value ({rep.get('between_groups_value') or 0:.6g}), not evidence, marked "
+            f"(<code>--keep-unmeasured</code>), their {rep.filled_without_evidence:,} distances to the rest "
+            f"are one made-up value ({rep.between_groups_value or 0:.6g}), not evidence, marked "
             "<code>filled_without_evidence</code> in <code>changes.tsv</code> and drawn black in the heatmap. "
             "Where they sit in the repaired tree says nothing about the data.</div>")
 
 
-def suspects_section(audit: dict, impact_report: dict, keep_suspects: bool) -> str:
+def suspects_section(audit: AuditReport, impact_report: ImpactReport, keep_suspects: bool) -> str:
     """The html that leads the report: the suspect sequences and their evidence, then
     what each remedy did to the tree, on the same taxa."""
-    sus = audit.get("suspect_taxa") or []
-    info = audit.get("suspects") or {}
-    thr = info.get("threshold")
+    found = audit.suspects
+    sus = found.suspects if found is not None else []
+    thr = found.threshold if found is not None else None
     out = ['<h2>Suspect sequences</h2>']
     if not sus:
         out.append(f'<p>No sequence looks bad: no taxon\'s combined score reaches the threshold {thr:g} '
                    "(statistics and threshold: docs/suspects.md).</p>" if thr is not None else "<p>None.</p>")
     else:
         rows = []
-        unmeasured = set((impact_report.get("left_out_reasons") or {}))
-        remedied = set((impact_report.get("remedies") or {}).get("suspects", []))
+        unmeasured = set(impact_report.left_out_reasons)
+        table = impact_report.remedies
+        remedied = set(table.suspects or []) if table is not None else set()
         for x in sus:
-            reasons = "<br>".join(_esc(r) for r in x.get("reasons", [])) or "&nbsp;"
-            note = (" (no measured distance to the others)" if x["label"] in unmeasured - remedied else "")
-            rows.append(f'<tr><td class="l"><b>{_esc(x["label"])}</b>{_esc(note)}</td><td>{x["score"]:.3g}</td>'
+            reasons = "<br>".join(_esc(r) for r in x.reasons) or "&nbsp;"
+            note = (" (no measured distance to the others)" if x.label in unmeasured - remedied else "")
+            rows.append(f'<tr><td class="l"><b>{_esc(x.label)}</b>{_esc(note)}</td><td>{x.score:.3g}</td>'
                         f'<td class="l">{reasons}</td></tr>')
         out.append(f"<p>{len(sus)} sequence{'s' if len(sus) != 1 else ''} look{'s' if len(sus) == 1 else ''} bad: "
                    f"a combined score of per-taxon statistics at or above {thr:g} (docs/suspects.md). Look at "
@@ -578,37 +613,37 @@ def suspects_section(audit: dict, impact_report: dict, keep_suspects: bool) -> s
                    "sequence spoils its whole row, and no repair moves it to its place.</p>")
         out.append('<table><tr><th class="l">sequence</th><th>score</th><th class="l">evidence</th></tr>'
                    + "".join(rows) + "</table>")
-    table = impact_report.get("remedies")
-    if table:
-        n = table["n_compared"]
-        has_truth = any("rf_to_truth" in r for r in table["rows"])
+    table = impact_report.remedies
+    if table is not None:
+        n = table.n_compared
+        has_truth = any(r.rf_to_truth is not None for r in table.rows)
         head = (f'<tr><th class="l">tree</th><th>taxa</th><th>Robinson-Foulds to the measured tree '
                 f'(on the {n} common taxa)</th>'
                 + (f"<th>Robinson-Foulds to the reference (on the {n} common taxa)</th>"
                    "<th>to the reference, on its own taxa (normalised)</th>" if has_truth else "") + "</tr>")
         rows = []
-        for r in table["rows"]:
-            mark = " (chosen)" if r["name"] == table.get("chosen") else ""
-            cells = f'<td class="l">{_esc(r["name"])}{mark}</td><td>{r["n_taxa"]}</td><td>{r["rf_to_first"]}</td>'
+        for r in table.rows:
+            mark = " (chosen)" if r.name == table.chosen else ""
+            cells = f'<td class="l">{_esc(r.name)}{mark}</td><td>{r.n_taxa}</td><td>{r.rf_to_first}</td>'
             if has_truth:
-                own = r.get("rf_to_truth_own_taxa_normalized")
-                cells += (f"<td>{r['rf_to_truth']} ({r['rf_to_truth_normalized']:.3f})</td>"
+                own = r.rf_to_truth_own_taxa_normalized
+                cells += (f"<td>{r.rf_to_truth} ({r.rf_to_truth_normalized:.3f})</td>"
                           f"<td>{'' if own is None else f'{own:.3f}'}</td>")
             rows.append(f"<tr>{cells}</tr>")
         left = ("left out of the repaired matrix and its tree (the default; <code>--keep-suspects</code> keeps "
                 "them)" if not keep_suspects else "kept, as asked (<code>--keep-suspects</code>); the tree "
                 "without them is built for comparison")
-        out.append(f"<h3>What each remedy did to the tree</h3><p>The suspects ({_esc(', '.join(table['suspects']))}) "
+        out.append(f"<h3>What each remedy did to the tree</h3><p>The suspects ({_esc(', '.join(table.suspects))}) "
                    f"are {left}. Every tree is compared on the {n} taxa all of them hold"
                    + ("; the last column scores each tree on all of its own taxa, which shows what keeping "
                       "the suspects costs" if has_truth else "") + ".</p>")
         out.append(f"<table>{head}{''.join(rows)}</table>")
-        between = table.get("rf_with_without_suspects")
+        between = table.rf_with_without_suspects
         if between is not None:
             same = "the same topology" if between == 0 else f"{between} splits apart (Robinson-Foulds)"
-            sup = impact_report.get("support")
+            sup = impact_report.support
             out.append(f"<p>With and without the suspects the repaired trees have {same} on the {n} common taxa."
-                       + (f" Bootstrap support ({sup['replicates']} column resamples) is given for the measured "
+                       + (f" Bootstrap support ({sup.replicates} column resamples) is given for the measured "
                           "tree and the chosen one, each replicate treated the same way (Triangles and splits, "
                           "below)." if sup else "") + "</p>")
     return "".join(out)
@@ -617,8 +652,12 @@ def suspects_section(audit: dict, impact_report: dict, keep_suspects: bool) -> s
 def job_section(job: dict) -> str:
     """The html section on the steps before the trees: data, audit and repair.
 
-    Counts and denominators are the ones the JSON files hold: ``audit.json``
-    for the measured matrix (checked triangles: all three sides measured),
+    ``job`` holds the data's figures (``alignment``, ``n``, ``columns``,
+    ``alphabet``, ``model``, ``undefined``, ``objective``, ``weighted``),
+    the :class:`~seqdist.audit.report.AuditReport` (``audit``) and the
+    :class:`~seqdist.repair.result.RepairReport` (``repair``). Counts and
+    denominators are the ones the JSON files hold: ``audit.json`` for the
+    measured matrix (checked triangles: all three sides measured),
     ``repair.json`` for the repair (on the taxa it kept).
     """
     a = job["audit"]
@@ -636,49 +675,47 @@ def job_section(job: dict) -> str:
         rows.append(f" ({shown}{', ...' if len(undefined) > 6 else ''}; left missing in <code>distances.tsv</code>, "
                     "listed in <code>distances.json</code>)")
     rows.append(".</p>")
-    viol = a.get("violated_triangles", 0)
-    tri = a.get("triangles", 0)
-    checked = a.get("checked_triangles", tri)
-    lb = a.get("min_changes_lower_bound", 0)
+    viol = a.violated
+    tri = a.triangles
+    checked = a.checked_triangles
+    lb = a.min_changes_lower_bound
     unchecked = f" ({tri - checked:,} of {tri:,} not checked: a side is missing)" if checked < tri else ""
     if viol:
         rows.append(f"<p><b>Audit.</b> {viol:,} of {checked:,} checked triangles break the triangle inequality"
-                    f"{unchecked}; largest excess {a.get('max_violation', 0):.4g}; any repair must change at "
+                    f"{unchecked}; largest excess {a.max_violation:.4g}; any repair must change at "
                     f"least {lb:,} entr{'y' if lb == 1 else 'ies'}.")
-        worst = a.get("taxa") or []
-        names = [w.get("taxon") for w in worst[:5] if isinstance(w, dict) and w.get("violated_triangles")]
+        names = a.taxa_most_involved(5)
         if names:
             rows.append(f" Taxa most involved: {', '.join(_esc(x) for x in names)}.")
         rows.append("</p>")
     else:
         rows.append(f"<p><b>Audit.</b> None of the {checked:,} checked triangles breaks the triangle inequality"
                     f"{unchecked}: the measured entries need no repair.</p>")
-    bound = "proven optimal" if r.get("optimal") else f"lower bound {r.get('lower_bound', 0):.6g}, not proven optimal"
-    filled = r.get("filled_entries", 0)
+    bound = "proven optimal" if r.optimal else f"lower bound {r.lower_bound:.6g}, not proven optimal"
     how = []
-    if r.get("filled_by_path"):
-        how.append(f"{r['filled_by_path']:,} by shortest paths through measured entries")
-    if r.get("filled_without_evidence"):
-        how.append(f"{r['filled_without_evidence']:,} without evidence (one made-up value)")
-    filled_text = f"{filled:,} missing entries filled" + (f" ({'; '.join(how)})" if how else "")
-    left = r.get("left_out_taxa") or []
-    reasons = r.get("left_out_reasons") or {}
+    if r.filled_by_path:
+        how.append(f"{r.filled_by_path:,} by shortest paths through measured entries")
+    if r.filled_without_evidence:
+        how.append(f"{r.filled_without_evidence:,} without evidence (one made-up value)")
+    filled_text = f"{r.filled_entries:,} missing entries filled" + (f" ({'; '.join(how)})" if how else "")
+    left = r.left_out_taxa
+    reasons = r.left_out_reasons
     suspects = [lab for lab in left if str(reasons.get(lab, "")).startswith(REASON_PREFIX)]
     unmeasured = [lab for lab in left if lab not in suspects]
     parts = ([f"{_names(unmeasured)} left out (no measured distance to the others)"] if unmeasured else []) + (
         [f"{_names(suspects)} left out as suspect sequences"] if suspects else [])
-    left_text = (f" {'; '.join(parts)}; the repair is on the other {r.get('n', 0):,} taxa." if left else "")
-    r_tri = r.get("triangles", 0)
-    r_checked = r.get("checked_triangles_before", r_tri)
+    left_text = (f" {'; '.join(parts)}; the repair is on the other {r.n:,} taxa." if left else "")
+    r_tri = r.triangles
+    r_checked = r.checked_triangles_before
     before_of = f" of {r_checked:,} checked" if r_checked < r_tri else ""
-    vb = r.get("violated_before_leaving_out")
+    vb = r.violated_before_leaving_out
     leaving = (f"; {vb:,} were violated before the taxa were left out"
-               if vb is not None and vb != r.get("violated_before", 0) else "")
+               if vb is not None and vb != r.violated_before else "")
     rows.append(f"<p><b>Repair.</b> Objective <code>{_esc(job['objective'])}</code>"
                 f"{' weighted by inverse variance' if job['weighted'] else ''}:{left_text} "
-                f"{r.get('changed_entries', 0):,} of {r.get('observed_entries', pairs):,} measured entries changed, "
-                f"{filled_text}; objective value {r.get('objective_value', 0):.6g} ({bound}); violated triangles "
-                f"{r.get('violated_before', 0):,}{before_of} before, {r.get('violated_after', 0):,} after "
+                f"{r.changed_entries:,} of {r.observed_entries:,} measured entries changed, "
+                f"{filled_text}; objective value {r.objective_value:.6g} ({bound}); violated triangles "
+                f"{r.violated_before:,}{before_of} before, {r.violated_after:,} after "
                 f"(of {r_tri:,}){leaving}. "
                 "Each changed or filled entry is listed in <code>changes.tsv</code>, with how it was made.</p>")
     return '<h2>From alignment to metric</h2><div class="summary">' + "".join(rows) + "</div>"

@@ -50,7 +50,7 @@ def test_changes_frame_matches_the_changes(demo):
     r = demo["repair"]
     df = r.changes_frame()
     assert list(df.columns) == ["label_a", "label_b", "before", "after", "change", "how"]
-    assert len(df) == len(r.changes) == r.report["changed_entries"] + r.report["filled_entries"]
+    assert len(df) == len(r.changes) == r.report.changed_entries + r.report.filled_entries
     assert df["how"].isin(["changed", "filled_by_path"]).all()
     changed = df[df["how"] == "changed"]
     assert np.allclose(changed["after"] - changed["before"], changed["change"])

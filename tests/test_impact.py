@@ -77,8 +77,8 @@ def test_branch_score_and_rf_match_dendropy(tmp_path):
     tns = dendropy.TaxonNamespace()
     a = dendropy.Tree.get(data=res.tree_before.to_newick(), schema="newick", taxon_namespace=tns)
     b = dendropy.Tree.get(data=res.tree_after.to_newick(), schema="newick", taxon_namespace=tns)
-    assert res.report["rf"] == symmetric_difference(a, b)
-    assert res.report["branch_score"] == pytest.approx(euclidean_distance(a, b), rel=1e-9)
+    assert res.report.rf == symmetric_difference(a, b)
+    assert res.report.branch_score == pytest.approx(euclidean_distance(a, b), rel=1e-9)
 
 
 def test_violated_triangles_match_plain_loop():
@@ -93,9 +93,9 @@ def test_violated_triangles_match_plain_loop():
     count = 0
     for i, j, k in combinations(range(9), 3):
         s = sorted([D[i, j], D[i, k], D[j, k]])
-        count += s[2] > s[0] + s[1] + r["tol"]
-    assert r["violated_triangles_before"] == count == r["violated_triangles_after"]
-    assert r["rf"] == 0 and r["entries_changed"] == 0 and r["branch_score"] == 0
+        count += s[2] > s[0] + s[1] + r.tol
+    assert r.violated_triangles_before == count == r.violated_triangles_after
+    assert r.rf == 0 and r.entries_changed == 0 and r.branch_score == 0
 
 
 def test_label_order_may_differ(tmp_path, cli, pair):

@@ -226,8 +226,8 @@ def test_metric_input_comes_back_unchanged(kind):
     D = euclidean(12, seed=3)
     r = repair(D, kind, progress=False)
     assert np.array_equal(r.matrix.values, D)
-    assert r.report["changed_entries"] == 0 and r.report["objective_value"] == 0.0
-    assert r.report["optimal"]
+    assert r.report.changed_entries == 0 and r.report.objective_value == 0.0
+    assert r.report.optimal
 
 
 @pytest.mark.parametrize("kind", ["l1", "l2"])
@@ -239,14 +239,14 @@ def test_weight_zero_lets_an_entry_move_freely(kind):
     r = repair(D, kind, weights=W, progress=False)
     X = r.matrix.values
     # the free entry takes the whole repair: nothing else changes, at no cost
-    assert r.report["objective_value"] <= 1e-12
+    assert r.report.objective_value <= 1e-12
     mask = np.ones_like(D, bool)
     mask[0, 1] = mask[1, 0] = False
     assert np.allclose(X[mask], D[mask], atol=1e-9)
     assert X[0, 1] < D[0, 1] and is_metric(X, 1e-9 * D.max())
     # without the zero weight the same error costs something
     r1 = repair(D, kind, progress=False)
-    assert r1.report["objective_value"] > 0.1
+    assert r1.report.objective_value > 0.1
 
 
 @pytest.mark.parametrize("kind", ["l1", "l2"])
@@ -289,7 +289,7 @@ def test_l2_objective_is_below_the_shrink_closure():
     s = repair(D, "shrink", progress=False)
     c = float(((s.matrix.values - D)[np.triu_indices(40, 1)] ** 2).sum())
     r = repair(D, "l2", progress=False)
-    assert r.report["objective_value"] <= c and r.report["lower_bound"] <= r.report["objective_value"]
+    assert r.report.objective_value <= c and r.report.lower_bound <= r.report.objective_value
 
 
 @st.composite
@@ -312,14 +312,14 @@ def test_property_metric_with_bound_below_value(D, kind, weighted_):
         W = W + W.T
     r = repair(D, kind, weights=W, progress=False)
     X = r.matrix.values
-    assert is_metric(X, r.report["tol"])
-    assert r.report["lower_bound"] <= r.report["objective_value"] + 1e-9
+    assert is_metric(X, r.report.tol)
+    assert r.report.lower_bound <= r.report.objective_value + 1e-9
     # the reported value is what the returned matrix costs
     Wf = np.ones_like(D) if W is None else W
-    assert np.isclose(weighted(D, X, Wf, kind), r.report["objective_value"], rtol=1e-6, atol=1e-9)
-    if r.report["optimal"]:
+    assert np.isclose(weighted(D, X, Wf, kind), r.report.objective_value, rtol=1e-6, atol=1e-9)
+    if r.report.optimal:
         ref = cvx_solve(D, Wf, np.zeros(D.shape, bool), kind) if (Wf > 0).any() else 0.0
-        assert r.report["objective_value"] <= ref * (1 + 1e-5) + 1e-7
+        assert r.report.objective_value <= ref * (1 + 1e-5) + 1e-7
 
 
 # ------------------------------------------------------------------ magnitudes
@@ -349,15 +349,15 @@ def test_extreme_magnitudes_give_the_scaled_answer(kind, method, dscale, wscale)
         warnings.simplefilter("error")  # no raw RuntimeWarning (overflow, invalid value) may escape
         r = repair(D * dscale, kind, weights=W * wscale, progress=False, **opts)
     X = r.matrix.values
-    assert is_metric(X, r.report["tol"])
+    assert is_metric(X, r.report.tol)
     factor = wscale * (dscale if kind == "l1" else dscale ** 2)
-    val = r.report["objective_value"]
-    assert np.isfinite(val) and np.isfinite(r.report["lower_bound"])
-    assert r.report["optimal"] and r.report["lower_bound"] <= val
-    assert np.isclose(val, base["objective_value"] * factor, rtol=1e-5)
+    val = r.report.objective_value
+    assert np.isfinite(val) and np.isfinite(r.report.lower_bound)
+    assert r.report.optimal and r.report.lower_bound <= val
+    assert np.isclose(val, base.objective_value * factor, rtol=1e-5)
     assert np.isclose(weighted(D * dscale, X, W * wscale, kind), val, rtol=1e-9)
     if kind == "l1" and not method:
-        assert r.report["details"]["method"].startswith("linear program")
+        assert r.report.details["method"].startswith("linear program")
 
 
 @pytest.mark.parametrize("kind", ["l1", "l2"])
@@ -372,5 +372,5 @@ def test_subnormal_weights_raise_no_numpy_warning(kind):
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         r = repair(D, kind, weights=W, progress=False)
-    assert is_metric(r.matrix.values, r.report["tol"]) and np.isfinite(r.report["objective_value"])
-    assert r.report["lower_bound"] <= r.report["objective_value"]
+    assert is_metric(r.matrix.values, r.report.tol) and np.isfinite(r.report.objective_value)
+    assert r.report.lower_bound <= r.report.objective_value

@@ -50,13 +50,13 @@ def without_seconds(obj):
 
 
 def fingerprint(r):
-    rep = json.dumps(without_seconds(r.report), sort_keys=True, default=repr)
+    rep = json.dumps(without_seconds(r.report.to_dict()), sort_keys=True, default=repr)
     return hashlib.sha256(r.matrix.values.tobytes()).hexdigest(), rep
 
 
 def stopped_early(r):
-    d = r.report["details"]
-    return not r.report["optimal"] and "time limit" in (d.get("status"), d.get("exact_status"))
+    d = r.report.details
+    return not r.report.optimal and "time limit" in (d.get("status"), d.get("exact_status"))
 
 
 # Each case stops early under its time limit (checked below) after some real work.
@@ -75,12 +75,12 @@ def test_a_run_stopped_by_its_time_limit_repeats_exactly(case):
     obj = case.split("-")[0]
     a = repair(D, obj, progress=False, **kw)
     b = repair(D, obj, progress=False, **kw)
-    assert stopped_early(a), a.report["details"]
-    assert is_metric(a.matrix.values, a.report["tol"])
-    assert a.report["lower_bound"] <= a.report["objective_value"]
+    assert stopped_early(a), a.report.details
+    assert is_metric(a.matrix.values, a.report.tol)
+    assert a.report.lower_bound <= a.report.objective_value
     assert fingerprint(a) == fingerprint(b)
     # the stopping point is a work count, reported alongside (reference seconds, not wall time)
-    assert a.report["details"]["work"] > 0
+    assert a.report.details["work"] > 0
 
 
 class _AbsurdClock:
@@ -110,7 +110,7 @@ CLOCK = [
 @pytest.mark.parametrize("obj,D,kw", CLOCK, ids=[f"{c[0]}-{i}" for i, c in enumerate(CLOCK)])
 def test_no_solver_reads_the_clock_for_a_decision(monkeypatch, obj, D, kw):
     ref = repair(D, obj, progress=False, **kw)
-    assert ref.report["optimal"]  # nothing stops these on counted work
+    assert ref.report.optimal  # nothing stops these on counted work
     import scipy.optimize
 
     calls = []
@@ -265,6 +265,6 @@ def test_every_declared_option_is_read_and_accepted(monkeypatch, obj, capsys):
     for key, opt in decl.items():
         for value in _valid_values(opt):
             r = repair(D, obj, progress=False, **{key: value})
-            assert is_metric(r.matrix.values, r.report["tol"])
+            assert is_metric(r.matrix.values, r.report.tol)
     capsys.readouterr()  # verbose logs
     assert seen == set(decl), (set(decl) - seen, seen - set(decl))

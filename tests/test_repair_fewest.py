@@ -96,11 +96,11 @@ def test_fewest_matches_brute_force(case):
     D = small_cases()[case]
     opt = brute_force(D)
     r = repair(D, "fewest", method="exact", progress=False)
-    assert r.report["objective_value"] == opt
-    assert r.report["optimal"] and r.report["lower_bound"] == opt
-    assert is_metric(r.matrix.values, r.report["tol"])
+    assert r.report.objective_value == opt
+    assert r.report.optimal and r.report.lower_bound == opt
+    assert is_metric(r.matrix.values, r.report.tol)
     h = repair(D, "fewest", method="heuristic", progress=False)
-    assert h.report["lower_bound"] <= opt <= h.report["objective_value"]
+    assert h.report.lower_bound <= opt <= h.report.objective_value
 
 
 def test_fewest_weighted_matches_brute_force():
@@ -110,7 +110,7 @@ def test_fewest_weighted_matches_brute_force():
     W = W + W.T
     opt = brute_force(D, w={p: W[p] for p in itertools.combinations(range(len(D)), 2)})
     r = repair(D, "fewest", weights=W, method="exact", progress=False)
-    assert np.isclose(r.report["objective_value"], opt) and r.report["optimal"]
+    assert np.isclose(r.report.objective_value, opt) and r.report.optimal
 
 
 def test_fewest_with_missing_entry_matches_brute_force():
@@ -118,7 +118,7 @@ def test_fewest_with_missing_entry_matches_brute_force():
     D[0, 3] = D[3, 0] = np.nan
     opt = brute_force(D)
     r = repair(D, "fewest", method="exact", progress=False)
-    assert r.report["objective_value"] == opt and np.isfinite(r.matrix.values).all()
+    assert r.report.objective_value == opt and np.isfinite(r.matrix.values).all()
 
 
 def test_triangles_alone_are_not_enough():
@@ -135,7 +135,7 @@ def test_triangles_alone_are_not_enough():
     assert not feasible_lp(D, {(a, c), (b, d)})
     assert feasible_lp(D, {(a, d)})
     r = repair(D, "fewest", lock=[(a, d)], method="exact", progress=False)
-    assert r.report["objective_value"] == brute_force(D, locked={(a, d)}) == 2
+    assert r.report.objective_value == brute_force(D, locked={(a, d)}) == 2
 
 
 def test_planted_gross_errors_are_found_and_proven():
@@ -149,15 +149,15 @@ def test_planted_gross_errors_are_found_and_proven():
         i, j = iu[0][q], iu[1][q]
         D[i, j] = D[j, i] = D[i, j] * (3.0 if q % 2 else 0.1) + (1.0 if q % 2 else 0.0)
     r = repair(D, "fewest", progress=False)
-    assert r.report["optimal"] and r.report["objective_value"] <= 20
-    assert r.report["lower_bound"] == r.report["objective_value"]
+    assert r.report.optimal and r.report.objective_value <= 20
+    assert r.report.lower_bound == r.report.objective_value
 
 
 def test_metric_input_unchanged():
     D = euclidean(25, seed=8)
     for obj in ("fewest", "grow"):
         r = repair(D, obj, progress=False)
-        assert np.array_equal(r.matrix.values, D) and r.report["optimal"] and r.report["objective_value"] == 0
+        assert np.array_equal(r.matrix.values, D) and r.report.optimal and r.report.objective_value == 0
 
 
 def test_time_limit_returns_verified_answer():
@@ -167,9 +167,9 @@ def test_time_limit_returns_verified_answer():
     D = np.triu(D, 1)
     D = D + D.T
     r = repair(D, "fewest", method="exact", time_limit=3, progress=False)
-    assert is_metric(r.matrix.values, r.report["tol"])
-    assert r.report["lower_bound"] <= r.report["objective_value"]
-    assert r.report["optimal"] == (r.report["lower_bound"] == r.report["objective_value"])
+    assert is_metric(r.matrix.values, r.report.tol)
+    assert r.report.lower_bound <= r.report.objective_value
+    assert r.report.optimal == (r.report.lower_bound == r.report.objective_value)
 
 
 @st.composite
@@ -199,15 +199,15 @@ def test_outputs_are_metrics_locks_hold_and_directions(case, obj, method):
         assert not feasible_lp(D, S, grow=(obj == "grow"))
         return
     X = r.matrix.values
-    tol = r.report["tol"]
+    tol = r.report.tol
     assert is_metric(X, tol)
     for i, j in lock:
         assert X[i, j] == D[i, j]
     obs = ~np.isnan(D)
     if obj == "grow":
         assert (X[obs] >= D[obs] - tol).all()
-    assert r.report["lower_bound"] <= r.report["objective_value"] + 1e-9
-    assert r.report["changed_entries"] == (r.report["objective_value"])
+    assert r.report.lower_bound <= r.report.objective_value + 1e-9
+    assert r.report.changed_entries == (r.report.objective_value)
 
 
 # ---------------------------------------------------------------- weights, locks and missing entries together
@@ -235,13 +235,13 @@ def test_long_locked_entry_in_a_dense_matrix_is_repaired():
     # kept paths; the kept-set repair cut one entry per shortest-path round and gave up after
     # 100 rounds ("could not make the kept set feasible", exit 1) while l1 solved the problem.
     D, W, lock = noisy_case(25, 1)
-    assert repair(D, "l1", lock=lock, progress=False).report["optimal"]  # feasible
+    assert repair(D, "l1", lock=lock, progress=False).report.optimal  # feasible
     for weights in (None, W):
         for obj in ("fewest", "grow"):
             r = repair(D, obj, weights=weights, lock=lock, method="heuristic", progress=False)
             X = r.matrix.values
-            assert is_metric(X, r.report["tol"]) and all(X[i, j] == D[i, j] for i, j in lock)
-            assert r.report["lower_bound"] <= r.report["objective_value"]
+            assert is_metric(X, r.report.tol) and all(X[i, j] == D[i, j] for i, j in lock)
+            assert r.report.lower_bound <= r.report.objective_value
 
 
 @st.composite
@@ -267,15 +267,15 @@ def test_weights_locks_missing_either_a_verified_metric_or_an_lp_confirmed_infea
         S = {p for p in itertools.combinations(range(n), 2) if p not in lock and not np.isnan(D[p])}
         assert not feasible_lp(D, S, grow=(obj == "grow"))
         return
-    X, tol = r.matrix.values, r.report["tol"]
+    X, tol = r.matrix.values, r.report.tol
     assert is_metric(X, tol)
     assert all(X[i, j] == D[i, j] for i, j in lock)
     obs = ~np.isnan(D)
     if obj == "grow":
         assert (X[obs] >= D[obs] - tol).all()
     changed = np.triu(obs, 1) & (np.abs(X - np.where(obs, D, 0.0)) > tol)
-    assert np.isclose(r.report["objective_value"], W[changed].sum())
-    assert r.report["lower_bound"] <= r.report["objective_value"] + 1e-9
+    assert np.isclose(r.report.objective_value, W[changed].sum())
+    assert r.report.lower_bound <= r.report.objective_value + 1e-9
 
 
 # ---------------------------------------------------------------- magnitudes
@@ -296,9 +296,9 @@ def test_extreme_magnitudes_give_the_scaled_answer(obj, dscale, wscale):
         warnings.simplefilter("error")
         r = repair(D * dscale, obj, weights=W * wscale, progress=False)
     X, rep = r.matrix.values, r.report
-    assert is_metric(X, rep["tol"]) and np.isfinite(rep["objective_value"])
-    assert rep["lower_bound"] <= rep["objective_value"]
-    assert rep["optimal"] == base["optimal"] == True  # noqa: E712
+    assert is_metric(X, rep.tol) and np.isfinite(rep.objective_value)
+    assert rep.lower_bound <= rep.objective_value
+    assert rep.optimal == base.optimal == True  # noqa: E712
     factor = wscale * (dscale if obj == "shrink" else 1.0)
-    assert np.isclose(rep["objective_value"], base["objective_value"] * factor, rtol=1e-12)
-    assert np.isclose(rep["lower_bound"], rep["objective_value"], rtol=1e-12)
+    assert np.isclose(rep.objective_value, base.objective_value * factor, rtol=1e-12)
+    assert np.isclose(rep.lower_bound, rep.objective_value, rtol=1e-12)

@@ -18,9 +18,9 @@ def test_grow_matches_brute_force(case):
     D = small_cases()[case]
     opt = brute_force(D, grow=True)
     r = repair(D, "grow", method="exact", progress=False)
-    assert r.report["objective_value"] == opt and r.report["optimal"]
+    assert r.report.objective_value == opt and r.report.optimal
     X = r.matrix.values
-    assert (X >= D - r.report["tol"]).all() and is_metric(X, r.report["tol"])
+    assert (X >= D - r.report.tol).all() and is_metric(X, r.report.tol)
 
 
 def test_planted_shrunk_entries_grow_back():
@@ -33,15 +33,15 @@ def test_planted_shrunk_entries_grow_back():
     D[iu[0][sel], iu[1][sel]] *= 0.1
     D[iu[1][sel], iu[0][sel]] *= 0.1
     r = repair(D, "grow", progress=False)
-    assert r.report["objective_value"] <= 30 and r.report["decreased_entries"] == 0
-    assert r.report["lower_bound"] <= r.report["objective_value"]
+    assert r.report.objective_value <= 30 and r.report.decreased_entries == 0
+    assert r.report.lower_bound <= r.report.objective_value
 
 
 def test_grow_increase_is_no_more_than_shortest_paths():
     # the second stage only lowers values from the shortest paths over the kept set
     D = small_cases()[3]
     r = repair(D, "grow", method="exact", progress=False)
-    assert r.report["details"]["total_increase"] >= 0
+    assert r.report.details["total_increase"] >= 0
 
 
 def test_grow_lock_condition_is_exact():

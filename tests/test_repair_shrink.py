@@ -98,8 +98,8 @@ def test_shrink_equals_scipy_shortest_paths():
     D = random_sym(rng, 40, zeros=0.05)
     r = repair(D, "shrink", progress=False, tol=0.0)
     assert np.allclose(r.matrix.values, scipy_apsp(D), rtol=1e-13, atol=1e-13)
-    assert r.report["optimal"] and r.report["lower_bound"] == r.report["objective_value"]
-    assert r.report["violated_after"] == 0 and r.report["violated_before"] == count_violations(D, 0.0)[0]
+    assert r.report.optimal and r.report.lower_bound == r.report.objective_value
+    assert r.report.violated_after == 0 and r.report.violated_before == count_violations(D, 0.0)[0]
 
 
 def test_shrink_changes_only_broken_entries_and_is_l1_least():
@@ -108,17 +108,17 @@ def test_shrink_changes_only_broken_entries_and_is_l1_least():
     D[0, 1] = D[1, 0] = D[0, 1] * 3 + 5
     r = repair(D, "shrink", progress=False)
     X = r.matrix.values
-    assert r.report["changed_entries"] == 1 and X[0, 1] < D[0, 1]
+    assert r.report.changed_entries == 1 and X[0, 1] < D[0, 1]
     assert r.changes[0][:2] == ("t0", "t1")
     # every decrease-only metric is below the closure: the closure's L1 change is least
-    assert np.isclose(r.report["l1_change"], D[0, 1] - X[0, 1])
+    assert np.isclose(r.report.l1_change, D[0, 1] - X[0, 1])
 
 
 def test_metric_input_comes_back_unchanged():
     D = euclidean(30, seed=5)
     r = repair(D, "shrink", progress=False)
     assert np.array_equal(r.matrix.values, D)
-    assert r.changes == [] and r.report["changed_entries"] == 0
+    assert r.changes == [] and r.report.changed_entries == 0
 
 
 def test_missing_entries_filled_by_shortest_paths():
@@ -129,7 +129,7 @@ def test_missing_entries_filled_by_shortest_paths():
     ref = scipy_apsp(D)
     X = r.matrix.values
     assert np.isclose(X[2, 7], ref[2, 7]) and np.isclose(X[0, 9], ref[0, 9])
-    assert r.report["filled_entries"] == 2
+    assert r.report.filled_entries == 2
     filled = [c for c in r.changes if np.isnan(c[2])]
     assert {c[:2] for c in filled} == {("t2", "t7"), ("t0", "t9")}
 
@@ -147,14 +147,14 @@ def test_disconnected_observed_entries_are_left_out_or_filled_as_a_metric():
         D[i, j] = D[j, i] = v
     with pytest.warns(DataWarning, match="t3.*t4"):
         r = repair(D, "shrink", progress=False)
-    assert r.matrix.labels == ("t0", "t1", "t2") and r.report["left_out_taxa"] == ["t3", "t4"]
-    assert r.report["filled_entries"] == 0 and r.changes == []
+    assert r.matrix.labels == ("t0", "t1", "t2") and r.report.left_out_taxa == ["t3", "t4"]
+    assert r.report.filled_entries == 0 and r.changes == []
     with pytest.warns(DataWarning, match="made-up"):
         r = repair(D, "shrink", progress=False, keep_unmeasured=True)
     X = r.matrix.values
-    assert is_metric(X) and r.report["observed_groups"] == 2 and r.report["left_out_taxa"] == []
-    assert X[0, 3] == r.report["between_groups_value"] == 4.0
-    assert r.report["filled_without_evidence"] == 6 and r.report["filled_by_path"] == 0
+    assert is_metric(X) and r.report.observed_groups == 2 and r.report.left_out_taxa == []
+    assert X[0, 3] == r.report.between_groups_value == 4.0
+    assert r.report.filled_without_evidence == 6 and r.report.filled_by_path == 0
     assert {c[5] for c in r.changes} == {"filled_without_evidence"} and len(r.changes) == 6
 
 
@@ -163,11 +163,11 @@ def test_disconnected_observed_entries_are_left_out_or_filled_as_a_metric():
 def test_shrink_output_is_metric_and_never_increases(D):
     r = repair(D, "shrink", progress=False)
     X = r.matrix.values
-    tol = r.report["tol"]
+    tol = r.report.tol
     assert is_metric(X, tol)
     obs = ~np.isnan(D)
     assert (X[obs] <= D[obs] + tol).all()
-    assert r.report["lower_bound"] <= r.report["objective_value"] + 1e-12
+    assert r.report.lower_bound <= r.report.objective_value + 1e-12
 
 
 def test_shrink_with_feasible_lock_keeps_it():
@@ -195,4 +195,4 @@ def test_changes_text_matches_rows():
     D = random_sym(np.random.default_rng(10), 12, zeros=0.1, missing=0.1)
     r = repair(D, "shrink", progress=False)
     assert r.changes_text() == format_changes(r.changes)
-    assert len(r.changes_text().splitlines()) == 1 + r.report["changed_entries"] + r.report["filled_entries"]
+    assert len(r.changes_text().splitlines()) == 1 + r.report.changed_entries + r.report.filled_entries

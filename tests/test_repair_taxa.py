@@ -245,13 +245,13 @@ def test_repair_leave_out_fewest_leaves_no_violated_triangle(D, objective):
         assert "at least 3" in str(exc)
         return
     rep = r.report
-    fewest = [lab for lab, why in rep["left_out_reasons"].items() if why == taxa_reason()]
-    assert len(fewest) == size and rep["leave_out_optimal"] and rep["leave_out_lower_bound"] == size
+    fewest = [lab for lab, why in rep.left_out_reasons.items() if why == taxa_reason()]
+    assert len(fewest) == size and rep.leave_out_optimal and rep.leave_out_lower_bound == size
     idx = [dm.index(lab) for lab in fewest]
     assert kept_violations(D, idx) == 0
-    assert rep["violated_before"] == 0 or rep["unmeasured_taxa"]
+    assert rep.violated_before == 0 or rep.unmeasured_taxa
     assert is_metric(r.matrix.values, TOL)
-    assert list(r.matrix.labels) == [lab for lab in dm.labels if lab not in rep["left_out_taxa"]]
+    assert list(r.matrix.labels) == [lab for lab in dm.labels if lab not in rep.left_out_taxa]
 
 
 def taxa_reason():
@@ -265,19 +265,19 @@ def test_report_keys_and_reasons():
     dm = DistanceMatrix.from_array(D, labels(20))
     r = repair(dm, "shrink", leave_out="fewest", progress=False)
     rep = r.report
-    assert rep["left_out_taxa"] == ["t04"]
-    assert rep["left_out_reasons"] == {"t04": "in the fewest taxa whose removal leaves a metric"}
-    assert rep["leave_out"] == "fewest" and rep["leave_out_optimal"] is True and rep["leave_out_lower_bound"] == 1
-    assert rep["violated_before_leaving_out"] == count_violations(D, rep["tol"])[0] > 0
-    assert rep["violated_before"] == 0 and rep["changed_entries"] == 0 and rep["n"] == 19 and rep["n_input"] == 20
+    assert rep.left_out_taxa == ["t04"]
+    assert rep.left_out_reasons == {"t04": "in the fewest taxa whose removal leaves a metric"}
+    assert rep.leave_out == "fewest" and rep.leave_out_optimal is True and rep.leave_out_lower_bound == 1
+    assert rep.violated_before_leaving_out == count_violations(D, rep.tol)[0] > 0
+    assert rep.violated_before == 0 and rep.changed_entries == 0 and rep.n == 19 and rep.n_input == 20
     r = repair(dm, "l2", leave_out=["t09", "t01", "t09"], progress=False)
-    assert r.report["left_out_taxa"] == ["t01", "t09"] and r.report["leave_out"] == ["t09", "t01"]
-    assert r.report["left_out_reasons"] == {"t01": "named by the user", "t09": "named by the user"}
-    assert "leave_out_optimal" not in r.report
+    assert r.report.left_out_taxa == ["t01", "t09"] and r.report.leave_out == ["t09", "t01"]
+    assert r.report.left_out_reasons == {"t01": "named by the user", "t09": "named by the user"}
+    assert r.report.leave_out_optimal is None and "leave_out_optimal" not in r.report.to_dict()
     r = repair(dm, "shrink", leave_out={"t03": "suspect: chimera"}, progress=False)
-    assert r.report["left_out_reasons"] == {"t03": "suspect: chimera"}
+    assert r.report.left_out_reasons == {"t03": "suspect: chimera"}
     r = repair(dm, "shrink", progress=False)
-    assert r.report["left_out_taxa"] == [] and r.report["left_out_reasons"] == {} and r.report["leave_out"] is None
+    assert r.report.left_out_taxa == [] and r.report.left_out_reasons == {} and r.report.leave_out is None
 
 
 def test_unmeasured_and_named_reasons_combine():
@@ -286,8 +286,8 @@ def test_unmeasured_and_named_reasons_combine():
     dm = DistanceMatrix.from_array(D, labels(8))
     with pytest.warns(UserWarning, match="no measured distance"):
         r = repair(dm, "shrink", leave_out=["t07", "t02"], progress=False)
-    why = r.report["left_out_reasons"]
-    assert r.report["left_out_taxa"] == ["t02", "t07"]
+    why = r.report.left_out_reasons
+    assert r.report.left_out_taxa == ["t02", "t07"]
     assert why["t02"] == "named by the user"
     assert why["t07"].startswith("no measured distance") and why["t07"].endswith("also named by the user")
 
@@ -299,12 +299,12 @@ def test_leaving_out_a_bridge_leaves_out_what_it_joined():
     dm = DistanceMatrix.from_array(D, labels(8))
     with pytest.warns(UserWarning, match="once t00 was left out"):
         r = repair(dm, "shrink", leave_out=["t00"], progress=False)
-    assert r.report["left_out_taxa"] == ["t00", "t01", "t02", "t03"]
-    assert r.report["left_out_reasons"]["t02"] == "no measured distance to the other taxa once t00 was left out"
-    assert r.report["filled_without_evidence"] == 0
+    assert r.report.left_out_taxa == ["t00", "t01", "t02", "t03"]
+    assert r.report.left_out_reasons["t02"] == "no measured distance to the other taxa once t00 was left out"
+    assert r.report.filled_without_evidence == 0
     with pytest.warns(UserWarning, match="kept although"):
         r = repair(dm, "shrink", leave_out=["t00"], keep_unmeasured=True, progress=False)
-    assert r.report["left_out_taxa"] == ["t00"] and r.report["filled_without_evidence"] == 12
+    assert r.report.left_out_taxa == ["t00"] and r.report.filled_without_evidence == 12
 
 
 @pytest.mark.parametrize("leave_out,needle", [
@@ -332,8 +332,8 @@ def test_lock_on_a_left_out_taxon_is_an_input_error():
 def test_fewest_with_a_time_limit_leaves_work_to_the_objective():
     D = planted(30, [3], seed=7)
     r = repair(D, "fewest", leave_out="fewest", time_limit=5, progress=False)
-    assert r.report["left_out_taxa"] == ["t3"] and r.report["time_limit"] < 5
-    assert r.report["leave_out_details"]["work"] <= 2.5
+    assert r.report.left_out_taxa == ["t3"] and r.report.time_limit < 5
+    assert r.report.leave_out_details["work"] <= 2.5
 
 
 # ------------------------------------------------------------------ suspects
@@ -349,12 +349,12 @@ def test_suspects_left_out_with_their_first_reason():
     except InputError as exc:  # so many suspects that fewer than 3 taxa stay
         assert "a repair needs at least 3" in str(exc)
         return
-    assert sorted(r.report["left_out_taxa"]) == sorted(s.label for s in named)
+    assert sorted(r.report.left_out_taxa) == sorted(s.label for s in named)
     for s in named:
         first = s.reasons[0] if s.reasons else None
-        why = r.report["left_out_reasons"][s.label]
+        why = r.report.left_out_reasons[s.label]
         assert why == (f"suspect sequence: {first}" if first else why) and why.startswith("suspect sequence")
-    assert r.report["leave_out"] == "suspects"
+    assert r.report.leave_out == "suspects"
 
 
 # ------------------------------------------------------------------ the command line

@@ -146,7 +146,7 @@ def test_api_tells_filled_by_path_from_filled_without_evidence():
     dm = DistanceMatrix.from_array(D, ["a", "b", "c", "d"])
     with pytest.warns(DataWarning, match=r"d \(no measured distance to any other taxon\)"):
         r = repair(dm, "fewest", progress=False)
-    assert r.matrix.labels == ("a", "b", "c") and r.report["left_out_taxa"] == ["d"]
+    assert r.matrix.labels == ("a", "b", "c") and r.report.left_out_taxa == ["d"]
     assert r.changes == [("a", "c", float("nan"), 3.0, float("nan"), "filled_by_path")] or (
         r.changes[0][:2] == ("a", "c") and r.changes[0][3] == 3.0 and r.changes[0][5] == "filled_by_path")
     with warnings.catch_warnings():
@@ -155,7 +155,7 @@ def test_api_tells_filled_by_path_from_filled_without_evidence():
     hows = {(c[0], c[1]): c[5] for c in k.changes}
     assert hows[("a", "c")] == "filled_by_path"
     assert hows[("a", "d")] == hows[("b", "d")] == hows[("c", "d")] == "filled_without_evidence"
-    assert k.report["filled_by_path"] == 1 and k.report["filled_without_evidence"] == 3
+    assert k.report.filled_by_path == 1 and k.report.filled_without_evidence == 3
 
 
 def test_repair_command_leaves_out_and_keeps(tmp_path):

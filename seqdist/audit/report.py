@@ -158,8 +158,7 @@ class AuditReport:
 
     def ranked_taxa(self, limit: int | None = None) -> list[dict]:
         """All taxa, most violated triangles first (then summed excess, then position)."""
-        idx = np.arange(self.n)
-        order = np.lexsort((idx, -self.taxon_excess, -self.taxon_counts))
+        order = self._taxon_order()
         if limit is not None:
             order = order[:limit]
         out = []
@@ -172,6 +171,21 @@ class AuditReport:
                         "summed_excess": _r12(self.taxon_excess[t]),
                         "delta": None if dl != dl else _r12(dl)})
         return out
+
+    def taxa_most_involved(self, limit: int = 5) -> list[str]:
+        """Labels of the first ``limit`` taxa of :meth:`ranked_taxa` that are in a violated triangle.
+
+        Examples
+        --------
+        >>> r = audit(DistanceMatrix.from_array([[0, 1, 5, 1], [1, 0, 1, 1], [5, 1, 0, 1], [1, 1, 1, 0]], list("abcd")))
+        >>> r.taxa_most_involved(2)
+        ['a', 'c']
+        """
+        return [self.labels[t] for t in self._taxon_order()[:limit] if self.taxon_counts[t]]
+
+    def _taxon_order(self) -> np.ndarray:
+        """Taxon positions, most violated triangles first (then summed excess, then position)."""
+        return np.lexsort((np.arange(self.n), -self.taxon_excess, -self.taxon_counts))
 
     @property
     def level(self) -> str:

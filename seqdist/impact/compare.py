@@ -23,6 +23,7 @@ import numpy as np
 from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix, default_tol
 from seqdist.core.tree import Tree
+from seqdist.impact.result import EntryChange, ImpactReport, RemedyRow, RemedyTable
 from seqdist.trees.build import build_tree, check_matrix
 from seqdist.trees.compare import branch_score_splits, cophenetic_correlation, nontrivial, sorted_splits, splits
 
@@ -36,15 +37,16 @@ CAUTION = ("A repaired matrix is altered data: trees built from it are not what 
 
 @dataclass
 class ImpactResult:
-    """The report (a JSON-ready dict) plus the objects the html page draws."""
+    """The report (an :class:`~seqdist.impact.result.ImpactReport`; ``report.to_dict()`` is
+    the JSON document) plus the objects the html page draws."""
 
     def __repr__(self) -> str:
         r = self.report
-        return (f"ImpactResult(n_compared={r.get('n_compared')}, rf={r.get('rf')}, "
-                f"rf_to_truth_before={r.get('rf_to_truth_before')}, rf_to_truth_after={r.get('rf_to_truth_after')}, "
-                f"left_out_taxa={r.get('left_out_taxa')})")
+        return (f"ImpactResult(n_compared={r.n_compared}, rf={r.rf}, "
+                f"rf_to_truth_before={r.rf_to_truth_before}, rf_to_truth_after={r.rf_to_truth_after}, "
+                f"left_out_taxa={r.left_out_taxa})")
 
-    report: dict
+    report: ImpactReport
     before: DistanceMatrix
     after: DistanceMatrix  # aligned to ``before``'s label order
     tree_before: Tree
@@ -138,7 +140,18 @@ def matrix_change(before: DistanceMatrix, after: DistanceMatrix, tol: float, top
     ``before`` and ``after`` have the same labels in the same order.
     ``entries_changed`` counts measured entries only (the repair's
     ``changed_entries``); a missing entry of ``before`` given a value in
-    ``after`` counts in ``entries_filled``.
+    ``after`` counts in ``entries_filled``. Returns these fields of
+    :class:`~seqdist.impact.result.ImpactReport` (``entries`` to
+    ``largest_changes``, the latter :class:`~seqdist.impact.result.EntryChange`
+    records) as keyword arguments.
+
+    Examples
+    --------
+    >>> a = DistanceMatrix.from_array([[0, 1, 2], [1, 0, 2], [2, 2, 0]], list("xyz"))
+    >>> b = DistanceMatrix.from_array([[0, 1, 3], [1, 0, 2], [3, 2, 0]], list("xyz"))
+    >>> c = matrix_change(a, b, 1e-9)
+    >>> c["entries_changed"], c["largest_changes"]
+    (1, [EntryChange(a='x', b='z', before=2.0, after=3.0, change=1.0)])
     """
     n = before.n
     iu = np.triu_indices(n, 1)
@@ -147,8 +160,8 @@ def matrix_change(before: DistanceMatrix, after: DistanceMatrix, tol: float, top
     diff = np.where(np.isnan(b) | np.isnan(a), 0.0, a - b)
     changed = np.abs(diff) > tol
     order = np.argsort(-np.abs(diff), kind="stable")[:top]
-    largest = [{"a": before.labels[iu[0][k]], "b": before.labels[iu[1][k]], "before": float(b[k]),
-                "after": float(a[k]), "change": float(diff[k])} for k in order if changed[k]]
+    largest = [EntryChange(a=before.labels[iu[0][k]], b=before.labels[iu[1][k]], before=float(b[k]),
+                           after=float(a[k]), change=float(diff[k])) for k in order if changed[k]]
     return {
         "entries": int(b.size),
         "entries_measured": int((~np.isnan(b)).sum()),
@@ -202,7 +215,8 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
     Returns
     -------
     ImpactResult
-        ``.report`` holds the JSON keys.
+        ``.report`` is the :class:`~seqdist.impact.result.ImpactReport`
+        (``.report.to_dict()``: the JSON document).
 
     Examples
     --------
@@ -210,7 +224,7 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
     >>> a = DistanceMatrix.from_array(D, list("abcd"))
     >>> E = D.copy(); E[0, 1] = E[1, 0] = 9.0
     >>> r = impact(a, DistanceMatrix.from_array(E, list("abcd"))).report
-    >>> r["entries_changed"], r["rf"], r["n_compared"]
+    >>> r.entries_changed, r.rf, r.n_compared
     (1, 2, 4)
     """
     from seqdist.kernels.triangles import count_violations, max_violation
@@ -264,45 +278,45 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
     cmp_b, cmp_a = b_all.subset(compared), a_all.subset(compared)
     vb, _ = count_violations(cmp_b.values, tol)
     va, _ = count_violations(cmp_a.values, tol)
-    report = {
-        "n": before.n,
-        "n_compared": n,
-        "left_out_taxa": left_out,
-        "left_out_reasons": {lab: (reasons or {}).get(lab) or why.get(lab, "") for lab in left_out},
-        "n_tree_before": len(keep_b),
-        "n_tree_after": len(keep_a),
-        "method": method,
-        "tol": float(tol),
-        "rf": rf,
-        "rf_normalized": rf / (2.0 * (n - 3)) if n > 3 else 0.0,
-        "rf_max": 2 * (n - 3),
-        "branch_score": branch_score_splits(sb, sa),
-        "shared_splits": len(nb & na),
-        "splits_before": len(nb),
-        "splits_after": len(na),
-        "splits_only_before": sorted_splits(nb - na, taxa),
-        "splits_only_after": sorted_splits(na - nb, taxa),
-        "negative_branches_before": neg_b,
-        "negative_branches_after": neg_a,
-        "clamped_branches_before": clamped_b,
-        "clamped_branches_after": clamped_a,
-        "tree_length_before": cb.total_length(),
-        "tree_length_after": ca.total_length(),
-        "cophenetic_before": cophenetic_correlation(cb, cmp_b),
-        "cophenetic_after": cophenetic_correlation(ca, cmp_a),
-        "violated_triangles_before": vb,
-        "violated_triangles_after": va,
-        "max_violation_before": max(0.0, max_violation(cmp_b.values)),
-        "max_violation_after": max(0.0, max_violation(cmp_a.values)),
-        "triangles": n * (n - 1) * (n - 2) // 6,
-        "dropped_taxa": drop_b,
-        "dropped_taxa_after": drop_a,
-    }
-    # The matrix change is a fact about the matrices: counted over every taxon
-    # both hold (n_shared), so that filled entries of left-out-of-the-tree
-    # taxa are counted too (the same figures as the repair's report).
-    report["n_shared"] = len(shared)
-    report.update(matrix_change(b_all, a_all, tol))
+    fields = dict(
+        n=before.n,
+        n_compared=n,
+        left_out_taxa=left_out,
+        left_out_reasons={lab: (reasons or {}).get(lab) or why.get(lab, "") for lab in left_out},
+        n_tree_before=len(keep_b),
+        n_tree_after=len(keep_a),
+        method=method,
+        tol=float(tol),
+        rf=rf,
+        rf_normalized=rf / (2.0 * (n - 3)) if n > 3 else 0.0,
+        rf_max=2 * (n - 3),
+        branch_score=branch_score_splits(sb, sa),
+        shared_splits=len(nb & na),
+        splits_before=len(nb),
+        splits_after=len(na),
+        splits_only_before=sorted_splits(nb - na, taxa),
+        splits_only_after=sorted_splits(na - nb, taxa),
+        negative_branches_before=neg_b,
+        negative_branches_after=neg_a,
+        clamped_branches_before=clamped_b,
+        clamped_branches_after=clamped_a,
+        tree_length_before=cb.total_length(),
+        tree_length_after=ca.total_length(),
+        cophenetic_before=cophenetic_correlation(cb, cmp_b),
+        cophenetic_after=cophenetic_correlation(ca, cmp_a),
+        violated_triangles_before=vb,
+        violated_triangles_after=va,
+        max_violation_before=max(0.0, max_violation(cmp_b.values)),
+        max_violation_after=max(0.0, max_violation(cmp_a.values)),
+        triangles=n * (n - 1) * (n - 2) // 6,
+        dropped_taxa=drop_b,
+        dropped_taxa_after=drop_a,
+        # The matrix change is a fact about the matrices: counted over every taxon
+        # both hold (n_shared), so that filled entries of left-out-of-the-tree
+        # taxa are counted too (the same figures as the repair's report).
+        n_shared=len(shared),
+        **matrix_change(b_all, a_all, tol),
+    )
     if truth is not None:
         leaves = set(truth.check_labels("reference tree"))
         if leaves != set(before.labels):
@@ -315,14 +329,14 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
         st = splits(ct, taxa)
         nt = nontrivial(st, n)
         has_lengths = all(x.length is not None for x in ct.branches())
-        report.update({
-            "rf_to_truth_before": len(nb ^ nt),
-            "rf_to_truth_after": len(na ^ nt),
-            "rf_to_truth_normalized_before": len(nb ^ nt) / (2.0 * (n - 3)) if n > 3 else 0.0,
-            "rf_to_truth_normalized_after": len(na ^ nt) / (2.0 * (n - 3)) if n > 3 else 0.0,
-            "branch_score_to_truth_before": branch_score_splits(sb, st) if has_lengths else None,
-            "branch_score_to_truth_after": branch_score_splits(sa, st) if has_lengths else None,
-        })
+        fields.update(
+            rf_to_truth_before=len(nb ^ nt),
+            rf_to_truth_after=len(na ^ nt),
+            rf_to_truth_normalized_before=len(nb ^ nt) / (2.0 * (n - 3)) if n > 3 else 0.0,
+            rf_to_truth_normalized_after=len(na ^ nt) / (2.0 * (n - 3)) if n > 3 else 0.0,
+            branch_score_to_truth_before=branch_score_splits(sb, st) if has_lengths else None,
+            branch_score_to_truth_after=branch_score_splits(sa, st) if has_lengths else None,
+        )
         # A tree holding more taxa than were compared (e.g. kept with a made-up
         # fill) is also scored on all of its own taxa, so that what the extra
         # taxa do to it is not hidden.
@@ -331,9 +345,9 @@ def impact(before: DistanceMatrix, after: DistanceMatrix, method: str = "nj", *,
                 own = sorted(keep)
                 so = nontrivial(splits(tree, own), len(own))
                 sto = nontrivial(splits(prune(truth, set(own)), own), len(own))
-                report[f"rf_to_truth_{side}_own_taxa"] = len(so ^ sto)
-                report[f"n_tree_{side}_scored"] = len(own)
-    report["caution"] = CAUTION
+                fields[f"rf_to_truth_{side}_own_taxa"] = len(so ^ sto)
+                fields[f"n_tree_{side}_scored"] = len(own)
+    report = ImpactReport(**fields, caution=CAUTION)
     return ImpactResult(report, b_all, a_all, t_before, t_after, truth, taxa, None, nb, na)
 
 
@@ -363,7 +377,7 @@ def prune(tree: Tree, keep: set) -> Tree:
     return t
 
 
-def summary_lines(report: dict, names=("before", "after")) -> list[str]:
+def summary_lines(report: ImpactReport, names=("before", "after")) -> list[str]:
     """A short plain-language summary (for standard output and the html page).
 
     Every figure is on the ``n_compared`` taxa both trees hold; taxa left
@@ -371,62 +385,59 @@ def summary_lines(report: dict, names=("before", "after")) -> list[str]:
 
     Examples
     --------
-    >>> summary_lines({"entries": 10, "entries_measured": 10, "entries_changed": 1, "entries_filled": 0,
-    ...                "rf": 2, "rf_max": 4, "n": 5, "n_compared": 5, "triangles": 10,
-    ...                "splits_only_before": [["a", "b"]], "splits_only_after": [["a", "c"]],
-    ...                "violated_triangles_before": 3, "violated_triangles_after": 0,
-    ...                "negative_branches_before": 0, "negative_branches_after": 0,
-    ...                "branch_score": 0.5, "max_change": 1.0})[0]
-    'On the 5 taxa of both matrices: 1 of 10 measured entries changed (largest change 1).'
+    >>> D = np.array([[0, 3, 4, 6, 7], [3, 0, 5, 7, 8], [4, 5, 0, 4, 5], [6, 7, 4, 0, 3], [7, 8, 5, 3, 0.]])
+    >>> E = D.copy(); E[0, 2] = E[2, 0] = 1.0
+    >>> r = impact(DistanceMatrix.from_array(D, list("abcde")), DistanceMatrix.from_array(E, list("abcde")))
+    >>> summary_lines(r.report)[0]
+    'On the 5 taxa of both matrices: 1 of 10 measured entries changed (largest change 3).'
     """
     r = report
-    ob, oa = len(r["splits_only_before"]), len(r["splits_only_after"])
+    ob, oa = len(r.splits_only_before), len(r.splits_only_after)
     nsplit = max(ob, oa)
     lines = []
-    measured = r.get("entries_measured", r["entries"])
-    scope = r.get("n_shared", r["n_compared"])
-    first = f"On the {scope:,} taxa of both matrices: {r['entries_changed']:,} of {measured:,} measured entries changed"
-    if r["entries_changed"]:
-        first += f" (largest change {r['max_change']:.4g})"
-    if r.get("entries_filled"):
-        first += f", {r['entries_filled']:,} missing entries filled"
+    first = (f"On the {r.n_shared:,} taxa of both matrices: {r.entries_changed:,} of {r.entries_measured:,} "
+             "measured entries changed")
+    if r.entries_changed:
+        first += f" (largest change {r.max_change:.4g})"
+    if r.entries_filled:
+        first += f", {r.entries_filled:,} missing entries filled"
     lines.append(first + ".")
-    second = f"On the {r['n_compared']:,} taxa both trees hold: "
-    if r["rf"] == 0:
+    second = f"On the {r.n_compared:,} taxa both trees hold: "
+    if r.rf == 0:
         second += "the two trees have the same topology."
     else:
         detail = "" if ob == oa else f"{ob} only {names[0]}, {oa} only {names[1]}; "
         second += (f"{nsplit:,} split{'s differ' if nsplit != 1 else ' differs'} "
-                   f"({detail}Robinson-Foulds {r['rf']:,} of at most {r['rf_max']:,}).")
+                   f"({detail}Robinson-Foulds {r.rf:,} of at most {r.rf_max:,}).")
     lines.append(second)
-    lines.append(f"Violated triangles: {r['violated_triangles_before']:,} {names[0]}, "
-                 f"{r['violated_triangles_after']:,} {names[1]} (of {r['triangles']:,}). "
-                 f"Negative branches: {r['negative_branches_before']} {names[0]}, "
-                 f"{r['negative_branches_after']} {names[1]}. "
-                 f"Branch score distance {r['branch_score']:.4g}.")
-    left = r.get("left_out_taxa") or []
+    lines.append(f"Violated triangles: {r.violated_triangles_before:,} {names[0]}, "
+                 f"{r.violated_triangles_after:,} {names[1]} (of {r.triangles:,}). "
+                 f"Negative branches: {r.negative_branches_before} {names[0]}, "
+                 f"{r.negative_branches_after} {names[1]}. "
+                 f"Branch score distance {r.branch_score:.4g}.")
+    left = r.left_out_taxa
     if left:
-        reasons = r.get("left_out_reasons") or {}
+        reasons = r.left_out_reasons
         groups: dict[str, list] = {}
         for lab in left:
             groups.setdefault(reasons.get(lab, ""), []).append(lab)
         parts = [f"{', '.join(labs[:8])}{f' and {len(labs) - 8} more' if len(labs) > 8 else ''}"
                  + (f" ({why})" if why else "") for why, labs in groups.items()]
         lines.append(f"Left out of the comparison: {'; '.join(parts)}.")
-    if "rf_to_truth_before" in r:
-        lines.append(f"Against the reference tree, on the same {r['n_compared']:,} taxa: Robinson-Foulds "
-                     f"{r['rf_to_truth_before']} {names[0]}, {r['rf_to_truth_after']} {names[1]}.")
-        for side, name in (("before", names[0]), ("after", names[1])):
-            key = f"rf_to_truth_{side}_own_taxa"
-            if key in r:
-                lines.append(f"The {name} tree holds {r[f'n_tree_{side}_scored']:,} taxa; on all of them its "
-                             f"Robinson-Foulds distance to the reference tree is {r[key]}.")
-    if "support_summary" in r:
-        lines.append(r["support_summary"])
+    if r.has_truth:
+        lines.append(f"Against the reference tree, on the same {r.n_compared:,} taxa: Robinson-Foulds "
+                     f"{r.rf_to_truth_before} {names[0]}, {r.rf_to_truth_after} {names[1]}.")
+        for name, own, scored in ((names[0], r.rf_to_truth_before_own_taxa, r.n_tree_before_scored),
+                                  (names[1], r.rf_to_truth_after_own_taxa, r.n_tree_after_scored)):
+            if own is not None:
+                lines.append(f"The {name} tree holds {scored:,} taxa; on all of them its "
+                             f"Robinson-Foulds distance to the reference tree is {own}.")
+    if r.support_summary is not None:
+        lines.append(r.support_summary)
     return lines
 
 
-def remedy_table(trees: dict, truth: Tree | None = None) -> dict:
+def remedy_table(trees: dict, truth: Tree | None = None) -> RemedyTable:
     """Trees from several remedies compared on the taxa they all hold.
 
     Parameters
@@ -439,9 +450,10 @@ def remedy_table(trees: dict, truth: Tree | None = None) -> dict:
 
     Returns
     -------
-    dict
-        ``n_compared`` and ``taxa`` (the common taxa, sorted) and ``rows``:
-        per tree its ``name``, ``n_taxa`` (its own leaves),
+    RemedyTable
+        ``n_compared`` and ``taxa`` (the common taxa, sorted) and ``rows``
+        (:class:`~seqdist.impact.result.RemedyRow`): per tree its ``name``,
+        ``n_taxa`` (its own leaves),
         ``rf_to_first`` and, with ``truth``, ``rf_to_truth`` and
         ``rf_to_truth_normalized``, every RF on the common taxa (the trees
         pruned to them); with ``truth`` also ``rf_to_truth_own_taxa``
@@ -454,7 +466,7 @@ def remedy_table(trees: dict, truth: Tree | None = None) -> dict:
     >>> from seqdist.io.newick import read_newick
     >>> t = {"a": read_newick("((a,b),c,(d,e),f);"), "b": read_newick("((a,c),b,(d,e));")}
     >>> r = remedy_table(t)
-    >>> r["n_compared"], [row["rf_to_first"] for row in r["rows"]], r["rf_between"]
+    >>> r.n_compared, [row.rf_to_first for row in r.rows], r.rf_between
     (5, [0, 2], [[0, 2], [2, 0]])
     """
     names = list(trees)
@@ -476,16 +488,16 @@ def remedy_table(trees: dict, truth: Tree | None = None) -> dict:
         st = split_set(truth)
     rows = []
     for k in names:
-        row = {"name": k, "n_taxa": trees[k].n_leaves, "rf_to_first": len(sets[k] ^ sets[names[0]])}
+        row = RemedyRow(name=k, n_taxa=trees[k].n_leaves, rf_to_first=len(sets[k] ^ sets[names[0]]))
         if st is not None:
             rf = len(sets[k] ^ st)
-            row.update(rf_to_truth=rf, rf_to_truth_normalized=rf / (2.0 * (n - 3)))
+            row.rf_to_truth, row.rf_to_truth_normalized = rf, rf / (2.0 * (n - 3))
             own = sorted(trees[k].labels())
             if set(own) <= set(truth.labels()) and len(own) > 3:
                 m = len(own)
                 so = nontrivial(splits(trees[k], own), m)
                 sto = nontrivial(splits(truth if truth.n_leaves == m else prune(truth, set(own)), own), m)
-                row["rf_to_truth_own_taxa_normalized"] = len(so ^ sto) / (2.0 * (m - 3))
+                row.rf_to_truth_own_taxa_normalized = len(so ^ sto) / (2.0 * (m - 3))
         rows.append(row)
     between = [[len(sets[a] ^ sets[b]) for b in names] for a in names]
-    return {"n_compared": n, "taxa": taxa, "rf_max": 2 * (n - 3), "rows": rows, "rf_between": between}
+    return RemedyTable(n_compared=n, taxa=taxa, rf_max=2 * (n - 3), rows=rows, rf_between=between)

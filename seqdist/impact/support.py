@@ -32,6 +32,7 @@ import os
 import numpy as np
 
 from seqdist.core.errors import InputError, ParameterError
+from seqdist.impact.result import BootstrapSupport, SplitSupport
 from seqdist.trees.compare import nontrivial, split_labels, splits
 
 __all__ = ["split_support", "add_support"]
@@ -187,10 +188,10 @@ def add_support(res, alignment, *, replicates: int, model: str, objective: str, 
                 clamp_negative: bool = False, keep_unmeasured: bool = False, weighted: bool = False) -> None:
     """Add split support to an :class:`~seqdist.impact.compare.ImpactResult` (in place).
 
-    Adds ``report["support"]`` (the settings and, for every split of the
-    two main trees, its support before and after repair), a one-line
-    ``report["support_summary"]`` and ``res.support`` (bitset -> (before,
-    after) fractions) for the html page. ``alignment`` is an
+    Sets ``res.report.support`` (a :class:`~seqdist.impact.result.BootstrapSupport`:
+    the settings and, for every split of the two main trees, its support
+    before and after repair), a one-line ``res.report.support_summary`` and
+    ``res.support`` (bitset -> (before, after) fractions) for the html page. ``alignment`` is an
     :class:`~seqdist.io.alignment.Alignment` (as read for the distances, with
     the same format and alphabet) or a file path read with the defaults.
     """
@@ -226,7 +227,7 @@ def add_support(res, alignment, *, replicates: int, model: str, objective: str, 
              "describe the alignment under that model")
     labels = [lab for lab in aln.labels if lab in in_trees]
     cb, ca, n_before, n_after = split_support(aln, labels, replicates=replicates, model=model,
-                                              objective=objective, method=res.report["method"], seed=seed,
+                                              objective=objective, method=res.report.method, seed=seed,
                                               gamma=gamma, gaps=gaps, workers=workers,
                                               keep_before=res.tree_before.labels(),
                                               keep_after=res.tree_after.labels(), compared=res.taxa,
@@ -239,22 +240,22 @@ def add_support(res, alignment, *, replicates: int, model: str, objective: str, 
         fb = cb.get(m, 0) / n_before if n_before else 0.0
         fa = ca.get(m, 0) / n_after if n_after else 0.0
         support[m] = (fb, fa)
-        rows.append({"taxa": split_labels(m, taxa), "in_before_tree": m in sb, "in_after_tree": m in sa,
-                     "support_before": fb, "support_after": fa})
+        rows.append(SplitSupport(taxa=split_labels(m, taxa), in_before_tree=m in sb, in_after_tree=m in sa,
+                                 support_before=fb, support_after=fa))
     res.support = support
-    res.report["support"] = {
-        "replicates": replicates,
-        "replicates_with_before_tree": n_before,
-        "replicates_with_after_tree": n_after,
-        "model": model,
-        "gamma": gamma,
-        "gaps": gaps,
-        "objective": objective,
-        "weighted": bool(weighted),
-        "left_out_after": sorted(in_trees - set(res.tree_after.labels())),
-        "seed": seed,
-        "splits": rows,
-    }
+    res.report.support = BootstrapSupport(
+        replicates=replicates,
+        replicates_with_before_tree=n_before,
+        replicates_with_after_tree=n_after,
+        model=model,
+        gamma=gamma,
+        gaps=gaps,
+        objective=objective,
+        weighted=bool(weighted),
+        left_out_after=sorted(in_trees - set(res.tree_after.labels())),
+        seed=seed,
+        splits=rows,
+    )
 
     def pct(xs):
         return ", ".join(f"{100 * x:.0f}%" for x in xs)
@@ -272,4 +273,4 @@ def add_support(res, alignment, *, replicates: int, model: str, objective: str, 
         mb = float(np.median([support[m][0] for m in shared]))
         ma = float(np.median([support[m][1] for m in shared]))
         text += f"; shared splits: median support {100 * mb:.0f}% before, {100 * ma:.0f}% after repair"
-    res.report["support_summary"] = text + "."
+    res.report.support_summary = text + "."

@@ -4,7 +4,8 @@ One public function, :func:`repair`, and one module per objective behind it:
 ``seqdist.repair.<objective>`` exposes ``solve(problem) -> Solution``
 (:mod:`seqdist.repair.problem`) and is found by name, so every objective
 shares the engine (:mod:`seqdist.repair.engine`): input checks, weights,
-locks, missing entries, final verification and the report.
+locks, missing entries, final verification and the report (a typed
+:class:`~seqdist.repair.result.RepairReport`).
 
 Leaving taxa out (``leave_out=``) is a remedy of its own, chosen before the
 objective runs on the remaining taxa (:mod:`seqdist.repair.taxa`).
@@ -22,6 +23,7 @@ from __future__ import annotations
 
 from seqdist.repair.engine import ALTERED_NOTE, RepairResult, format_changes, load_objective, unmeasured_taxa
 from seqdist.repair.registry import OBJECTIVE_GUIDE, OBJECTIVES, REGISTRY, WEIGHTED_OBJECTIVES
+from seqdist.repair.result import RepairReport
 
 
 def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, seed: int = 0,
@@ -57,7 +59,7 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
         Taxa with no measured distance to the largest group of measured taxa
         (no path of measured entries joins them to it) have no evidence for
         any distance to the rest. By default they are left out of the output
-        (``report["left_out_taxa"]``) and named in a
+        (``report.left_out_taxa``) and named in a
         :class:`~seqdist.core.errors.DataWarning`. With True they are kept, and
         their distances to the rest are one made-up value (the largest
         within-group distance, which keeps a metric), marked
@@ -76,8 +78,8 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
         from the matrix), or ``"fewest"`` (the fewest taxa whose removal
         leaves no violated checked triangle: exact by integer program where
         the work budget allows, else greedy with a proven lower bound). The
-        objective then repairs the remaining taxa. ``report["left_out_taxa"]``
-        lists every taxon left out and ``report["left_out_reasons"]`` why;
+        objective then repairs the remaining taxa. ``report.left_out_taxa``
+        lists every taxon left out and ``report.left_out_reasons`` why;
         with "fewest" also ``leave_out_lower_bound`` and
         ``leave_out_optimal``. Unknown labels, locks on a left-out taxon and
         fewer than 3 taxa left are input errors.
@@ -90,10 +92,12 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
     -------
     RepairResult
         ``matrix`` (a metric within ``tol``, without the left-out taxa),
-        ``changes`` (label, label, before, after, change, how) and ``report`` (the contract's JSON keys:
-        objective, changed_entries, l1_change, l2_change, max_change,
-        violated_before, violated_after, objective_value, lower_bound,
-        optimal, seconds, and more).
+        ``changes`` (label, label, before, after, change, how) and ``report``
+        (a :class:`~seqdist.repair.result.RepairReport`: one typed field per
+        key of the JSON document, the contract's objective, changed_entries,
+        l1_change, l2_change, max_change, violated_before, violated_after,
+        objective_value, lower_bound, optimal, seconds, and more;
+        ``report.to_dict()`` is the document).
 
     Raises
     ------
@@ -107,13 +111,13 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
     >>> import numpy as np
     >>> D = np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]])
     >>> r = repair(D, "shrink", progress=False)
-    >>> float(r.matrix.values[0, 1]), r.report["changed_entries"]
+    >>> float(r.matrix.values[0, 1]), r.report.changed_entries
     (2.0, 1)
     >>> r.changes
     [('t0', 't1', 5.0, 2.0, -3.0, 'changed')]
     >>> D = np.array([[0, 9, 1, 1], [9, 0, 1, 1], [1, 1, 0, 1], [1, 1, 1, 0.]])
     >>> r = repair(D, "shrink", leave_out="fewest", progress=False)
-    >>> r.report["left_out_taxa"], r.report["leave_out_optimal"], r.matrix.labels
+    >>> r.report.left_out_taxa, r.report.leave_out_optimal, r.matrix.labels
     (['t0'], True, ('t1', 't2', 't3'))
     """
     from seqdist.repair.engine import run
@@ -123,5 +127,5 @@ def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=Non
                weights_source=weights_source, leave_out=leave_out, **options)
 
 
-__all__ = ["repair", "RepairResult", "OBJECTIVES", "OBJECTIVE_GUIDE", "WEIGHTED_OBJECTIVES", "REGISTRY", "ALTERED_NOTE",
-           "format_changes", "load_objective", "unmeasured_taxa"]
+__all__ = ["repair", "RepairResult", "RepairReport", "OBJECTIVES", "OBJECTIVE_GUIDE", "WEIGHTED_OBJECTIVES",
+           "REGISTRY", "ALTERED_NOTE", "format_changes", "load_objective", "unmeasured_taxa"]

@@ -22,9 +22,10 @@
    matrix a metric); locks are checked; and the result is verified to be a
    metric within ``tol``. A result that fails is never returned: that is an
    internal error.
-5. **Report.** The contract's keys (objective, changed_entries, l1_change,
-   l2_change, max_change, violated_before, violated_after, objective_value,
-   lower_bound, optimal, seconds) and more, plus the list of changes.
+5. **Report.** A :class:`~seqdist.repair.result.RepairReport`: the contract's
+   keys (objective, changed_entries, l1_change, l2_change, max_change,
+   violated_before, violated_after, objective_value, lower_bound, optimal,
+   seconds) and more as typed fields, plus the list of changes.
 
 A repaired matrix is altered data: the report says so, and users should
 give the objective and the list of changes with any result they publish.
@@ -43,6 +44,7 @@ from seqdist.repair.problem import RepairProblem, Solution
 
 # the objective registry's names, re-exported for the engine's callers
 from seqdist.repair.registry import OBJECTIVE_GUIDE, OBJECTIVES, WEIGHTED_OBJECTIVES  # noqa: F401
+from seqdist.repair.result import RepairReport
 
 __all__ = ["RepairResult", "load_objective", "check_options", "as_matrix", "weights_array",
            "lock_mask", "build_problem", "describe_path", "check_locks", "fill_missing", "measured_groups",
@@ -69,12 +71,13 @@ class RepairResult:
         and every filled missing entry (``before`` and ``change`` NaN there),
         in row order of the upper triangle (built on first use); ``how`` says
         how the entry was made (see :func:`change_rows`).
-    report : dict
-        The contract's JSON keys and more (see :func:`build_report`),
+    report : RepairReport
+        What the repair did, one typed field per key of the ``--json``
+        document (:meth:`RepairReport.to_dict` gives the document),
         including ``left_out_taxa``.
     """
 
-    def __init__(self, matrix: DistanceMatrix, report: dict, before: np.ndarray | None = None,
+    def __init__(self, matrix: DistanceMatrix, report: RepairReport, before: np.ndarray | None = None,
                  observed: np.ndarray | None = None, tol: float = 0.0, changes: list | None = None,
                  no_evidence: np.ndarray | None = None):
         self.matrix = matrix
@@ -114,8 +117,7 @@ class RepairResult:
                              self._no_evidence)
 
     def __repr__(self) -> str:
-        return (f"RepairResult(objective={self.report.get('objective')!r}, "
-                f"changed_entries={self.report.get('changed_entries')})")
+        return f"RepairResult(objective={self.report.objective!r}, changed_entries={self.report.changed_entries})"
 
 
 # ------------------------------------------------------------- dispatch
@@ -591,8 +593,15 @@ def format_changes(rows: list[tuple]) -> str:
 
 
 def build_report(problem: RepairProblem, objective: str, X: np.ndarray, solution: Solution, fill: dict,
-                 seconds: float, violated_before: tuple[int, float], objective_value: float) -> dict:
-    """The report dict: the contract's keys first, then more."""
+                 seconds: float, violated_before: tuple[int, float], objective_value: float,
+                 **taxa) -> RepairReport:
+    """The :class:`RepairReport` of a finished repair.
+
+    ``taxa`` holds the fields on the taxa left out or kept (``n_input``,
+    ``left_out_taxa``, ``left_out_reasons``, ``unmeasured_taxa``,
+    ``kept_unmeasured``, ``leave_out`` and the optional ``leave_out_*`` ones),
+    which :func:`run` knows.
+    """
     from seqdist.kernels.triangles import count_violations
 
     D, obs, tol = problem.D, problem.observed, problem.tol
@@ -604,47 +613,50 @@ def build_report(problem: RepairProblem, objective: str, X: np.ndarray, solution
     # a verified metric has no violated triangle; counting again is a cheap double check for small n
     violated_after = count_violations(X, tol)[0] if problem.n <= 1000 else 0
     n = problem.n
-    rep = {
-        "objective": objective,
-        "changed_entries": int(changed.sum()),
-        "l1_change": float(ad.sum()),
-        "l2_change": float((diff ** 2).sum()),
-        "max_change": float(ad.max(initial=0.0)),
-        "violated_before": int(violated_before[0]),
-        "violated_after": int(violated_after),
-        "triangles": n * (n - 1) * (n - 2) // 6,
-        "checked_triangles_before": checked_triangles(obs),
-        "objective_value": float(objective_value),
-        "lower_bound": float(solution.lower_bound),
-        "optimal": bool(solution.optimal),
-        "seconds": round(float(seconds), 4),
-        "n": n,
-        "entries": n * (n - 1) // 2,
-        "observed_entries": int(iu.sum()),
-        "increased_entries": int((diff > tol).sum()),
-        "decreased_entries": int((diff < -tol).sum()),
-        "filled_entries": fill["filled_entries"],
-        "filled_by_path": fill["filled_by_path"],
-        "filled_without_evidence": fill["filled_without_evidence"],
-        "weighted_l1_change": _wsum(w[changed], ad[changed]),
-        "max_violation_before": float(violated_before[1]),
-        "gap": float(max(0.0, objective_value - solution.lower_bound)),
-        "relative_gap": float(max(0.0, objective_value - solution.lower_bound) / objective_value)
+    lb = float(solution.lower_bound)
+    optimal = bool(solution.optimal)
+    if optimal and objective in ("fewest", "grow") and objective_value > lb + 1e-9 * objective_value:
+        optimal = False  # the solver's proof was for a value the finished matrix does not reach
+    return RepairReport(
+        objective=objective,
+        changed_entries=int(changed.sum()),
+        l1_change=float(ad.sum()),
+        l2_change=float((diff ** 2).sum()),
+        max_change=float(ad.max(initial=0.0)),
+        violated_before=int(violated_before[0]),
+        violated_after=int(violated_after),
+        triangles=n * (n - 1) * (n - 2) // 6,
+        checked_triangles_before=checked_triangles(obs),
+        objective_value=float(objective_value),
+        lower_bound=lb,
+        optimal=optimal,
+        seconds=round(float(seconds), 4),
+        n=n,
+        entries=n * (n - 1) // 2,
+        observed_entries=int(iu.sum()),
+        increased_entries=int((diff > tol).sum()),
+        decreased_entries=int((diff < -tol).sum()),
+        filled_entries=fill["filled_entries"],
+        filled_by_path=fill["filled_by_path"],
+        filled_without_evidence=fill["filled_without_evidence"],
+        weighted_l1_change=_wsum(w[changed], ad[changed]),
+        max_violation_before=float(violated_before[1]),
+        gap=float(max(0.0, objective_value - solution.lower_bound)),
+        relative_gap=float(max(0.0, objective_value - solution.lower_bound) / objective_value)
         if objective_value > 0 else 0.0,
-        "tol": tol,
-        "time_limit": problem.time_limit,
-        "locked_entries": int(np.triu(problem.locked, 1).sum()),
-        "free_entries": int((np.triu(obs, 1) & (problem.weights == 0)).sum()),
-        "weights": "uniform" if bool(np.all(w[np.isfinite(w)] == 1)) else "given",
-        "observed_groups": fill["groups"],
-        "between_groups_value": fill["between_groups_value"],
-        "seed": problem.seed,
-        "details": dict(solution.details),
-        "note": ALTERED_NOTE,
-    }
-    if problem.n > 1000:
-        rep["violated_after_by"] = "verified metric (every triangle within tol)"
-    return rep
+        tol=tol,
+        time_limit=problem.time_limit,
+        locked_entries=int(np.triu(problem.locked, 1).sum()),
+        free_entries=int((np.triu(obs, 1) & (problem.weights == 0)).sum()),
+        weights="uniform" if bool(np.all(w[np.isfinite(w)] == 1)) else "given",
+        observed_groups=fill["groups"],
+        between_groups_value=fill["between_groups_value"],
+        seed=problem.seed,
+        details=dict(solution.details),
+        note=ALTERED_NOTE,
+        violated_after_by="verified metric (every triangle within tol)" if n > 1000 else None,
+        **taxa,
+    )
 
 
 def checked_triangles(observed: np.ndarray) -> int:
@@ -824,7 +836,7 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
     kind, remedy, request = leave_out_request(leave_out, dm, source)
     bar = _Bar(objective) if progress else None
     where = f"{source}: " if source else ""
-    leave = {}
+    violated_leaving = None  # violated triangles before taxa were left out on request
     # warnings wait until the input has passed every check, so a refused
     # input prints its one error line and nothing else
     pending = []
@@ -852,7 +864,7 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
                 pending.append(f"{len(unmeasured)} taxa kept although no measured distance joins them to the others; "
                                f"their distances to the rest are one made-up value, not evidence: {shown}{more}")
         if kind is not None:
-            leave["violated_before_leaving_out"] = int(count_violations(problem.D, problem.tol)[0])
+            violated_leaving = int(count_violations(problem.D, problem.tol)[0])
         cover = None
         if kind == "suspects":
             remedy = suspect_reasons(dm)
@@ -923,21 +935,15 @@ def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, 
     if lb > objective_value + 1e-9 * max(1.0, abs(objective_value)):
         raise RuntimeError(f"objective {objective}: lower bound {lb} above the value {objective_value}")
     seconds = time.perf_counter() - t0
-    rep = build_report(problem, objective, X, solution, fill, seconds, before, objective_value)
-    if solution.optimal and objective in ("fewest", "grow") and objective_value > lb + 1e-9 * objective_value:
-        rep["optimal"] = False
-    rep["n_input"] = dm.n
-    rep["left_out_taxa"] = left_out
-    rep["left_out_reasons"] = {lab: reasons[lab] for lab in left_out}
-    rep["unmeasured_taxa"] = {lab: unmeasured[lab] for lab in dm.labels if lab in unmeasured}
-    rep["kept_unmeasured"] = bool(keep_unmeasured and unmeasured)
-    rep["leave_out"] = request
-    if kind is not None:
-        rep.update(leave)
-    if cover is not None:
-        rep["leave_out_lower_bound"] = int(cover.lower_bound)
-        rep["leave_out_optimal"] = bool(cover.optimal)
-        rep["leave_out_details"] = dict(cover.details)
+    rep = build_report(problem, objective, X, solution, fill, seconds, before, objective_value,
+                       n_input=dm.n, left_out_taxa=left_out,
+                       left_out_reasons={lab: reasons[lab] for lab in left_out},
+                       unmeasured_taxa={lab: unmeasured[lab] for lab in dm.labels if lab in unmeasured},
+                       kept_unmeasured=bool(keep_unmeasured and unmeasured), leave_out=request,
+                       violated_before_leaving_out=violated_leaving,
+                       leave_out_lower_bound=int(cover.lower_bound) if cover is not None else None,
+                       leave_out_optimal=bool(cover.optimal) if cover is not None else None,
+                       leave_out_details=dict(cover.details) if cover is not None else None)
     matrix = DistanceMatrix._trusted(X, problem.labels)
     return RepairResult(matrix=matrix, report=rep, before=D, observed=obs, tol=tol, no_evidence=fill["no_evidence"])
 

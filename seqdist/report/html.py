@@ -398,11 +398,11 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
     out = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
            f"<title>{_esc(title or 'seqdist tree impact report')}</title>", f"<style>{CSS}</style></head><body>"]
     out.append("<h1>How the matrix change affects the tree</h1>")
-    ref = f" &middot; reference tree {_esc(reference)}" if reference and "rf_to_truth_before" in r else ""
-    of_all = f" (of {r['n']:,})" if r.get("n", n) != n else ""
+    ref = f" &middot; reference tree {_esc(reference)}" if reference and r.has_truth else ""
+    of_all = f" (of {r.n:,})" if r.n != n else ""
     out.append(f'<p class="files">{_esc(names[0])} &rarr; {_esc(names[1])} &middot; method '
-               f'{_esc(r["method"].upper())} &middot; trees compared on {n:,} taxa{of_all}{ref} &middot; '
-               f'tolerance {_num(r["tol"], 3)}</p>')
+               f'{_esc(r.method.upper())} &middot; trees compared on {n:,} taxa{of_all}{ref} &middot; '
+               f'tolerance {_num(r.tol, 3)}</p>')
     if lead:
         out.append(lead)
     out.append('<div class="summary">' + "".join(f"<p>{_esc(x)}</p>" for x in summary_lines(r, names)) + "</div>")
@@ -443,7 +443,7 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
             out.append(f'<p class="note">Leaf labels are left out above {MAX_LABELLED_LEAVES} taxa.</p>')
         odd = sorted((set(res.tree_before.labels()) | set(res.tree_after.labels())) - set(taxa))
         if odd:
-            reasons = r.get("left_out_reasons", {})
+            reasons = r.left_out_reasons
             out.append('<p class="note">* in one tree only, so not compared: '
                        + _esc("; ".join(f"{lab}" + (f" ({reasons[lab]})" if reasons.get(lab) else "") for lab in odd))
                        + ".</p>")
@@ -468,72 +468,69 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
             if a in pos_o and b in pos_o:
                 made_up[pos_o[a], pos_o[b]] = made_up[pos_o[b], pos_o[a]] = True
     n_made_up = int(np.triu(made_up, 1).sum()) if made_up is not None else 0
-    filled_note = (f'{_num(r["entries_filled"])} missing entries filled'
+    filled_note = (f'{_num(r.entries_filled)} missing entries filled'
                    + (f" ({n_made_up:,} of them filled without evidence)" if n_made_up else ""))
     out.append(f'<p class="note">after - before on the {len(order):,} taxa of both matrices, rows and columns '
-               f'in the leaf order of the tree drawn above. Of {_num(r.get("entries_measured", r["entries"]))} '
-               f'measured entries, {_num(r["entries_increased"])} increased and {_num(r["entries_decreased"])} '
+               f'in the leaf order of the tree drawn above. Of {_num(r.entries_measured)} '
+               f'measured entries, {_num(r.entries_increased)} increased and {_num(r.entries_decreased)} '
                f'decreased (by more than the tolerance); {filled_note}; total absolute change '
-               f'{_num(r["l1_change"])}, largest {_num(r["max_change"])}.</p>')
+               f'{_num(r.l1_change)}, largest {_num(r.max_change)}.</p>')
     out.append(f'<div class="panel" style="display:inline-block">{draw_heatmap(change, order, made_up=made_up)}</div>')
 
     # triangles and measures
     out.append("<h2>Triangle inequality and measures</h2>")
-    tri = max(1, r["triangles"])
+    tri = max(1, r.triangles)
+
+    def bar(count):
+        return f' <span class="bar" style="width:{120 * count / tri:.1f}px"></span> {100 * count / tri:.2f}% of {tri:,}'
+
+    measures = [
+        ("violated triangles", r.violated_triangles_before, r.violated_triangles_after, 4),
+        ("largest violation", r.max_violation_before, r.max_violation_after, 4),
+        ("negative branches", r.negative_branches_before, r.negative_branches_after, 4),
+        ("tree length", r.tree_length_before, r.tree_length_after, 6),
+        ("cophenetic correlation (tree vs its matrix)", r.cophenetic_before, r.cophenetic_after, 6),
+        ("non-trivial splits", r.splits_before, r.splits_after, 4),
+    ]
+    if r.has_truth:
+        measures += [
+            ("Robinson-Foulds to the reference tree", r.rf_to_truth_before, r.rf_to_truth_after, 4),
+            ("branch score to the reference tree", r.branch_score_to_truth_before, r.branch_score_to_truth_after, 4),
+        ]
     rows = []
-    for label, kb, ka, digits in (
-        ("violated triangles", "violated_triangles_before", "violated_triangles_after", 4),
-        ("largest violation", "max_violation_before", "max_violation_after", 4),
-        ("negative branches", "negative_branches_before", "negative_branches_after", 4),
-        ("tree length", "tree_length_before", "tree_length_after", 6),
-        ("cophenetic correlation (tree vs its matrix)", "cophenetic_before", "cophenetic_after", 6),
-        ("non-trivial splits", "splits_before", "splits_after", 4),
-        ("Robinson-Foulds to the reference tree", "rf_to_truth_before", "rf_to_truth_after", 4),
-        ("branch score to the reference tree", "branch_score_to_truth_before", "branch_score_to_truth_after", 4),
-    ):
-        if kb not in r:
-            continue
-        extra_b = extra_a = ""
-        if kb == "violated_triangles_before":
-            for key, which in ((kb, "b"), (ka, "a")):
-                w = 120 * r[key] / tri
-                bar = f' <span class="bar" style="width:{w:.1f}px"></span> {100 * r[key] / tri:.2f}% of {tri:,}'
-                if which == "b":
-                    extra_b = bar
-                else:
-                    extra_a = bar
-        out_b, out_a = _num(r[kb], digits), _num(r[ka], digits)
-        rows.append(f'<tr><td class="l">{label}</td><td class="l">{out_b}{extra_b}</td>'
-                    f'<td class="l">{out_a}{extra_a}</td></tr>')
-    out.append(f'<p class="note">On the {n:,} taxa both trees hold ({r["triangles"]:,} triangles, every one '
+    for k, (label, vb, va, digits) in enumerate(measures):
+        extra_b, extra_a = (bar(vb), bar(va)) if k == 0 else ("", "")
+        rows.append(f'<tr><td class="l">{label}</td><td class="l">{_num(vb, digits)}{extra_b}</td>'
+                    f'<td class="l">{_num(va, digits)}{extra_a}</td></tr>')
+    out.append(f'<p class="note">On the {n:,} taxa both trees hold ({r.triangles:,} triangles, every one '
                'checked); tree lengths and correlations of the trees restricted to them.</p>')
     out.append(f'<table><tr><th class="l"></th><th class="l">{_esc(names[0])}</th><th class="l">{_esc(names[1])}'
                f'</th></tr>{"".join(rows)}</table>')
-    out.append(f'<p class="note">Robinson-Foulds distance between the trees: {r["rf"]} of at most {r["rf_max"]} '
-               f'(normalised {r["rf_normalized"]:.4g}); branch score distance {r["branch_score"]:.6g} '
+    out.append(f'<p class="note">Robinson-Foulds distance between the trees: {r.rf} of at most {r.rf_max} '
+               f'(normalised {r.rf_normalized:.4g}); branch score distance {r.branch_score:.6g} '
                "(Kuhner &amp; Felsenstein 1994). Triangle counts use the tolerance above.</p>")
 
     # splits
     out.append("<h2>Splits that differ</h2>")
     head = "<tr><th>taxa</th><th class=\"l\">one side of the split (the side without " \
            f"{_esc(taxa[0])})</th>" + ("<th>support before</th><th>support after</th>" if sup else "") + "</tr>"
-    for name, lst in ((names[0], r["splits_only_before"]), (names[1], r["splits_only_after"])):
+    for name, lst in ((names[0], r.splits_only_before), (names[1], r.splits_only_after)):
         out.append(f"<h3>Only in the {_esc(name)} tree ({len(lst)})</h3>")
         if lst:
             out.append(f'<table class="splits">{head}{_split_rows(lst, sup, taxa)}</table>')
         else:
             out.append('<p class="note">none</p>')
-    if sup and "support" in r:
-        s = r["support"]
-        out.append(f'<p class="note">Support from {s["replicates"]} bootstrap replicates of the alignment '
-                   f'(model {_esc(s["model"])}, repair objective {_esc(s["objective"])}, seed {s["seed"]}).</p>')
+    if sup and r.support is not None:
+        s = r.support
+        out.append(f'<p class="note">Support from {s.replicates} bootstrap replicates of the alignment '
+                   f'(model {_esc(s.model)}, repair objective {_esc(s.objective)}, seed {s.seed}).</p>')
 
     # largest changes
-    if r.get("largest_changes"):
+    if r.largest_changes:
         out.append("<h2>Largest entry changes</h2>")
-        rows = "".join(f'<tr><td class="l">{_esc(c["a"])}</td><td class="l">{_esc(c["b"])}</td>'
-                       f'<td>{_num(c["before"], 6)}</td><td>{_num(c["after"], 6)}</td><td>{c["change"]:+.4g}</td></tr>'
-                       for c in r["largest_changes"])
+        rows = "".join(f'<tr><td class="l">{_esc(c.a)}</td><td class="l">{_esc(c.b)}</td>'
+                       f'<td>{_num(c.before, 6)}</td><td>{_num(c.after, 6)}</td><td>{c.change:+.4g}</td></tr>'
+                       for c in r.largest_changes)
         out.append(f'<table><tr><th class="l">taxon</th><th class="l">taxon</th><th>before</th><th>after</th>'
                    f"<th>change</th></tr>{rows}</table>")
     from seqdist import __version__

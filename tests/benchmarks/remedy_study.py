@@ -260,7 +260,7 @@ def _repair(objective: str, weighted: bool):
 
             weights = inverse_variance_weights(ctx.variance, dm)
         r = repair(dm, objective, weights=weights, seed=ctx.seed, progress=False)
-        return r.matrix, list(r.report["left_out_taxa"])
+        return r.matrix, list(r.report.left_out_taxa)
 
     remedy.__doc__ = f"repair(dm, '{objective}'){' with inverse-variance weights' if weighted else ''}"
     return remedy
@@ -366,7 +366,7 @@ def _suspects_then(objective: str | None, weighted: bool | None):
         weights = inverse_variance_weights(ctx.variance, dm) if w else None
         r = repair(dm, obj, weights=weights, seed=ctx.seed, progress=False,
                    leave_out=leave or None)
-        return r.matrix, list(r.report["left_out_taxa"])
+        return r.matrix, list(r.report.left_out_taxa)
 
     remedy.__doc__ = (f"leave out the suspects, then repair(dm, '{objective or 'DEFAULT_OBJECTIVE'}')"
                       f"{' with inverse-variance weights' if weighted else ''}")
@@ -392,7 +392,7 @@ def remedy_fewest_taxa(dm, ctx):
         if "leave_out" in str(exc) or "leave-out" in str(exc):
             raise Skipped(f"seqdist.repair.repair does not take leave_out='fewest' here ({exc})") from None
         raise
-    return r.matrix, list(r.report["left_out_taxa"])
+    return r.matrix, list(r.report.left_out_taxa)
 
 
 #: name -> function(dm, ctx) -> (DistanceMatrix for the tree, labels left out). Order = table order.

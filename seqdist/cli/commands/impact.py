@@ -95,7 +95,7 @@ def _run(args) -> int:
     res = impact(before, after, args.method, truth=truth, tol=args.tol, clamp_negative=args.clamp_negative,
                  drop_incomplete=args.drop_incomplete, names=(args.before, args.after))
     if args.outgroup is not None and args.outgroup not in res.taxa:
-        why = res.report["left_out_reasons"].get(args.outgroup, "not compared")
+        why = res.report.left_out_reasons.get(args.outgroup, "not compared")
         raise InputError(f"--outgroup '{args.outgroup}' was left out ({why}); choose another")
     return _finish(args, res)
 
@@ -125,12 +125,10 @@ def _finish(args, res) -> int:
         add_support(res, args.alignment, replicates=args.bootstrap, model=args.model, objective=args.objective,
                     seed=args.seed, gamma=args.gamma, gaps=args.gaps, workers=args.workers,
                     clamp_negative=args.clamp_negative, keep_unmeasured=args.keep_unmeasured)
-    report = dict(res.report)
-    report["before"] = args.before
-    report["after"] = args.after
+    report = res.report
     with OutputSet() as out:
         if args.json:
-            out.add_json(args.json, report)
+            out.add_json(args.json, {**report.to_dict(), "before": args.before, "after": args.after})
         if args.html:
             from seqdist.report.html import render_html
 
@@ -147,10 +145,10 @@ def _finish(args, res) -> int:
     if not (to_stdout and is_quiet()):
         for line in summary_lines(report):
             print(line, file=stream)
-        if report["clamped_branches_before"] or report["clamped_branches_after"]:
-            print(f"Negative branch lengths set to zero (--clamp-negative): {report['clamped_branches_before']} "
-                  f"before, {report['clamped_branches_after']} after.", file=stream)
-        print("Caution: " + report["caution"], file=stream)
+        if report.clamped_branches_before or report.clamped_branches_after:
+            print(f"Negative branch lengths set to zero (--clamp-negative): {report.clamped_branches_before} "
+                  f"before, {report.clamped_branches_after} after.", file=stream)
+        print("Caution: " + report.caution, file=stream)
     return 0
 
 

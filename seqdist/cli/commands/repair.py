@@ -144,21 +144,29 @@ def read_label_file(path: str, dm, source: str) -> list:
     return out
 
 
-def left_out_summary(rep: dict) -> str:
+def left_out_summary(rep) -> str:
     """What was left out and why, for the summary line (empty when nothing was and nothing was asked).
+
+    ``rep`` is the :class:`~seqdist.repair.result.RepairReport`.
 
     Examples
     --------
-    >>> s = left_out_summary({"left_out_taxa": ["a", "x"], "unmeasured_taxa": {"x": "..."},
-    ...                       "leave_out": "fewest", "leave_out_optimal": True})
+    >>> import dataclasses
+    >>> import numpy as np
+    >>> from seqdist.repair import repair
+    >>> D = np.array([[0, 9, 1, 1], [9, 0, 1, 1], [1, 1, 0, 1], [1, 1, 1, 0.]])
+    >>> rep = repair(D, "shrink", leave_out="fewest", progress=False).report
+    >>> left_out_summary(rep)
+    '; left out 1 taxa: t0 (the fewest whose removal leaves no violated triangle, proven)'
+    >>> s = left_out_summary(dataclasses.replace(rep, left_out_taxa=["t0", "x"], unmeasured_taxa={"x": "..."}))
     >>> for part in s.split(", x "):
     ...     print(part)
-    ; left out 2 taxa: a (the fewest whose removal leaves no violated triangle, proven)
+    ; left out 2 taxa: t0 (the fewest whose removal leaves no violated triangle, proven)
     (no measured distance to the others)
     """
-    labels = list(rep.get("left_out_taxa") or [])
-    request = rep.get("leave_out")
-    unmeasured = rep.get("unmeasured_taxa") or {}
+    labels = list(rep.left_out_taxa)
+    request = rep.leave_out
+    unmeasured = rep.unmeasured_taxa
     remedy = [lab for lab in labels if lab not in unmeasured]
     cut = [lab for lab in labels if lab in unmeasured]
 
@@ -168,9 +176,9 @@ def left_out_summary(rep: dict) -> str:
     parts = []
     if remedy:
         if request == "fewest":
-            why = ("the fewest whose removal leaves no violated triangle, proven" if rep.get("leave_out_optimal")
+            why = ("the fewest whose removal leaves no violated triangle, proven" if rep.leave_out_optimal
                    else "the fewest found whose removal leaves no violated triangle; at least "
-                        f"{rep.get('leave_out_lower_bound')} needed")
+                        f"{rep.leave_out_lower_bound} needed")
         else:
             why = "suspects" if request == "suspects" else "named"
         parts.append(f"{names(remedy)} ({why})")
@@ -185,11 +193,11 @@ def left_out_summary(rep: dict) -> str:
     return f"; left out {len(labels)} taxa: {', '.join(parts)}"
 
 
-def _violated(rep: dict) -> str:
-    if rep.get("left_out_taxa") and rep.get("violated_before_leaving_out") is not None:
-        return (f"{rep['violated_before_leaving_out']} violated triangles in the input, "
-                f"{rep['violated_before']} among the taxa kept")
-    return f"{rep['violated_before']} violated triangles before"
+def _violated(rep) -> str:
+    if rep.left_out_taxa and rep.violated_before_leaving_out is not None:
+        return (f"{rep.violated_before_leaving_out} violated triangles in the input, "
+                f"{rep.violated_before} among the taxa kept")
+    return f"{rep.violated_before} violated triangles before"
 
 
 def _run(args) -> int:
@@ -220,21 +228,20 @@ def _run(args) -> int:
     res = repair(dm, args.objective, weights=weights, lock=lock, tol=args.tol, time_limit=args.time_limit,
                  seed=args.seed, keep_unmeasured=args.keep_unmeasured, source=source,
                  weights_source=args.weights, leave_out=leave_out, **options)
-    rep = dict(res.report)
-    rep["input"] = source
+    rep = res.report
     with OutputSet() as out:
         out.add_matrix(args.out, res.matrix, args.out_format)
         if args.changes:
             out.add_text(args.changes, res.changes_text())
         if args.json:
-            out.add_json(args.json, rep)
-    bound = "optimal" if rep["optimal"] else f"lower bound {rep['lower_bound']:.6g}"
-    filled = f", {rep['filled_entries']} missing filled" if rep["filled_entries"] else ""
-    if rep["filled_without_evidence"]:
-        filled += f" ({rep['filled_without_evidence']} without evidence: one made-up value)"
+            out.add_json(args.json, {**rep.to_dict(), "input": source})
+    bound = "optimal" if rep.optimal else f"lower bound {rep.lower_bound:.6g}"
+    filled = f", {rep.filled_entries} missing filled" if rep.filled_entries else ""
+    if rep.filled_without_evidence:
+        filled += f" ({rep.filled_without_evidence} without evidence: one made-up value)"
     filled += left_out_summary(rep)
-    info(f"repair ({args.objective}): {rep['changed_entries']} of {rep['observed_entries']} entries changed"
-         f"{filled}; {_violated(rep)}, {rep['violated_after']} after; "
-         f"objective {rep['objective_value']:.6g} ({bound}); {rep['seconds']:.2f} s")
+    info(f"repair ({args.objective}): {rep.changed_entries} of {rep.observed_entries} entries changed"
+         f"{filled}; {_violated(rep)}, {rep.violated_after} after; "
+         f"objective {rep.objective_value:.6g} ({bound}); {rep.seconds:.2f} s")
     info("the repaired matrix is altered data: report the objective and the changes with any published result")
     return 0
