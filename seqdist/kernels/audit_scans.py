@@ -32,6 +32,19 @@ __all__ = ["scan_triangles", "collect_triangles", "greedy_packing", "quartet_sta
 QBITS = 40
 
 
+class dynamic_chunks:
+    """Context manager: hand prange iterations out one by one (dynamic)."""
+
+    def __enter__(self):
+        self.old = numba.get_parallel_chunksize()
+        numba.set_parallel_chunksize(1)
+        return self
+
+    def __exit__(self, *exc):
+        numba.set_parallel_chunksize(self.old)
+        return False
+
+
 @njit(cache=True, inline="always")
 def _pidx(i, j, n):  # pragma: no cover - compiled
     # index of the pair i < j in the packed upper triangle, row by row
@@ -254,8 +267,6 @@ def scan_triangles(d: np.ndarray, tol: float, hard: float, top: float, edges: np
     >>> int(r["row_viol"].sum()), r["cnt"].tolist(), r["umax"], r["uworst"]
     (1, [1, 1, 1], 4.0, (0, 1, 2))
     """
-    from seqdist.kernels.triangles import dynamic_chunks
-
     n = d.shape[0]
     P = n * (n - 1) // 2
     T = numba.get_num_threads()

@@ -14,14 +14,16 @@ Every triangle ``i < j < k`` is visited once. The work is cut into tiles of
 outer loop, so the tail of row ``j`` is read once per tile and reused for all
 rows of the tile (cache blocking; without it the kernel is bound by memory
 bandwidth from n of about 1500 on). The innermost loop over ``k`` runs over two
-contiguous row slices and is branch-free, so LLVM turns it into SIMD code. The
+contiguous row slices and is branch-free, so the C compiler turns it into SIMD
+code. The loops are Cython (``_triangles.pyx``), compiled when the package is
+installed. The
 excess of a triangle is computed as ``2 * longest - (sum of the three sides)``;
 a triangle with a missing (NaN) side gives NaN, which never compares greater
 than the tolerance, so missing sides cost nothing. Only pairs ``(i, j)`` whose
 vector count is non-zero are scanned a second time, with branches, to find the
 largest violation. Tiles are handed to threads dynamically (heavy and light
-tiles interleaved, chunk size 1), which keeps both cores busy on a shared
-machine.
+tiles interleaved; OpenMP's dynamic schedule, chunk size 1), which keeps both
+cores busy on a shared machine.
 
 All kernels are pure functions on float64 arrays (inputs are not modified)
 and are checked in the tests against plain loops.
@@ -30,9 +32,9 @@ and are checked in the tests against plain loops.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, prange
 
 from seqdist.core.matrix import default_tol
+from seqdist.kernels._triangles import count_tiles
 
 __all__ = ["tile_starts", "count_violations", "max_violation", "is_metric"]
 
@@ -63,85 +65,6 @@ def tile_starts(n: int, rows: int = TILE) -> np.ndarray:
         lo += 1
         hi -= 1
     return np.array(out, dtype=np.int64)
-
-
-class _DynamicChunks:
-    """Context manager: hand prange iterations out one by one (dynamic)."""
-
-    def __enter__(self):
-        import numba
-
-        self.old = numba.get_parallel_chunksize()
-        numba.set_parallel_chunksize(1)
-        return self
-
-    def __exit__(self, *exc):
-        import numba
-
-        numba.set_parallel_chunksize(self.old)
-        return False
-
-
-dynamic_chunks = _DynamicChunks
-
-
-@njit(cache=True)
-def _count_tile(d, tol, a0, a1):  # pragma: no cover - compiled
-    # Violated triangles (a, b, c), a in [a0, a1), a < b < c; largest excess among them.
-    n = d.shape[0]
-    tot = 0
-    worst = 0
-    # The largest excess of a pair is a max over non-negative floats, found as an
-    # integer max over their bit patterns (same order; vectorises, a float max does not).
-    buf = np.zeros(n)
-    ibuf = buf.view(np.int64)
-    for b in range(a0 + 1, n):
-        ys = d[b, b + 1:]
-        m_ = ys.shape[0]
-        for a in range(a0, min(a1, b)):
-            z = d[a, b]
-            if z != z:
-                continue
-            xs = d[a, b + 1:]
-            c_ = 0
-            for c in range(m_):  # branch-free: vectorised
-                x = xs[c]
-                y = ys[c]
-                m = x if x > y else y
-                m = m if m > z else z
-                e = 2.0 * m - (x + y + z)
-                c_ += e > tol
-            if c_ > 0:
-                tot += c_
-                for c in range(m_):
-                    x = xs[c]
-                    y = ys[c]
-                    m = x if x > y else y
-                    m = m if m > z else z
-                    e = 2.0 * m - (x + y + z)
-                    buf[c] = e if e > tol else 0.0
-                w = 0
-                for c in range(m_):
-                    q = ibuf[c]
-                    w = q if q > w else w
-                worst = w if w > worst else worst
-    buf[0] = 0.0
-    ibuf[0] = worst
-    return tot, buf[0]
-
-
-@njit(parallel=True, cache=True)
-def _count_kernel(d, tol, starts, rows):  # pragma: no cover - compiled
-    n = d.shape[0]
-    nt = starts.shape[0]
-    counts = np.zeros(nt, dtype=np.int64)
-    worst = np.zeros(nt)
-    for t in prange(nt):
-        a0 = starts[t]
-        c, w = _count_tile(d, tol, a0, min(a0 + rows, n))
-        counts[t] = c
-        worst[t] = w
-    return counts, worst
 
 
 def _as_c(values) -> np.ndarray:
@@ -183,8 +106,10 @@ def count_violations(values: np.ndarray, tol: float | None = None) -> tuple[int,
         tol = default_tol(d)
     if d.shape[0] < 3:
         return 0, 0.0
-    with dynamic_chunks():
-        counts, worst = _count_kernel(d, float(tol), tile_starts(d.shape[0]), TILE)
+    starts = tile_starts(d.shape[0])
+    counts = np.zeros(starts.shape[0], dtype=np.int64)
+    worst = np.zeros(starts.shape[0])
+    count_tiles(d, float(tol), starts, TILE, counts, worst)
     return int(counts.sum()), float(worst.max())
 
 
