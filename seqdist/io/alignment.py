@@ -32,14 +32,15 @@ from __future__ import annotations
 import io
 import os
 import re
-from dataclasses import dataclass
-from typing import Sequence
+from dataclasses import dataclass, field
+from typing import Callable, Sequence
 
 import numpy as np
 
 from seqdist.core.errors import InputError
 
-__all__ = ["alignment_formats", "Alignment", "read_alignment", "guess_alphabet", "guess_path_format"]
+__all__ = ["AlignmentFormat", "REGISTRY", "alignment_formats", "sniffed_format_names", "alignment_format_help",
+           "format_table", "Alignment", "read_alignment", "guess_alphabet", "guess_path_format"]
 
 MISSING = 255
 
@@ -51,31 +52,137 @@ DNA_AMBIGUITY = {"R": "AG", "Y": "CT", "K": "GT", "M": "AC", "S": "CG", "W": "AT
 PROTEIN_AMBIGUITY = {"B": "DN", "Z": "EQ", "J": "IL"}
 GAP_SYMBOLS = "-.?~*"
 
-# Extensions that name a format; anything else is recognised from the first line.
-_EXTENSIONS = {
-    "fasta": (".fa", ".fas", ".fasta", ".fna", ".faa", ".ffn", ".fsa", ".fst", ".afa", ".afasta", ".mfa",
-              ".mfasta"),
-    "clustal": (".aln", ".clustal", ".clw", ".clustalw"),
-    "stockholm": (".sto", ".sth", ".stk", ".stockholm"),
-    "nexus": (".nex", ".nexus", ".nxs"),
-    "phylip": (".phy", ".phylip", ".ph"),
-    "msf": (".msf",),
-    "maf": (".maf",),
-}
 ALPHABETS = ("auto", "dna", "protein")
 
 
+# ----------------------------------------------------------------- formats
+@dataclass(frozen=True)
+class AlignmentFormat:
+    """One alignment format.
+
+    Attributes
+    ----------
+    name : str
+        Its name for ``fmt`` / ``--in-format`` (Biopython's AlignIO name).
+    title : str
+        How messages and help texts name it.
+    extensions : tuple of str
+        File extensions that name it (lower case, with the dot).
+    description : str
+        What it is and how it is read.
+    reader : callable
+        ``reader(text, source) -> (labels, sequences, lines)``; ``lines``
+        locates each record for messages (FASTA), else None.
+    first_line : callable or None
+        ``first_line(line) -> bool``: recognises the format from the first
+        non-blank line of a file whose extension says nothing.
+    """
+
+    name: str
+    title: str
+    extensions: tuple
+    description: str
+    reader: Callable = field(repr=False)
+    first_line: Callable | None = field(default=None, repr=False)
+
+
+def _fasta_reader(text: str, name: str):
+    return _parse_fasta(text, name)
+
+
+def _biopython_reader(fmt: str) -> Callable:
+    def read(text: str, name: str):
+        labels, seqs = _parse_with_biopython(text, name, fmt)
+        return labels, seqs, None
+
+    return read
+
+
+def _starts(*prefixes: str) -> Callable:
+    return lambda line: line.upper().startswith(prefixes)
+
+
+def _two_integers(line: str) -> bool:
+    parts = line.split()
+    return len(parts) == 2 and all(p.isdigit() for p in parts)
+
+
+def _entry(name, title, extensions, description, first_line=None, reader=None) -> AlignmentFormat:
+    return AlignmentFormat(name, title, extensions, description, reader or _biopython_reader(name), first_line)
+
+
+#: The alignment formats, read by :func:`read_alignment` (dispatch, extensions, first lines), the
+#: ``--in-format`` help and the tests. Extensions and first lines are tried in this order.
+REGISTRY = {f.name: f for f in (
+    _entry("fasta", "FASTA", (".fa", ".fas", ".fasta", ".fna", ".faa", ".ffn", ".fsa", ".fst", ".afa", ".afasta",
+                              ".mfa", ".mfasta"),
+           "'>' header lines; the record id is the header's first word; read by our own parser so that "
+           "errors name the line", lambda line: line.startswith(">"), _fasta_reader),
+    _entry("clustal", "Clustal", (".aln", ".clustal", ".clw", ".clustalw"), "Clustal blocks (Biopython)",
+           _starts("CLUSTAL", "MUSCLE", "PROBCONS", "MSAPROBS", "KALIGN")),
+    _entry("stockholm", "Stockholm", (".sto", ".sth", ".stk", ".stockholm"),
+           "Stockholm (Biopython); must end with a '//' line", _starts("# STOCKHOLM")),
+    _entry("nexus", "NEXUS", (".nex", ".nexus", ".nxs"),
+           "a NEXUS DATA or CHARACTERS block (Biopython); mistakes name the line", _starts("#NEXUS")),
+    _entry("phylip", "PHYLIP", (".phy", ".phylip", ".ph"),
+           "PHYLIP (Biopython): the relaxed layout first, then strict 10-character names", _two_integers),
+    _entry("msf", "MSF", (".msf",), "MSF (Biopython)",
+           _starts("!!AA_MULTIPLE_ALIGNMENT", "!!NA_MULTIPLE_ALIGNMENT", "PILEUP")),
+    _entry("maf", "MAF", (".maf",), "MAF 's' lines (Biopython); each line's size field is checked"),
+    _entry("emboss", "emboss", (), "Biopython's AlignIO format 'emboss'"),
+    _entry("fasta-m10", "fasta-m10", (), "Biopython's AlignIO format 'fasta-m10'"),
+    _entry("mauve", "mauve", (), "Biopython's AlignIO format 'mauve' (XMFA)"),
+    _entry("phylip-relaxed", "relaxed PHYLIP", (), "PHYLIP with names of any length (Biopython)"),
+    _entry("phylip-sequential", "sequential PHYLIP", (), "PHYLIP with each sequence in one piece (Biopython)"),
+)}
+
+
 def alignment_formats() -> tuple[str, ...]:
-    """Format names accepted by ``fmt`` / ``--in-format`` (Biopython's AlignIO names).
+    """Format names accepted by ``fmt`` / ``--in-format`` (the names of :data:`REGISTRY`, sorted).
 
     Examples
     --------
     >>> "stockholm" in alignment_formats()
     True
     """
-    from Bio import AlignIO
+    return tuple(sorted(REGISTRY))
 
-    return tuple(sorted(set(AlignIO._FormatToIterator) | {"fasta"}))
+
+def sniffed_format_names() -> str:
+    """The formats recognised from their first line, as help texts and messages name them.
+
+    Examples
+    --------
+    >>> sniffed_format_names()
+    'FASTA, Clustal, Stockholm, NEXUS, PHYLIP, MSF'
+    """
+    return ", ".join(f.title for f in REGISTRY.values() if f.first_line is not None)
+
+
+def format_table() -> str:
+    """The alignment format table of docs/distances.md (markdown), made from :data:`REGISTRY`.
+
+    Examples
+    --------
+    >>> print(format_table().splitlines()[2].split(" | ")[0])
+    | `fasta`
+    """
+    lines = ["| format | extensions | recognised from the first line | how it is read |", "| --- | --- | --- | --- |"]
+    for f in REGISTRY.values():
+        exts = " ".join(f"`{e}`" for e in f.extensions) or "-"
+        lines.append(f"| `{f.name}` | {exts} | {'yes' if f.first_line else '-'} | {f.description} |")
+    return "\n".join(lines) + "\n"
+
+
+def alignment_format_help() -> str:
+    """The ``--in-format`` help of the commands that read an alignment.
+
+    Examples
+    --------
+    >>> alignment_format_help().split(":")[0]
+    'alignment format'
+    """
+    return f"alignment format: {', '.join(REGISTRY)} (default: from the extension or content)"
 
 
 # ----------------------------------------------------------------- tables
@@ -303,40 +410,26 @@ def read_alignment(path: str, fmt: str | None = None, alphabet: str = "auto") ->
         raise InputError(f"{name}: empty file, no sequences")
     if fmt is None:
         fmt = _format_from_extension(path) or _sniff_format(text, name)
-    if fmt == "fasta":
-        labels, seqs, lines = _parse_fasta(text, name)
-    else:
-        labels, seqs = _parse_with_biopython(text, name, fmt)
-        lines = None
+    labels, seqs, lines = REGISTRY[fmt].reader(text, name)
     return _encode(labels, seqs, alphabet, name, lines)
 
 
 def _format_from_extension(path: str) -> str | None:
     base = path.lower()
-    for fmt, exts in _EXTENSIONS.items():
-        if base.endswith(exts):
-            return fmt
+    for f in REGISTRY.values():
+        if f.extensions and base.endswith(f.extensions):
+            return f.name
     return None
 
 
 def _sniff_format(text: str, name: str) -> str:
     first = text.lstrip().split("\n", 1)[0].strip()
-    up = first.upper()
-    if first.startswith(">"):
-        return "fasta"
-    if up.startswith("# STOCKHOLM"):
-        return "stockholm"
-    if up.startswith("#NEXUS"):
-        return "nexus"
-    if up.startswith(("CLUSTAL", "MUSCLE", "PROBCONS", "MSAPROBS", "KALIGN")):
-        return "clustal"
-    if up.startswith(("!!AA_MULTIPLE_ALIGNMENT", "!!NA_MULTIPLE_ALIGNMENT", "PILEUP")):
-        return "msf"
-    parts = first.split()
-    if len(parts) == 2 and all(p.isdigit() for p in parts):
-        return "phylip"
+    for f in REGISTRY.values():
+        if f.first_line is not None and f.first_line(first):
+            return f.name
+    *most, last = sniffed_format_names().split(", ")
     raise InputError(f"{name}: line 1: not a recognisable alignment (starts with {first[:40]!r}); "
-                     "expected FASTA, Clustal, Stockholm, NEXUS, PHYLIP or MSF, or give --in-format")
+                     f"expected {', '.join(most)} or {last}, or give --in-format")
 
 
 def _parse_fasta(text: str, name: str):

@@ -1,17 +1,9 @@
 """Matrix files and safe output.
 
-Formats (see the outside contract):
-
-``tsv`` / ``csv``
-    A header row whose first cell is empty or a name, then the labels; then
-    one row per label: the label, then its values. Missing entries are an
-    empty cell, ``NA`` or ``nan``. Cells holding the separator or a quote are
-    quoted the usual CSV way.
-``square``
-    First line the number of taxa, then one line per taxon: its name, then
-    its distances, separated by white space.
-``lower``
-    The same with only the entries below the diagonal.
+Formats (see the outside contract): ``tsv``, ``csv``, ``square`` and
+``lower``, one :class:`MatrixFormat` entry each in :data:`REGISTRY` (its
+extensions, reader, writer, how it is recognised and a description). A new
+format is its reader and writer here plus one entry.
 
 The format is taken from an explicit option, else the extension (``.tsv``,
 ``.csv``), else tsv. When reading a file with another extension whose first
@@ -31,17 +23,18 @@ import json
 import os
 import sys
 import tempfile
-from typing import Iterator, Sequence
+from dataclasses import dataclass, field
+from typing import Callable, Iterator
 
 import numpy as np
 
 from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix, bad_label_char
 
-__all__ = ["read_text", "matrix_format", "read_matrix", "read_pairs", "format_matrix", "quote_cell", "OutputSet",
+__all__ = ["MatrixFormat", "REGISTRY", "MATRIX_FORMATS", "DEFAULT_FORMAT", "format_table", "read_text",
+           "matrix_format", "read_matrix", "read_pairs", "format_matrix", "quote_cell", "OutputSet",
            "check_distinct_outputs", "to_jsonable", "write_matrix", "write_text", "iter_nonblank"]
 
-MATRIX_FORMATS = ("tsv", "csv", "square", "lower")
 _NA = {"", "na", "nan"}
 
 
@@ -74,8 +67,6 @@ def read_text(path: str, what: str = "file") -> str:
     return text
 
 
-_EXTENSIONS = {".csv": "csv", ".tsv": "tsv"}
-
 # Output paths whose matrix format was guessed (no explicit format, no known
 # extension): OutputSet.commit says so, in one line, once the file is written.
 _GUESSED: set = set()
@@ -86,7 +77,7 @@ def _format_for(path: str, explicit: str | None = None) -> str:
         if explicit not in MATRIX_FORMATS:
             raise InputError(f"unknown matrix format '{explicit}' (choose from {', '.join(MATRIX_FORMATS)})")
         return explicit
-    return _EXTENSIONS.get(os.path.splitext(path)[1].lower(), "tsv")
+    return _EXTENSIONS.get(os.path.splitext(path)[1].lower(), DEFAULT_FORMAT)
 
 
 def matrix_format(path: str, explicit: str | None = None) -> str:
@@ -107,7 +98,8 @@ def matrix_format(path: str, explicit: str | None = None) -> str:
     return fmt
 
 
-def _sniff_square(text: str) -> str | None:
+def _square_shape(text: str) -> str | None:
+    """``square`` or ``lower`` when the first line is a lone count (by the next row's length), else None."""
     first = text.lstrip("\n").split("\n", 1)[0].strip()
     if not first.isdigit():
         return None
@@ -117,6 +109,14 @@ def _sniff_square(text: str) -> str | None:
     return "square"
 
 
+def _recognise(text: str) -> str | None:
+    """The first format whose ``recognise`` accepts the text, else None."""
+    for f in REGISTRY.values():
+        if f.recognise is not None and f.recognise(text):
+            return f.name
+    return None
+
+
 def read_matrix(path: str, fmt: str | None = None) -> DistanceMatrix:
     """Read and validate a distance matrix file.
 
@@ -124,8 +124,10 @@ def read_matrix(path: str, fmt: str | None = None) -> DistanceMatrix:
     ----------
     path : str
         File path, or ``-`` for standard input.
-    fmt : {"tsv", "csv", "square", "lower"}, optional
-        Format; by default from the extension (see module docs).
+    fmt : str, optional
+        One of :data:`MATRIX_FORMATS` (``tsv``, ``csv``, ``square``,
+        ``lower``); by default from the extension, else from the content,
+        else tsv (see the module docs).
 
     Returns
     -------
@@ -150,11 +152,8 @@ def read_matrix(path: str, fmt: str | None = None) -> DistanceMatrix:
     if not text.strip():
         raise InputError(f"{name}: empty file")
     if fmt is None and os.path.splitext(path)[1].lower() not in _EXTENSIONS:
-        fmt = _sniff_square(text)
-    fmt = _format_for(path, fmt)
-    if fmt in ("tsv", "csv"):
-        return _read_delimited(text, name, "\t" if fmt == "tsv" else ",")
-    return _read_square(text, name, lower=(fmt == "lower"))
+        fmt = _recognise(text)
+    return REGISTRY[_format_for(path, fmt)].reader(text, name)
 
 
 def _check_label(label: str, name: str, line: int) -> None:
@@ -383,23 +382,25 @@ def format_matrix(dm: DistanceMatrix, fmt: str = "tsv") -> str:
     """
     if fmt not in MATRIX_FORMATS:
         raise InputError(f"unknown matrix format '{fmt}' (choose from {', '.join(MATRIX_FORMATS)})")
+    return REGISTRY[fmt].writer(dm)
+
+
+def _write_delimited(dm: DistanceMatrix, sep: str) -> str:
     labels = list(dm.labels)
-    if fmt in ("square", "lower"):
-        for lab in labels:
-            if not lab or any(c.isspace() for c in lab):
-                raise InputError(f"label '{lab}' contains white space, which the {fmt} format cannot hold; "
-                                 "use tsv or csv")
-    sep = {"tsv": "\t", "csv": ","}.get(fmt, " ")
-    if fmt in ("tsv", "csv"):
-        buf = io.StringIO()
-        csv.writer(buf, delimiter=sep, lineterminator="\n").writerow([""] + labels)
-        parts = [buf.getvalue()]
-        heads = [quote_cell(lab, sep) for lab in labels]
-    else:
-        parts = [f"{dm.n}\n"]
-        heads = labels
-    parts.extend(_rows_text(dm.values, heads, sep, lower=(fmt == "lower")))
+    buf = io.StringIO()
+    csv.writer(buf, delimiter=sep, lineterminator="\n").writerow([""] + labels)
+    parts = [buf.getvalue()]
+    parts.extend(_rows_text(dm.values, [quote_cell(lab, sep) for lab in labels], sep, lower=False))
     return "".join(parts)
+
+
+def _write_whitespace(dm: DistanceMatrix, lower: bool) -> str:
+    labels = list(dm.labels)
+    for lab in labels:
+        if not lab or any(c.isspace() for c in lab):
+            raise InputError(f"label '{lab}' contains white space, which the {'lower' if lower else 'square'} "
+                             "format cannot hold; use tsv or csv")
+    return "".join([f"{dm.n}\n"] + _rows_text(dm.values, labels, " ", lower=lower))
 
 
 def _rows_text(vals: np.ndarray, heads: list, sep: str, lower: bool) -> list:
@@ -437,6 +438,78 @@ def quote_cell(cell: str, sep: str) -> str:
     if any(c in cell for c in (sep, '"', "\n", "\r")) or cell != cell.strip():
         return '"' + cell.replace('"', '""') + '"'
     return cell
+
+
+# ----------------------------------------------------------------- formats
+@dataclass(frozen=True)
+class MatrixFormat:
+    """One matrix file format.
+
+    Attributes
+    ----------
+    name : str
+        Its name for ``fmt`` / ``--in-format`` / ``--out-format``.
+    extensions : tuple of str
+        File extensions that name it (lower case, with the dot).
+    description : str
+        The layout, in words (help texts and docs).
+    reader : callable
+        ``reader(text, source) -> DistanceMatrix``; errors name ``source`` and the line.
+    writer : callable
+        ``writer(dm) -> str``, the whole file.
+    recognise : callable or None
+        ``recognise(text) -> bool``: the format of a file read without a
+        known extension or an explicit format (else it is read as tsv).
+    """
+
+    name: str
+    extensions: tuple
+    description: str
+    reader: Callable = field(repr=False)
+    writer: Callable = field(repr=False)
+    recognise: Callable | None = field(default=None, repr=False)
+
+
+#: The matrix formats, read by :func:`read_matrix`, :func:`format_matrix` and
+#: :func:`matrix_format` (dispatch, extensions, recognising a file), the
+#: ``--in-format`` / ``--out-format`` choices and help, and the tests.
+REGISTRY = {f.name: f for f in (
+    MatrixFormat("tsv", (".tsv",), "a header row (its first cell empty or a name, then the labels), then one row "
+                 "per label: the label, then its values, separated by tabs; a missing entry is an empty cell, NA "
+                 "or nan",
+                 lambda text, name: _read_delimited(text, name, "\t"), lambda dm: _write_delimited(dm, "\t")),
+    MatrixFormat("csv", (".csv",), "the same separated by commas; a cell holding the separator or a quote is "
+                 "quoted the usual CSV way",
+                 lambda text, name: _read_delimited(text, name, ","), lambda dm: _write_delimited(dm, ",")),
+    MatrixFormat("square", (), "first line the number of taxa, then one line per taxon: its name, then its "
+                 "distances, separated by white space",
+                 lambda text, name: _read_square(text, name, lower=False),
+                 lambda dm: _write_whitespace(dm, lower=False), lambda text: _square_shape(text) == "square"),
+    MatrixFormat("lower", (), "the same with only the entries below the diagonal",
+                 lambda text, name: _read_square(text, name, lower=True),
+                 lambda dm: _write_whitespace(dm, lower=True), lambda text: _square_shape(text) == "lower"),
+)}
+#: The format names, in the order help texts list them.
+MATRIX_FORMATS = tuple(REGISTRY)
+#: What a file is written in (and read as) when nothing else says.
+DEFAULT_FORMAT = "tsv"
+_EXTENSIONS = {ext: f.name for f in REGISTRY.values() for ext in f.extensions}
+
+
+def format_table() -> str:
+    """The matrix format table of docs/distances.md (markdown), made from :data:`REGISTRY`.
+
+    Examples
+    --------
+    >>> print(format_table().splitlines()[0])
+    | format | extensions | recognised from the content | layout |
+    """
+    lines = ["| format | extensions | recognised from the content | layout |", "| --- | --- | --- | --- |"]
+    for f in REGISTRY.values():
+        name = f"`{f.name}`" + (" (default)" if f.name == DEFAULT_FORMAT else "")
+        exts = " ".join(f"`{e}`" for e in f.extensions) or "-"
+        lines.append(f"| {name} | {exts} | {'yes' if f.recognise else '-'} | {f.description} |")
+    return "\n".join(lines) + "\n"
 
 
 class OutputSet:
@@ -564,7 +637,7 @@ class OutputSet:
                 from seqdist.core.console import info
 
                 _GUESSED.discard(key)
-                info(f"{path}: no known matrix extension, wrote tsv (choose with --out-format)")
+                info(f"{path}: no known matrix extension, wrote {DEFAULT_FORMAT} (choose with --out-format)")
         for text in self._stdout:
             sys.stdout.write(text)
         sys.stdout.flush()
@@ -696,8 +769,3 @@ def iter_nonblank(text: str) -> Iterator[tuple[int, str]]:
     for ln, line in enumerate(text.split("\n"), start=1):
         if line.strip() and not line.lstrip().startswith("#"):
             yield ln, line.rstrip("\r")
-
-
-__all__: Sequence[str] = ["MATRIX_FORMATS", "read_matrix", "write_matrix", "format_matrix", "read_pairs",
-                          "read_text", "matrix_format", "OutputSet", "write_text", "to_jsonable",
-                          "check_distinct_outputs"]

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from seqdist.io.matrices import MATRIX_FORMATS
+from seqdist.io.matrices import DEFAULT_FORMAT, MATRIX_FORMATS, REGISTRY
 
 
 def add_subcommand(subs, common, name: str, help: str, description: str | None = None) -> argparse.ArgumentParser:
@@ -13,16 +13,44 @@ def add_subcommand(subs, common, name: str, help: str, description: str | None =
                            formatter_class=argparse.RawDescriptionHelpFormatter)
 
 
+def _by_extension() -> str:
+    return ", ".join(f"{ext} {f.name}" for f in REGISTRY.values() for ext in f.extensions)
+
+
+def matrix_formats_help(indent: str = "  ") -> str:
+    """The matrix formats and their layouts, one block each, for ``--help`` texts (from the registry).
+
+    Examples
+    --------
+    >>> print(matrix_formats_help().splitlines()[0][:40])
+      tsv     a header row (its first cell e
+    """
+    import textwrap
+
+    width = max(len(n) for n in MATRIX_FORMATS) + 2
+    lines = []
+    for f in REGISTRY.values():
+        lines += textwrap.wrap(f.description, 88, initial_indent=f"{indent}{f.name:<{width}}",
+                               subsequent_indent=indent + " " * width)
+    return "\n".join(lines)
+
+
 def add_matrix_in(p: argparse.ArgumentParser) -> None:
+    shapes = " or ".join(f.name for f in REGISTRY.values() if f.recognise is not None)
     p.add_argument("--in-format", choices=MATRIX_FORMATS, default=None,
-                   help="input matrix format (default: from the extension, else tsv)")
+                   help=f"input matrix format (default: by extension, {_by_extension()}; else {shapes} when "
+                        f"the file has that shape; else {DEFAULT_FORMAT})")
+
+
+def add_out_format(p: argparse.ArgumentParser, what: str = "output matrix format") -> None:
+    p.add_argument("--out-format", choices=MATRIX_FORMATS, default=None,
+                   help=f"{what} (default: by extension, {_by_extension()}; else {DEFAULT_FORMAT})")
 
 
 def add_matrix_out(p: argparse.ArgumentParser, required: bool = True) -> None:
     p.add_argument("-o", "--out", required=required, metavar="PATH",
                    help="output matrix file ('-' for standard output)")
-    p.add_argument("--out-format", choices=MATRIX_FORMATS, default=None,
-                   help="output matrix format (default: from the extension, else tsv)")
+    add_out_format(p)
 
 
 def add_tol(p: argparse.ArgumentParser) -> None:

@@ -2,14 +2,16 @@
 
 from __future__ import annotations
 
-from seqdist.cli.commands._shared import add_matrix_in, add_matrix_out, add_subcommand
-from seqdist.io.matrices import read_matrix, write_matrix
+from seqdist.cli.commands._shared import add_matrix_in, add_matrix_out, add_subcommand, matrix_formats_help
+from seqdist.io.matrices import MATRIX_FORMATS, read_matrix, write_matrix
 
 
 def register(subs, common):
+    names = ", ".join(MATRIX_FORMATS[:-1]) + f" or {MATRIX_FORMATS[-1]}"
     p = add_subcommand(subs, common, "convert", "validate a distance matrix and write it in another format",
-                       "Reads a matrix file (tsv, csv, square or lower), checks it (square, unique labels,\n"
+                       f"Reads a matrix file ({names}), checks it (square, unique labels,\n"
                        "symmetric, zero diagonal, non-negative) and writes it in the chosen format.\n\n"
+                       f"formats (--in-format, --out-format):\n{matrix_formats_help()}\n\n"
                        "example:\n  seqdist convert dist.tsv -o dist.phy --out-format square")
     p.add_argument("matrix", help="input matrix file ('-' for standard input)")
     add_matrix_in(p)
