@@ -3,7 +3,7 @@
 The entry point is :func:`pairwise_distances`; :func:`distances_from_counts`
 evaluates a model on given per-pair count (or frequency) matrices. The
 formulas, their sources and how base frequencies are estimated are in
-``docs/distances.md``; each model's formula is also in :data:`MODELS`.
+``docs/distances.md``; each model is one entry of :mod:`seqdist.models.registry`.
 
 Every model is written as ``d = sum_k c_k L(x_k)`` with ``x_k = 1 - sum_j
 a_kj p_j`` linear in the pair's proportions ``p_j`` (mismatches, or
@@ -37,35 +37,23 @@ import numpy as np
 from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix
 from seqdist.io.alignment import Alignment
+from seqdist.models import registry
 
 __all__ = ["DistanceResult", "check_options", "pairwise_distances", "undefined_message", "distances_from_counts",
            "inverse_variance_weights"]
 
-DNA_MODELS = ("p", "jc69", "k80", "f81", "tn84", "t92", "tn93", "logdet")
-PROTEIN_MODELS = ("p", "poisson", "kimura")
-GAMMA_MODELS = frozenset({"jc69", "k80", "f81", "t92", "tn93", "poisson"})
-FREQ_MODELS = frozenset({"f81", "tn84", "t92", "tn93"})
+# The model names, derived from the registry (seqdist.models.registry), where every model is one entry.
+DNA_MODELS = registry.DNA_MODELS
+PROTEIN_MODELS = registry.PROTEIN_MODELS
+GAMMA_MODELS = registry.GAMMA_MODELS
+FREQ_MODELS = registry.FREQ_MODELS
 GAPS = ("pairwise", "complete")
 FREQS = ("alignment", "pair")
 AMBIGUITY = ("skip", "partial")
 KERNELS = ("auto", "gemm", "bytes")
 
-# name -> (alphabet, formula, source)
-MODELS = {
-    ("dna", "p"): ("d = mismatches / compared columns", "common practice"),
-    ("protein", "p"): ("d = mismatches / compared columns", "common practice"),
-    ("dna", "jc69"): ("d = -3/4 ln(1 - 4p/3)", "Jukes & Cantor 1969"),
-    ("dna", "k80"): ("d = -1/2 ln(1 - 2P - Q) - 1/4 ln(1 - 2Q)", "Kimura 1980"),
-    ("dna", "f81"): ("d = -B ln(1 - p/B), B = 1 - sum pi_i^2", "Felsenstein 1981; Tajima & Nei 1984"),
-    ("dna", "tn84"): ("d = -b ln(1 - p/b), b = (1 - sum g_i^2 + p^2/h)/2, h = sum_{i<j} x_ij^2 / (2 g_i g_j)",
-                      "Tajima & Nei 1984"),
-    ("dna", "t92"): ("d = -h ln(1 - P/h - Q) - (1 - h)/2 ln(1 - 2Q), h = 2 theta (1 - theta)", "Tamura 1992"),
-    ("dna", "tn93"): ("Tamura & Nei 1993, eq. 7 (three log terms in P1, P2, Q)", "Tamura & Nei 1993"),
-    ("dna", "logdet"): ("d = -1/4 [ln det F - 1/2 ln det(Pi_x Pi_y)] (paralinear)",
-                        "Lake 1994; Lockhart, Steel, Hendy & Penny 1994"),
-    ("protein", "poisson"): ("d = -ln(1 - p)", "Zuckerkandl & Pauling 1965; Nei & Kumar 2000"),
-    ("protein", "kimura"): ("d = -ln(1 - p - 0.2 p^2)", "Kimura 1983"),
-}
+# (alphabet, name) -> (formula, source), a view of the registry.
+MODELS = {(a, m.name): (m.formula, m.source) for m in registry.REGISTRY.values() for a in m.alphabets}
 
 NO_OVERLAP, SATURATED, UNDEFINED = 1, 2, 3
 REASONS = {NO_OVERLAP: "no shared column", SATURATED: "saturated", UNDEFINED: "undefined"}
@@ -144,19 +132,11 @@ def check_options(alphabet: str, model: str | None, gamma: float | None, gaps: s
     'k80'
     """
     if model is None:
-        model = "k80" if alphabet == "dna" else "poisson"
-    model = model.lower()
-    allowed = DNA_MODELS if alphabet == "dna" else PROTEIN_MODELS
-    if model not in allowed:
-        if model in DNA_MODELS + PROTEIN_MODELS:
-            other = "protein" if alphabet == "dna" else "DNA"
-            raise InputError(f"{source}: the alignment reads as {'DNA' if alphabet == 'dna' else 'protein'}, "
-                             f"but model '{model}' is for {other} sequences (choose from {', '.join(allowed)}, "
-                             "or force the alphabet with --alphabet)")
-        raise InputError(f"unknown model '{model}' (DNA: {', '.join(DNA_MODELS)}; protein: "
-                         f"{', '.join(PROTEIN_MODELS)})")
+        model = registry.DEFAULT_MODELS[alphabet]
+    entry = registry.get(model.lower(), alphabet, source)
+    model = entry.name
     if gamma is not None:
-        if model not in GAMMA_MODELS:
+        if not entry.has_gamma:
             raise InputError(f"model '{model}' has no gamma form (gamma forms: {', '.join(sorted(GAMMA_MODELS))})")
         if not (isinstance(gamma, (int, float)) and math.isfinite(gamma) and gamma > 0):
             raise InputError(f"gamma shape must be a positive number, got {gamma!r}")
@@ -410,18 +390,19 @@ def _integer_counts(x) -> np.ndarray | None:
 
 # ----------------------------------------------------------------- count engine
 def _level(model: str, freqs: str) -> str:
-    if model in ("tn84", "logdet") or (model in FREQ_MODELS and freqs == "pair"):
+    # The counts the model needs (its registry entry); frequencies from the pair need its full counts.
+    entry = registry.REGISTRY[model]
+    if entry.needs_frequencies and freqs == "pair":
         return "full"
-    if model == "tn93":
-        return "tn93"
-    return "ts"  # p-type and transition/transversion counts (protein: mismatches)
+    return entry.counts  # "ts": p-type and transition/transversion counts (protein: mismatches)
 
 
 def _choose_kernel(kernel: str, aln: Alignment, level: str, partial: bool) -> str:
     bytes_ok = level == "ts" and not partial
     if kernel == "bytes":
         if not bytes_ok:
-            raise InputError("the byte-compare kernel counts only mismatch-type data (p, jc69, k80, f81, t92 "
+            ts = ", ".join(n for n in DNA_MODELS if registry.REGISTRY[n].counts == "ts")
+            raise InputError(f"the byte-compare kernel counts only mismatch-type data ({ts} "
                              "with alignment frequencies; protein models) without partial ambiguity")
         return "bytes"
     if kernel == "gemm" or not bytes_ok:

@@ -5,15 +5,13 @@ from __future__ import annotations
 from seqdist.cli.commands._shared import add_matrix_out, add_subcommand
 
 _DESCRIPTION = """\
-Reads an alignment (FASTA, Clustal, Stockholm, NEXUS, PHYLIP, MSF, ... by
+Reads an alignment ({formats}, ... by
 extension or --in-format), tells DNA from protein (--alphabet to force) and
 writes the matrix of pairwise distances under the chosen model. Labels are
 the record ids.
 
 models:
-  DNA      p, jc69, k80, f81, tn84, t92, tn93, logdet   (default k80)
-  protein  p, poisson, kimura                          (default poisson)
-  gamma forms (--gamma ALPHA): jc69, k80, f81, t92, tn93, poisson
+{models}
 
 A pair is compared over the columns where both sequences hold an unambiguous
 residue (--gaps pairwise), or over the columns unambiguous in every sequence
@@ -29,25 +27,33 @@ examples:
   seqdist distances example_sequences/dna_trouble.fasta -o d.tsv --sites sites.tsv --undefined u.txt"""
 
 
+def _lower(text: str) -> str:
+    # model names are matched without regard to case, as in the library
+    return text.lower()
+
+
 def register(subs, common):
+    from seqdist.io.alignment import alignment_format_help, sniffed_format_names
+    from seqdist.models import registry
     from seqdist.models.distances import AMBIGUITY, FREQS, GAPS, KERNELS
 
     p = add_subcommand(subs, common, "distances", "pairwise distances from a multiple sequence alignment",
-                       _DESCRIPTION)
+                       _DESCRIPTION.format(models=registry.model_guide(), formats=sniffed_format_names()))
     p.add_argument("alignment", help="alignment file ('-' for standard input)")
     add_matrix_out(p)
-    p.add_argument("--model", default=None, metavar="M",
-                   help="distance model (default: k80 for DNA, poisson for protein)")
+    defaults = ", ".join(f"{m} for {'DNA' if a == 'dna' else a}" for a, m in registry.DEFAULT_MODELS.items())
+    p.add_argument("--model", default=None, type=_lower, choices=registry.MODEL_NAMES,
+                   help=f"distance model (default: {defaults})")
     p.add_argument("--gamma", type=float, default=None, metavar="ALPHA",
                    help="gamma shape for rate variation among sites (models with a gamma form)")
     p.add_argument("--gaps", choices=GAPS, default="pairwise",
                    help="columns compared: per pair (default) or complete columns only")
     p.add_argument("--alphabet", choices=("auto", "dna", "protein"), default="auto",
                    help="sequence type (default: auto, DNA when >= 90%% of letters are ACGTUN)")
-    p.add_argument("--in-format", default=None, metavar="FMT",
-                   help="alignment format, a Biopython AlignIO name (default: from the extension or content)")
+    p.add_argument("--in-format", default=None, metavar="FMT", help=alignment_format_help())
+    freq_models = ", ".join(n for n in registry.MODEL_NAMES if n in registry.FREQ_MODELS)
     p.add_argument("--freqs", choices=FREQS, default="alignment",
-                   help="base frequencies for f81, tn84, t92, tn93: whole alignment (default) or each pair")
+                   help=f"base frequencies for {freq_models}: whole alignment (default) or each pair")
     p.add_argument("--ambiguity", choices=AMBIGUITY, default="skip",
                    help="ambiguity codes: left out (default) or spread over the bases they stand for")
     p.add_argument("--sites", default=None, metavar="FILE",
