@@ -643,13 +643,29 @@ def score_statistics(scores: np.ndarray, p: np.ndarray) -> ScoreStats:
 # ----------------------------------------------------------------- transforms
 @dataclass(frozen=True)
 class Transform:
-    """A way of turning scores into a dissimilarity."""
+    """A way of turning scores into a dissimilarity: one entry of :data:`TRANSFORMS`.
+
+    Attributes
+    ----------
+    name : str
+        Its name for ``transform`` / ``--transform``.
+    formula, source : str
+        The dissimilarity and where it comes from (also written in the check
+        report as ``transform_formula`` and ``transform_source``).
+    func : callable
+        ``func(S, ctx)`` on the symmetric part of the scores.
+    needs_lambda : bool
+        Whether it needs the Karlin-Altschul lambda and background frequencies.
+    notes : str
+        What else a user should know (the docs table and ``--help``).
+    """
 
     name: str
     formula: str
     source: str
     func: Callable = field(repr=False)
     needs_lambda: bool = False
+    notes: str = ""
 
 
 def _diag_mean(S, ctx):
@@ -693,24 +709,72 @@ def _logodds(S, ctx):
     return np.where(np.isfinite(d), d, np.nan)
 
 
+#: The transforms, read by :func:`transform_scores`, :func:`check_score_matrix`, the ``--transform``
+#: choices and help, the table in docs/scores.md (:func:`transform_table`) and the tests.
 TRANSFORMS: dict[str, Transform] = {t.name: t for t in (
     Transform("diag-mean", "d(a,b) = (s(a,a) + s(b,b))/2 - s(a,b)",
               "common practice (half the squared Euclidean distance when s is read as an inner product)",
-              _diag_mean),
+              _diag_mean,
+              notes="`s(a,a) + s(b,b) - 2 s(a,b)` is exactly twice this (same triangles up to scale), so it is "
+                    "not a separate transform"),
     Transform("euclid", "d(a,b) = sqrt(s(a,a) + s(b,b) - 2 s(a,b))",
               "common practice (the Euclidean distance of a Gram matrix, as in classical scaling: "
               "Torgerson 1952, Psychometrika 17:401)", _euclid),
     Transform("cosine", "d(a,b) = 1 - s(a,b) / sqrt(s(a,a) s(b,b))  (needs s(a,a) > 0)",
-              "common practice (cosine normalisation of similarity scores)", _cosine),
+              "common practice (cosine normalisation of similarity scores)", _cosine,
+              notes="needs every s(a,a) > 0; otherwise an error naming the letters"),
     Transform("range", "d(a,b) = (max s - s(a,b)) / (max s - min s), d(a,a) = 0",
-              "common practice (min-max rescaling of a similarity)", _range),
+              "common practice (min-max rescaling of a similarity)", _range,
+              notes="max and min over the kept letters, diagonal included"),
     Transform("logodds", "P(b|a) = q(a,b)/sum_c q(a,c), q(a,b) = p_a p_b exp(lambda s(a,b)); "
               "d(a,b) = -(ln P(b|a) + ln P(a|b))/2, d(a,a) = 0",
               "log-odds definition s = ln(q/(p p))/lambda (Altschul 1991, J Mol Biol 219:555); "
               "the -log of the symmetrised substitution probability is common practice", _logodds,
-              needs_lambda=True),
+              needs_lambda=True,
+              notes="the log-odds definition read backwards to substitution probabilities P(b|a); the "
+                    "geometric-mean symmetrisation is common practice. Needs lambda and uses the report's "
+                    "background frequencies; pairs with a letter of zero frequency (ambiguity letters under "
+                    "`--keep-ambiguous`) are written as missing"),
 )}
 DEFAULT_TRANSFORM = "diag-mean"
+
+
+def transform_guide(indent: str = "  ", width: int = 80) -> str:
+    """The transforms, one block each (name, formula, notes), for ``--help`` texts.
+
+    Examples
+    --------
+    >>> print(transform_guide().splitlines()[0])
+      diag-mean  d(a,b) = (s(a,a) + s(b,b))/2 - s(a,b)   (default)
+    """
+    import textwrap
+
+    pad = max(len(n) for n in TRANSFORMS) + 2
+    lines = []
+    for t in TRANSFORMS.values():
+        text = (t.formula + ("  (needs lambda)" if t.needs_lambda else "")
+                + ("   (default)" if t.name == DEFAULT_TRANSFORM else ""))
+        lines += textwrap.wrap(text, width, initial_indent=f"{indent}{t.name:<{pad}}",
+                               subsequent_indent=indent + " " * (pad + 2))
+    return "\n".join(lines)
+
+
+def transform_table() -> str:
+    """The transform table of docs/scores.md (markdown), made from :data:`TRANSFORMS`.
+
+    Examples
+    --------
+    >>> print(transform_table().splitlines()[0])
+    | name | formula | source | notes |
+    """
+    def cell(text):
+        return text.replace("|", "\\|") or "-"
+
+    lines = ["| name | formula | source | notes |", "| --- | --- | --- | --- |"]
+    for t in TRANSFORMS.values():
+        name = f"`{t.name}`" + (" (default)" if t.name == DEFAULT_TRANSFORM else "")
+        lines.append(f"| {name} | {cell(t.formula)} | {cell(t.source)} | {cell(t.notes)} |")
+    return "\n".join(lines) + "\n"
 
 
 def transform_scores(sm: ScoreMatrix, transform: str = DEFAULT_TRANSFORM, *, lam: float | None = None,
@@ -1016,5 +1080,6 @@ def format_report(data: dict) -> str:
 
 __all__ = ["ScoreMatrix", "load_score_matrix", "parse_score_matrix", "standard_names", "ambiguity_letters",
            "karlin_altschul_lambda", "implied_background", "choose_background", "read_background",
-           "score_statistics", "TRANSFORMS", "DEFAULT_TRANSFORM", "transform_scores", "triangle_details",
+           "score_statistics", "Transform", "TRANSFORMS", "DEFAULT_TRANSFORM", "transform_guide",
+           "transform_table", "transform_scores", "triangle_details",
            "check_score_matrix", "format_report", "NoLambda", "ROBINSON_1991", "AMINO20"]

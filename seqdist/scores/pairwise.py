@@ -52,7 +52,39 @@ import numpy as np
 
 from seqdist.core.errors import InputError, ParameterError
 
-FORMULAS = ("fd", "cosine")
+
+@dataclass(frozen=True)
+class ScoreFormula:
+    """One way of turning pairwise alignment scores into a distance (``formula`` / ``--formula``).
+
+    Attributes
+    ----------
+    name : str
+    formula : str
+        The distance, in words and symbols (help texts and docs).
+    source : str
+        Where it comes from.
+    needs_path : bool
+        Whether it needs the alignment itself (a traceback per pair), not only the score.
+    """
+
+    name: str
+    formula: str
+    source: str
+    needs_path: bool = False
+
+
+#: The score formulas, read by :func:`score_distances`, the ``--formula`` choices and help, the
+#: table in docs/scores.md and the tests. The arithmetic is in :func:`distances_from_scores`.
+REGISTRY = {f.name: f for f in (
+    ScoreFormula("fd", "S_eff = (S_ab - S_rand) / (S_max - S_rand); S_max = (S_aa + S_bb)/2; D = -100 ln S_eff; "
+                 "S_rand: the score expected for unrelated sequences of the same composition, estimated from "
+                 "the alignment (as we recall it from the paper: from memory)",
+                 "Feng & Doolittle 1996, Methods Enzymol 266:368-382", needs_path=True),
+    ScoreFormula("cosine", "D = 1 - S_ab / sqrt(S_aa S_bb)", "common practice"),
+)}
+FORMULAS = tuple(REGISTRY)
+DEFAULT_FORMULA = "fd"
 MODES = ("global", "local")
 ALPHABETS = ("auto", "dna", "protein")
 # Default matrix by alphabet: both ship with Biopython (NUC.4.4: +5/-4 with the IUPAC codes).
@@ -166,12 +198,12 @@ def _score_chunk(pairs: np.ndarray) -> np.ndarray:
     """(S_ab, S_rand) for each pair of sequence indices (S_rand NaN when not needed/undefined)."""
     al, seqs = _W["aligner"], _W["seqs"]
     out = np.full((len(pairs), 2), np.nan)
-    fd = _W["formula"] == "fd"
+    path = REGISTRY[_W["formula"]].needs_path
     for r, (i, j) in enumerate(pairs):
         a, b = seqs[i], seqs[j]
         if not a or not b:
             continue
-        if fd and a != b:
+        if path and a != b:
             alns = al.align(a, b)
             s_ab = float(alns.score)
             try:
@@ -197,6 +229,49 @@ class ScoreDistances:
     clipped: list               # [(id_a, id_b, value)]
     matrix: str = ""            # name of the substitution matrix used
     alphabet: str = ""          # "dna" or "protein" (detected or forced)
+
+
+def formula_guide(indent: str = "  ", width: int = 80) -> str:
+    """The score formulas, one block each (name and source, then the formula), for ``--help`` texts.
+
+    The formula is broken after its semicolons first, so short equations stay whole.
+
+    Examples
+    --------
+    >>> print(formula_guide().splitlines()[-2])
+      cosine  common practice
+    """
+    import textwrap
+
+    pad = max(len(n) for n in REGISTRY) + 2
+    body = indent + " " * (pad + 2)
+    lines = []
+    for f in REGISTRY.values():
+        lines.append(f"{indent}{f.name:<{pad}}{f.source}{'   (default)' if f.name == DEFAULT_FORMULA else ''}")
+        line = ""
+        for clause in f.formula.split("; "):
+            if line and len(body) + len(line) + 2 + len(clause) > width:
+                lines += textwrap.wrap(line, width, initial_indent=body, subsequent_indent=body + "  ")
+                line = ""
+            line += ("; " if line else "") + clause
+        lines += textwrap.wrap(line, width, initial_indent=body, subsequent_indent=body + "  ")
+    return "\n".join(lines)
+
+
+def formula_table() -> str:
+    """The formula table of docs/scores.md (markdown), made from :data:`REGISTRY`.
+
+    Examples
+    --------
+    >>> print(formula_table().splitlines()[-1])
+    | `cosine` | D = 1 - S_ab / sqrt(S_aa S_bb) | common practice | score only |
+    """
+    lines = ["| name | formula | source | needs |", "| --- | --- | --- | --- |"]
+    for f in REGISTRY.values():
+        name = f"`{f.name}`" + (" (default)" if f.name == DEFAULT_FORMULA else "")
+        needs = "the alignment (a traceback per pair)" if f.needs_path else "score only"
+        lines.append(f"| {name} | {f.formula} | {f.source} | {needs} |")
+    return "\n".join(lines) + "\n"
 
 
 def distances_from_scores(scores: np.ndarray, random_scores: np.ndarray | None, formula: str,
@@ -438,5 +513,6 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix=None, *, mod
     return ScoreDistances(dm, scores, rand, missing, clip, matrix=sm.name, alphabet=kind)
 
 
-__all__ = ["read_fasta", "score_distances", "distances_from_scores", "ScoreDistances", "FORMULAS", "MODES",
+__all__ = ["read_fasta", "score_distances", "distances_from_scores", "ScoreDistances", "ScoreFormula", "REGISTRY",
+           "FORMULAS", "DEFAULT_FORMULA", "formula_guide", "formula_table", "MODES",
            "ALPHABETS", "DEFAULT_MATRIX", "default_processes"]

@@ -2,19 +2,15 @@
 
 from __future__ import annotations
 
-from seqdist.cli.commands._shared import add_subcommand, positive_int
-from seqdist.io.matrices import MATRIX_FORMATS, OutputSet
+from seqdist.cli.commands._shared import add_out_format, add_subcommand, positive_int
+from seqdist.io.matrices import OutputSet
 
 _HELP = """Aligns every pair of sequences with Biopython's PairwiseAligner (score only where
 the formula allows) under a substitution matrix and affine gap costs, and turns
 the scores into distances.
 
 formulas (--formula):
-  fd      Feng & Doolittle 1996 normalised score (default):
-            S_eff = (S_ab - S_rand) / (S_max - S_rand), S_max = (S_aa + S_bb)/2,
-            D = -100 ln S_eff, with S_rand the score expected for unrelated
-            sequences of the same composition, estimated from the alignment
-  cosine  D = 1 - S_ab / sqrt(S_aa S_bb)   (score only; fastest)
+{formulas}
 Identical sequences get 0; undefined values are written as missing entries and
 named in a warning. A gap of length k costs G + (k-1) E (end gaps included,
 unless --free-end-gaps).
@@ -33,13 +29,15 @@ examples:
 
 
 def register(subs, common):
+    from seqdist.scores.pairwise import DEFAULT_FORMULA, FORMULAS, formula_guide
+
     p = add_subcommand(subs, common, "pairscores",
-                       "distances between unaligned sequences from pairwise alignment scores", _HELP)
+                       "distances between unaligned sequences from pairwise alignment scores",
+                       _HELP.format(formulas=formula_guide()))
     p.add_argument("sequences", metavar="SEQUENCES", help="FASTA file of unaligned sequences ('-' for standard input)")
     p.add_argument("-o", "--out", required=True, metavar="PATH",
                    help="output distance matrix ('-' for standard output)")
-    p.add_argument("--out-format", choices=MATRIX_FORMATS, default=None,
-                   help="output matrix format (default: from the extension, else tsv)")
+    add_out_format(p)
     p.add_argument("--matrix", default=None, metavar="MATRIX",
                    help="substitution matrix: a standard name or a score matrix file "
                         "(default: NUC.4.4 for DNA, BLOSUM62 for protein)")
@@ -52,8 +50,8 @@ def register(subs, common):
                    help="cost of each further position of a gap (default 1)")
     p.add_argument("--free-end-gaps", action="store_true",
                    help="gaps at either end of a global alignment cost nothing (sequence fragments)")
-    p.add_argument("--formula", choices=("fd", "cosine"), default="fd",
-                   help="score-to-distance formula (default fd)")
+    p.add_argument("--formula", choices=FORMULAS, default=DEFAULT_FORMULA,
+                   help=f"score-to-distance formula (default {DEFAULT_FORMULA})")
     p.add_argument("--processes", type=positive_int, default=None, metavar="P",
                    help="worker processes, at least 1 (default: all available CPUs)")
     p.add_argument("--json", metavar="FILE", default=None, help="write a short run summary as JSON")

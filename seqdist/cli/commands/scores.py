@@ -4,16 +4,11 @@ from __future__ import annotations
 
 import sys
 
-from seqdist.cli.commands._shared import add_subcommand
-from seqdist.io.matrices import MATRIX_FORMATS, OutputSet
+from seqdist.cli.commands._shared import add_out_format, add_subcommand
+from seqdist.io.matrices import OutputSet
 
 _TRANSFORM_HELP = """transforms (--transform):
-  diag-mean  d(a,b) = (s(a,a) + s(b,b))/2 - s(a,b)               (default)
-  euclid     d(a,b) = sqrt(s(a,a) + s(b,b) - 2 s(a,b))
-  cosine     d(a,b) = 1 - s(a,b) / sqrt(s(a,a) s(b,b))          (needs s(a,a) > 0)
-  range      d(a,b) = (max s - s(a,b)) / (max s - min s)
-  logodds    d(a,b) = -(ln P(b|a) + ln P(a|b))/2 with P(b|a) from the target
-             frequencies p_a p_b exp(lambda s(a,b))               (needs lambda)
+{transforms}
 Negative values are set to 0 (with a warning); see docs/scores.md for sources.
 
 background frequencies (--background), used for the expected score, lambda,
@@ -34,6 +29,8 @@ example:
 
 
 def register(subs, common):
+    from seqdist.scores.matrices import DEFAULT_TRANSFORM, TRANSFORMS, transform_guide
+
     p = add_subcommand(subs, common, "scores",
                        "turn a substitution score matrix into a dissimilarity over its letters, with a check report",
                        "Derives a dissimilarity over the letters of a score matrix and reports on the matrix:\n"
@@ -41,17 +38,16 @@ def register(subs, common):
                        "Karlin-Altschul lambda, relative entropy, and whether the dissimilarity is a metric.\n"
                        "The report is printed on standard output (on standard error when -o or --json\n"
                        "is '-', so that standard output holds the data alone).\n\n"
-                       + _TRANSFORM_HELP)
+                       + _TRANSFORM_HELP.format(transforms=transform_guide()))
     p.add_argument("matrix", metavar="MATRIX", help="score matrix file ('-' for standard input) or standard name")
     p.add_argument("-o", "--out", required=True, metavar="PATH",
                    help="output dissimilarity matrix ('-' for standard output)")
-    p.add_argument("--out-format", choices=MATRIX_FORMATS, default=None,
-                   help="output matrix format (default: from the extension, else tsv)")
+    add_out_format(p)
     p.add_argument("--in-format", choices=("auto", "grid", "tsv", "csv"), default="auto",
                    help="score matrix file format (default: .tsv/.csv by extension, else grid)")
-    p.add_argument("--transform", default="diag-mean", metavar="NAME",
-                   choices=("diag-mean", "euclid", "cosine", "range", "logodds"),
-                   help="diag-mean (default), euclid, cosine, range or logodds (see below)")
+    names = ", ".join(t + (" (default)" if t == DEFAULT_TRANSFORM else "") for t in TRANSFORMS)
+    p.add_argument("--transform", default=DEFAULT_TRANSFORM, metavar="NAME", choices=tuple(TRANSFORMS),
+                   help=f"one of {names} (see below)")
     p.add_argument("--background", default="auto", metavar="SPEC",
                    help="auto (default), implied, uniform, robinson1991, or a file of 'letter frequency' lines")
     p.add_argument("--keep-ambiguous", action="store_true",
