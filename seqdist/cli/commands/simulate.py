@@ -5,6 +5,7 @@ from __future__ import annotations
 from seqdist.cli.commands._shared import add_seed, add_subcommand, float_range, int_range, positive_float
 from seqdist.core.errors import InputError
 from seqdist.simulate import (
+    DNA_MODELS,
     MAX_CELLS,
     MAX_INDEL_WORK,
     MAX_LENGTH,
@@ -13,6 +14,7 @@ from seqdist.simulate import (
     MAX_SCALE,
     MAX_TAXA,
     MISREAD_HOWS,
+    PROTEIN_MODELS,
 )
 
 _DESCRIPTION = """\
@@ -63,7 +65,7 @@ def register(subs, common):
     p.add_argument("--alphabet", choices=("dna", "protein"), default="dna", help="default: dna")
     add_seed(p, 1, "random seed")
     g = p.add_argument_group("model")
-    g.add_argument("--model", choices=("k80", "hky85", "poisson", "poisson-f"), default=None,
+    g.add_argument("--model", choices=DNA_MODELS + PROTEIN_MODELS, default=None,
                    help="substitution model (default: k80 for dna, poisson for protein; "
                         "hky85 / poisson-f when --freqs is given)")
     g.add_argument("--kappa", type=positive_float, default=2.0, metavar="K",
