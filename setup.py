@@ -4,6 +4,8 @@ Every ``.pyx`` file under ``seqdist/`` becomes an extension module of the same
 dotted name; ``pip install .`` or ``pip install -e .`` compiles them, so no
 kernel is compiled on first use. The flags are portable (``-O3``, no
 ``-march``): a wheel built here runs on any x86-64 machine of this kind.
+``-ffp-contract=off`` keeps every a*b+c as two roundings, as written, so the
+results do not depend on whether the machine has fused multiply-add.
 """
 
 import sys
@@ -16,10 +18,10 @@ if sys.platform == "win32":  # MSVC spells the flags its own way
     COMPILE = ["/O2", "/openmp"]
     LINK = []
 elif sys.platform == "darwin":  # Apple clang has no OpenMP by default: the kernels run on one thread
-    COMPILE = ["-O3"]
+    COMPILE = ["-O3", "-ffp-contract=off"]
     LINK = []
 else:
-    COMPILE = ["-O3", "-fopenmp"]
+    COMPILE = ["-O3", "-fopenmp", "-ffp-contract=off"]
     LINK = ["-fopenmp"]
 
 extensions = [
