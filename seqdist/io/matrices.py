@@ -74,10 +74,23 @@ _GUESSED: set = set()
 
 def _format_for(path: str, explicit: str | None = None) -> str:
     if explicit:
-        if explicit not in MATRIX_FORMATS:
-            raise InputError(f"unknown matrix format '{explicit}' (choose from {', '.join(MATRIX_FORMATS)})")
+        _check_format(explicit)
         return explicit
-    return _EXTENSIONS.get(os.path.splitext(path)[1].lower(), DEFAULT_FORMAT)
+    return _by_extension(path) or DEFAULT_FORMAT
+
+
+def _check_format(fmt) -> None:
+    if not (isinstance(fmt, str) and fmt in REGISTRY):
+        raise InputError(f"unknown matrix format '{fmt}' (choose from {', '.join(REGISTRY)})")
+
+
+def _by_extension(path: str) -> str | None:
+    """The format whose extensions hold the path's extension, else None."""
+    ext = os.path.splitext(path)[1].lower()
+    for f in REGISTRY.values():
+        if ext in f.extensions:
+            return f.name
+    return None
 
 
 def matrix_format(path: str, explicit: str | None = None) -> str:
@@ -93,7 +106,7 @@ def matrix_format(path: str, explicit: str | None = None) -> str:
     ('csv', 'square', 'tsv')
     """
     fmt = _format_for(path, explicit)
-    if not explicit and path != "-" and os.path.splitext(path)[1].lower() not in _EXTENSIONS:
+    if not explicit and path != "-" and _by_extension(path) is None:
         _GUESSED.add(os.path.abspath(path))
     return fmt
 
@@ -151,7 +164,7 @@ def read_matrix(path: str, fmt: str | None = None) -> DistanceMatrix:
     name = "<stdin>" if path == "-" else path
     if not text.strip():
         raise InputError(f"{name}: empty file")
-    if fmt is None and os.path.splitext(path)[1].lower() not in _EXTENSIONS:
+    if fmt is None and _by_extension(path) is None:
         fmt = _recognise(text)
     return REGISTRY[_format_for(path, fmt)].reader(text, name)
 
@@ -380,8 +393,7 @@ def format_matrix(dm: DistanceMatrix, fmt: str = "tsv") -> str:
     a
     b 1.0
     """
-    if fmt not in MATRIX_FORMATS:
-        raise InputError(f"unknown matrix format '{fmt}' (choose from {', '.join(MATRIX_FORMATS)})")
+    _check_format(fmt)
     return REGISTRY[fmt].writer(dm)
 
 
@@ -489,11 +501,10 @@ REGISTRY = {f.name: f for f in (
                  lambda text, name: _read_square(text, name, lower=True),
                  lambda dm: _write_whitespace(dm, lower=True), lambda text: _square_shape(text) == "lower"),
 )}
-#: The format names, in the order help texts list them.
+#: The format names, in the order help texts list them (the functions here read REGISTRY itself).
 MATRIX_FORMATS = tuple(REGISTRY)
 #: What a file is written in (and read as) when nothing else says.
 DEFAULT_FORMAT = "tsv"
-_EXTENSIONS = {ext: f.name for f in REGISTRY.values() for ext in f.extensions}
 
 
 def format_table() -> str:

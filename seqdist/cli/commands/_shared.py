@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from seqdist.io.matrices import DEFAULT_FORMAT, MATRIX_FORMATS, REGISTRY
+from seqdist.io.matrices import DEFAULT_FORMAT, REGISTRY
 
 
 def add_subcommand(subs, common, name: str, help: str, description: str | None = None) -> argparse.ArgumentParser:
@@ -27,7 +27,7 @@ def matrix_formats_help(indent: str = "  ") -> str:
     """
     import textwrap
 
-    width = max(len(n) for n in MATRIX_FORMATS) + 2
+    width = max(len(n) for n in REGISTRY) + 2
     lines = []
     for f in REGISTRY.values():
         lines += textwrap.wrap(f.description, 88, initial_indent=f"{indent}{f.name:<{width}}",
@@ -37,13 +37,13 @@ def matrix_formats_help(indent: str = "  ") -> str:
 
 def add_matrix_in(p: argparse.ArgumentParser) -> None:
     shapes = " or ".join(f.name for f in REGISTRY.values() if f.recognise is not None)
-    p.add_argument("--in-format", choices=MATRIX_FORMATS, default=None,
+    p.add_argument("--in-format", choices=tuple(REGISTRY), default=None,
                    help=f"input matrix format (default: by extension, {_by_extension()}; else {shapes} when "
                         f"the file has that shape; else {DEFAULT_FORMAT})")
 
 
 def add_out_format(p: argparse.ArgumentParser, what: str = "output matrix format") -> None:
-    p.add_argument("--out-format", choices=MATRIX_FORMATS, default=None,
+    p.add_argument("--out-format", choices=tuple(REGISTRY), default=None,
                    help=f"{what} (default: by extension, {_by_extension()}; else {DEFAULT_FORMAT})")
 
 

@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 from seqdist.cli.commands._shared import add_matrix_in, add_matrix_out, add_subcommand, matrix_formats_help
-from seqdist.io.matrices import MATRIX_FORMATS, read_matrix, write_matrix
+from seqdist.io.matrices import REGISTRY, read_matrix, write_matrix
 
 
 def register(subs, common):
-    names = ", ".join(MATRIX_FORMATS[:-1]) + f" or {MATRIX_FORMATS[-1]}"
+    *most, last = REGISTRY
+    names = f"{', '.join(most)} or {last}"
     p = add_subcommand(subs, common, "convert", "validate a distance matrix and write it in another format",
                        f"Reads a matrix file ({names}), checks it (square, unique labels,\n"
                        "symmetric, zero diagonal, non-negative) and writes it in the chosen format.\n\n"
