@@ -513,13 +513,12 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     if other_tree is not None:
         texts["tree_with_suspects" if drop else "tree_without_suspects"] = other_tree.to_newick()
     texts["impact_json"] = js(irep)
-    job = {"alignment": os.path.basename(alignment), "n": dm.n, "columns": aln.length, "alphabet": dres.alphabet,
-           "model": dres.model, "undefined": list(dres.undefined), "audit": arep, "repair": rep,
-           "objective": objective, "weighted": weighted}
     made_up_pairs = [(c[0], c[1]) for c in rres.changes if c[5] == "filled_without_evidence"]
     texts["report"] = render_html(ires, names=("measured", "repaired"),
                                   title=f"seqdist report: {os.path.basename(alignment)}",
-                                  preamble=job_section(job), reference=truth, command=command,
+                                  preamble=job_section(os.path.basename(alignment), dres, aln.length, arep, rep,
+                                                       objective, weighted),
+                                  reference=truth, command=command,
                                   made_up_pairs=made_up_pairs,
                                   lead=left_out_section(rep) + suspects_section(arep, ires.report, keep_suspects),
                                   extra_trees=[("repaired, suspects kept" if drop else "repaired, suspects left out",
@@ -649,26 +648,25 @@ def suspects_section(audit: AuditReport, impact_report: ImpactReport, keep_suspe
     return "".join(out)
 
 
-def job_section(job: dict) -> str:
+def job_section(alignment: str, distances: DistanceResult, columns: int, audit: AuditReport, repair: RepairReport,
+                objective: str, weighted: bool) -> str:
     """The html section on the steps before the trees: data, audit and repair.
 
-    ``job`` holds the data's figures (``alignment``, ``n``, ``columns``,
-    ``alphabet``, ``model``, ``undefined``, ``objective``, ``weighted``),
-    the :class:`~seqdist.audit.report.AuditReport` (``audit``) and the
-    :class:`~seqdist.repair.result.RepairReport` (``repair``). Counts and
-    denominators are the ones the JSON files hold: ``audit.json`` for the
-    measured matrix (checked triangles: all three sides measured),
-    ``repair.json`` for the repair (on the taxa it kept).
+    ``alignment`` is the alignment's file name and ``columns`` its length;
+    the other arguments are the steps' typed results and the repair's
+    settings. Counts and denominators are the ones the JSON files hold:
+    ``audit.json`` for the measured matrix (checked triangles: all three
+    sides measured), ``repair.json`` for the repair (on the taxa it kept).
     """
-    a = job["audit"]
-    r = job["repair"]
-    undefined = job["undefined"]
-    n = job["n"]
+    a = audit
+    r = repair
+    undefined = list(distances.undefined)
+    n = distances.matrix.n
     pairs = n * (n - 1) // 2
-    alphabet = {"dna": "DNA", "protein": "protein"}.get(job["alphabet"], job["alphabet"])
+    alphabet = {"dna": "DNA", "protein": "protein"}.get(distances.alphabet, distances.alphabet)
     rows = []
-    rows.append(f"<p><b>Data.</b> {_esc(job['alignment'])}: {n:,} {_esc(alphabet)} sequences x "
-                f"{job['columns']:,} columns; model <code>{_esc(job['model'])}</code>; "
+    rows.append(f"<p><b>Data.</b> {_esc(alignment)}: {n:,} {_esc(alphabet)} sequences x "
+                f"{columns:,} columns; model <code>{_esc(distances.model)}</code>; "
                 f"{len(undefined):,} of {pairs:,} distances undefined")
     if undefined:
         shown = ", ".join(f"{_esc(p)}-{_esc(q)} ({_esc(why)})" for p, q, why in undefined[:6])
@@ -711,8 +709,8 @@ def job_section(job: dict) -> str:
     vb = r.violated_before_leaving_out
     leaving = (f"; {vb:,} were violated before the taxa were left out"
                if vb is not None and vb != r.violated_before else "")
-    rows.append(f"<p><b>Repair.</b> Objective <code>{_esc(job['objective'])}</code>"
-                f"{' weighted by inverse variance' if job['weighted'] else ''}:{left_text} "
+    rows.append(f"<p><b>Repair.</b> Objective <code>{_esc(objective)}</code>"
+                f"{' weighted by inverse variance' if weighted else ''}:{left_text} "
                 f"{r.changed_entries:,} of {r.observed_entries:,} measured entries changed, "
                 f"{filled_text}; objective value {r.objective_value:.6g} ({bound}); violated triangles "
                 f"{r.violated_before:,}{before_of} before, {r.violated_after:,} after "
