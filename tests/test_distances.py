@@ -342,6 +342,27 @@ def test_kernels_against_plain_loop():
         assert np.array_equal(eq, np.trace(N[i0:i1, i0:], axis1=2, axis2=3))
 
 
+def test_byte_kernel_against_plain_compare():
+    # The compiled byte compare counts 32 columns per step in byte lanes, summed every 255 steps
+    # (8160 columns), four rows of a at a time: lengths on both sides of those limits, row counts
+    # that are not multiples of four, and tiles starting anywhere; plain reference: numpy ==.
+    from seqdist.kernels.pair_bytes import eq_tile
+
+    rng = np.random.default_rng(21)
+    for n, L in ((1, 5), (6, 0), (5, 31), (7, 32), (9, 33), (6, 8160), (5, 8161), (7, 8160 + 8160 + 40)):
+        a = rng.integers(0, 3, (n, L)).astype(np.uint8)
+        a[rng.random((n, L)) < 0.1] = 254
+        b = np.where(a == 254, 255, a).astype(np.uint8)
+        if L >= 8160:
+            a[0, :8170] = b[0, :8170] = 7  # a lane that reaches 255 before the sum
+        full = (a[:, None, :] == b[None, :, :]).sum(axis=2)
+        for i0, i1 in {(0, n), (0, min(n, 3)), (min(n, 2), n), (n, n)}:
+            got = eq_tile(a, b, i0, i1)
+            mask = np.arange(i0, i1)[:, None] <= np.arange(i0, n)[None, :]
+            assert got.dtype == np.int32 and got.shape == (i1 - i0, n - i0)
+            assert np.array_equal(got, np.where(mask, full[i0:i1, i0:], 0)), (n, L, i0, i1)
+
+
 @pytest.mark.parametrize("partial", [False, True])
 def test_pipeline_matches_reference_counts(partial):
     rng = np.random.default_rng(9)

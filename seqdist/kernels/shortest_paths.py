@@ -20,141 +20,27 @@ The kernel is a blocked (tiled) Floyd-Warshall in float64 that uses symmetry:
 Float64 throughout: the result is the exact minimum over paths of the
 rounded path sums (path sums may round differently from another routine's
 order of additions, by an ulp or so). One thread by default; with
-``threads`` the row blocks of each round are shared among numba's threads
+``threads`` the row blocks of each round are shared among OpenMP threads
 (one barrier per round of ``b`` pivots; a barrier per pivot is ruinous on
 shared cores).
+
+The loops are compiled when the package is installed (Cython,
+``_shortest_paths.pyx``, with the hot loops in C, ``src/shortest_paths.h``,
+built for AVX2 and for the baseline and chosen at load time). The min-plus
+update takes four rows at a time, so each value of the panel is loaded once
+for four rows; for every entry the candidate sums are formed and compared in
+the same order of pivots as the textbook loop, so the result does not depend
+on the vector width, the tiling or the number of threads.
 """
 
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, prange
+
+from seqdist.kernels._shortest_paths import fw_blocked, max_threads
 
 _BLOCK = 64
 _TILE = 512
-
-
-@njit(cache=True)
-def _panel_fw(P, k0, kb):  # pragma: no cover - compiled
-    # Floyd-Warshall on the kb x n row panel with pivots k0 .. k0+kb-1.
-    n = P.shape[1]
-    for kk in range(kb):
-        rowk = P[kk]
-        for r in range(kb):
-            a = P[r, k0 + kk]
-            if a == np.inf:
-                continue
-            rowr = P[r]
-            for j in range(n):
-                v = a + rowk[j]
-                if v < rowr[j]:
-                    rowr[j] = v
-
-
-@njit(cache=True)
-def _gather(d, P, PT, k0, kb):  # pragma: no cover - compiled
-    # the current row panel of pivot block K from the upper-triangle storage,
-    # closed over the pivots of K, scattered back, and kept transposed too
-    n = d.shape[0]
-    for r in range(kb):
-        for j in range(k0):
-            P[r, j] = d[j, k0 + r]
-        for j in range(k0, n):
-            P[r, j] = d[k0 + r, j]
-    _panel_fw(P, k0, kb)
-    for r in range(kb):
-        for j in range(k0):
-            d[j, k0 + r] = P[r, j]
-        for j in range(k0, n):
-            d[k0 + r, j] = P[r, j]
-    for j in range(n):
-        for r in range(kb):
-            PT[j, r] = P[r, j]
-
-
-@njit(cache=True)
-def _update_rows(d, P, PT, i0, i1, kb, tile):  # pragma: no cover - compiled
-    # min-plus update of rows i0..i1-1, columns from i0 on (upper blocks)
-    n = d.shape[0]
-    for j0 in range(i0, n, tile):
-        j1 = min(n, j0 + tile)
-        w = j1 - j0
-        for i in range(i0, i1):
-            # zero-based loops over slices: LLVM vectorises these (7x faster
-            # here than indexing rows from j0 to j1)
-            rowi = d[i, j0:j1]
-            for kk in range(kb):
-                a = PT[i, kk]
-                if a == np.inf:
-                    continue
-                rowk = P[kk, j0:j1]
-                for j in range(w):
-                    v = a + rowk[j]
-                    if v < rowi[j]:
-                        rowi[j] = v
-
-
-@njit(cache=True)
-def _mirror(d):  # pragma: no cover - compiled
-    n = d.shape[0]
-    for i in range(n):
-        for j in range(i + 1, n):
-            d[j, i] = d[i, j]
-
-
-@njit(cache=True)
-def _fw_blocked(d, b, tile):  # pragma: no cover - compiled
-    n = d.shape[0]
-    nb = (n + b - 1) // b
-    P = np.empty((b, n))
-    PT = np.empty((n, b))
-    for K in range(nb):
-        k0 = K * b
-        kb = min(n, k0 + b) - k0
-        _gather(d, P, PT, k0, kb)
-        for I in range(nb):
-            if I != K:
-                _update_rows(d, P, PT, I * b, min(n, I * b + b), kb, tile)
-    _mirror(d)
-    return d
-
-
-@njit(parallel=True, cache=True)
-def _fw_blocked_par(d, b, tile, order):  # pragma: no cover - compiled
-    # The same rounds; the row blocks of one round are independent, so they
-    # go to threads (one barrier per round of b pivots, not per pivot).
-    n = d.shape[0]
-    nb = (n + b - 1) // b
-    P = np.empty((b, n))
-    PT = np.empty((n, b))
-    for K in range(nb):
-        k0 = K * b
-        kb = min(n, k0 + b) - k0
-        _gather(d, P, PT, k0, kb)
-        for q in prange(nb):
-            I = order[q]
-            if I != K:
-                _update_rows(d, P, PT, I * b, min(n, I * b + b), kb, tile)
-    _mirror(d)
-    return d
-
-
-@njit(cache=True)
-def _fw_plain(d):  # pragma: no cover - compiled
-    # Textbook Floyd-Warshall over the whole matrix; the reference for tests.
-    n = d.shape[0]
-    for k in range(n):
-        rowk = d[k]
-        for i in range(n):
-            dik = d[i, k]
-            if dik == np.inf:
-                continue
-            rowi = d[i]
-            for j in range(n):
-                v = dik + rowk[j]
-                if v < rowi[j]:
-                    rowi[j] = v
-    return d
 
 
 def _prepare(values) -> np.ndarray:
@@ -164,19 +50,6 @@ def _prepare(values) -> np.ndarray:
     d[np.isnan(d)] = np.inf
     np.fill_diagonal(d, 0.0)
     return d
-
-
-def _interleaved(nb: int) -> np.ndarray:
-    # heavy (top) and light (bottom) row blocks alternate, for balance
-    out = []
-    lo, hi = 0, nb - 1
-    while lo <= hi:
-        out.append(lo)
-        if lo != hi:
-            out.append(hi)
-        lo += 1
-        hi -= 1
-    return np.array(out, dtype=np.int64)
 
 
 def apsp(values: np.ndarray, *, block: int = _BLOCK, tile: int = _TILE, threads: int | None = None) -> np.ndarray:
@@ -191,10 +64,11 @@ def apsp(values: np.ndarray, *, block: int = _BLOCK, tile: int = _TILE, threads:
     block, tile : int
         Pivot block size and column tile width of the blocked kernel.
     threads : int, optional
-        1 (the default) runs serially; 0 uses all of numba's threads and
-        ``k > 1`` uses ``k``, handing the row blocks of each round to them.
-        On the shared 2-core machine here the parallel kernel gained nothing
-        under load (other jobs held the cores), hence serial by default.
+        1 (the default) runs serially; 0 uses all OpenMP threads
+        (``OMP_NUM_THREADS``, else the cores) and ``k > 1`` uses ``k``,
+        handing the row blocks of each round to them. On the shared 2-core
+        machine here the parallel kernel gained nothing under load (other jobs
+        held the cores), hence serial by default.
 
     Returns
     -------
@@ -215,27 +89,36 @@ def apsp(values: np.ndarray, *, block: int = _BLOCK, tile: int = _TILE, threads:
         return d
     if threads is None:
         threads = 1
-    if threads == 1:
-        return _fw_blocked(d, int(block), int(tile))
-    import numba
-
-    nb = (n + int(block) - 1) // int(block)
-    old = numba.get_num_threads()
-    try:
-        if threads > 1:
-            numba.set_num_threads(min(threads, numba.config.NUMBA_NUM_THREADS))
-        prev = numba.set_parallel_chunksize(1)  # dynamic hand-out of row blocks
-        try:
-            return _fw_blocked_par(d, int(block), int(tile), _interleaved(nb))
-        finally:
-            numba.set_parallel_chunksize(prev)
-    finally:
-        numba.set_num_threads(old)
+    if threads < 0:
+        raise ValueError(f"threads must be >= 0, got {threads}")
+    if threads == 0:
+        threads = max_threads()
+    b = min(int(block), n)
+    if b < 1 or int(tile) < 1:
+        raise ValueError(f"block and tile must be >= 1, got {block} and {tile}")
+    P = np.empty((b, n))
+    PT = np.empty((n, b))
+    fw_blocked(d, P, PT, int(tile), int(threads))
+    return d
 
 
 def apsp_reference(values: np.ndarray) -> np.ndarray:
-    """Plain (unblocked, full-matrix) Floyd-Warshall, for tests of :func:`apsp`."""
-    return _fw_plain(_prepare(values))
+    """Plain (unblocked, full-matrix) Floyd-Warshall in numpy, for tests of :func:`apsp`.
+
+    Pivot ``k`` replaces every ``d[i, j]`` by ``d[i, k] + d[k, j]`` when that is
+    smaller; row and column ``k`` do not change during their own pivot (zero
+    diagonal), so the whole matrix is updated at once. ``fmin`` leaves an entry
+    alone where the sum is undefined (``inf + -inf``), as the textbook ``<`` does.
+
+    Examples
+    --------
+    >>> apsp_reference(np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]]))[0].tolist()
+    [0.0, 2.0, 1.0]
+    """
+    d = _prepare(values)
+    for k in range(d.shape[0]):
+        np.fmin(d, d[:, k, None] + d[None, k, :], out=d)
+    return d
 
 
 __all__ = ["apsp", "apsp_reference"]

@@ -1,0 +1,62 @@
+# cython: language_level=3, boundscheck=False, wraparound=False, cdivision=True, initializedcheck=False
+"""Compiled part of :mod:`seqdist.kernels.shortest_paths` (see its docstring for the method).
+
+The loops are C (``src/shortest_paths.h``; the panel and the min-plus update are
+built for AVX2 and for the baseline, chosen at load time); this module runs the
+rounds and, with more than one thread, hands the row blocks of a round to OpenMP
+threads (dynamic schedule, chunk 1, heavy and light blocks interleaved). Each row
+block writes only its own rows and reads only the round's panel, so the answer
+does not depend on the number of threads or the order they finish in.
+"""
+
+from cython.parallel cimport prange
+from libc.stdint cimport int64_t
+from openmp cimport omp_get_max_threads
+
+
+cdef extern from "src/shortest_paths.h" nogil:
+    void sd_sp_gather(double* d, double* P, double* PT, int64_t n, int64_t b, int64_t k0, int64_t kb)
+    void sd_sp_update_rows(double* d, const double* P, const double* PT, int64_t n, int64_t b, int64_t i0,
+                           int64_t i1, int64_t kb, int64_t tile)
+    void sd_sp_mirror(double* d, int64_t n)
+
+
+def max_threads():
+    """The number of threads OpenMP would use (``OMP_NUM_THREADS``, else the cores)."""
+    return omp_get_max_threads()
+
+
+def fw_blocked(double[:, ::1] d, double[:, ::1] P, double[:, ::1] PT, Py_ssize_t tile, int threads):
+    """Blocked Floyd-Warshall in place on the C-contiguous float64 (n, n) ``d``.
+
+    ``P`` (b, n) and ``PT`` (n, b) are work buffers; ``b`` is the pivot block
+    size. Only the upper triangle of ``d`` is read; the result is mirrored.
+    ``threads`` 1 runs serially; more share each round's row blocks.
+    """
+    cdef Py_ssize_t n = d.shape[0], b = P.shape[0], nb, K, I, q, k0, kb, i1
+    if n <= 1:
+        return
+    if b < 1 or P.shape[1] != n or PT.shape[0] != n or PT.shape[1] != b or tile < 1:
+        raise ValueError("fw_blocked: work buffers do not match the matrix")
+    nb = (n + b - 1) // b
+    cdef double* pd = &d[0, 0]
+    cdef double* pP = &P[0, 0]
+    cdef double* pT = &PT[0, 0]
+    with nogil:
+        for K in range(nb):
+            k0 = K * b
+            kb = (n if k0 + b > n else k0 + b) - k0
+            sd_sp_gather(pd, pP, pT, n, b, k0, kb)
+            if threads <= 1:
+                for I in range(nb):
+                    if I != K:
+                        i1 = I * b + b
+                        sd_sp_update_rows(pd, pP, pT, n, b, I * b, n if i1 > n else i1, kb, tile)
+            else:
+                for q in prange(nb, num_threads=threads, schedule="dynamic", chunksize=1):
+                    # first, last, second, second to last, ...: the top blocks hold more columns
+                    I = q // 2 if q % 2 == 0 else nb - 1 - q // 2
+                    if I != K:
+                        i1 = I * b + b
+                        sd_sp_update_rows(pd, pP, pT, n, b, I * b, n if i1 > n else i1, kb, tile)
+        sd_sp_mirror(pd, n)
