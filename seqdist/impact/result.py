@@ -203,6 +203,8 @@ class ImpactReport(_Record):
     figures on the ``n_shared`` taxa both matrices hold. Distances and
     lengths are in the matrices' distance unit; Robinson-Foulds distances
     count non-trivial splits.
+    ``seqdist impact --json`` adds ``before`` and ``after`` (the two file
+    names) after these keys; they are not fields.
 
     Attributes
     ----------
