@@ -1,0 +1,639 @@
+# cython: language_level=3, boundscheck=False, wraparound=False, cdivision=True, initializedcheck=False
+"""Compiled part of :mod:`seqdist.kernels.convex` (see its docstring for the conventions).
+
+Every function here does the same float operations in the same order as the
+plain loop it replaces, so the l1 and l2 iterates (and the output bytes) do
+not depend on how they are compiled. The two full scans (violated triangles
+and the blend step) hand rows to OpenMP threads; per-row results go to their
+own slots and are combined by integer sums or maxima, so the answer does not
+depend on the number of threads. The sweeps are Gauss-Seidel: each update
+reads the previous one, so they run on one thread, in order.
+
+Outputs are allocated by the caller (numpy) and passed in as typed memoryviews.
+Each ``name_c`` here is the loop of ``name`` in convex.py.
+"""
+
+from cython.parallel cimport prange
+from libc.math cimport INFINITY, fabs
+from libc.stdint cimport int64_t
+from libc.stdlib cimport free, malloc, realloc
+
+import numpy as np
+
+
+cdef extern from "src/convex.h" nogil:
+    int64_t sd_cvx_count_row(const double* x, const unsigned char* gm, int64_t n, int full, double thr, int64_t i)
+    int64_t sd_cvx_fill_row(const double* x, const unsigned char* gm, int64_t n, int full, double thr, int64_t i,
+                            int64_t* out)
+    double sd_cvx_blend_row(const double* Y, const double* Z, int64_t n, int64_t i, double best)
+
+
+# ------------------------------------------------------------ key helpers
+cdef inline void sides(int64_t key, int64_t n, int64_t* e0, int64_t* e1, int64_t* e2) noexcept nogil:
+    # flat indices a * n + b of the long side and the two short sides of a triangle key
+    cdef int64_t i = key >> 42
+    cdef int64_t j = (key >> 22) & 0xFFFFF
+    cdef int64_t k = (key >> 2) & 0xFFFFF
+    cdef int64_t s = key & 3
+    if s == 0:
+        e0[0] = i * n + j
+        e1[0] = i * n + k
+        e2[0] = j * n + k
+    elif s == 1:
+        e0[0] = i * n + k
+        e1[0] = i * n + j
+        e2[0] = j * n + k
+    else:
+        e0[0] = j * n + k
+        e1[0] = i * n + j
+        e2[0] = i * n + k
+
+
+# ------------------------------------------------------------ the triangle scan
+def scan_count_c(const double[:, ::1] x, const unsigned char[:, ::1] gm, bint full, double thr, Py_ssize_t nb,
+               int64_t[::1] cnt):
+    """``cnt[i]``: the violated (triangle, long side) pairs of row ``i``.
+
+    Rows are interleaved over ``nb`` blocks (row ``i`` costs about
+    ``(n - i)^2``); blocks go to threads one at a time.
+    """
+    cdef Py_ssize_t n = x.shape[0], b, i
+    cdef const double* px
+    cdef const unsigned char* pg
+    if n == 0:
+        return
+    px = &x[0, 0]
+    pg = &gm[0, 0]
+    for b in prange(nb, nogil=True, schedule="dynamic", chunksize=1):
+        i = b
+        while i < n:
+            cnt[i] = sd_cvx_count_row(px, pg, n, full, thr, i)
+            i = i + nb
+
+
+def scan_fill_c(const double[:, ::1] x, const unsigned char[:, ::1] gm, bint full, double thr, Py_ssize_t nb,
+              const int64_t[::1] offs, int64_t[::1] out):
+    """Write row ``i``'s keys (sorted) to ``out[offs[i]:offs[i + 1]]``."""
+    cdef Py_ssize_t n = x.shape[0], b, i
+    cdef const double* px
+    cdef const unsigned char* pg
+    cdef int64_t* po
+    if n == 0 or out.shape[0] == 0:
+        return
+    px = &x[0, 0]
+    pg = &gm[0, 0]
+    po = &out[0]
+    for b in prange(nb, nogil=True, schedule="dynamic", chunksize=1):
+        i = b
+        while i < n:
+            if offs[i + 1] > offs[i]:
+                sd_cvx_fill_row(px, pg, n, full, thr, i, po + offs[i])
+            i = i + nb
+
+
+# ------------------------------------------------------------ active-set bookkeeping
+def merge_active_c(const int64_t[::1] ka, const double[::1] la, const int64_t[::1] kb,
+                 int64_t[::1] ko, double[::1] lo):
+    """Merge into ``ko``/``lo`` (room for ``ka.size + kb.size``); returns ``(size, added)``."""
+    cdef Py_ssize_t na = ka.shape[0], nb = kb.shape[0], a = 0, b = 0, p = 0, added = 0
+    with nogil:
+        while a < na or b < nb:
+            if b >= nb or (a < na and ka[a] < kb[b]):
+                if la[a] > 0.0:
+                    ko[p] = ka[a]
+                    lo[p] = la[a]
+                    p += 1
+                a += 1
+            elif a >= na or kb[b] < ka[a]:
+                ko[p] = kb[b]
+                lo[p] = 0.0
+                p += 1
+                b += 1
+                added += 1
+            else:
+                ko[p] = ka[a]
+                lo[p] = la[a]
+                p += 1
+                a += 1
+                b += 1
+    return p, added
+
+
+# ------------------------------------------------------------ weighted least squares (l2)
+def sweep_l2_tri_c(const int64_t[::1] keys, double[::1] lam, double[:, :, ::1] xw, bint forward, double omega):
+    """One Hildreth sweep over triangle constraints (see :func:`seqdist.kernels.convex.sweep_l2_tri`)."""
+    cdef Py_ssize_t m = keys.shape[0], q, t
+    cdef int64_t n = xw.shape[1], e0, e1, e2
+    cdef double* p
+    cdef double big = 0.0, w0, w1, w2, den, v, lt, nl, dl, ch
+    if m == 0:
+        return big
+    p = &xw[0, 0, 0]
+    with nogil:
+        for q in range(m):
+            t = q if forward else m - 1 - q
+            sides(keys[t], n, &e0, &e1, &e2)
+            e0 *= 2
+            e1 *= 2
+            e2 *= 2
+            w0 = p[e0 + 1]
+            w1 = p[e1 + 1]
+            w2 = p[e2 + 1]
+            den = w0 + w1 + w2
+            if den == 0.0:
+                continue
+            v = p[e0] - p[e1] - p[e2]
+            lt = lam[t]
+            nl = lt + omega * v / den
+            if nl < 0.0:
+                nl = 0.0
+            dl = nl - lt
+            if dl != 0.0:
+                lam[t] = nl
+                p[e0] -= dl * w0
+                p[e1] += dl * w1
+                p[e2] += dl * w2
+                ch = fabs(dl) * den
+                if ch > big:
+                    big = ch
+    return big
+
+
+def sweep_l2_cyc_c(const int64_t[::1] ptr, const int64_t[::1] edges, double[::1] lam, double[:, ::1] xwf,
+                 double omega):
+    """One Hildreth sweep over cycle constraints (``xwf`` the interleaved array as (n * n, 2))."""
+    cdef Py_ssize_t t, q, nc = ptr.shape[0] - 1
+    cdef int64_t p0, p1, e0, e
+    cdef double* p
+    cdef double big = 0.0, den, v, lt, nl, dl, ch
+    if nc <= 0 or xwf.shape[0] == 0:
+        return big
+    p = &xwf[0, 0]
+    with nogil:
+        for t in range(nc):
+            p0 = ptr[t]
+            p1 = ptr[t + 1]
+            e0 = 2 * edges[p0]
+            den = p[e0 + 1]
+            v = p[e0]
+            for q in range(p0 + 1, p1):
+                e = 2 * edges[q]
+                den += p[e + 1]
+                v -= p[e]
+            if den == 0.0:
+                continue
+            lt = lam[t]
+            nl = lt + omega * v / den
+            if nl < 0.0:
+                nl = 0.0
+            dl = nl - lt
+            if dl != 0.0:
+                lam[t] = nl
+                p[e0] -= dl * p[e0 + 1]
+                for q in range(p0 + 1, p1):
+                    e = 2 * edges[q]
+                    p[e] += dl * p[e + 1]
+                ch = fabs(dl) * den
+                if ch > big:
+                    big = ch
+    return big
+
+
+# ------------------------------------------------------------ proximal LP (l1)
+cdef inline double soft(double z, double h) noexcept nogil:
+    if z > h:
+        return z - h
+    if z < -h:
+        return z + h
+    return 0.0
+
+
+cdef double phi(double t, const double* cs, const double* As, const double* ds, const double* iw, const double* sg,
+                Py_ssize_t m, double h) noexcept nogil:
+    # a^T x(t) with x_e = d_e + soft(A_e - (c_e + sg_e t) iw_e, h)
+    cdef double v = 0.0, xe
+    cdef Py_ssize_t q
+    for q in range(m):
+        xe = ds[q] + soft(As[q] - (cs[q] + sg[q] * t) * iw[q], h)
+        if sg[q] > 0:
+            v += xe
+        else:
+            v += -xe
+    return v
+
+
+cdef double line_max(const double* cs, const double* As, const double* ds, const double* iw, const double* sg,
+                     Py_ssize_t m, double h, double lt) noexcept nogil:
+    # Exact maximiser over t >= -lt of the concave piecewise-quadratic dual
+    # along one constraint: the first root of the nonincreasing
+    # piecewise-linear phi(t) = a^T x(t), walked breakpoint by breakpoint.
+    # g = direction * phi is positive at t = 0 and decreases along the walk.
+    cdef double f0, direction, t, g, nb, dist, limit, step, slope, tb, gb, sgn
+    cdef Py_ssize_t it, q, r
+    f0 = phi(0.0, cs, As, ds, iw, sg, m, h)
+    if f0 == 0.0:
+        return 0.0
+    direction = 1.0 if f0 > 0.0 else -1.0
+    if direction < 0.0 and lt <= 0.0:
+        return 0.0
+    t = 0.0
+    g = fabs(f0)
+    for it in range(4 * m + 8):
+        nb = INFINITY
+        for q in range(m):
+            if iw[q] == 0.0:
+                continue
+            for r in range(2):
+                sgn = -1.0 if r == 0 else 1.0
+                dist = (sg[q] * ((As[q] + sgn * h) / iw[q] - cs[q]) - t) * direction
+                if dist > 0.0 and dist < nb:
+                    nb = dist
+        limit = t + lt if direction < 0.0 else INFINITY
+        step = nb if nb < limit else limit
+        if step == INFINITY:
+            # beyond every breakpoint every free entry is on a slope
+            slope = 0.0
+            for q in range(m):
+                slope += iw[q]
+            if slope == 0.0:
+                return t
+            return t + direction * g / slope
+        tb = t + direction * step
+        gb = direction * phi(tb, cs, As, ds, iw, sg, m, h)
+        if gb <= 0.0:
+            return t + direction * step * (g / (g - gb))
+        if step == limit:
+            return -lt
+        t = tb
+        g = gb
+    return t
+
+
+def sweep_l1_tri_c(const int64_t[::1] keys, double[::1] lam, double[:, ::1] c, const double[:, ::1] A,
+                 const double[:, ::1] d, const double[:, ::1] iw, double h):
+    """One exact dual coordinate-ascent sweep over triangle constraints
+    (see :func:`seqdist.kernels.convex.sweep_l1_tri`)."""
+    cdef Py_ssize_t m = keys.shape[0], t
+    cdef int64_t n = c.shape[0], e0, e1, e2
+    cdef double cs[3]
+    cdef double As[3]
+    cdef double ds[3]
+    cdef double ws[3]
+    cdef double sg[3]
+    cdef double big = 0.0, lt, dt
+    cdef double* pc
+    cdef const double* pA
+    cdef const double* pd
+    cdef const double* pw
+    if m == 0:
+        return big
+    pc = &c[0, 0]
+    pA = &A[0, 0]
+    pd = &d[0, 0]
+    pw = &iw[0, 0]
+    sg[0] = 1.0
+    sg[1] = -1.0
+    sg[2] = -1.0
+    with nogil:
+        for t in range(m):
+            sides(keys[t], n, &e0, &e1, &e2)
+            ws[0] = pw[e0]
+            ws[1] = pw[e1]
+            ws[2] = pw[e2]
+            if ws[0] == 0.0 and ws[1] == 0.0 and ws[2] == 0.0:
+                continue
+            cs[0] = pc[e0]
+            cs[1] = pc[e1]
+            cs[2] = pc[e2]
+            As[0] = pA[e0]
+            As[1] = pA[e1]
+            As[2] = pA[e2]
+            ds[0] = pd[e0]
+            ds[1] = pd[e1]
+            ds[2] = pd[e2]
+            lt = lam[t]
+            dt = line_max(cs, As, ds, ws, sg, 3, h, lt)
+            if dt < -lt:
+                dt = -lt
+            if dt != 0.0:
+                lam[t] = lt + dt
+                pc[e0] += dt
+                pc[e1] -= dt
+                pc[e2] -= dt
+                if fabs(dt) > big:
+                    big = fabs(dt)
+    return big
+
+
+def sweep_l1_cyc_c(const int64_t[::1] ptr, const int64_t[::1] edges, double[::1] lam, double[::1] cf,
+                 const double[::1] Af, const double[::1] df, const double[::1] iwf, double h):
+    """:func:`sweep_l1_tri` over cycle constraints (flat views)."""
+    cdef Py_ssize_t t, q, m, nc = ptr.shape[0] - 1, mmax = 1
+    cdef int64_t p0, e
+    cdef double big = 0.0, lt, dt
+    cdef bint anyfree
+    cdef double* buf
+    cdef double* cs
+    cdef double* As
+    cdef double* ds
+    cdef double* ws
+    cdef double* sg
+    if nc <= 0:
+        return big
+    for t in range(nc):
+        if ptr[t + 1] - ptr[t] > mmax:
+            mmax = ptr[t + 1] - ptr[t]
+    buf = <double*> malloc(5 * mmax * sizeof(double))
+    if buf == NULL:
+        raise MemoryError()
+    cs = buf
+    As = buf + mmax
+    ds = buf + 2 * mmax
+    ws = buf + 3 * mmax
+    sg = buf + 4 * mmax
+    with nogil:
+        for t in range(nc):
+            p0 = ptr[t]
+            m = ptr[t + 1] - p0
+            anyfree = False
+            for q in range(m):
+                e = edges[p0 + q]
+                cs[q] = cf[e]
+                As[q] = Af[e]
+                ds[q] = df[e]
+                ws[q] = iwf[e]
+                sg[q] = 1.0 if q == 0 else -1.0
+                if ws[q] != 0.0:
+                    anyfree = True
+            if not anyfree:
+                continue
+            lt = lam[t]
+            dt = line_max(cs, As, ds, ws, sg, m, h, lt)
+            if dt < -lt:
+                dt = -lt
+            if dt != 0.0:
+                lam[t] = lt + dt
+                cf[edges[p0]] += dt
+                for q in range(1, m):
+                    cf[edges[p0 + q]] -= dt
+                if fabs(dt) > big:
+                    big = fabs(dt)
+    free(buf)
+    return big
+
+
+# ------------------------------------------------------------ A^T lam and A y
+def accumulate_tri_c(const int64_t[::1] keys, const double[::1] lam, double[:, ::1] c):
+    """``c += A^T lam`` over triangle constraints (upper triangle of ``c``)."""
+    cdef Py_ssize_t t, m = keys.shape[0]
+    cdef int64_t n = c.shape[0], e0, e1, e2
+    cdef double lt
+    cdef double* pc
+    if m == 0:
+        return
+    pc = &c[0, 0]
+    with nogil:
+        for t in range(m):
+            lt = lam[t]
+            if lt == 0.0:
+                continue
+            sides(keys[t], n, &e0, &e1, &e2)
+            pc[e0] += lt
+            pc[e1] -= lt
+            pc[e2] -= lt
+
+
+def accumulate_cyc_c(const int64_t[::1] ptr, const int64_t[::1] edges, const double[::1] lam, double[::1] cf):
+    """``c += A^T lam`` over cycle constraints (flat view of ``c``)."""
+    cdef Py_ssize_t t, q, nc = ptr.shape[0] - 1
+    cdef double lt
+    with nogil:
+        for t in range(nc):
+            lt = lam[t]
+            if lt == 0.0:
+                continue
+            cf[edges[ptr[t]]] += lt
+            for q in range(ptr[t] + 1, ptr[t + 1]):
+                cf[edges[q]] -= lt
+
+
+def apply_tri_c(const int64_t[::1] keys, const double[:, ::1] y, double[::1] r):
+    """``r = A y`` for triangle constraints: ``y[long] - y[short] - y[short]``."""
+    cdef Py_ssize_t t, m = keys.shape[0]
+    cdef int64_t n = y.shape[0], e0, e1, e2
+    cdef const double* py
+    if m == 0:
+        return
+    py = &y[0, 0]
+    with nogil:
+        for t in range(m):
+            sides(keys[t], n, &e0, &e1, &e2)
+            r[t] = py[e0] - py[e1] - py[e2]
+
+
+def apply_cyc_c(const int64_t[::1] ptr, const int64_t[::1] edges, const double[::1] yf, double[::1] r):
+    """``r = A y`` for cycle constraints (flat view of ``y``)."""
+    cdef Py_ssize_t t, q, nc = ptr.shape[0] - 1
+    cdef double v
+    with nogil:
+        for t in range(nc):
+            v = yf[edges[ptr[t]]]
+            for q in range(ptr[t] + 1, ptr[t + 1]):
+                v -= yf[edges[q]]
+            r[t] = v
+
+
+def denominators_tri_c(const int64_t[::1] keys, const double[:, ::1] winv, double[::1] r):
+    """``r = a^T W^-1 a`` per triangle constraint."""
+    cdef Py_ssize_t t, m = keys.shape[0]
+    cdef int64_t n = winv.shape[0], e0, e1, e2
+    cdef const double* pw
+    if m == 0:
+        return
+    pw = &winv[0, 0]
+    with nogil:
+        for t in range(m):
+            sides(keys[t], n, &e0, &e1, &e2)
+            r[t] = pw[e0] + pw[e1] + pw[e2]
+
+
+# ------------------------------------------------------------ cycles through absent entries
+cdef void dijkstra(const double* W, Py_ssize_t n, Py_ssize_t s, double* dist, int64_t* pred,
+                   unsigned char* done) noexcept nogil:
+    # Dense O(n^2) Dijkstra; W[i, j] = inf for an absent edge, zeros allowed. Ties go to the
+    # lowest index (strict comparisons), as in seqdist.kernels.kept_graph.
+    cdef Py_ssize_t it, v, u
+    cdef double best, nd
+    cdef const double* row
+    for v in range(n):
+        dist[v] = INFINITY
+        pred[v] = -1
+        done[v] = 0
+    dist[s] = 0.0
+    for it in range(n):
+        u = -1
+        best = INFINITY
+        for v in range(n):
+            if not done[v] and dist[v] < best:
+                best = dist[v]
+                u = v
+        if u < 0:
+            break
+        done[u] = 1
+        row = W + u * n
+        for v in range(n):
+            if not done[v]:
+                nd = best + row[v]
+                if nd < dist[v]:
+                    dist[v] = nd
+                    pred[v] = u
+
+
+cdef int grow(int64_t** buf, Py_ssize_t* cap, Py_ssize_t need) noexcept nogil:
+    # make room for `need` items in a malloc'd buffer; 0 on failure
+    cdef Py_ssize_t c = cap[0]
+    cdef int64_t* p
+    if need <= c:
+        return 1
+    while c < need:
+        c = 2 * c + 16
+    p = <int64_t*> realloc(buf[0], c * sizeof(int64_t))
+    if p == NULL:
+        return 0
+    buf[0] = p
+    cap[0] = c
+    return 1
+
+
+def violated_cycles_c(const double[:, ::1] W, const int64_t[::1] src, const int64_t[::1] dst, int64_t min_edges):
+    """``(ptr, edges)`` of the cycle constraints (see :func:`seqdist.kernels.convex.violated_cycles`)."""
+    cdef Py_ssize_t n = W.shape[0], npairs = src.shape[0], q, r, plen, ecap = 0, pcap = 0, ne = 0, np_ = 1
+    cdef int64_t s, t, v, cur = -1, a, b, u, v2
+    cdef bint ok, failed = False
+    cdef double* dist = NULL
+    cdef int64_t* pred = NULL
+    cdef unsigned char* done = NULL
+    cdef int64_t* path = NULL
+    cdef int64_t* eb = NULL
+    cdef int64_t* pb = NULL
+    cdef const double* pW
+    try:
+        dist = <double*> malloc((n + 1) * sizeof(double))
+        pred = <int64_t*> malloc((n + 1) * sizeof(int64_t))
+        done = <unsigned char*> malloc(n + 1)
+        path = <int64_t*> malloc((n + 2) * sizeof(int64_t))
+        if dist == NULL or pred == NULL or done == NULL or path == NULL or not grow(&pb, &pcap, 1):
+            raise MemoryError()
+        pb[0] = 0
+        if n > 0:
+            pW = &W[0, 0]
+            with nogil:
+                for q in range(npairs):
+                    s = src[q]
+                    t = dst[q]
+                    if s != cur:
+                        dijkstra(pW, n, s, dist, pred, done)
+                        cur = s
+                    # path t -> s
+                    path[0] = t
+                    plen = 1
+                    v = t
+                    ok = True
+                    while v != s:
+                        v = pred[v]
+                        if v < 0 or plen > n:
+                            ok = False
+                            break
+                        path[plen] = v
+                        plen += 1
+                    if not ok or plen - 1 < min_edges:
+                        continue
+                    # the path must not use the long edge itself
+                    if plen == 2:
+                        continue
+                    if not grow(&eb, &ecap, ne + plen) or not grow(&pb, &pcap, np_ + 1):
+                        failed = True
+                        break
+                    a = s if s < t else t
+                    b = t if s < t else s
+                    eb[ne] = a * n + b
+                    ne += 1
+                    for r in range(plen - 1):
+                        u = path[r]
+                        v2 = path[r + 1]
+                        a = u if u < v2 else v2
+                        b = v2 if u < v2 else u
+                        eb[ne] = a * n + b
+                        ne += 1
+                    pb[np_] = ne
+                    np_ += 1
+            if failed:
+                raise MemoryError()
+        ptr = np.empty(np_, np.int64)
+        edges = np.empty(ne, np.int64)
+        copy_into(pb, np_, ptr)
+        copy_into(eb, ne, edges)
+        return ptr, edges
+    finally:
+        free(dist)
+        free(pred)
+        free(done)
+        free(path)
+        free(eb)
+        free(pb)
+
+
+cdef void copy_into(const int64_t* src, Py_ssize_t m, int64_t[::1] out) noexcept:
+    cdef Py_ssize_t q
+    for q in range(m):
+        out[q] = src[q]
+
+
+# ------------------------------------------------------------ turning an iterate into a metric
+def blend_step_c(const double[:, ::1] Y, const double[:, ::1] Z, Py_ssize_t nb, double[::1] tb):
+    """``tb[b]``: the largest restoring step over the rows of block ``b`` (rows interleaved)."""
+    cdef Py_ssize_t n = Y.shape[0], b, i
+    cdef double best
+    cdef const double* py
+    cdef const double* pz
+    if n == 0:
+        return
+    py = &Y[0, 0]
+    pz = &Z[0, 0]
+    for b in prange(nb, nogil=True, schedule="dynamic", chunksize=1):
+        best = 0.0
+        i = b
+        while i < n:
+            best = sd_cvx_blend_row(py, pz, n, i, best)
+            i = i + nb
+        tb[b] = best
+
+
+def clamp_free_c(double[:, ::1] Y, const int64_t[::1] fi, const int64_t[::1] fj, const double[::1] target):
+    """Move entries ``(fi, fj)`` of the metric ``Y`` one at a time towards ``target`` (both halves)."""
+    cdef Py_ssize_t n = Y.shape[0], q, k
+    cdef int64_t i, j
+    cdef double lo, hi, a, b, dab, v
+    with nogil:
+        for q in range(fi.shape[0]):
+            i = fi[q]
+            j = fj[q]
+            lo = 0.0
+            hi = INFINITY
+            for k in range(n):
+                if k == i or k == j:
+                    continue
+                a = Y[i, k]
+                b = Y[j, k]
+                if a + b < hi:
+                    hi = a + b
+                dab = fabs(a - b)
+                if dab > lo:
+                    lo = dab
+            v = target[q]
+            if v < lo:
+                v = lo
+            if v > hi:
+                v = hi
+            Y[i, j] = v
+            Y[j, i] = v
