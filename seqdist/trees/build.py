@@ -31,7 +31,7 @@ both choices give the same split; the pair with the smaller keys is joined,
 so rounding noise never decides (this matters for BIONJ, whose lengths
 depend on which pair is joined first).
 
-Implementation: one numba kernel per method works in place on a copy of the
+Implementation: one compiled kernel per method works in place on a copy of the
 matrix, keeping the active clusters in the first ``r`` rows (the merged
 cluster takes the lower slot, the last active slot moves into the freed
 one). Neighbor joining keeps the row sums up to date incrementally (``O(r)``

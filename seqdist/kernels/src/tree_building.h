@@ -1,0 +1,211 @@
+/* Hot loops of seqdist.kernels._tree_building (see tree_building.py for the methods).
+ *
+ * Row minima, written with GCC/clang vector types (four doubles: two SSE2 registers on the
+ * baseline build, one AVX2 register on the other): GCC does not turn a running minimum
+ * into SIMD code on its own (a loop-carried dependence it will not reorder without
+ * -ffast-math). Only the minimum value is returned: a minimum is exact, so the order of
+ * the comparisons cannot change it, apart from the sign of a zero, which no caller can
+ * see (they only compare it). Each term is rounded as written (the build does not
+ * contract a*b+c), so a value here equals the one the exact scan computes.
+ * Other compilers get the plain loops. */
+#ifndef SEQDIST_TREE_BUILDING_H
+#define SEQDIST_TREE_BUILDING_H
+#include <math.h>
+#include <stdint.h>
+#include <string.h>
+#include "simd.h"
+
+#if defined(__GNUC__)
+typedef double sd_tb_v4d __attribute__((vector_size(32)));
+typedef int64_t sd_tb_v4l __attribute__((vector_size(32)));
+/* per lane a < b ? a : b (b when either is NaN) */
+#define SD_TB_VMIN(a, b) ((sd_tb_v4d)((((sd_tb_v4l)(a)) & ((a) < (b))) | (((sd_tb_v4l)(b)) & ~((a) < (b)))))
+#endif
+
+/* min over b < a of c * row[b] - (ra + R[b]) (INFINITY when a = 0). */
+SEQDIST_SIMD static double sd_nj_row_qmin(const double *restrict row, const double *restrict R, int64_t a,
+                                          double c, double ra) {
+    double m = INFINITY;
+    int64_t b = 0;
+#if defined(__GNUC__)
+    sd_tb_v4d lo0 = {INFINITY, INFINITY, INFINITY, INFINITY}, lo1 = lo0;
+    const sd_tb_v4d cv = {c, c, c, c}, rav = {ra, ra, ra, ra};
+    for (; b + 8 <= a; b += 8) {
+        sd_tb_v4d x0, x1, r0, r1, q0, q1;
+        memcpy(&x0, row + b, sizeof x0);
+        memcpy(&x1, row + b + 4, sizeof x1);
+        memcpy(&r0, R + b, sizeof r0);
+        memcpy(&r1, R + b + 4, sizeof r1);
+        q0 = cv * x0 - (rav + r0);
+        q1 = cv * x1 - (rav + r1);
+        lo0 = SD_TB_VMIN(q0, lo0);
+        lo1 = SD_TB_VMIN(q1, lo1);
+    }
+    for (int l = 0; l < 4; l++) {
+        m = lo0[l] < m ? lo0[l] : m;
+        m = lo1[l] < m ? lo1[l] : m;
+    }
+#endif
+    for (; b < a; b++) {
+        double q = c * row[b] - (ra + R[b]);
+        m = q < m ? q : m;
+    }
+    return m;
+}
+
+/* R[a] = sum of row a over columns 0 .. m-1 of the row-major d (row stride `stride`), for
+ * a < m, each sum taken left to right from 0.0 as a plain loop does. The sums of eight rows
+ * run side by side: one running sum waits for each addition to finish (its order must not
+ * change), eight independent ones keep the adders busy. */
+static void sd_row_sums(const double *restrict d, int64_t stride, int64_t m, double *restrict R) {
+    int64_t a = 0;
+    for (; a + 8 <= m; a += 8) {
+        const double *r = d + a * stride;
+        double s0 = 0.0, s1 = 0.0, s2 = 0.0, s3 = 0.0, s4 = 0.0, s5 = 0.0, s6 = 0.0, s7 = 0.0;
+        for (int64_t b = 0; b < m; b++) {
+            s0 += r[b];
+            s1 += r[stride + b];
+            s2 += r[2 * stride + b];
+            s3 += r[3 * stride + b];
+            s4 += r[4 * stride + b];
+            s5 += r[5 * stride + b];
+            s6 += r[6 * stride + b];
+            s7 += r[7 * stride + b];
+        }
+        R[a] = s0;
+        R[a + 1] = s1;
+        R[a + 2] = s2;
+        R[a + 3] = s3;
+        R[a + 4] = s4;
+        R[a + 5] = s5;
+        R[a + 6] = s6;
+        R[a + 7] = s7;
+    }
+    for (; a < m; a++) {
+        const double *r = d + a * stride;
+        double s = 0.0;
+        for (int64_t b = 0; b < m; b++) s += r[b];
+        R[a] = s;
+    }
+}
+
+/* min of x[b] + pen[b] over b in [0, len): pen is 0.0 for a live column, +inf for a dead one
+ * (x[b] + 0.0 is x[b], a zero's sign aside), NaN sums ignored (INFINITY when there is none).
+ * Inlined into the function below, so it is built for each of its targets. */
+static inline __attribute__((always_inline)) double sd_tb_min_pen(const double *restrict x,
+                                                                   const double *restrict pen, int64_t len) {
+    double m = INFINITY;
+    int64_t b = 0;
+#if defined(__GNUC__)
+    sd_tb_v4d lo0 = {INFINITY, INFINITY, INFINITY, INFINITY}, lo1 = lo0;
+    for (; b + 8 <= len; b += 8) {
+        sd_tb_v4d x0, x1, p0, p1;
+        memcpy(&x0, x + b, sizeof x0);
+        memcpy(&x1, x + b + 4, sizeof x1);
+        memcpy(&p0, pen + b, sizeof p0);
+        memcpy(&p1, pen + b + 4, sizeof p1);
+        x0 = x0 + p0;
+        x1 = x1 + p1;
+        lo0 = SD_TB_VMIN(x0, lo0);
+        lo1 = SD_TB_VMIN(x1, lo1);
+    }
+    for (int l = 0; l < 4; l++) {
+        m = lo0[l] < m ? lo0[l] : m;
+        m = lo1[l] < m ? lo1[l] : m;
+    }
+#endif
+    for (; b < len; b++) {
+        double v = x[b] + pen[b];
+        m = v < m ? v : m;
+    }
+    return m;
+}
+
+/* UPGMA's nearest live neighbour of slot a in its row (slots 0 .. p-1; pen as above): the
+ * column b != a with the smallest (row[b], key[b]) in lexicographic order, which is what a
+ * scan in any order that keeps the first smallest value and replaces it on an equal value
+ * with a smaller key finds. Returns it (-1 when no value is below +inf) and its value in
+ * *out. First the minimum (SIMD), then the columns equal to it, eight at a time. */
+SEQDIST_SIMD static int64_t sd_upgma_nearest(const double *restrict row, const double *restrict pen, int64_t a,
+                                             int64_t p, const int64_t *restrict key, double *out) {
+    double v1 = sd_tb_min_pen(row, pen, a);
+    double v2 = sd_tb_min_pen(row + a + 1, pen + a + 1, p - a - 1);
+    double bv = v2 < v1 ? v2 : v1;
+    int64_t bs = -1, b = 0;
+    *out = bv;
+    if (!(bv < INFINITY)) return -1;
+#if defined(__GNUC__)
+    const sd_tb_v4d bvv = {bv, bv, bv, bv};
+    for (; b + 8 <= p; b += 8) {
+        sd_tb_v4d x0, x1, p0, p1;
+        memcpy(&x0, row + b, sizeof x0);
+        memcpy(&x1, row + b + 4, sizeof x1);
+        memcpy(&p0, pen + b, sizeof p0);
+        memcpy(&p1, pen + b + 4, sizeof p1);
+        sd_tb_v4l e = ((x0 + p0) == bvv) | ((x1 + p1) == bvv);
+        if (!(e[0] | e[1] | e[2] | e[3])) continue;
+        for (int64_t c = b; c < b + 8; c++) {
+            if (row[c] + pen[c] == bv && c != a && (bs < 0 || key[c] < key[bs])) bs = c;
+        }
+    }
+#endif
+    for (; b < p; b++) {
+        if (row[b] + pen[b] == bv && b != a && (bs < 0 || key[b] < key[bs])) bs = b;
+    }
+    return bs;
+}
+
+/* UPGMA's best pair from the cached nearest neighbours (nbv, nbs) of the live slots among
+ * 0 .. p-1: the smallest (distance, min key, max key) in lexicographic order (the two rows
+ * of one pair give the same triple, and either names the pair). Returns the row (-1 when no
+ * distance is below +inf). The minimum first (SIMD), then the rows equal to it. */
+SEQDIST_SIMD static int64_t sd_upgma_best(const double *restrict nbv, const double *restrict pen, int64_t p,
+                                          const int64_t *restrict nbs, const int64_t *restrict key) {
+    double best = sd_tb_min_pen(nbv, pen, p);
+    int64_t bi = -1, k0 = 0, k1 = 0, a = 0;
+    if (!(best < INFINITY)) return -1;
+#if defined(__GNUC__)
+    const sd_tb_v4d bv = {best, best, best, best};
+    for (; a + 8 <= p; a += 8) {
+        sd_tb_v4d x0, x1, p0, p1;
+        memcpy(&x0, nbv + a, sizeof x0);
+        memcpy(&x1, nbv + a + 4, sizeof x1);
+        memcpy(&p0, pen + a, sizeof p0);
+        memcpy(&p1, pen + a + 4, sizeof p1);
+        sd_tb_v4l e = ((x0 + p0) == bv) | ((x1 + p1) == bv);
+        if (!(e[0] | e[1] | e[2] | e[3])) continue;
+        for (int64_t c = a; c < a + 8; c++) {
+            if (nbv[c] + pen[c] == best && nbs[c] >= 0) {
+                int64_t ka = key[c], kb = key[nbs[c]];
+                int64_t lo = ka < kb ? ka : kb, hi = ka < kb ? kb : ka;
+                if (bi < 0 || lo < k0 || (lo == k0 && hi < k1)) {
+                    bi = c;
+                    k0 = lo;
+                    k1 = hi;
+                }
+            }
+        }
+    }
+#endif
+    for (; a < p; a++) {
+        if (nbv[a] + pen[a] == best && nbs[a] >= 0) {
+            int64_t ka = key[a], kb = key[nbs[a]];
+            int64_t lo = ka < kb ? ka : kb, hi = ka < kb ? kb : ka;
+            if (bi < 0 || lo < k0 || (lo == k0 && hi < k1)) {
+                bi = a;
+                k0 = lo;
+                k1 = hi;
+            }
+        }
+    }
+    return bi;
+}
+
+/* di[k] = (si * di[k] + sj * dj[k]) / (si + sj) for k in [0, p): UPGMA's merged row, as written
+ * (the sizes' sum rounded once, as the plain formula does). */
+SEQDIST_SIMD static void sd_upgma_merge_row(double *restrict di, const double *restrict dj, int64_t p, double si,
+                                            double sj) {
+    const double s = si + sj;
+    for (int64_t k = 0; k < p; k++) di[k] = (si * di[k] + sj * dj[k]) / s;
+}
+#endif
