@@ -310,6 +310,125 @@ def test_byte_identical_output():
         assert build_tree(dm, method).to_newick() == build_tree(dm, method).to_newick()
 
 
+def tie_matrix(n, rng, hi):
+    """A symmetric matrix of small integers 1..hi-1 (many exact ties), zero diagonal."""
+    D = np.triu(rng.integers(1, hi, (n, n)).astype(float), 1)
+    return D + D.T
+
+
+def plain_nj_exact(D):
+    """Neighbor joining in exact rational arithmetic with plain loops
+    (Studier & Keppler 1988 formulas) and the tie rule documented in
+    seqdist.trees.build: among pairs of equal Q the smallest (min key, max key),
+    a cluster's key being the smallest input position among its leaves.
+    Returns (non-trivial splits as frozensets of leaves not holding leaf 0,
+    edge list, node count) for path_matrix/edge-free comparisons."""
+    from fractions import Fraction
+
+    n = D.shape[0]
+    d = {(i, j): Fraction(int(D[i, j])) for i in range(n) for j in range(n)}
+    key = {i: i for i in range(n)}
+    leaves = {i: frozenset([i]) for i in range(n)}
+    active = list(range(n))
+    edges, made = [], []
+    nxt = n
+    while len(active) > 3:
+        r = len(active)
+        R = {i: sum(d[i, k] for k in active) for i in active}
+        q, _, _, i, j = min(((r - 2) * d[i, j] - R[i] - R[j], min(key[i], key[j]), max(key[i], key[j]), i, j)
+                            for x, i in enumerate(active) for j in active[x + 1:])
+        li = d[i, j] / 2 + (R[i] - R[j]) / (2 * (r - 2))
+        u = nxt
+        nxt += 1
+        for k in active:
+            if k not in (i, j):
+                d[u, k] = d[k, u] = (d[i, k] + d[j, k] - d[i, j]) / 2
+        d[u, u] = Fraction(0)
+        key[u] = min(key[i], key[j])
+        leaves[u] = leaves[i] | leaves[j]
+        made.append(leaves[u])
+        edges += [(u, i, float(li)), (u, j, float(d[i, j] - li))]
+        active = [k for k in active if k not in (i, j)] + [u]
+    a, b, c = active
+    edges += [(nxt, a, float((d[a, b] + d[a, c] - d[b, c]) / 2)), (nxt, b, float((d[a, b] + d[b, c] - d[a, c]) / 2)),
+              (nxt, c, float((d[a, c] + d[b, c] - d[a, b]) / 2))]
+    full = frozenset(range(n))
+    split_set = {s if 0 not in s else full - s for s in made if 2 <= len(s) <= n - 2}
+    return split_set, edges, nxt + 1
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_nj_ties_match_exact_reference(seed):
+    # Small-integer matrices tie often. Every value the kernel forms here (halves
+    # of sums of integers, row sums, Q) is a short binary fraction, so its floating
+    # point is exact and "equal as computed" is exact equality: the kernel must pick
+    # the pairs the exact reference picks under the documented tie rule.
+    rng = np.random.default_rng(700 + seed)
+    n = int(rng.integers(5, 26))
+    D = tie_matrix(n, rng, 4 if seed % 2 else 9)
+    labels = labels_for(n)
+    want, edges, nodes = plain_nj_exact(D)
+    t = neighbor_joining(DistanceMatrix.from_array(D, labels))
+    assert our_splits(t, labels) == want
+    assert np.allclose(t.path_lengths(labels), path_matrix(edges, nodes, n), rtol=1e-12, atol=1e-12)
+
+
+def plain_upgma(D):
+    """UPGMA by its definition (Sokal & Michener 1958) with plain loops: join the
+    closest pair, the new distance the size-weighted mean (as written in
+    seqdist.trees.build, so "equal" means equal as computed in floating point);
+    ties by the documented rule: smallest distance, then smallest
+    (min key, max key). Returns {clade (frozenset of leaves): height}."""
+    n = D.shape[0]
+    d = {(i, j): float(D[i, j]) for i in range(n) for j in range(n) if i != j}
+    size = {i: 1 for i in range(n)}
+    key = {i: i for i in range(n)}
+    leaves = {i: frozenset([i]) for i in range(n)}
+    active = list(range(n))
+    clades = {}
+    nxt = n
+    while len(active) > 1:
+        v, _, _, i, j = min((d[i, j], min(key[i], key[j]), max(key[i], key[j]), i, j)
+                            for x, i in enumerate(active) for j in active[x + 1:])
+        u = nxt
+        nxt += 1
+        for k in active:
+            if k not in (i, j):
+                d[u, k] = d[k, u] = (size[i] * d[i, k] + size[j] * d[j, k]) / (size[i] + size[j])
+        size[u] = size[i] + size[j]
+        key[u] = min(key[i], key[j])
+        leaves[u] = leaves[i] | leaves[j]
+        clades[leaves[u]] = 0.5 * v
+        active = [k for k in active if k not in (i, j)] + [u]
+    return clades
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_upgma_ties_match_plain_reference(seed):
+    # Many exact ties (small integers, and repeated rows: zero distances between
+    # taxa); sizes up to 70 also pass the kernel's packing of its live slots.
+    rng = np.random.default_rng(800 + seed)
+    n = int(rng.integers(5, 71))
+    if seed < 3:
+        D = tie_matrix(n, rng, 3 if seed % 2 else 6)
+    else:  # taxa copying one of a few prototypes: zero distances and whole tied rows
+        proto = rng.integers(0, n // 3 + 2, n)
+        T = tie_matrix(n // 3 + 2, rng, 5)
+        D = T[np.ix_(proto, proto)]
+    labels = labels_for(n)
+    want = plain_upgma(D)
+    t = upgma(DistanceMatrix.from_array(D, labels))
+    pos = {lab: k for k, lab in enumerate(labels)}
+    below = {}
+    for node in t.postorder():
+        below[id(node)] = (frozenset([pos[node.name]]) if node.is_leaf
+                           else frozenset().union(*(below[id(c)] for c in node.children)))
+    assert {below[id(x)] for x in t.postorder() if not x.is_leaf} == set(want)
+    # each clade's height is half the longest path between its leaves (ultrametric)
+    P = t.path_lengths(labels)
+    assert np.allclose([max(P[x, y] for x in c for y in c) / 2 for c in want], list(want.values()), rtol=1e-12)
+
+
 # --------------------------------------------------------------- UPGMA
 @pytest.mark.parametrize("seed", range(8))
 def test_upgma_matches_scipy_average_linkage(seed):
