@@ -565,3 +565,143 @@ def test_summary_counts_share_one_denominator():
     for k, m in re.findall(r"(\d+) of (\d+)", text):
         assert int(m) in totals and int(k) <= int(m), (k, m)
     assert "all of" not in text
+
+
+# ---------------------------------------------------------------- the audit kernels alone
+# Plain loops over the same definitions (common practice); each value is computed with the
+# same float operations in the same order, so the kernels must agree to the bit.
+def _broken(n, seed, k=25, nan=0):
+    rng = np.random.default_rng(seed)
+    D = euclidean(n, dim=3, seed=seed)
+    iu = list(itertools.combinations(range(n), 2))
+    for p in rng.choice(len(iu), k, replace=False):
+        i, j = iu[p]
+        D[i, j] = D[j, i] = D[i, j] * rng.choice([rng.uniform(2.5, 6), rng.uniform(0.0, 0.2)])
+    for p in rng.choice(len(iu), nan, replace=False):
+        i, j = iu[p]
+        D[i, j] = D[j, i] = np.nan
+    return np.ascontiguousarray(D)
+
+
+def _scan(D, tol, top=5):
+    from seqdist.kernels.audit_scans import scan_triangles
+    from seqdist.kernels.triangles import TILE, tile_starts
+
+    largest = float(np.nanmax(D))
+    return scan_triangles(D, tol, hard_of(tol, D), largest, np.array(HIST_EDGES), top, tile_starts(len(D)), TILE)
+
+
+@pytest.mark.parametrize("cap", [10**9, 0, 1, 7, 40, -1])
+def test_collect_triangles_matches_a_plain_listing(cap):
+    """All forcing triangles in lexicographic order when they fit under the cap; under a
+    smaller cap, the first q of each first index's list, q the largest quota whose total
+    fits (at least 1)."""
+    from seqdist.kernels.audit_scans import collect_triangles
+
+    D = _broken(45, seed=5, nan=20)
+    tol = 0.0
+    hard = hard_of(tol, D)
+    rows = {}
+    Dl = D.tolist()
+    for i, j, k in itertools.combinations(range(len(D)), 3):
+        x, y, z = Dl[i][k], Dl[j][k], Dl[i][j]
+        e = 2.0 * max(x, y, z) - (x + y + z)
+        if e > hard:  # NaN never is
+            rows.setdefault(i, []).append(((i, j, k), e))
+    total = sum(len(v) for v in rows.values())
+    assert total > 100
+    cap = total - 1 if cap == -1 else cap
+    q = max(v for v in range(total + 1) if sum(min(len(r), v) for r in rows.values()) <= cap) if cap < total else total
+    q = max(q, 1)
+    want = [t for i in sorted(rows) for t in rows[i][:q]]
+    abc, e = collect_triangles(D, hard, _scan(D, tol)["pair_hard"], cap)
+    assert [tuple(t) for t in abc.tolist()] == [t for t, _ in want]
+    assert e.tolist() == [v for _, v in want]
+
+
+def test_greedy_packing_matches_a_plain_loop():
+    from seqdist.kernels.audit_scans import greedy_packing
+
+    rng = np.random.default_rng(3)
+    for nent, m in [(5, 4), (120, 300), (40, 500)]:
+        ids = np.array([rng.choice(nent, 3, replace=False) for _ in range(m)], dtype=np.int64)
+        deg = np.bincount(ids.ravel(), minlength=nent).tolist()
+        order = sorted(range(m), key=lambda t: (sum(deg[x] for x in ids[t]), t))
+        used, want = set(), [False] * m
+        for t in order:
+            if not used & set(ids[t].tolist()):
+                used |= set(ids[t].tolist())
+                want[t] = True
+        got = greedy_packing(ids, nent)
+        assert got.dtype == bool and got.tolist() == want
+
+
+@pytest.mark.parametrize("tol", [0.0, 0.5])
+def test_quartet_stats_on_a_given_list_match_a_plain_loop(tol):
+    """The sampled path: every statistic over the listed quartets (repeats included), in order."""
+    from seqdist.kernels.audit_scans import quartet_stats
+
+    D = _broken(14, seed=8, k=10, nan=6)
+    D[np.arange(14), np.arange(14)] = 0.0
+    Q = sample_quartets(14, 3000, seed=2)
+    r = quartet_stats(D, tol, Q, 10)
+    n = len(D)
+    ex = miss = viol = star = dn = 0
+    rel_sum = rel_max = dsum = 0.0
+    worst = ()
+    tsum, tn, hist = [0.0] * n, [0] * n, [0] * 10
+    Dl = D.tolist()
+    for i, j, k, l in Q.tolist():
+        s = [Dl[i][j] + Dl[k][l], Dl[i][k] + Dl[j][l], Dl[i][l] + Dl[j][k]]
+        if any(v != v for v in s):
+            miss += 1
+            continue
+        S, M, L = sorted(s)
+        ex += 1
+        viol += (L - M) > tol
+        rel = (L - M) / L if L > 0 else 0.0
+        rel_sum += rel
+        if rel > rel_max:
+            rel_max, worst = rel, (i, j, k, l)
+        if L - S > tol:
+            dq = (L - M) / (L - S)  # Holland et al. (2002) delta of a quartet
+            dsum += dq
+            dn += 1
+            for t in (i, j, k, l):
+                tsum[t] += dq
+                tn[t] += 1
+            hist[min(int(dq * 10), 9)] += 1
+        else:
+            star += 1
+    assert (r["examined"], r["missing"], r["violated"], r["star"], r["delta_n"]) == (ex, miss, viol, star, dn)
+    assert ex > 1000 and miss > 0 and dn > 0
+    assert (r["rel_sum"], r["rel_max"], r["worst"], r["delta_sum"]) == (rel_sum, rel_max, worst, dsum)
+    assert r["taxon_delta_sum"].tolist() == tsum and r["taxon_delta_n"].tolist() == tn
+    assert r["delta_hist"].tolist() == hist
+
+
+def test_scan_does_not_depend_on_the_thread_count(tmp_path):
+    """The fused scan run with 1 and 3 threads (OpenMP, a fresh process each) gives the
+    same arrays as in this process: tiles may finish in any order, but every merged
+    tally is an integer and every per-row output belongs to one tile."""
+    import os
+    import subprocess
+    import sys
+
+    D = _broken(100, seed=4, k=60, nan=150)
+    np.save(tmp_path / "d.npy", D)
+    here = _scan(D, 1e-9)
+    # the same call as _scan, importing only the kernels
+    code = ("import sys, numpy as np; from seqdist.kernels.audit_scans import scan_triangles; "
+            "from seqdist.kernels.triangles import TILE, tile_starts; d = np.load(sys.argv[1]); "
+            "r = scan_triangles(d, 1e-9, float(sys.argv[3]), float(np.nanmax(d)), np.array(eval(sys.argv[4])), 5, "
+            "tile_starts(len(d)), TILE); np.savez(sys.argv[2], **{k: np.asarray(v) for k, v in r.items()})")
+    assert here["row_viol"].sum() > 1000
+    for threads in (1, 3):
+        out = tmp_path / f"t{threads}.npz"
+        env = dict(os.environ, OMP_NUM_THREADS=str(threads))
+        subprocess.run([sys.executable, "-c", code, str(tmp_path / "d.npy"), str(out), repr(float(hard_of(1e-9, D))),
+                        repr(list(HIST_EDGES))], check=True, env=env)
+        with np.load(out) as got:
+            for key, value in here.items():
+                assert np.array_equal(got[key], np.asarray(value), equal_nan=True), (threads, key)
