@@ -40,8 +40,10 @@ _LAZY = {
     "find_suspects": "seqdist.audit.suspects",
     "AuditReport": "seqdist.audit.report",
     "RepairResult": "seqdist.repair.engine",
+    "RepairReport": "seqdist.repair.result",
     "build_tree": "seqdist.trees.build",
     "ImpactResult": "seqdist.impact.compare",
+    "ImpactReport": "seqdist.impact.result",
     "run_job": "seqdist.pipeline",
 }
 

@@ -119,7 +119,8 @@ def _help(command: str) -> str:
 def test_cli_choices_are_the_registry_names():
     from seqdist import simulate
 
-    assert tuple(_options("distances")["--model"].choices) == models.MODEL_NAMES
+    for command in ("distances", "run", "impact"):
+        assert tuple(_options(command)["--model"].choices) == models.MODEL_NAMES
     tr = _options("scores")["--transform"]
     assert tuple(tr.choices) == tuple(score_mx.TRANSFORMS) and tr.default == score_mx.DEFAULT_TRANSFORM
     fo = _options("pairscores")["--formula"]

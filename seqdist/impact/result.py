@@ -20,7 +20,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from seqdist.repair.result import nested, optional, present_with, record_dict, record_from_dict
+from seqdist.core.records import nested, optional, present_with, record_dict, record_from_dict
 
 __all__ = ["EntryChange", "SplitSupport", "BootstrapSupport", "RemedyRow", "RemedyTable", "ImpactReport"]
 

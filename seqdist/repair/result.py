@@ -11,118 +11,19 @@ A few keys are written only in some cases (``violated_after_by`` above 1000
 taxa; ``violated_before_leaving_out`` when taxa were left out on request; the
 ``leave_out_*`` figures with ``leave_out="fewest"``). Their fields are None when
 the key is absent, and :meth:`~RepairReport.to_dict` leaves them out; a key
-that is present never holds null. The same rules (:func:`record_dict`,
-:func:`record_from_dict`) serve the impact report (:mod:`seqdist.impact.result`).
+that is present never holds null. The rules that make the document live in
+:mod:`seqdist.core.records` and serve the impact report too.
 """
 
 from __future__ import annotations
 
-import dataclasses
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
-__all__ = ["RepairReport", "optional", "present_with", "nested", "record_dict", "record_from_dict"]
+from seqdist.core.records import optional, record_dict, record_from_dict
 
-
-# ------------------------------------------------------- records <-> JSON documents
-def optional(**kwargs):
-    """A field whose key is written only when its value is not None (None means "absent")."""
-    return field(default=None, metadata={"optional": True, **kwargs.pop("metadata", {})}, **kwargs)
+__all__ = ["RepairReport"]
 
 
-def present_with(anchor: str):
-    """A field whose key is written exactly when field ``anchor`` is not None (its own value may be None)."""
-    return field(default=None, metadata={"present_with": anchor})
-
-
-def nested(record, many: bool = False, is_optional: bool = False):
-    """A field holding a record (``many``: a list of records) written as its own dict."""
-    meta = {"record": record, "many": many}
-    if is_optional:
-        return field(default=None, metadata={**meta, "optional": True})
-    return field(metadata=meta)
-
-
-def _written(record, f) -> bool:
-    if f.metadata.get("optional") and getattr(record, f.name) is None:
-        return False
-    anchor = f.metadata.get("present_with")
-    return anchor is None or getattr(record, anchor) is not None
-
-
-def _plain(value):
-    if dataclasses.is_dataclass(value) and not isinstance(value, type):
-        return record_dict(value)
-    if isinstance(value, list):
-        return [_plain(v) for v in value]
-    if isinstance(value, dict):
-        return {k: _plain(v) for k, v in value.items()}
-    return value
-
-
-def record_dict(record) -> dict:
-    """The JSON document of a report record: its fields in order, absent optional keys left out.
-
-    Lists and dicts are copied (changing the document does not change the
-    record); nested records become dicts.
-
-    Examples
-    --------
-    >>> from dataclasses import dataclass
-    >>> @dataclass(kw_only=True)
-    ... class R:
-    ...     a: int
-    ...     b: int | None = optional()
-    >>> record_dict(R(a=1)), record_dict(R(a=1, b=2))
-    ({'a': 1}, {'a': 1, 'b': 2})
-    """
-    return {f.name: _plain(getattr(record, f.name)) for f in dataclasses.fields(record) if _written(record, f)}
-
-
-def record_from_dict(cls, data: dict, what: str | None = None):
-    """The record of class ``cls`` from its JSON document (the inverse of :func:`record_dict`).
-
-    Raises
-    ------
-    ValueError
-        A key the record does not have, or a key it always writes missing.
-
-    Examples
-    --------
-    >>> from dataclasses import dataclass
-    >>> @dataclass(kw_only=True)
-    ... class R:
-    ...     a: int
-    ...     b: int | None = optional()
-    >>> record_from_dict(R, {"a": 1})
-    R(a=1, b=None)
-    >>> record_from_dict(R, {"a": 1, "c": 3})
-    Traceback (most recent call last):
-    ...
-    ValueError: R: unknown key 'c'
-    """
-    what = what or cls.__name__
-    fields = {f.name: f for f in dataclasses.fields(cls)}
-    unknown = [k for k in data if k not in fields]
-    if unknown:
-        raise ValueError(f"{what}: unknown key {unknown[0]!r}")
-    kwargs = {}
-    for name, f in fields.items():
-        if name not in data:
-            if f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING:
-                raise ValueError(f"{what}: key {name!r} is missing")
-            continue
-        value = data[name]
-        record = f.metadata.get("record")
-        if record is not None and value is not None:
-            if f.metadata.get("many"):
-                value = [record_from_dict(record, v, f"{what}.{name}") for v in value]
-            else:
-                value = record_from_dict(record, value, f"{what}.{name}")
-        kwargs[name] = value
-    return cls(**kwargs)
-
-
-# ------------------------------------------------------------------ the repair's report
 @dataclass(frozen=True, kw_only=True)
 class RepairReport:
     """What a repair did, one field per key of the ``repair --json`` document (in its order).

@@ -149,7 +149,7 @@ def bench_planted(sizes, seeds, general_max_n, general_limit):
                         t = time.perf_counter()
                         r = repair(D, obj, progress=False)
                         dt = time.perf_counter() - t
-                        rep = r.report
+                        rep = r.report.to_dict()
                         lb = rep["lower_bound"]
                         ratio = rep["objective_value"] / lb if lb > 0 else 1.0
                         gen = ("-", "-", "-", "-")
@@ -185,10 +185,10 @@ def bench_noise(sizes, sigmas, seeds, exact_limit):
                 D = noisy(n, s, seed)
                 for obj in ("fewest", "grow"):
                     t = time.perf_counter()
-                    h = repair(D, obj, method="heuristic", progress=False).report
+                    h = repair(D, obj, method="heuristic", progress=False).report.to_dict()
                     th = time.perf_counter() - t
                     t = time.perf_counter()
-                    e = repair(D, obj, method="exact", time_limit=exact_limit, progress=False).report
+                    e = repair(D, obj, method="exact", time_limit=exact_limit, progress=False).report.to_dict()
                     te = time.perf_counter() - t
                     ratio = h["objective_value"] / e["objective_value"] if e["objective_value"] else 1.0
                     if e["optimal"]:

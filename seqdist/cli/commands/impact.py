@@ -11,6 +11,7 @@ from seqdist.cli.commands._shared import (
     positive_float,
     positive_int,
 )
+from seqdist.models.registry import MODEL_NAMES
 from seqdist.trees.build import METHODS
 
 
@@ -57,7 +58,8 @@ def register(subs, common):
     g.add_argument("--alignment", metavar="ALN", default=None, help="the alignment the BEFORE matrix came from")
     g.add_argument("--bootstrap", metavar="B", type=nonneg_int, default=0,
                    help="number of column resamples (e.g. 100)")
-    g.add_argument("--model", default=None, help="distance model for the replicates (as for 'seqdist distances')")
+    g.add_argument("--model", default=None, type=str.lower, choices=MODEL_NAMES,
+                   help="distance model for the replicates (as for 'seqdist distances')")
     g.add_argument("--gamma", metavar="ALPHA", type=positive_float, default=None, help="gamma shape for the model")
     g.add_argument("--gaps", choices=("pairwise", "complete"), default="pairwise",
                    help="gap handling for the replicates (default: pairwise)")

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 from seqdist.cli.commands._shared import add_seed, add_subcommand, nonneg_int, positive_float, positive_int
+from seqdist.io.alignment import alignment_format_help
+from seqdist.models.registry import MODEL_NAMES
 from seqdist.pipeline import DEFAULT_OBJECTIVE
 from seqdist.repair.registry import OBJECTIVES
 from seqdist.trees.build import METHODS
@@ -43,9 +45,10 @@ def register(subs, common):
         "  seqdist run example_sequences/dna_trouble.fasta --outdir results/dna_trouble_kept --keep-unmeasured")
     p.add_argument("alignment", help="alignment file (FASTA, Clustal, Stockholm, NEXUS, PHYLIP...)")
     p.add_argument("--outdir", required=True, metavar="DIR", help="output folder (created if needed)")
-    p.add_argument("--in-format", default=None, help="alignment format (default: from the extension or content)")
+    p.add_argument("--in-format", default=None, help=alignment_format_help())
     p.add_argument("--alphabet", choices=("auto", "dna", "protein"), default="auto", help="default: auto")
-    p.add_argument("--model", default=None, help="distance model (default: k80 for DNA, poisson for protein)")
+    p.add_argument("--model", default=None, type=str.lower, choices=MODEL_NAMES,
+                   help="distance model (default: k80 for DNA, poisson for protein)")
     p.add_argument("--gamma", metavar="ALPHA", type=positive_float, default=None,
                    help="gamma shape for rate variation")
     p.add_argument("--gaps", choices=("pairwise", "complete"), default="pairwise", help="default: pairwise")
