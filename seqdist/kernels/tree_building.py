@@ -43,8 +43,8 @@ def nj_kernel(D: np.ndarray, V: np.ndarray, bionj: bool, sorted_rows: bool):
     D : numpy.ndarray
         Writable C-contiguous float64 (n, n) distances, complete; overwritten.
     V : numpy.ndarray
-        BIONJ's variances, initially a copy of ``D`` (overwritten); any
-        (1, 1) float64 array when ``bionj`` is false.
+        BIONJ's variances, initially a copy of ``D`` (overwritten); not
+        read when ``bionj`` is false (pass anything, e.g. ``np.zeros((1, 1))``).
     bionj : bool
         BIONJ's variance-weighted reduction instead of neighbor joining's.
     sorted_rows : bool
@@ -76,9 +76,7 @@ def nj_kernel(D: np.ndarray, V: np.ndarray, bionj: bool, sorted_rows: bool):
         if V.shape != D.shape:
             raise ValueError("V must have the shape of D")
     else:
-        V = np.asarray(V, dtype=np.float64)
-        if V.ndim != 2 or not V.flags.c_contiguous:
-            V = np.zeros((1, 1))
+        V = np.zeros((1, 1))  # not read
     return _nj(D, V, bool(bionj), bool(sorted_rows))
 
 

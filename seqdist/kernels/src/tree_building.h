@@ -3,11 +3,14 @@
  * Row minima, written with GCC/clang vector types (four doubles: two SSE2 registers on the
  * baseline build, one AVX2 register on the other): GCC does not turn a running minimum
  * into SIMD code on its own (a loop-carried dependence it will not reorder without
- * -ffast-math). Only the minimum value is returned: a minimum is exact, so the order of
- * the comparisons cannot change it, apart from the sign of a zero, which no caller can
- * see (they only compare it). Each term is rounded as written (the build does not
- * contract a*b+c), so a value here equals the one the exact scan computes.
- * Other compilers get the plain loops. */
+ * -ffast-math). A minimum is exact, so the order of the comparisons cannot change it,
+ * apart from the sign of a zero, which no caller can see (they only compare it). Each
+ * term is rounded as written (the build does not contract a*b+c), so a value here equals
+ * the one a plain loop computes. Sums keep their left-to-right order. Other compilers
+ * get the plain loops.
+ *
+ * The column writes touch one cache line per row, rows n doubles apart: no hardware
+ * prefetcher follows that stride, so the rows a few steps ahead are asked for early. */
 #ifndef SEQDIST_TREE_BUILDING_H
 #define SEQDIST_TREE_BUILDING_H
 #include <math.h>
@@ -16,11 +19,26 @@
 #include "simd.h"
 
 #if defined(__GNUC__)
+#define SD_TB_INLINE static inline __attribute__((always_inline))
+#else
+#define SD_TB_INLINE static inline
+#endif
+
+#if defined(__GNUC__)
 typedef double sd_tb_v4d __attribute__((vector_size(32)));
 typedef int64_t sd_tb_v4l __attribute__((vector_size(32)));
 /* per lane a < b ? a : b (b when either is NaN) */
 #define SD_TB_VMIN(a, b) ((sd_tb_v4d)((((sd_tb_v4l)(a)) & ((a) < (b))) | (((sd_tb_v4l)(b)) & ~((a) < (b)))))
 #endif
+
+/* a hint that *p will be read soon (nothing where the compiler has no such hint) */
+static inline void sd_prefetch(const void *p) {
+#if defined(__GNUC__)
+    __builtin_prefetch(p, 0, 3);
+#else
+    (void)p;
+#endif
+}
 
 /* min over b < a of c * row[b] - (ra + R[b]) (INFINITY when a = 0). */
 SEQDIST_SIMD static double sd_nj_row_qmin(const double *restrict row, const double *restrict R, int64_t a,
@@ -92,8 +110,7 @@ static void sd_row_sums(const double *restrict d, int64_t stride, int64_t m, dou
 /* min of x[b] + pen[b] over b in [0, len): pen is 0.0 for a live column, +inf for a dead one
  * (x[b] + 0.0 is x[b], a zero's sign aside), NaN sums ignored (INFINITY when there is none).
  * Inlined into the function below, so it is built for each of its targets. */
-static inline __attribute__((always_inline)) double sd_tb_min_pen(const double *restrict x,
-                                                                   const double *restrict pen, int64_t len) {
+SD_TB_INLINE double sd_tb_min_pen(const double *restrict x, const double *restrict pen, int64_t len) {
     double m = INFINITY;
     int64_t b = 0;
 #if defined(__GNUC__)
@@ -207,5 +224,47 @@ SEQDIST_SIMD static void sd_upgma_merge_row(double *restrict di, const double *r
                                             double sj) {
     const double s = si + sj;
     for (int64_t k = 0; k < p; k++) di[k] = (si * di[k] + sj * dj[k]) / s;
+}
+
+/* UPGMA: the merged cluster's row di (slot i) copied into column i of the live rows k other
+ * than i and j (d row-major with row stride n; live holds m slots), and stale[k] set when row
+ * k's cached neighbour was i or j. Each write lands in a different row, so the rows a few
+ * steps ahead are asked for early (the write is the costly part at large n). */
+static void sd_upgma_write_column(double *restrict d, int64_t n, const int64_t *restrict live, int64_t m,
+                                  int64_t i, int64_t j, const double *restrict di, const int64_t *restrict nbs,
+                                  unsigned char *restrict stale) {
+    for (int64_t t = 0; t < m; t++) {
+        int64_t k = live[t];
+#if defined(__GNUC__)
+        if (t + 16 < m) __builtin_prefetch(d + live[t + 16] * n + i, 1, 0);
+#endif
+        stale[k] = nbs[k] == i || nbs[k] == j;
+        if (k != i && k != j) d[k * n + i] = di[k];
+    }
+}
+
+/* Neighbor joining: the columns of rows k < m other than i and j, in one pass over the rows
+ * (d row-major with row stride n): column i gets the new cluster's values newd[k]; when the
+ * last slot moves into the freed slot j (j != last), column j gets column last. Each row is
+ * a different cache line far from the last one, so rows a few steps ahead are asked for early. */
+static void sd_nj_write_columns(double *restrict d, int64_t n, int64_t m, int64_t i, int64_t j, int64_t last,
+                                const double *restrict newd) {
+    const int move = j != last;
+    for (int64_t k = 0; k < m; k++) {
+#if defined(__GNUC__)
+        if (k + 16 < m) {
+            double *ahead = d + (k + 16) * n;
+            __builtin_prefetch(ahead + i, 1, 0);
+            if (move) {
+                __builtin_prefetch(ahead + j, 1, 0);
+                __builtin_prefetch(ahead + last, 0, 0);
+            }
+        }
+#endif
+        if (k == i || k == j) continue;
+        double *dk = d + k * n;
+        dk[i] = newd[k];
+        if (move) dk[j] = dk[last];
+    }
 }
 #endif
