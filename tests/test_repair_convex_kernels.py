@@ -250,3 +250,156 @@ def test_clamp_free_moves_towards_target_and_keeps_a_metric():
     others = [k for k in range(n) if k not in (0, 1)]
     assert np.isclose(Y[0, 1], min(before[0, k] + before[k, 1] for k in others))
     assert Y[2, 5] >= 0 and Y[2, 5] < before[2, 5]
+
+
+# ---------------------------------------------------------------- references added with the port off numba
+
+
+def ref_merge(ka, la, kb):
+    # plain sets: keep what has a positive dual or is violated again; new keys get dual 0
+    old = dict(zip(ka.tolist(), la.tolist()))
+    keep = {k: v for k, v in old.items() if v > 0 or k in set(kb.tolist())}
+    new = [k for k in kb.tolist() if k not in old]
+    keep.update({k: 0.0 for k in new})
+    keys = sorted(keep)
+    return keys, [keep[k] for k in keys], len(new)
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_merge_active_matches_plain_sets(seed):
+    rng = np.random.default_rng(seed)
+    pool = np.unique(rng.integers(0, 400, 300))
+    ka = np.sort(rng.choice(pool, pool.size // 2, replace=False)).astype(np.int64)
+    la = rng.uniform(size=ka.size) * (rng.uniform(size=ka.size) < 0.5)
+    kb = np.sort(rng.choice(pool, pool.size // 3, replace=False)).astype(np.int64)
+    ko, lo, added = K.merge_active(ka, la, kb)
+    keys, duals, n_new = ref_merge(ka, la, kb)
+    assert ko.tolist() == keys and lo.tolist() == duals and added == n_new
+
+
+def ref_hildreth_sweep_omega(keys, lam, x, winv, forward, omega):
+    # Hildreth (1957) with an over-relaxed step (common practice, SOR): the kernel's update in either order
+    i, j, k, s = K.decode(keys)
+    order = range(keys.size) if forward else range(keys.size - 1, -1, -1)
+    for t in order:
+        e = [(i[t], j[t]), (i[t], k[t]), (j[t], k[t])]
+        L = e.pop(s[t])
+        den = winv[L] + winv[e[0]] + winv[e[1]]
+        if den == 0:
+            continue
+        v = x[L] - x[e[0]] - x[e[1]]
+        new = max(0.0, lam[t] + omega * v / den)
+        dl = new - lam[t]
+        lam[t] = new
+        x[L] -= dl * winv[L]
+        x[e[0]] += dl * winv[e[0]]
+        x[e[1]] += dl * winv[e[1]]
+
+
+@pytest.mark.parametrize("omega", [1.0, 1.6])
+def test_l2_sweeps_in_both_orders_match_the_reference(omega):
+    # several sweeps from duals partly zero, so satisfied constraints with a zero dual (left alone)
+    # and positive duals driven back to zero both occur
+    rng = np.random.default_rng(11)
+    n = 10
+    d = np.triu(rand_sym(rng, n), 1)
+    winv = np.triu(rng.uniform(0.2, 3, (n, n)), 1)
+    winv[1, 2] = 0.0
+    keys = K.violated_triangles(d, np.ones((n, n), bool), True, -0.5)  # satisfied ones too
+    lam0 = rng.uniform(0, 0.05, keys.size) * (rng.uniform(size=keys.size) < 0.3)
+    lam1, x1 = lam0.copy(), d.copy()
+    xw = np.stack([d, winv], axis=-1).copy()
+    lam2 = lam0.copy()
+    for s in range(4):
+        ref_hildreth_sweep_omega(keys, lam1, x1, winv, s % 2 == 0, omega)
+        K.sweep_l2_tri(keys, lam2, xw, s % 2 == 0, omega)
+    assert np.allclose(lam1, lam2, rtol=1e-12, atol=1e-14)
+    assert np.allclose(x1, xw[:, :, 0], rtol=1e-12, atol=1e-14)
+    assert (lam2 == 0).any() and (lam2 > 0).any()
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_l1_cycle_line_search_is_the_exact_maximiser(seed):
+    # a cycle of 4 or 5 edges, long edge first: the step maximises the same 1-d dual as for triangles
+    rng = np.random.default_rng(100 + seed)
+    m = 4 + seed % 2
+    N = m + 1
+    edges = np.arange(m, dtype=np.int64)  # flat indices into arrays of N * N entries (any distinct ones)
+    cf = np.zeros(N * N)
+    cf[:m] = rng.normal(0, 1, m)
+    Af = np.zeros(N * N)
+    Af[:m] = rng.normal(0, 0.3, m)
+    df = np.zeros(N * N)
+    df[:m] = rng.uniform(0, 1, m)
+    df[0] = 3.0  # violated
+    iwf = np.zeros(N * N)
+    iwf[:m] = rng.uniform(0.1, 2, m)
+    if seed % 4 == 3:
+        iwf[2] = 0.0  # a locked edge
+    h = float(rng.uniform(0.1, 2))
+    lam0 = float(rng.uniform(0, 1)) if seed % 2 else 0.0
+    lam = np.array([lam0])
+    c_new = cf.copy()
+    K.sweep_l1_cyc(np.array([0, m], np.int64), edges, lam, c_new, Af, df, iwf, h)
+    t_kernel = lam[0] - lam0
+    sg = [1] + [-1] * (m - 1)
+    args = (cf[:m].tolist(), Af[:m].tolist(), df[:m].tolist(), iwf[:m].tolist(), sg, h)
+    r = minimize_scalar(lambda t: -prox_dual_1d(t, *args), bounds=(-lam0, 50), method="bounded",
+                        options={"xatol": 1e-10})
+    assert prox_dual_1d(t_kernel, *args) >= prox_dual_1d(r.x, *args) - 1e-7
+    assert lam[0] >= 0
+    # c moved by the step along the constraint's row
+    assert np.allclose(c_new[:m] - cf[:m], t_kernel * np.array(sg))
+
+
+def ref_dijkstra_pred(W, s):
+    # textbook dense Dijkstra (Dijkstra 1959): settle the smallest tentative distance, the lowest
+    # index on a tie; a distance drops only when strictly shorter
+    n = W.shape[0]
+    dist = [np.inf] * n
+    pred = [-1] * n
+    done = [False] * n
+    dist[s] = 0.0
+    for _ in range(n):
+        cand = [v for v in range(n) if not done[v] and dist[v] < np.inf]
+        if not cand:
+            break
+        u = min(cand, key=lambda v: (dist[v], v))
+        done[u] = True
+        for v in range(n):
+            if not done[v] and dist[u] + W[u, v] < dist[v]:
+                dist[v] = dist[u] + W[u, v]
+                pred[v] = u
+    return pred
+
+
+@pytest.mark.parametrize("seed", range(5))
+def test_violated_cycles_follow_the_textbook_dijkstra_on_ties(seed):
+    # small integer lengths and zeros make many shortest paths of equal length: the kernel must pick
+    # the same one as the plain Dijkstra, edge for edge
+    rng = np.random.default_rng(200 + seed)
+    n = 12
+    W = rng.integers(0, 3, (n, n)).astype(float)
+    W[rng.uniform(size=(n, n)) < 0.5] = np.inf
+    W = np.minimum(W, W.T)
+    np.fill_diagonal(W, 0.0)
+    src = np.repeat(np.arange(n), n).astype(np.int64)
+    dst = np.tile(np.arange(n), n).astype(np.int64)
+    keep = src != dst
+    src, dst = src[keep], dst[keep]
+    ptr, edges = K.violated_cycles(W, src, dst, 2)
+    want = []
+    for s in range(n):
+        pred = ref_dijkstra_pred(W, s)
+        for t in range(n):
+            if t == s:
+                continue
+            path = [t]
+            while path[-1] != s and pred[path[-1]] >= 0:
+                path.append(pred[path[-1]])
+            if path[-1] != s or len(path) < 3:
+                continue
+            a, b = min(s, t), max(s, t)
+            want.append([a * n + b] + [min(u, v) * n + max(u, v) for u, v in zip(path, path[1:])])
+    got = [edges[ptr[q]:ptr[q + 1]].tolist() for q in range(ptr.size - 1)]
+    assert got == want and len(want) > 20

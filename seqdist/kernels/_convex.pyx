@@ -14,6 +14,7 @@ Each ``name_c`` here is the loop of ``name`` in convex.py.
 """
 
 from cython.parallel cimport prange
+from openmp cimport omp_get_max_threads, omp_get_thread_num
 from libc.math cimport INFINITY, fabs
 from libc.stdint cimport int64_t
 from libc.stdlib cimport free, malloc, realloc
@@ -24,8 +25,9 @@ import numpy as np
 cdef extern from "src/convex.h" nogil:
     int64_t sd_cvx_count_row(const double* x, const unsigned char* gm, int64_t n, int full, double thr, int64_t i)
     int64_t sd_cvx_fill_row(const double* x, const unsigned char* gm, int64_t n, int full, double thr, int64_t i,
-                            int64_t* out)
+                            int64_t* out, int64_t* buf)
     double sd_cvx_blend_row(const double* Y, const double* Z, int64_t n, int64_t i, double best)
+    void sd_cvx_dijkstra(const double* W, int64_t n, int64_t s, int64_t* pred, double* dist)
 
 
 # ------------------------------------------------------------ key helpers
@@ -72,22 +74,27 @@ def scan_count_c(const double[:, ::1] x, const unsigned char[:, ::1] gm, bint fu
 
 
 def scan_fill_c(const double[:, ::1] x, const unsigned char[:, ::1] gm, bint full, double thr, Py_ssize_t nb,
-              const int64_t[::1] offs, int64_t[::1] out):
-    """Write row ``i``'s keys (sorted) to ``out[offs[i]:offs[i + 1]]``."""
+                const int64_t[::1] offs, int64_t[::1] out):
+    """Write row ``i``'s keys (sorted) to ``out[offs[i]:offs[i + 1]]`` (rows with none are skipped)."""
     cdef Py_ssize_t n = x.shape[0], b, i
     cdef const double* px
     cdef const unsigned char* pg
     cdef int64_t* po
+    cdef int64_t* pb
+    cdef int64_t[:, ::1] scratch
     if n == 0 or out.shape[0] == 0:
         return
+    # one scratch row per thread (3 keys per k of one (i, j))
+    scratch = np.empty((omp_get_max_threads(), 3 * n + 3), np.int64)
     px = &x[0, 0]
     pg = &gm[0, 0]
     po = &out[0]
     for b in prange(nb, nogil=True, schedule="dynamic", chunksize=1):
+        pb = &scratch[omp_get_thread_num(), 0]
         i = b
         while i < n:
             if offs[i + 1] > offs[i]:
-                sd_cvx_fill_row(px, pg, n, full, thr, i, po + offs[i])
+                sd_cvx_fill_row(px, pg, n, full, thr, i, po + offs[i], pb)
             i = i + nb
 
 
@@ -126,6 +133,10 @@ def sweep_l2_tri_c(const int64_t[::1] keys, double[::1] lam, double[:, :, ::1] x
     cdef int64_t n = xw.shape[1], e0, e1, e2
     cdef double* p
     cdef double big = 0.0, w0, w1, w2, den, v, lt, nl, dl, ch
+    # With a zero dual, a satisfied constraint (v <= 0) and a positive finite step and denominator,
+    # the new dual 0 + omega * v / den is <= 0 and is clipped to 0: nothing changes, so the
+    # division is skipped (most of the pool is inactive). NaN never takes the shortcut.
+    cdef bint shortcut = 0.0 < omega < INFINITY
     if m == 0:
         return big
     p = &xw[0, 0, 0]
@@ -144,6 +155,8 @@ def sweep_l2_tri_c(const int64_t[::1] keys, double[::1] lam, double[:, :, ::1] x
                 continue
             v = p[e0] - p[e1] - p[e2]
             lt = lam[t]
+            if lt == 0.0 and v <= 0.0 and shortcut and 0.0 < den < INFINITY:
+                continue
             nl = lt + omega * v / den
             if nl < 0.0:
                 nl = 0.0
@@ -458,37 +471,6 @@ def denominators_tri_c(const int64_t[::1] keys, const double[:, ::1] winv, doubl
 
 
 # ------------------------------------------------------------ cycles through absent entries
-cdef void dijkstra(const double* W, Py_ssize_t n, Py_ssize_t s, double* dist, int64_t* pred,
-                   unsigned char* done) noexcept nogil:
-    # Dense O(n^2) Dijkstra; W[i, j] = inf for an absent edge, zeros allowed. Ties go to the
-    # lowest index (strict comparisons), as in seqdist.kernels.kept_graph.
-    cdef Py_ssize_t it, v, u
-    cdef double best, nd
-    cdef const double* row
-    for v in range(n):
-        dist[v] = INFINITY
-        pred[v] = -1
-        done[v] = 0
-    dist[s] = 0.0
-    for it in range(n):
-        u = -1
-        best = INFINITY
-        for v in range(n):
-            if not done[v] and dist[v] < best:
-                best = dist[v]
-                u = v
-        if u < 0:
-            break
-        done[u] = 1
-        row = W + u * n
-        for v in range(n):
-            if not done[v]:
-                nd = best + row[v]
-                if nd < dist[v]:
-                    dist[v] = nd
-                    pred[v] = u
-
-
 cdef int grow(int64_t** buf, Py_ssize_t* cap, Py_ssize_t need) noexcept nogil:
     # make room for `need` items in a malloc'd buffer; 0 on failure
     cdef Py_ssize_t c = cap[0]
@@ -512,7 +494,6 @@ def violated_cycles_c(const double[:, ::1] W, const int64_t[::1] src, const int6
     cdef bint ok, failed = False
     cdef double* dist = NULL
     cdef int64_t* pred = NULL
-    cdef unsigned char* done = NULL
     cdef int64_t* path = NULL
     cdef int64_t* eb = NULL
     cdef int64_t* pb = NULL
@@ -520,9 +501,8 @@ def violated_cycles_c(const double[:, ::1] W, const int64_t[::1] src, const int6
     try:
         dist = <double*> malloc((n + 1) * sizeof(double))
         pred = <int64_t*> malloc((n + 1) * sizeof(int64_t))
-        done = <unsigned char*> malloc(n + 1)
         path = <int64_t*> malloc((n + 2) * sizeof(int64_t))
-        if dist == NULL or pred == NULL or done == NULL or path == NULL or not grow(&pb, &pcap, 1):
+        if dist == NULL or pred == NULL or path == NULL or not grow(&pb, &pcap, 1):
             raise MemoryError()
         pb[0] = 0
         if n > 0:
@@ -532,7 +512,7 @@ def violated_cycles_c(const double[:, ::1] W, const int64_t[::1] src, const int6
                     s = src[q]
                     t = dst[q]
                     if s != cur:
-                        dijkstra(pW, n, s, dist, pred, done)
+                        sd_cvx_dijkstra(pW, n, s, pred, dist)
                         cur = s
                     # path t -> s
                     path[0] = t
@@ -577,7 +557,6 @@ def violated_cycles_c(const double[:, ::1] W, const int64_t[::1] src, const int6
     finally:
         free(dist)
         free(pred)
-        free(done)
         free(path)
         free(eb)
         free(pb)

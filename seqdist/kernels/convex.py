@@ -67,6 +67,14 @@ def _f64(a) -> np.ndarray:
     return np.ascontiguousarray(a, dtype=np.float64)
 
 
+def _same_square(name: str, *arrays) -> None:
+    # the loops index n x n arrays without bounds checks: the shapes are checked here, once per call
+    n = arrays[0].shape[0]
+    for a in arrays:
+        if a.shape[:2] != (n, n):
+            raise ValueError(f"{name}: expected ({n}, {n}) arrays, got {a.shape}")
+
+
 # ------------------------------------------------------------ key helpers
 def encode(i, j, k, s):
     """Keys of triangle constraints (vectorised; ``i < j < k``, ``s`` the long side).
@@ -110,10 +118,11 @@ def violated_triangles(x: np.ndarray, gm: np.ndarray, full: bool, thr: float) ->
     array([0])
     """
     x = _f64(x)
+    g = np.ascontiguousarray(gm, dtype=np.bool_).view(np.uint8)
+    _same_square("violated_triangles", x, g)
     n = x.shape[0]
     if n < 3:
         return np.empty(0, np.int64)
-    g = np.ascontiguousarray(gm, dtype=np.bool_).view(np.uint8)
     nb = min(n, 64)
     cnt = np.zeros(n, np.int64)
     scan_count_c(x, g, bool(full), float(thr), nb, cnt)
@@ -163,6 +172,9 @@ def sweep_l2_tri(keys, lam, xw, forward, omega) -> float:
     >>> sweep_l2_tri(encode([0], [1], [2], [0]), lam, xw, True, 1.0), xw[:, :, 0][np.triu_indices(3, 1)].tolist()
     (4.0, [2.666666666666667, 1.3333333333333333, 1.3333333333333333])
     """
+    if xw.ndim != 3 or xw.shape[2] != 2:
+        raise ValueError(f"sweep_l2_tri: expected an (n, n, 2) array, got {xw.shape}")
+    _same_square("sweep_l2_tri", xw)
     return sweep_l2_tri_c(_i64(keys), lam, xw, bool(forward), float(omega))
 
 
@@ -198,7 +210,9 @@ def sweep_l1_tri(keys, lam, c, A, d, iw, h) -> float:
     >>> sweep_l1_tri(encode([0], [1], [2], [0]), lam, c, np.zeros((3, 3)), d, np.triu(np.ones((3, 3)), 1), 1.0)
     1.6666666666666665
     """
-    return sweep_l1_tri_c(_i64(keys), lam, c, _f64(A), _f64(d), _f64(iw), float(h))
+    A, d, iw = _f64(A), _f64(d), _f64(iw)
+    _same_square("sweep_l1_tri", c, A, d, iw)
+    return sweep_l1_tri_c(_i64(keys), lam, c, A, d, iw, float(h))
 
 
 def sweep_l1_cyc(ptr, edges, lam, cf, Af, df, iwf, h) -> float:
@@ -226,6 +240,7 @@ def accumulate_tri(keys, lam, c) -> None:
     >>> c[np.triu_indices(3, 1)].tolist()
     [-2.0, 2.0, -2.0]
     """
+    _same_square("accumulate_tri", c)
     accumulate_tri_c(_i64(keys), _f64(lam), c)
 
 
@@ -251,9 +266,10 @@ def apply_tri(keys, y) -> np.ndarray:
     >>> apply_tri(encode([0, 0], [1, 1], [2, 2], [0, 2]), y).tolist()
     [3.0, -5.0]
     """
-    keys = _i64(keys)
+    keys, y = _i64(keys), _f64(y)
+    _same_square("apply_tri", y)
     r = np.empty(keys.size)
-    apply_tri_c(keys, _f64(y), r)
+    apply_tri_c(keys, y, r)
     return r
 
 
@@ -279,9 +295,10 @@ def denominators_tri(keys, winv) -> np.ndarray:
     >>> denominators_tri(encode([0], [1], [2], [0]), np.triu(np.full((3, 3), 0.5), 1)).tolist()
     [1.5]
     """
-    keys = _i64(keys)
+    keys, winv = _i64(keys), _f64(winv)
+    _same_square("denominators_tri", winv)
     r = np.empty(keys.size)
-    denominators_tri_c(keys, _f64(winv), r)
+    denominators_tri_c(keys, winv, r)
     return r
 
 
@@ -307,7 +324,14 @@ def violated_cycles(W, src, dst, min_edges):
     >>> ptr.tolist(), edges.tolist()
     ([0, 4], [3, 11, 6, 1])
     """
-    return violated_cycles_c(_f64(W), _i64(src), _i64(dst), int(min_edges))
+    W, src, dst = _f64(W), _i64(src), _i64(dst)
+    _same_square("violated_cycles", W)
+    n = W.shape[0]
+    if src.shape != dst.shape:
+        raise ValueError("violated_cycles: src and dst must have one length")
+    if src.size and (min(src.min(), dst.min()) < 0 or max(src.max(), dst.max()) >= n):
+        raise ValueError("violated_cycles: a node index is outside the graph")
+    return violated_cycles_c(W, src, dst, int(min_edges))
 
 
 # ------------------------------------------------------------ turning an iterate into a metric
@@ -324,9 +348,11 @@ def blend_step(Y: np.ndarray, Z: np.ndarray) -> float:
     n = Y.shape[0]
     if n < 3:
         return 0.0
+    Y, Z = _f64(Y), _f64(Z)
+    _same_square("blend_step", Y, Z)
     nb = min(n, 64)
     tb = np.zeros(nb)
-    blend_step_c(_f64(Y), _f64(Z), nb, tb)
+    blend_step_c(Y, Z, nb, tb)
     return float(tb.max())
 
 
@@ -344,4 +370,10 @@ def clamp_free(Y, fi, fj, target) -> None:
     >>> Y.tolist()  # 5 is out of reach: 0-1 stops at the path 0-2-1
     [[0.0, 2.0, 1.0], [2.0, 0.0, 1.0], [1.0, 1.0, 0.0]]
     """
-    clamp_free_c(Y, _i64(fi), _i64(fj), _f64(target))
+    fi, fj, target = _i64(fi), _i64(fj), _f64(target)
+    _same_square("clamp_free", Y)
+    if not fi.shape == fj.shape == target.shape:
+        raise ValueError("clamp_free: fi, fj and target must have one length")
+    if fi.size and (min(fi.min(), fj.min()) < 0 or max(fi.max(), fj.max()) >= Y.shape[0]):
+        raise ValueError("clamp_free: an entry index is outside the matrix")
+    clamp_free_c(Y, fi, fj, target)

@@ -42,9 +42,13 @@ SEQDIST_SIMD static int64_t sd_cvx_count_row(const double *restrict x, const uns
     return c;
 }
 
-/* The keys counted by sd_cvx_count_row, written in sorted order from out[0]; returns how many. */
-static int64_t sd_cvx_fill_row(const double *restrict x, const unsigned char *restrict gm, int64_t n, int full,
-                               double thr, int64_t i, int64_t *restrict out) {
+/* The keys counted by sd_cvx_count_row, written in sorted order from out[0]; returns how many.
+ * Branch-free: for each (i, j) the keys go to buf (room for 3 (n - j) + 3) with a write for every
+ * candidate and a cursor that advances only past violated ones (about half of all triangles can be
+ * violated, so branches would be mispredicted), then are copied to out. */
+SEQDIST_SIMD static int64_t sd_cvx_fill_row(const double *restrict x, const unsigned char *restrict gm, int64_t n,
+                                            int full, double thr, int64_t i, int64_t *restrict out,
+                                            int64_t *restrict buf) {
     const double *xi = x + i * n;
     const unsigned char *gi = gm + i * n;
     int64_t p = 0;
@@ -53,19 +57,24 @@ static int64_t sd_cvx_fill_row(const double *restrict x, const unsigned char *re
         const double xij = xi[j];
         const double *xj = x + j * n;
         const unsigned char *gj = gm + j * n;
+        const int64_t base_ij = (i << 42) | (j << 22);
+        int64_t q = 0;
         for (int64_t k = j + 1; k < n; k++) {
-            if (!full && (!gi[k] || !gj[k])) continue;
             double xik = xi[k], xjk = xj[k];
             double e0 = xij - xik - xjk;
             double e1 = xik - xij - xjk;
             double e2 = xjk - xij - xik;
-            if (e0 > thr || e1 > thr || e2 > thr) {
-                int64_t base = (i << 42) | (j << 22) | (k << 2);
-                if (e0 > thr) out[p++] = base;
-                if (e1 > thr) out[p++] = base | 1;
-                if (e2 > thr) out[p++] = base | 2;
-            }
+            int64_t g = full ? 1 : (int64_t)(gi[k] & gj[k]);
+            int64_t base = base_ij | (k << 2);
+            buf[q] = base;
+            q += (int64_t)(e0 > thr) & g;
+            buf[q] = base | 1;
+            q += (int64_t)(e1 > thr) & g;
+            buf[q] = base | 2;
+            q += (int64_t)(e2 > thr) & g;
         }
+        __builtin_memcpy(out + p, buf, (size_t)q * sizeof(int64_t));
+        p += q;
     }
     return p;
 }
@@ -104,5 +113,71 @@ static double sd_cvx_blend_row(const double *restrict Y, const double *restrict 
         }
     }
     return best;
+}
+typedef double sd_cvx_v4d __attribute__((vector_size(32)));
+typedef int64_t sd_cvx_v4i __attribute__((vector_size(32)));
+
+/* Index of the first smallest of d[0..n) below +inf (-1 if none); NaN entries are never chosen.
+ * Eight lanes keep their own first minimum (strict <) and index; the lanes are then combined by
+ * value and, on a tie, by the smaller index: the same answer as one pass from the left. */
+SEQDIST_SIMD static int64_t sd_cvx_first_min(const double *restrict d, int64_t n, double *best_out) {
+    const sd_cvx_v4d inf4 = {__builtin_inf(), __builtin_inf(), __builtin_inf(), __builtin_inf()};
+    sd_cvx_v4d b0 = inf4, b1 = inf4;
+    sd_cvx_v4i i0 = {-1, -1, -1, -1}, i1 = i0;
+    sd_cvx_v4i k0 = {0, 1, 2, 3}, k1 = {4, 5, 6, 7};
+    const sd_cvx_v4i step = {8, 8, 8, 8};
+    int64_t v = 0;
+    for (; v + 8 <= n; v += 8) {
+        sd_cvx_v4d x0, x1;
+        __builtin_memcpy(&x0, d + v, sizeof x0);
+        __builtin_memcpy(&x1, d + v + 4, sizeof x1);
+        sd_cvx_v4i m0 = x0 < b0, m1 = x1 < b1;
+        b0 = (sd_cvx_v4d)(((sd_cvx_v4i)x0 & m0) | ((sd_cvx_v4i)b0 & ~m0));
+        b1 = (sd_cvx_v4d)(((sd_cvx_v4i)x1 & m1) | ((sd_cvx_v4i)b1 & ~m1));
+        i0 = (k0 & m0) | (i0 & ~m0);
+        i1 = (k1 & m1) | (i1 & ~m1);
+        k0 += step;
+        k1 += step;
+    }
+    double best = __builtin_inf();
+    int64_t u = -1;
+    for (int l = 0; l < 4; l++) {
+        if (b0[l] < best || (b0[l] == best && i0[l] >= 0 && i0[l] < u)) { best = b0[l]; u = i0[l]; }
+        if (b1[l] < best || (b1[l] == best && i1[l] >= 0 && i1[l] < u)) { best = b1[l]; u = i1[l]; }
+    }
+    for (; v < n; v++) {
+        if (d[v] < best) { best = d[v]; u = v; }
+    }
+    *best_out = best;
+    return u;
+}
+
+/* Dense O(n^2) Dijkstra from s over the (n, n) row-major W (inf: no edge; zeros are edges): the
+ * same predecessors as seqdist.kernels.kept_graph's (each round settles the unsettled node of
+ * smallest distance, the lowest index among ties; a node's distance drops only when strictly
+ * shorter). A settled node's distance is set to NaN, which no comparison selects, so both loops
+ * run over whole rows without branches (the relaxation vectorises; the search uses lanes).
+ * dist and pred hold n items; only pred is the answer. */
+SEQDIST_SIMD static void sd_cvx_dijkstra(const double *restrict W, int64_t n, int64_t s, int64_t *restrict pred,
+                                         double *restrict dist) {
+    for (int64_t v = 0; v < n; v++) {
+        dist[v] = __builtin_inf();
+        pred[v] = -1;
+    }
+    dist[s] = 0.0;
+    for (int64_t it = 0; it < n; it++) {
+        double best;
+        int64_t u = sd_cvx_first_min(dist, n, &best);
+        if (u < 0) break;
+        dist[u] = __builtin_nan("");
+        const double *row = W + u * n;
+        for (int64_t v = 0; v < n; v++) {
+            double nd = best + row[v];
+            double dv = dist[v];
+            int upd = nd < dv;
+            dist[v] = upd ? nd : dv;
+            pred[v] = upd ? u : pred[v];
+        }
+    }
 }
 #endif
