@@ -34,6 +34,7 @@ from typing import Sequence
 import numpy as np
 
 from seqdist.core.errors import InputError, ParameterError
+from seqdist.core.params import NONNEG, POSITIVE, Number
 
 DNA_LETTERS = "ACGT"
 PROTEIN_LETTERS = "ACDEFGHIKLMNPQRSTVWY"
@@ -65,6 +66,26 @@ MAX_SATURATE = 1000.0
 #: length x length) times expected columns, since each event costs one pass
 #: over the columns (measured: about 37 ns a column, so 2e9 is about a minute).
 MAX_INDEL_WORK = 2e9
+
+#: The numeric parameters, declared once: the library checks values against
+#: them and the command line makes its option types from them (one range, one
+#: message form; see :mod:`seqdist.core.params`).
+PARAMETERS = {
+    "n_taxa": Number(int, 3, MAX_TAXA),
+    "length": Number(int, 1, MAX_LENGTH),
+    "kappa": POSITIVE,
+    "alpha": POSITIVE,
+    "rate_categories": Number(int, 0, MAX_RATE_CATEGORIES),
+    "scale": Number(float, 0, MAX_SCALE, lo_open=True),
+    "gap_rate": NONNEG,
+    "gap_length": Number(float, 1),
+    "gappy_fraction": Number(float, 0, 1, lo_open=True, hi_open=True),
+    "saturate_length": Number(float, 0, MAX_SATURATE, lo_open=True),
+    "misread_stretches": Number(int, 1, MAX_LENGTH),
+    "misread_length": Number(int, 1, MAX_LENGTH),
+    "contaminant_distance": Number(float, 0, MAX_SATURATE, lo_open=True),
+    "stockholm_taxa": Number(int, 2),
+}
 
 # Branch lengths are rounded to this many decimals when drawn, so the Newick
 # file (written with the same number of decimals) states the simulated tree exactly.
@@ -589,13 +610,9 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
     check_size(n_taxa, length)
     if not prefix or not all(c.isascii() and (c.isalnum() or c == "_") for c in prefix):
         raise InputError(f"label prefix '{prefix}' must be letters, digits or underscores")
-    gap_rate, gap_length = float(gap_rate), float(gap_length)
-    if not np.isfinite(gap_rate) or gap_rate < 0:
-        raise ParameterError("gap_rate", "a non-negative number", gap_rate)
-    if not np.isfinite(gap_length) or gap_length < 1:
-        raise ParameterError("gap_length", "at least 1", gap_length)
-    if not (0 < float(scale) <= MAX_SCALE):
-        raise ParameterError("scale", f"above 0 and at most {MAX_SCALE:g}", scale)
+    gap_rate = PARAMETERS["gap_rate"].check("gap_rate", gap_rate)
+    gap_length = PARAMETERS["gap_length"].check("gap_length", gap_length)
+    PARAMETERS["scale"].check("scale", scale)
     if gap_rate > 0:
         # Expected events: rate x tree length (2n - 2 branches of mean `scale`) x residues.
         events = gap_rate * (2 * n_taxa - 2) * float(scale) * length
@@ -613,9 +630,7 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
     m = make_model(alphabet, model, kappa, freqs)
     cats = None
     if alpha is not None:
-        if int(rate_categories) < 0 or int(rate_categories) > MAX_RATE_CATEGORIES:
-            raise ParameterError("rate_categories", f"0 (continuous) or from 1 to {MAX_RATE_CATEGORIES}",
-                                 rate_categories)
+        PARAMETERS["rate_categories"].check("rate_categories", rate_categories)
         if int(rate_categories) > 0:
             cats = gamma_rates(alpha, int(rate_categories))
         elif not np.isfinite(float(alpha)) or float(alpha) <= 0:
@@ -703,14 +718,8 @@ def check_size(n_taxa: int, length: int) -> None:
     ...
     seqdist.core.errors.ParameterError: parameter 'n_taxa' 1000 x parameter 'length' 1000000 is ...
     """
-    if n_taxa < 3:
-        raise ParameterError("n_taxa", "at least 3", n_taxa)
-    if n_taxa > MAX_TAXA:
-        raise ParameterError("n_taxa", f"at most {MAX_TAXA}", n_taxa)
-    if length < 1:
-        raise ParameterError("length", "at least 1", length)
-    if length > MAX_LENGTH:
-        raise ParameterError("length", f"at most {MAX_LENGTH}", length)
+    PARAMETERS["n_taxa"].check("n_taxa", n_taxa)
+    PARAMETERS["length"].check("length", length)
     if n_taxa * length > MAX_CELLS:
         raise ParameterError.text(f"{{n_taxa}} {n_taxa} x {{length}} {length} is {n_taxa * length} cells, more "
                                   f"than the limit of {MAX_CELLS} (about 0.5 GB of memory)", "n_taxa", "length")

@@ -113,7 +113,7 @@ def test_parameter_errors_name_the_parameter_in_python_and_the_flag_on_the_comma
 
     with pytest.raises(ParameterError) as err:
         simulate(2, 10, seed=1)
-    assert str(err.value) == "parameter 'n_taxa' must be at least 3, got 2"
+    assert str(err.value) == "parameter 'n_taxa' must be an integer from 3 to 20000, got 2"
     with pytest.raises(ParameterError) as err:
         simulate(5, 10, seed=1, gap_rate=1e6)
     assert str(err.value).startswith("parameter 'gap_rate' 1e+06 with parameter 'gap_length' 3 means about")
@@ -123,6 +123,34 @@ def test_parameter_errors_name_the_parameter_in_python_and_the_flag_on_the_comma
     assert p.stderr.startswith("seqdist: error: --gap-rate 1e+06 with --gap-length 3 means about")
     assert p.stderr.rstrip().endswith("lower --gap-rate or --gap-length")
     assert "parameter '" not in p.stderr and not os.path.exists(tmp_path / "a.fasta")
+
+
+@pytest.mark.parametrize("name, flag, value, call", [
+    ("n_taxa", "--taxa", 2, lambda v: __import__("seqdist.simulate").simulate.simulate(v, 10, seed=1)),
+    ("length", "--length", 0, lambda v: __import__("seqdist.simulate").simulate.simulate(5, v, seed=1)),
+    ("scale", "--scale", 0, lambda v: __import__("seqdist.simulate").simulate.simulate(5, 10, seed=1, scale=v)),
+    ("gap_rate", "--gap-rate", -1, lambda v: __import__("seqdist.simulate").simulate.simulate(5, 10, gap_rate=v)),
+])
+def test_a_range_is_declared_once_and_refused_in_the_same_words(tmp_path, name, flag, value, call):
+    # the library and the command line read one declaration (seqdist.core.params.Number), so the
+    # sentence after the parameter's name is the same in both
+    from seqdist.core.errors import ParameterError
+
+    with pytest.raises(ParameterError) as err:
+        call(value)
+    library = str(err.value)
+    assert library.startswith(f"parameter '{name}' must be ")
+    args = {"n_taxa": 5, "length": 10, name: value}
+    argv = ["simulate", "--taxa", args["n_taxa"], "--length", args["length"], "-o", tmp_path / "a.fa",
+            "--tree-out", tmp_path / "t.nwk"]
+    if name not in ("n_taxa", "length"):
+        argv += [flag, value]
+    else:
+        argv[argv.index(flag) + 1] = value
+    p = run_cli(*argv)
+    assert p.returncode == 2 and p.stderr.count("\n") == 1
+    assert p.stderr.startswith(f"seqdist: error: {flag} must be ")
+    assert library.split(" must be ", 1)[1] in p.stderr
 
 
 def test_tree_method_registry_is_what_every_layer_reads():

@@ -252,7 +252,7 @@ def test_matrix_must_cover_every_letter_and_processes_must_be_positive():
                                          r"score matrix tiny .*--matrix"):
         score_distances(["a", "b"], ["ACCA", "ACGA"], TINY, source="s.fa", record_lines=[1, 3], progress=False)
     for bad in (0, -1, 1.5):
-        with pytest.raises(InputError, match="parameter 'processes' must be a whole number of at least 1, got "):
+        with pytest.raises(InputError, match="parameter 'processes' must be an integer >= 1, got "):
             score_distances(["a", "b"], ["MKV", "MKL"], processes=bad, progress=False)
 
 
@@ -282,7 +282,7 @@ def test_cli_processes_must_be_positive(tmp_path, cli, value):
     r = cli("pairscores", fa, "-o", tmp_path / "d.tsv", "--processes", value)
     assert r.returncode == 2
     lines = r.stderr.strip().splitlines()
-    assert len(lines) == 1 and lines[0].startswith("seqdist: error: argument --processes: ")
+    assert len(lines) == 1 and lines[0].startswith("seqdist: error: --processes must be ")
     assert not (tmp_path / "d.tsv").exists()
 
 

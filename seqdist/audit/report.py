@@ -26,8 +26,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from seqdist.core.errors import InputError, ParameterError
+from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix, default_tol
+from seqdist.core.params import Number
 
 __all__ = ["AuditReport", "sample_quartets", "audit"]
 
@@ -48,6 +49,9 @@ DELTA_BINS = 10
 
 _EPS = np.finfo(np.float64).eps
 
+
+#: How many worst triangles, entries and taxa a report lists (one range for the library and ``--top``).
+TOP = Number(int, 0, 1000)
 
 def _comb(n: int, k: int) -> int:
     return math.comb(n, k) if n >= k else 0
@@ -667,8 +671,7 @@ def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
 
     if not isinstance(dm, DistanceMatrix):
         dm = DistanceMatrix.from_array(dm)
-    if top < 0:
-        raise ParameterError("top", "a non-negative whole number", top)
+    top = TOP.check("top", top)
     d = np.ascontiguousarray(dm.values, dtype=np.float64)
     n = dm.n
     finite = d[~np.isnan(d)]

@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import re
 import sys
 
 from seqdist import __version__
@@ -32,6 +33,8 @@ class _Parser(argparse.ArgumentParser):
     """argparse with the project's one-line error format."""
 
     def error(self, message):  # noqa: D401 - argparse API
+        # "argument --tol: must be ..." -> "--tol must be ...": the library's form for the same parameter
+        message = re.sub(r"^argument (--[\w-]+): must be ", r"\1 must be ", message)
         sys.stderr.write(f"seqdist: error: {message} (see '{self.prog} --help')\n")
         sys.exit(2)
 

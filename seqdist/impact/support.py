@@ -31,7 +31,8 @@ import os
 
 import numpy as np
 
-from seqdist.core.errors import InputError, ParameterError
+from seqdist.core.errors import InputError
+from seqdist.core.params import POSITIVE_INT
 from seqdist.impact.result import BootstrapSupport, SplitSupport
 from seqdist.trees.compare import nontrivial, split_labels, splits
 
@@ -203,8 +204,7 @@ def add_support(res, alignment, *, replicates: int, model: str, objective: str, 
     del clamp_negative  # lengths do not enter split support
     if objective not in OBJECTIVES:
         raise InputError(f"unknown repair objective '{objective}' (choose from {', '.join(OBJECTIVES)})")
-    if replicates < 1:
-        raise ParameterError("replicates", "at least 1", replicates)
+    replicates = POSITIVE_INT.check("replicates", replicates)
     if isinstance(alignment, str):
         alignment_path, aln = alignment, read_alignment(alignment)
     else:

@@ -37,8 +37,9 @@ import time
 
 import numpy as np
 
-from seqdist.core.errors import InfeasibleError, InputError, ParameterError
+from seqdist.core.errors import InfeasibleError, InputError
 from seqdist.core.matrix import DistanceMatrix, default_tol
+from seqdist.core.params import NONNEG, POSITIVE
 from seqdist.repair import registry
 from seqdist.repair.problem import RepairProblem, Solution
 
@@ -245,13 +246,9 @@ def build_problem(dm: DistanceMatrix, weights=None, lock=None, tol=None, time_li
     np.fill_diagonal(observed, False)
     if tol is None:
         tol = default_tol(D)
-    tol = float(tol)
-    if not np.isfinite(tol) or tol < 0:
-        raise ParameterError("tol", "a finite non-negative number", tol)
+    tol = NONNEG.check("tol", tol)
     if time_limit is not None:
-        time_limit = float(time_limit)
-        if not (time_limit > 0):
-            raise ParameterError("time_limit", "a positive number of seconds", time_limit)
+        time_limit = POSITIVE.check("time_limit", time_limit)
     w = weights_array(weights, dm, observed, weights_source)
     locked = lock_mask(lock, dm, observed)
     w[locked] = np.inf

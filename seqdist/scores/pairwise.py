@@ -50,7 +50,8 @@ from typing import Sequence
 
 import numpy as np
 
-from seqdist.core.errors import InputError, ParameterError
+from seqdist.core.errors import InputError
+from seqdist.core.params import POSITIVE_INT
 
 
 @dataclass(frozen=True)
@@ -419,8 +420,8 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix=None, *, mod
 
     if alphabet not in ALPHABETS:
         raise InputError(f"unknown alphabet '{alphabet}' (choose from {', '.join(ALPHABETS)})")
-    if processes is not None and (isinstance(processes, bool) or int(processes) != processes or processes < 1):
-        raise ParameterError("processes", "a whole number of at least 1", processes)
+    if processes is not None:
+        processes = POSITIVE_INT.check("processes", processes)
     where = f"{source}: " if source else ""
     kind = guess_alphabet(seqs) if alphabet == "auto" else alphabet
     if matrix is None:

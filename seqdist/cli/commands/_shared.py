@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 
+from seqdist.core import params
 from seqdist.io.matrices import DEFAULT_FORMAT, REGISTRY
 
 
@@ -59,58 +60,15 @@ def add_tol(p: argparse.ArgumentParser) -> None:
 
 
 # ------------------------------------------------------------ option types
-# argparse calls these on the text of an option; an ArgumentTypeError becomes
-# one line "seqdist: error: argument --seed: ..." and exit 2.
-SEED_MAX = 2**32 - 1
-
-
-def _number(text: str, kind):
-    try:
-        value = kind(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected {'an integer' if kind is int else 'a number'}, "
-                                         f"got '{text}'") from None
-    return value
-
-
-def seed_type(text: str) -> int:
-    """A seed: an integer from 0 to 2**32 - 1."""
-    value = _number(text, int)
-    if not 0 <= value <= SEED_MAX:
-        raise argparse.ArgumentTypeError(f"a seed is an integer from 0 to {SEED_MAX}, got {text}")
-    return value
-
-
-def positive_int(text: str) -> int:
-    """An integer >= 1."""
-    value = _number(text, int)
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"must be a positive integer, got {text}")
-    return value
-
-
-def nonneg_int(text: str) -> int:
-    """An integer >= 0."""
-    value = _number(text, int)
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"must be 0 or a positive integer, got {text}")
-    return value
-
-
-def positive_float(text: str) -> float:
-    """A finite number > 0."""
-    value = _number(text, float)
-    if not (value > 0 and value != float("inf")):
-        raise argparse.ArgumentTypeError(f"must be a finite positive number, got {text}")
-    return value
-
-
-def nonneg_float(text: str) -> float:
-    """A finite number >= 0."""
-    value = _number(text, float)
-    if not (value >= 0 and value != float("inf")):
-        raise argparse.ArgumentTypeError(f"must be a finite number >= 0, got {text}")
-    return value
+# Made from the library's declarations (seqdist.core.params.Number), so a range
+# is written once and refused in the same words by the library and here. An
+# ArgumentTypeError becomes one line "seqdist: error: --seed must be ..." and exit 2.
+SEED_MAX = params.SEED_MAX
+seed_type = params.SEED.argtype("seed")
+positive_int = params.POSITIVE_INT.argtype("value")
+nonneg_int = params.NONNEG_INT.argtype("value")
+positive_float = params.POSITIVE.argtype("value")
+nonneg_float = params.NONNEG.argtype("value")
 
 
 def add_seed(p: argparse.ArgumentParser, default: int, help: str = "seed of every randomised step") -> None:
@@ -130,15 +88,7 @@ def int_range(lo: int, hi: int | None = None):
     ...
     argparse.ArgumentTypeError: must be an integer from 1 to 10, got 11
     """
-    def check(text: str) -> int:
-        value = _number(text, int)
-        if value < lo or (hi is not None and value > hi):
-            span = f"from {lo} to {hi}" if hi is not None else f">= {lo}"
-            raise argparse.ArgumentTypeError(f"must be an integer {span}, got {text}")
-        return value
-
-    check.__name__ = "integer"
-    return check
+    return params.Number(int, lo, hi).argtype("value")
 
 
 def float_range(lo: float, hi: float, lo_open: bool = False, hi_open: bool = False):
@@ -151,16 +101,6 @@ def float_range(lo: float, hi: float, lo_open: bool = False, hi_open: bool = Fal
     >>> float_range(0, 1, lo_open=True, hi_open=True)("1")
     Traceback (most recent call last):
     ...
-    argparse.ArgumentTypeError: must be a number above 0 and below 1, got 1
+    argparse.ArgumentTypeError: must be a finite number above 0 and below 1, got 1
     """
-    def check(text: str) -> float:
-        value = _number(text, float)
-        ok = (value > lo if lo_open else value >= lo) and (value < hi if hi_open else value <= hi)
-        if not ok:  # also refuses nan, which fails every comparison
-            left = f"above {lo:g}" if lo_open else f"at least {lo:g}"
-            right = f"below {hi:g}" if hi_open else f"at most {hi:g}"
-            raise argparse.ArgumentTypeError(f"must be a number {left} and {right}, got {text}")
-        return value
-
-    check.__name__ = "number"
-    return check
+    return params.Number(float, lo, None if hi == float("inf") else hi, lo_open, hi_open).argtype("value")

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import os
 
+from seqdist.audit.report import TOP
 from seqdist.cli.commands._shared import add_matrix_in, add_seed, add_subcommand, add_tol, int_range, nonneg_int
 from seqdist.core.errors import InputError, StrictFailure
 from seqdist.io.matrices import MATRIX_FORMATS
@@ -12,7 +13,7 @@ from seqdist.io.matrices import MATRIX_FORMATS
 #: Upper limits of the size options: the worst-triangle lists are kept per row
 #: (n x K arrays, a linear scan per insertion), and the quartet sample is held
 #: in memory (32 bytes a quartet).
-TOP_MAX = 1000
+TOP_MAX = TOP.hi
 QUARTETS_MAX = 10_000_000
 
 
@@ -33,7 +34,7 @@ def register(subs, common):
     add_matrix_in(p)
     p.add_argument("--json", metavar="FILE", default=None,
                    help="write the full report as JSON ('-' for standard output, replacing the summary)")
-    p.add_argument("--top", type=int_range(0, TOP_MAX), default=10, metavar="K",
+    p.add_argument("--top", type=TOP.argtype("top"), default=10, metavar="K",
                    help=f"worst triangles, entries and taxa to list (0 to {TOP_MAX}; default 10)")
     add_tol(p)
     p.add_argument("--strict", action="store_true",

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from seqdist.cli.commands._shared import add_seed, add_subcommand, float_range, int_range, positive_float
+from seqdist.cli.commands._shared import add_seed, add_subcommand
 from seqdist.core.errors import InputError
 from seqdist.simulate import (
     DNA_MODELS,
@@ -14,6 +14,7 @@ from seqdist.simulate import (
     MAX_SCALE,
     MAX_TAXA,
     MISREAD_HOWS,
+    PARAMETERS,
     PROTEIN_MODELS,
 )
 
@@ -40,6 +41,11 @@ example:
            cats=MAX_RATE_CATEGORIES, work=MAX_INDEL_WORK)
 
 
+def _arg(name: str):
+    """The option type of a numeric parameter, from the library's declaration."""
+    return PARAMETERS[name].argtype(name)
+
+
 def _floats(text: str) -> list[float]:
     import argparse
     import math
@@ -58,9 +64,9 @@ def register(subs, common):
     p.add_argument("-o", "--out", required=True, metavar="FASTA",
                    help="alignment output, FASTA ('-' for standard output)")
     p.add_argument("--tree-out", required=True, metavar="NEWICK", help="true tree output, Newick")
-    p.add_argument("--taxa", type=int_range(3, MAX_TAXA), required=True, metavar="N",
+    p.add_argument("--taxa", type=_arg("n_taxa"), required=True, metavar="N",
                    help=f"number of sequences (3 to {MAX_TAXA}; taxa x length at most {MAX_CELLS})")
-    p.add_argument("--length", type=int_range(1, MAX_LENGTH), required=True, metavar="L",
+    p.add_argument("--length", type=_arg("length"), required=True, metavar="L",
                    help=f"alignment columns (1 to {MAX_LENGTH}; taxa x length at most {MAX_CELLS})")
     p.add_argument("--alphabet", choices=("dna", "protein"), default="dna", help="default: dna")
     add_seed(p, 1, "random seed")
@@ -68,54 +74,54 @@ def register(subs, common):
     g.add_argument("--model", choices=DNA_MODELS + PROTEIN_MODELS, default=None,
                    help="substitution model (default: k80 for dna, poisson for protein; "
                         "hky85 / poisson-f when --freqs is given)")
-    g.add_argument("--kappa", type=positive_float, default=2.0, metavar="K",
+    g.add_argument("--kappa", type=_arg("kappa"), default=2.0, metavar="K",
                    help="transition/transversion rate ratio for dna (default: 2)")
     g.add_argument("--freqs", type=_floats, default=None, metavar="F,F,...",
                    help="stationary frequencies: 4 for dna (A,C,G,T) or 20 for protein (ACDEFGHIKLMNPQRSTVWY)")
-    g.add_argument("--alpha", type=positive_float, default=None, metavar="A",
+    g.add_argument("--alpha", type=_arg("alpha"), default=None, metavar="A",
                    help="gamma shape of rate variation across sites (default: equal rates)")
-    g.add_argument("--rate-categories", type=int_range(0, MAX_RATE_CATEGORIES), default=4, metavar="K",
+    g.add_argument("--rate-categories", type=_arg("rate_categories"), default=4, metavar="K",
                    help=f"discrete gamma categories (1 to {MAX_RATE_CATEGORIES}), or 0 for a continuous gamma "
                         "rate per site (default: 4)")
     g = p.add_argument_group("tree")
-    g.add_argument("--scale", type=float_range(0, MAX_SCALE, lo_open=True), default=0.05, metavar="X",
+    g.add_argument("--scale", type=_arg("scale"), default=0.05, metavar="X",
                    help=f"mean branch length, expected substitutions per site (at most {MAX_SCALE:g}; "
                         "default: 0.05)")
     g.add_argument("--clock", action="store_true", help="ultrametric (coalescent) branch lengths")
     g.add_argument("--prefix", default="t", metavar="P", help="label prefix: P01, P02, ... (default: t)")
     g = p.add_argument_group("gaps")
-    g.add_argument("--gap-rate", type=float_range(0, float("inf"), hi_open=True), default=0.0, metavar="R",
+    g.add_argument("--gap-rate", type=_arg("gap_rate"), default=0.0, metavar="R",
                    help="indel events per residue per unit branch length (default: 0, no gaps)")
-    g.add_argument("--gap-length", type=float_range(1, float("inf"), hi_open=True), default=3.0, metavar="M",
+    g.add_argument("--gap-length", type=_arg("gap_length"), default=3.0, metavar="M",
                    help="mean length of an indel run, at least 1 (default: 3)")
     g = p.add_argument_group("planted trouble (applied in this order; 'auto' picks unused taxa)")
     g.add_argument("--gappy", metavar="LABEL|auto", default=None, help="make one row very gappy")
-    g.add_argument("--gappy-fraction", type=float_range(0, 1, lo_open=True, hi_open=True), default=0.7, metavar="F",
+    g.add_argument("--gappy-fraction", type=_arg("gappy_fraction"), default=0.7, metavar="F",
                    help="gap fraction of the gappy row (default: 0.7)")
     g.add_argument("--chimera", metavar="LABEL[:DONOR]|auto", default=None,
                    help="replace the second half of LABEL by that of DONOR (default donor: the farthest)")
     g.add_argument("--saturate", metavar="LABEL,LABEL|auto", default=None,
                    help="give two taxa very long terminal branches (default pair: the farthest apart)")
-    g.add_argument("--saturate-length", type=float_range(0, MAX_SATURATE, lo_open=True), default=50.0,
+    g.add_argument("--saturate-length", type=_arg("saturate_length"), default=50.0,
                    metavar="X", help=f"branch length added to each of them (at most {MAX_SATURATE:g}; default: 50)")
     g.add_argument("--misread", metavar="LABEL|auto", default=None,
                    help="replace a few stretches of one row by misread residues")
-    g.add_argument("--misread-stretches", type=int_range(1, MAX_LENGTH), default=3, metavar="N",
+    g.add_argument("--misread-stretches", type=_arg("misread_stretches"), default=3, metavar="N",
                    help="number of misread stretches (default: 3)")
-    g.add_argument("--misread-length", type=int_range(1, MAX_LENGTH), default=50, metavar="L",
+    g.add_argument("--misread-length", type=_arg("misread_length"), default=50, metavar="L",
                    help="columns per misread stretch; together at most half the row (default: 50)")
     g.add_argument("--misread-how", choices=MISREAD_HOWS, default="random",
                    help="random: residues drawn from the stationary frequencies (base-calling error); "
                         "shift: the stretch's content slid by one column (alignment error) (default: random)")
     g.add_argument("--contaminant", metavar="LABEL|auto", default=None,
                    help="replace one row by the alignment's consensus mutated along a long branch")
-    g.add_argument("--contaminant-distance", type=float_range(0, MAX_SATURATE, lo_open=True), default=0.5,
+    g.add_argument("--contaminant-distance", type=_arg("contaminant_distance"), default=0.5,
                    metavar="X", help="branch length from the consensus, expected substitutions per site "
                                      f"(at most {MAX_SATURATE:g}; default: 0.5)")
     g = p.add_argument_group("extra outputs")
     g.add_argument("--stockholm-out", metavar="STO", default=None,
                    help="also write the first taxa as Stockholm, insert columns in lower case / '.'")
-    g.add_argument("--stockholm-taxa", type=int_range(2), default=10, metavar="N",
+    g.add_argument("--stockholm-taxa", type=_arg("stockholm_taxa"), default=10, metavar="N",
                    help="rows in the Stockholm copy, at least 2 (default: 10)")
     g.add_argument("--summary-out", metavar="JSON", default=None,
                    help="options, tree length, gap fraction and planted trouble as JSON")
