@@ -15,7 +15,7 @@ For very many pairs the work is cut into *tiles*: rows ``[i0, i1)`` against
 columns ``[i0, n)`` (the upper block triangle), and columns of the alignment
 into chunks, so memory is the output plus one bounded tile.
 
-The byte-compare kernel (numba) counts equal bytes between two re-coded
+The byte-compare kernel (compiled, :mod:`seqdist.kernels.pair_bytes`) counts equal bytes between two re-coded
 copies of the alignment, ``sum_k [a_ik == b_jk]``; with missing residues
 re-coded to different values on the two sides they never match. It beats
 a one-hot product when the alphabet is large (protein: 20 features per
@@ -161,7 +161,7 @@ def onehot_cross(codes: np.ndarray, i0: int, i1: int, table: np.ndarray, dtype=n
 def equal_counts(a: np.ndarray, b: np.ndarray, i0: int, i1: int) -> np.ndarray:
     """``out[ii, jj] = sum_k [a[i0+ii, k] == b[i0+jj, k]]`` for the tile ``[i0, i1) x [i0, n)``.
 
-    A compiled byte-compare kernel (numba, parallel over rows). Only pairs
+    A compiled byte-compare kernel (Cython and C, parallel over rows). Only pairs
     ``j >= i`` are compared; the lower part of the diagonal block is copied
     from its mirror, so ``a`` and ``b`` must be re-codings of one alignment
     for which the count is symmetric.

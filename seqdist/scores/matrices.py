@@ -14,7 +14,7 @@ own reader. This module
 * turns scores into dissimilarities with one of :data:`TRANSFORMS`.
 
 Formulas and sources are in ``docs/scores.md``. Heavy modules (scipy,
-Biopython, numba kernels) are imported inside the functions that need them.
+Biopython, the compiled kernels) are imported inside the functions that need them.
 """
 
 from __future__ import annotations
