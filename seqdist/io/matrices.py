@@ -194,10 +194,16 @@ def _parse_cell(cell: str, name: str, line: int, row_label: str, col_label: str)
                          f"column '{col_label}'") from None
 
 
+#: Below this many characters a delimited file is read without pandas: importing it
+#: costs more (about 0.4 s) than parsing a small file in Python.
+_PANDAS_FROM = 200_000
+
+
 def _read_delimited(text: str, name: str, sep: str) -> DistanceMatrix:
-    fast = _read_delimited_fast(text, name, sep)
-    if fast is not None:
-        return fast
+    if len(text) >= _PANDAS_FROM:
+        fast = _read_delimited_fast(text, name, sep)
+        if fast is not None:
+            return fast
     return _read_delimited_careful(text, name, sep)
 
 
