@@ -47,7 +47,13 @@ pd.DataFrame(X, index=f.index, columns=f.columns).to_csv(sys.argv[2], sep="\t", 
 '''
 
 
+#: Byte-code is written, as on a normal install (some sandboxes set PYTHONDONTWRITEBYTECODE,
+#: which would make every run compile every module and hide what a user sees).
+BASE_ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
+
+
 def wall(cmd: list[str], env: dict | None = None) -> float:
+    env = BASE_ENV if env is None else env
     t = time.perf_counter()
     p = subprocess.run(cmd, capture_output=True, text=True, env=env)
     took = time.perf_counter() - t
@@ -57,7 +63,7 @@ def wall(cmd: list[str], env: dict | None = None) -> float:
 
 
 def seqdist_cmd(root: str, *args: str) -> tuple[list[str], dict]:
-    env = {**os.environ, "PYTHONPATH": root, "PYTHONWARNINGS": "ignore"}
+    env = {**BASE_ENV, "PYTHONPATH": root, "PYTHONWARNINGS": "ignore"}
     return [sys.executable, "-m", "seqdist", *args], env
 
 
