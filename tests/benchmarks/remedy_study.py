@@ -46,7 +46,7 @@ leave-out remedy, scored on fewer taxa.
 Every random choice comes from ``numpy.random.SeedSequence([seed, scenario
 number, replicate])``, so a replicate is the same whatever other scenarios
 or replicates run and in whatever process; :func:`run_replicate` also pins
-BLAS and numba to one thread, so results do not depend on the thread count.
+BLAS and OpenMP (threadpoolctl limits both) to one thread, so results do not depend on the thread count.
 """
 
 from __future__ import annotations
@@ -485,13 +485,7 @@ def normalised(rf: int, n: int) -> float:
 
 # ------------------------------------------------------------------ one replicate
 def _one_thread():
-    """Pin BLAS and numba to one thread, so results do not depend on how many processes run."""
-    try:
-        import numba
-
-        numba.set_num_threads(1)
-    except Exception:  # pragma: no cover - numba is a dependency, but the study must still run
-        pass
+    """Pin BLAS and the kernels' OpenMP threads to one, so results do not depend on how many processes run."""
     try:
         from threadpoolctl import threadpool_limits
 
