@@ -18,6 +18,7 @@ from openmp cimport omp_get_max_threads, omp_get_thread_num
 from libc.math cimport INFINITY, fabs
 from libc.stdint cimport int64_t
 from libc.stdlib cimport free, malloc, realloc
+from libc.string cimport memcpy
 
 import numpy as np
 
@@ -28,6 +29,15 @@ cdef extern from "src/convex.h" nogil:
                             int64_t* out, int64_t* buf)
     double sd_cvx_blend_row(const double* Y, const double* Z, int64_t n, int64_t i, double best)
     void sd_cvx_dijkstra(const double* W, int64_t n, int64_t s, int64_t* pred, double* dist)
+
+
+# ------------------------------------------------------------ argument checks
+# The loops below index without bounds checks, so the sizes they rely on are checked first
+# (O(1); the keys and edge indices themselves are trusted: they come from the scans).
+cdef int need(bint ok, str what) except -1:
+    if not ok:
+        raise ValueError(what)
+    return 0
 
 
 # ------------------------------------------------------------ key helpers
@@ -53,7 +63,7 @@ cdef inline void sides(int64_t key, int64_t n, int64_t* e0, int64_t* e1, int64_t
 
 # ------------------------------------------------------------ the triangle scan
 def scan_count_c(const double[:, ::1] x, const unsigned char[:, ::1] gm, bint full, double thr, Py_ssize_t nb,
-               int64_t[::1] cnt):
+                 int64_t[::1] cnt):
     """``cnt[i]``: the violated (triangle, long side) pairs of row ``i``.
 
     Rows are interleaved over ``nb`` blocks (row ``i`` costs about
@@ -62,6 +72,9 @@ def scan_count_c(const double[:, ::1] x, const unsigned char[:, ::1] gm, bint fu
     cdef Py_ssize_t n = x.shape[0], b, i
     cdef const double* px
     cdef const unsigned char* pg
+    need(x.shape[1] == x.shape[0] and gm.shape[0] == x.shape[0] and gm.shape[1] == x.shape[0],
+         "scan_count: x and gm must be square, of one size")
+    need(cnt.shape[0] >= x.shape[0] and 0 < nb, "scan_count: cnt too short or nb < 1")
     if n == 0:
         return
     px = &x[0, 0]
@@ -82,6 +95,10 @@ def scan_fill_c(const double[:, ::1] x, const unsigned char[:, ::1] gm, bint ful
     cdef int64_t* po
     cdef int64_t* pb
     cdef int64_t[:, ::1] scratch
+    need(x.shape[1] == x.shape[0] and gm.shape[0] == x.shape[0] and gm.shape[1] == x.shape[0],
+         "scan_fill: x and gm must be square, of one size")
+    need(offs.shape[0] > x.shape[0] and 0 < nb, "scan_fill: offs too short or nb < 1")
+    need(x.shape[0] == 0 or offs[x.shape[0]] <= out.shape[0], "scan_fill: out too short")
     if n == 0 or out.shape[0] == 0:
         return
     # one scratch row per thread (3 keys per k of one (i, j))
@@ -99,31 +116,56 @@ def scan_fill_c(const double[:, ::1] x, const unsigned char[:, ::1] gm, bint ful
 
 
 # ------------------------------------------------------------ active-set bookkeeping
-def merge_active_c(const int64_t[::1] ka, const double[::1] la, const int64_t[::1] kb,
-                 int64_t[::1] ko, double[::1] lo):
-    """Merge into ``ko``/``lo`` (room for ``ka.size + kb.size``); returns ``(size, added)``."""
+def merge_active_c(const int64_t[::1] ka, const double[::1] la, const int64_t[::1] kb):
+    """``(keys, duals, added)``: the merge of :func:`seqdist.kernels.convex.merge_active`.
+
+    The merge runs into C buffers with room for ``ka.size + kb.size`` and only
+    the kept part is copied to the numpy outputs (numpy may ask the kernel for
+    huge pages on large arrays, which can stall on a busy machine; the large
+    temporaries do not need them).
+    """
     cdef Py_ssize_t na = ka.shape[0], nb = kb.shape[0], a = 0, b = 0, p = 0, added = 0
-    with nogil:
-        while a < na or b < nb:
-            if b >= nb or (a < na and ka[a] < kb[b]):
-                if la[a] > 0.0:
+    cdef int64_t* ko
+    cdef double* lo
+    cdef int64_t[::1] kout
+    cdef double[::1] lout
+    need(la.shape[0] == na, "merge_active: ka and la must have one length")
+    ko = <int64_t*> malloc((na + nb + 1) * sizeof(int64_t))
+    lo = <double*> malloc((na + nb + 1) * sizeof(double))
+    try:
+        if ko == NULL or lo == NULL:
+            raise MemoryError()
+        with nogil:
+            while a < na or b < nb:
+                if b >= nb or (a < na and ka[a] < kb[b]):
+                    if la[a] > 0.0:
+                        ko[p] = ka[a]
+                        lo[p] = la[a]
+                        p += 1
+                    a += 1
+                elif a >= na or kb[b] < ka[a]:
+                    ko[p] = kb[b]
+                    lo[p] = 0.0
+                    p += 1
+                    b += 1
+                    added += 1
+                else:
                     ko[p] = ka[a]
                     lo[p] = la[a]
                     p += 1
-                a += 1
-            elif a >= na or kb[b] < ka[a]:
-                ko[p] = kb[b]
-                lo[p] = 0.0
-                p += 1
-                b += 1
-                added += 1
-            else:
-                ko[p] = ka[a]
-                lo[p] = la[a]
-                p += 1
-                a += 1
-                b += 1
-    return p, added
+                    a += 1
+                    b += 1
+        keys = np.empty(p, np.int64)
+        duals = np.empty(p, np.float64)
+        if p:
+            kout = keys
+            lout = duals
+            memcpy(&kout[0], ko, p * sizeof(int64_t))
+            memcpy(&lout[0], lo, p * sizeof(double))
+        return keys, duals, added
+    finally:
+        free(ko)
+        free(lo)
 
 
 # ------------------------------------------------------------ weighted least squares (l2)
@@ -133,6 +175,8 @@ def sweep_l2_tri_c(const int64_t[::1] keys, double[::1] lam, double[:, :, ::1] x
     cdef int64_t n = xw.shape[1], e0, e1, e2
     cdef double* p
     cdef double big = 0.0, w0, w1, w2, den, v, lt, nl, dl, ch
+    need(xw.shape[1] == xw.shape[0] and xw.shape[2] == 2, "sweep_l2_tri: xw must be (n, n, 2)")
+    need(lam.shape[0] >= keys.shape[0], "sweep_l2_tri: lam shorter than keys")
     # With a zero dual, a satisfied constraint (v <= 0) and a positive finite step and denominator,
     # the new dual 0 + omega * v / den is <= 0 and is clipped to 0: nothing changes, so the
     # division is skipped (most of the pool is inactive). NaN never takes the shortcut.
@@ -173,12 +217,15 @@ def sweep_l2_tri_c(const int64_t[::1] keys, double[::1] lam, double[:, :, ::1] x
 
 
 def sweep_l2_cyc_c(const int64_t[::1] ptr, const int64_t[::1] edges, double[::1] lam, double[:, ::1] xwf,
-                 double omega):
+                   double omega):
     """One Hildreth sweep over cycle constraints (``xwf`` the interleaved array as (n * n, 2))."""
     cdef Py_ssize_t t, q, nc = ptr.shape[0] - 1
     cdef int64_t p0, p1, e0, e
     cdef double* p
     cdef double big = 0.0, den, v, lt, nl, dl, ch
+    need(xwf.shape[1] == 2, "sweep_l2_cyc: xwf must be (n * n, 2)")
+    need(ptr.shape[0] >= 1 and lam.shape[0] >= ptr.shape[0] - 1, "sweep_l2_cyc: ptr empty or lam too short")
+    need(ptr[ptr.shape[0] - 1] <= edges.shape[0], "sweep_l2_cyc: edges shorter than ptr says")
     if nc <= 0 or xwf.shape[0] == 0:
         return big
     p = &xwf[0, 0]
@@ -283,7 +330,7 @@ cdef double line_max(const double* cs, const double* As, const double* ds, const
 
 
 def sweep_l1_tri_c(const int64_t[::1] keys, double[::1] lam, double[:, ::1] c, const double[:, ::1] A,
-                 const double[:, ::1] d, const double[:, ::1] iw, double h):
+                   const double[:, ::1] d, const double[:, ::1] iw, double h):
     """One exact dual coordinate-ascent sweep over triangle constraints
     (see :func:`seqdist.kernels.convex.sweep_l1_tri`)."""
     cdef Py_ssize_t m = keys.shape[0], t
@@ -298,6 +345,9 @@ def sweep_l1_tri_c(const int64_t[::1] keys, double[::1] lam, double[:, ::1] c, c
     cdef const double* pA
     cdef const double* pd
     cdef const double* pw
+    need(c.shape[1] == n and A.shape[0] == n and A.shape[1] == n and d.shape[0] == n and d.shape[1] == n
+         and iw.shape[0] == n and iw.shape[1] == n, "sweep_l1_tri: c, A, d and iw must be (n, n)")
+    need(lam.shape[0] >= keys.shape[0], "sweep_l1_tri: lam shorter than keys")
     if m == 0:
         return big
     pc = &c[0, 0]
@@ -339,7 +389,7 @@ def sweep_l1_tri_c(const int64_t[::1] keys, double[::1] lam, double[:, ::1] c, c
 
 
 def sweep_l1_cyc_c(const int64_t[::1] ptr, const int64_t[::1] edges, double[::1] lam, double[::1] cf,
-                 const double[::1] Af, const double[::1] df, const double[::1] iwf, double h):
+                   const double[::1] Af, const double[::1] df, const double[::1] iwf, double h):
     """:func:`sweep_l1_tri` over cycle constraints (flat views)."""
     cdef Py_ssize_t t, q, m, nc = ptr.shape[0] - 1, mmax = 1
     cdef int64_t p0, e
@@ -351,6 +401,10 @@ def sweep_l1_cyc_c(const int64_t[::1] ptr, const int64_t[::1] edges, double[::1]
     cdef double* ds
     cdef double* ws
     cdef double* sg
+    need(Af.shape[0] == cf.shape[0] and df.shape[0] == cf.shape[0] and iwf.shape[0] == cf.shape[0],
+         "sweep_l1_cyc: cf, Af, df and iwf must have one length")
+    need(ptr.shape[0] >= 1 and lam.shape[0] >= ptr.shape[0] - 1, "sweep_l1_cyc: ptr empty or lam too short")
+    need(ptr[ptr.shape[0] - 1] <= edges.shape[0], "sweep_l1_cyc: edges shorter than ptr says")
     if nc <= 0:
         return big
     for t in range(nc):
@@ -402,6 +456,8 @@ def accumulate_tri_c(const int64_t[::1] keys, const double[::1] lam, double[:, :
     cdef int64_t n = c.shape[0], e0, e1, e2
     cdef double lt
     cdef double* pc
+    need(c.shape[1] == c.shape[0], "accumulate_tri: c must be square")
+    need(lam.shape[0] >= keys.shape[0], "accumulate_tri: lam shorter than keys")
     if m == 0:
         return
     pc = &c[0, 0]
@@ -420,6 +476,8 @@ def accumulate_cyc_c(const int64_t[::1] ptr, const int64_t[::1] edges, const dou
     """``c += A^T lam`` over cycle constraints (flat view of ``c``)."""
     cdef Py_ssize_t t, q, nc = ptr.shape[0] - 1
     cdef double lt
+    need(ptr.shape[0] >= 1 and lam.shape[0] >= ptr.shape[0] - 1, "accumulate_cyc: ptr empty or lam too short")
+    need(ptr[ptr.shape[0] - 1] <= edges.shape[0], "accumulate_cyc: edges shorter than ptr says")
     with nogil:
         for t in range(nc):
             lt = lam[t]
@@ -435,6 +493,8 @@ def apply_tri_c(const int64_t[::1] keys, const double[:, ::1] y, double[::1] r):
     cdef Py_ssize_t t, m = keys.shape[0]
     cdef int64_t n = y.shape[0], e0, e1, e2
     cdef const double* py
+    need(y.shape[1] == y.shape[0], "apply_tri: y must be square")
+    need(r.shape[0] >= keys.shape[0], "apply_tri: r shorter than keys")
     if m == 0:
         return
     py = &y[0, 0]
@@ -448,6 +508,8 @@ def apply_cyc_c(const int64_t[::1] ptr, const int64_t[::1] edges, const double[:
     """``r = A y`` for cycle constraints (flat view of ``y``)."""
     cdef Py_ssize_t t, q, nc = ptr.shape[0] - 1
     cdef double v
+    need(ptr.shape[0] >= 1 and r.shape[0] >= ptr.shape[0] - 1, "apply_cyc: ptr empty or r too short")
+    need(ptr[ptr.shape[0] - 1] <= edges.shape[0], "apply_cyc: edges shorter than ptr says")
     with nogil:
         for t in range(nc):
             v = yf[edges[ptr[t]]]
@@ -461,6 +523,8 @@ def denominators_tri_c(const int64_t[::1] keys, const double[:, ::1] winv, doubl
     cdef Py_ssize_t t, m = keys.shape[0]
     cdef int64_t n = winv.shape[0], e0, e1, e2
     cdef const double* pw
+    need(winv.shape[1] == winv.shape[0], "denominators_tri: winv must be square")
+    need(r.shape[0] >= keys.shape[0], "denominators_tri: r shorter than keys")
     if m == 0:
         return
     pw = &winv[0, 0]
@@ -498,6 +562,8 @@ def violated_cycles_c(const double[:, ::1] W, const int64_t[::1] src, const int6
     cdef int64_t* eb = NULL
     cdef int64_t* pb = NULL
     cdef const double* pW
+    need(W.shape[1] == W.shape[0], "violated_cycles: W must be square")
+    need(src.shape[0] == dst.shape[0], "violated_cycles: src and dst must have one length")
     try:
         dist = <double*> malloc((n + 1) * sizeof(double))
         pred = <int64_t*> malloc((n + 1) * sizeof(int64_t))
@@ -575,6 +641,9 @@ def blend_step_c(const double[:, ::1] Y, const double[:, ::1] Z, Py_ssize_t nb, 
     cdef double best
     cdef const double* py
     cdef const double* pz
+    need(Y.shape[1] == Y.shape[0] and Z.shape[0] == Y.shape[0] and Z.shape[1] == Y.shape[0],
+         "blend_step: Y and Z must be square, of one size")
+    need(tb.shape[0] >= nb and 0 < nb, "blend_step: tb too short or nb < 1")
     if n == 0:
         return
     py = &Y[0, 0]
@@ -593,6 +662,9 @@ def clamp_free_c(double[:, ::1] Y, const int64_t[::1] fi, const int64_t[::1] fj,
     cdef Py_ssize_t n = Y.shape[0], q, k
     cdef int64_t i, j
     cdef double lo, hi, a, b, dab, v
+    need(Y.shape[1] == Y.shape[0], "clamp_free: Y must be square")
+    need(fj.shape[0] == fi.shape[0] and target.shape[0] == fi.shape[0],
+         "clamp_free: fi, fj and target must have one length")
     with nogil:
         for q in range(fi.shape[0]):
             i = fi[q]

@@ -67,12 +67,11 @@ def _f64(a) -> np.ndarray:
     return np.ascontiguousarray(a, dtype=np.float64)
 
 
-def _same_square(name: str, *arrays) -> None:
-    # the loops index n x n arrays without bounds checks: the shapes are checked here, once per call
-    n = arrays[0].shape[0]
-    for a in arrays:
-        if a.shape[:2] != (n, n):
-            raise ValueError(f"{name}: expected ({n}, {n}) arrays, got {a.shape}")
+# The small kernels are called many times per round: each wrapper first hands its arguments to the
+# compiled loop as they are (C-contiguous int64 / float64 arrays, as the solvers pass them) and
+# converts them only if that is refused (a TypeError or ValueError before any work is done; the
+# loop checks the sizes it relies on). Arguments changed in place are never converted.
+_REFUSED = (TypeError, ValueError)
 
 
 # ------------------------------------------------------------ key helpers
@@ -119,7 +118,6 @@ def violated_triangles(x: np.ndarray, gm: np.ndarray, full: bool, thr: float) ->
     """
     x = _f64(x)
     g = np.ascontiguousarray(gm, dtype=np.bool_).view(np.uint8)
-    _same_square("violated_triangles", x, g)
     n = x.shape[0]
     if n < 3:
         return np.empty(0, np.int64)
@@ -148,11 +146,10 @@ def merge_active(ka, la, kb):
     >>> ko.tolist(), lo.tolist(), added
     ([1, 2], [0.5, 0.0], 1)
     """
-    ka, la, kb = _i64(ka), _f64(la), _i64(kb)
-    ko = np.empty(ka.size + kb.size, np.int64)
-    lo = np.empty(ka.size + kb.size)
-    p, added = merge_active_c(ka, la, kb, ko, lo)
-    return ko[:p].copy(), lo[:p].copy(), added
+    try:
+        return merge_active_c(ka, la, kb)
+    except _REFUSED:
+        return merge_active_c(_i64(ka), _f64(la), _i64(kb))
 
 
 # ------------------------------------------------------------ weighted least squares (l2)
@@ -172,10 +169,10 @@ def sweep_l2_tri(keys, lam, xw, forward, omega) -> float:
     >>> sweep_l2_tri(encode([0], [1], [2], [0]), lam, xw, True, 1.0), xw[:, :, 0][np.triu_indices(3, 1)].tolist()
     (4.0, [2.666666666666667, 1.3333333333333333, 1.3333333333333333])
     """
-    if xw.ndim != 3 or xw.shape[2] != 2:
-        raise ValueError(f"sweep_l2_tri: expected an (n, n, 2) array, got {xw.shape}")
-    _same_square("sweep_l2_tri", xw)
-    return sweep_l2_tri_c(_i64(keys), lam, xw, bool(forward), float(omega))
+    try:
+        return sweep_l2_tri_c(keys, lam, xw, forward, omega)
+    except _REFUSED:
+        return sweep_l2_tri_c(_i64(keys), lam, xw, bool(forward), float(omega))
 
 
 def sweep_l2_cyc(ptr, edges, lam, xwf, omega) -> float:
@@ -188,7 +185,10 @@ def sweep_l2_cyc(ptr, edges, lam, xwf, omega) -> float:
     >>> sweep_l2_cyc(np.array([0, 3]), np.array([1, 2, 5]), np.zeros(1), xwf, 1.0), xwf[[1, 2, 5], 0].tolist()
     (4.0, [2.666666666666667, 1.3333333333333333, 1.3333333333333333])
     """
-    return sweep_l2_cyc_c(_i64(ptr), _i64(edges), lam, xwf, float(omega))
+    try:
+        return sweep_l2_cyc_c(ptr, edges, lam, xwf, omega)
+    except _REFUSED:
+        return sweep_l2_cyc_c(_i64(ptr), _i64(edges), lam, xwf, float(omega))
 
 
 # ------------------------------------------------------------ proximal LP (l1)
@@ -210,9 +210,10 @@ def sweep_l1_tri(keys, lam, c, A, d, iw, h) -> float:
     >>> sweep_l1_tri(encode([0], [1], [2], [0]), lam, c, np.zeros((3, 3)), d, np.triu(np.ones((3, 3)), 1), 1.0)
     1.6666666666666665
     """
-    A, d, iw = _f64(A), _f64(d), _f64(iw)
-    _same_square("sweep_l1_tri", c, A, d, iw)
-    return sweep_l1_tri_c(_i64(keys), lam, c, A, d, iw, float(h))
+    try:
+        return sweep_l1_tri_c(keys, lam, c, A, d, iw, h)
+    except _REFUSED:
+        return sweep_l1_tri_c(_i64(keys), lam, c, _f64(A), _f64(d), _f64(iw), float(h))
 
 
 def sweep_l1_cyc(ptr, edges, lam, cf, Af, df, iwf, h) -> float:
@@ -226,7 +227,10 @@ def sweep_l1_cyc(ptr, edges, lam, cf, Af, df, iwf, h) -> float:
     >>> sweep_l1_cyc(np.array([0, 3]), np.array([1, 2, 5]), np.zeros(1), cf, np.zeros(9), df, iwf, 1.0)
     1.6666666666666665
     """
-    return sweep_l1_cyc_c(_i64(ptr), _i64(edges), lam, cf, _f64(Af), _f64(df), _f64(iwf), float(h))
+    try:
+        return sweep_l1_cyc_c(ptr, edges, lam, cf, Af, df, iwf, h)
+    except _REFUSED:
+        return sweep_l1_cyc_c(_i64(ptr), _i64(edges), lam, cf, _f64(Af), _f64(df), _f64(iwf), float(h))
 
 
 # ------------------------------------------------------------ A^T lam and A y
@@ -240,8 +244,10 @@ def accumulate_tri(keys, lam, c) -> None:
     >>> c[np.triu_indices(3, 1)].tolist()
     [-2.0, 2.0, -2.0]
     """
-    _same_square("accumulate_tri", c)
-    accumulate_tri_c(_i64(keys), _f64(lam), c)
+    try:
+        accumulate_tri_c(keys, lam, c)
+    except _REFUSED:
+        accumulate_tri_c(_i64(keys), _f64(lam), c)
 
 
 def accumulate_cyc(ptr, edges, lam, cf) -> None:
@@ -254,7 +260,10 @@ def accumulate_cyc(ptr, edges, lam, cf) -> None:
     >>> cf.tolist()
     [0.0, -0.5, -0.5, 0.5]
     """
-    accumulate_cyc_c(_i64(ptr), _i64(edges), _f64(lam), cf)
+    try:
+        accumulate_cyc_c(ptr, edges, lam, cf)
+    except _REFUSED:
+        accumulate_cyc_c(_i64(ptr), _i64(edges), _f64(lam), cf)
 
 
 def apply_tri(keys, y) -> np.ndarray:
@@ -266,10 +275,11 @@ def apply_tri(keys, y) -> np.ndarray:
     >>> apply_tri(encode([0, 0], [1, 1], [2, 2], [0, 2]), y).tolist()
     [3.0, -5.0]
     """
-    keys, y = _i64(keys), _f64(y)
-    _same_square("apply_tri", y)
-    r = np.empty(keys.size)
-    apply_tri_c(keys, y, r)
+    r = np.empty(len(keys))
+    try:
+        apply_tri_c(keys, y, r)
+    except _REFUSED:
+        apply_tri_c(_i64(keys), _f64(y), r)
     return r
 
 
@@ -281,9 +291,11 @@ def apply_cyc(ptr, edges, yf) -> np.ndarray:
     >>> apply_cyc(np.array([0, 3]), np.array([1, 2, 5]), np.arange(9.0)).tolist()
     [-6.0]
     """
-    ptr = _i64(ptr)
-    r = np.empty(max(ptr.size - 1, 0))
-    apply_cyc_c(ptr, _i64(edges), _f64(yf), r)
+    r = np.empty(max(len(ptr) - 1, 0))
+    try:
+        apply_cyc_c(ptr, edges, yf, r)
+    except _REFUSED:
+        apply_cyc_c(_i64(ptr), _i64(edges), _f64(yf), r)
     return r
 
 
@@ -295,10 +307,11 @@ def denominators_tri(keys, winv) -> np.ndarray:
     >>> denominators_tri(encode([0], [1], [2], [0]), np.triu(np.full((3, 3), 0.5), 1)).tolist()
     [1.5]
     """
-    keys, winv = _i64(keys), _f64(winv)
-    _same_square("denominators_tri", winv)
-    r = np.empty(keys.size)
-    denominators_tri_c(keys, winv, r)
+    r = np.empty(len(keys))
+    try:
+        denominators_tri_c(keys, winv, r)
+    except _REFUSED:
+        denominators_tri_c(_i64(keys), _f64(winv), r)
     return r
 
 
@@ -325,10 +338,7 @@ def violated_cycles(W, src, dst, min_edges):
     ([0, 4], [3, 11, 6, 1])
     """
     W, src, dst = _f64(W), _i64(src), _i64(dst)
-    _same_square("violated_cycles", W)
     n = W.shape[0]
-    if src.shape != dst.shape:
-        raise ValueError("violated_cycles: src and dst must have one length")
     if src.size and (min(src.min(), dst.min()) < 0 or max(src.max(), dst.max()) >= n):
         raise ValueError("violated_cycles: a node index is outside the graph")
     return violated_cycles_c(W, src, dst, int(min_edges))
@@ -349,7 +359,6 @@ def blend_step(Y: np.ndarray, Z: np.ndarray) -> float:
     if n < 3:
         return 0.0
     Y, Z = _f64(Y), _f64(Z)
-    _same_square("blend_step", Y, Z)
     nb = min(n, 64)
     tb = np.zeros(nb)
     blend_step_c(Y, Z, nb, tb)
@@ -371,9 +380,6 @@ def clamp_free(Y, fi, fj, target) -> None:
     [[0.0, 2.0, 1.0], [2.0, 0.0, 1.0], [1.0, 1.0, 0.0]]
     """
     fi, fj, target = _i64(fi), _i64(fj), _f64(target)
-    _same_square("clamp_free", Y)
-    if not fi.shape == fj.shape == target.shape:
-        raise ValueError("clamp_free: fi, fj and target must have one length")
     if fi.size and (min(fi.min(), fj.min()) < 0 or max(fi.max(), fj.max()) >= Y.shape[0]):
         raise ValueError("clamp_free: an entry index is outside the matrix")
     clamp_free_c(Y, fi, fj, target)
