@@ -8,22 +8,27 @@ References used here:
   "no violated checked triangle remains";
 * a planted bad row (one taxon's distances scrambled among the others) in a
   Euclidean metric: that taxon alone is the answer (common practice for
-  outlier tests: a planted fault must be found).
+  outlier tests: a planted fault must be found);
+* every compiled kernel of ``seqdist.repair.taxa`` and ``seqdist.kernels.kept_graph``
+  against the same method as plain Python loops (common practice for compiled kernels).
 """
 
 from __future__ import annotations
 
 import itertools
 import json
+import math
 import warnings
 
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix
+from seqdist.kernels import kept_graph
+from seqdist.kernels.shortest_paths import apsp_reference
 from seqdist.kernels.triangles import count_violations, is_metric
 from seqdist.repair import repair, taxa
 from seqdist.repair.problem import Budget
@@ -127,6 +132,278 @@ def test_packing_is_disjoint_violated_triangles(D):
     assert all(tuple(sorted(t)) in ref for t in packed.tolist())
     # maximal: every violated triangle meets a packed one
     assert all(set(t) & set(flat) for t in ref)
+
+
+# ------------------------------------------------------------------ compiled kernels against plain loops
+# Each kernel of seqdist.repair.taxa and seqdist.kernels.kept_graph against the same method written
+# as plain Python loops (common practice for checking a compiled kernel): same answers, same tie
+# breaks, same counted work, bit-identical floats. "threads" runs the scans that use threads on
+# them even for these tiny inputs (the result must not depend on it).
+def ref_greedy_cover(D, tol, pos, alive):
+    """Greedy by count (ties: smaller pos), then prune least preferred first; the triples examined."""
+    n = len(D)
+    viol = set(taxa.reference_violated(D, tol))
+    live = [bool(alive[v]) for v in range(n)]
+    left = [t for t in viol if all(live[v] for v in t)]
+    picked, work = [], 0
+    while True:
+        cnt = [sum(v in t for t in left) for v in range(n)]
+        cands = [v for v in range(n) if live[v] and cnt[v] > 0]
+        if not cands:
+            break
+        v = min(cands, key=lambda u: (-cnt[u], pos[u]))
+        picked.append(v)
+        live[v] = False
+        work += sum(n - j - 1 for j in range(n) if live[j] and D[v, j] == D[v, j])
+        left = [t for t in left if v not in t]
+    kept = [bool(alive[v]) and v not in picked for v in range(n)]
+    for v in sorted(picked, key=lambda u: -pos[u]):
+        fits = True
+        for j in range(n):
+            if not kept[j] or j == v or D[v, j] != D[v, j]:
+                continue
+            work += n - j - 1
+            if any(kept[k] and k != v and tuple(sorted((v, j, k))) in viol for k in range(j + 1, n)):
+                fits = False
+                break
+        if fits:
+            kept[v] = True
+    return [v for v in range(n) if alive[v] and not kept[v]], work
+
+
+def ref_link_matchings(D, tol, alive, cand, cap):
+    n = len(D)
+    viol = set(taxa.reference_violated(D, tol))
+    out, work = [], 0
+    for v in cand:
+        used, mu = set(), 0
+        for j in range(n):
+            if not alive[j] or j == v or j in used or D[v, j] != D[v, j]:
+                continue
+            for k in range(j + 1, n):
+                work += 1
+                if alive[k] and k != v and k not in used and tuple(sorted((v, j, k))) in viol:
+                    used |= {j, k}
+                    mu += 1
+                    break
+            if mu > cap:
+                break
+        out.append(mu)
+    return out, work
+
+
+def ref_packing(D, tol, order):
+    viol = set(taxa.reference_violated(D, tol))
+    used, out, work = set(), [], 0
+    L = len(order)
+    for a in range(L):
+        i = order[a]
+        if i in used:
+            continue
+        for b in range(a + 1, L):
+            j = order[b]
+            if j in used or D[i, j] != D[i, j]:
+                continue
+            for c in range(b + 1, L):
+                work += 1
+                k = order[c]
+                if k not in used and tuple(sorted((i, j, k))) in viol:
+                    used |= {i, j, k}
+                    out.append([i, j, k])
+                    break
+            if i in used:
+                break
+    return out, work
+
+
+@pytest.fixture(params=["serial", "threads"])
+def threads(request, monkeypatch):
+    if request.param == "threads":
+        monkeypatch.setattr(taxa, "PARALLEL_MIN_N", 0)
+        monkeypatch.setattr(kept_graph, "PARALLEL_MIN_N", 0)
+    return request.param
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(small(max_n=10), st.integers(0, 2**32 - 1))
+def test_taxa_kernels_match_plain_loops(threads, D, seed):
+    rng = np.random.default_rng(seed)
+    n = len(D)
+    alive = rng.random(n) < 0.8
+    ref = [t for t in taxa.reference_violated(D, TOL) if alive[list(t)].all()]
+    assert [tuple(t) for t in taxa.violated_taxon_triangles(D, TOL, alive).tolist()] == ref
+    assert taxa.taxon_counts(D, TOL, alive).tolist() == [sum(v in t for t in ref) for v in range(n)]
+    pos = rng.permutation(n)
+    cover, work = taxa.greedy_cover(D, TOL, pos, alive)
+    assert (cover.tolist(), work) == ref_greedy_cover(D, TOL, pos, alive)
+    cand = rng.permutation(n)[: rng.integers(0, n + 1)]
+    cap = int(rng.integers(0, 4))
+    mu, work = taxa.link_matchings(D, TOL, alive, cand, cap)
+    assert (mu.tolist(), work) == ref_link_matchings(D, TOL, alive, cand.tolist(), cap)
+    order = rng.permutation(n)
+    packed, work = taxa.packing(D, TOL, order)
+    assert (packed.tolist(), work) == ref_packing(D, TOL, order.tolist())
+
+
+def ref_dijkstra(W, s):
+    n = len(W)
+    dist, pred, done = [math.inf] * n, [-1] * n, [False] * n
+    dist[s] = 0.0
+    for _ in range(n):
+        u, best = -1, math.inf
+        for v in range(n):
+            if not done[v] and dist[v] < best:
+                best, u = dist[v], v
+        if u < 0:
+            break
+        done[u] = True
+        for v in range(n):
+            if not done[v] and best + W[u, v] < dist[v]:
+                dist[v], pred[v] = best + W[u, v], u
+    return dist, pred
+
+
+def ref_violated_sides(D, tol):
+    """Violated triangles (i, j, k, heavy) with every side observed; heavy by the first test that holds."""
+    out = []
+    for i, j, k in itertools.combinations(range(len(D)), 3):
+        dij, dik, djk = D[i, j], D[i, k], D[j, k]
+        tests = [dij > dik + djk + tol, dik > dij + djk + tol, djk > dij + dik + tol]
+        if any(tests):
+            out.append((i, j, k, tests.index(True)))
+    return out
+
+
+def ref_greedy_hitting(n, tri, cand, w, alive, bias):
+    """A full scan per step for the side of largest (unhit triangles + bias) / weight, first among equals."""
+    sides = [[(t[0], t[1]), (t[0], t[2]), (t[1], t[2])] for t in tri]
+    hit = [not a for a in alive]
+    picked, counts = [], []
+    while True:
+        cnt = {}
+        for t in range(len(tri)):
+            if not hit[t]:
+                for s in range(3):
+                    if cand[t][s]:
+                        cnt[sides[t][s]] = cnt.get(sides[t][s], 0) + 1
+        best, be = 0.0, None
+        for a in range(n):
+            for b in range(a + 1, n):
+                c = cnt.get((a, b), 0)
+                if c > 0:
+                    score = math.inf if w[a, b] == 0 else (c + bias[a, b]) / w[a, b]
+                    if score > best:
+                        best, be = score, (a, b)
+        if be is None:
+            return picked, counts
+        picked.append(be[0] * n + be[1])
+        counts.append(cnt[be])
+        for t in range(len(tri)):
+            if any(cand[t][s] and sides[t][s] == be for s in range(3)):
+                hit[t] = True
+
+
+def ref_packing_bound(tri, cand, w, order):
+    R = np.array(w, dtype=np.float64)
+    total = 0.0
+    for t in order:
+        i, j, k = tri[t][:3]
+        sides = [s for q, s in enumerate([(i, j), (i, k), (j, k)]) if cand[t][q]]
+        y = min((R[s] for s in sides), default=math.inf)
+        if 0 < y < math.inf:
+            total += y
+            for s in sides:
+                R[s] -= y
+    return total
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(small(max_n=9), st.integers(0, 2**32 - 1))
+def test_kept_graph_kernels_match_plain_loops(threads, D, seed):
+    rng = np.random.default_rng(seed)
+    n = len(D)
+    tri = kept_graph.violated_triangles(D, TOL)
+    assert [tuple(t) for t in tri.tolist()] == ref_violated_sides(D, TOL)
+    # shortest paths over the measured entries, some left out (inf), zeros allowed
+    W = np.where(np.isnan(D) | (rng.random((n, n)) < 0.2), np.inf, D)
+    W = np.minimum(W, W.T)
+    s = int(rng.integers(n))
+    dist, pred = kept_graph.dijkstra_kernel(W, s)
+    rd, rp = ref_dijkstra(W, s)
+    assert dist.tolist() == rd and pred.tolist() == rp
+    # inserting an edge: the check, and the update of the shortest paths A
+    A = apsp_reference(W)
+    check = rng.random((n, n)) < 0.6
+    i, j = (int(x) for x in rng.choice(n, 2, replace=False))
+    w = float(rng.choice([0.0, 0.5, 1.0, 2.0, 7.5]))
+    expect = all(not check[a, b] or not D[a, b] > min(A[a, i] + w + A[j, b], A[a, j] + w + A[i, b]) + TOL
+                 for a in range(n) for b in range(n))
+    assert kept_graph.insert_ok(A, D, check, i, j, w, TOL) == expect
+    B = A.copy()
+    kept_graph.insert_edge(B, i, j, w)
+    ci, cj = A[:, i].copy(), A[:, j].copy()
+    for a in range(n):
+        for b in range(n):
+            A[a, b] = min(A[a, b], min(ci[a] + w + cj[b], cj[a] + w + ci[b]))
+    assert B.tobytes() == A.tobytes()
+    # the sweep towards targets (Gauss-Seidel, entry by entry, k in order)
+    X = np.where(np.isfinite(B), B, 10.0)
+    X = np.minimum(X, X.T)
+    np.fill_diagonal(X, 0.0)
+    m = int(rng.integers(1, n * (n - 1) // 2 + 1))
+    iu = np.triu_indices(n, 1)
+    sel = rng.choice(len(iu[0]), m, replace=False)
+    ei, ej = iu[0][sel], iu[1][sel]
+    target, lower = rng.uniform(0, 9, m), rng.uniform(0, 1, m)
+    Y = X.copy()
+    sweeps = kept_graph.sweep_nearest(Y, ei, ej, target, lower, 1e-12, 7)
+    ref_sweeps = 0
+    for _ in range(7):
+        ref_sweeps += 1
+        moved = 0.0
+        for e in range(m):
+            a, b = ei[e], ej[e]
+            ks = [k for k in range(n) if k not in (a, b)]
+            hi = min([X[a, k] + X[b, k] for k in ks], default=math.inf)
+            lo = max([lower[e]] + [abs(X[a, k] - X[b, k]) for k in ks])
+            if lo > hi:
+                continue
+            v = min(max(target[e], lo), hi)
+            moved = max(moved, abs(v - X[a, b]))
+            X[a, b] = X[b, a] = v
+        if moved <= 1e-12:
+            break
+    assert sweeps == ref_sweeps and Y.tobytes() == X.tobytes()
+    # the greedy hitting set of the sides and the packing bound
+    cand = rng.random((len(tri), 3)) < 0.8
+    wts = np.triu(rng.choice([0.0, 0.5, 1.0, 2.0, 3.0], (n, n)), 1)
+    wts = wts + wts.T
+    alive = rng.random(len(tri)) < 0.9
+    bias = rng.choice([0.0, 0.25], (n, n))
+    picked, counts = kept_graph.greedy_hitting(n, tri, cand, wts, alive, bias)
+    assert (picked.tolist(), counts.tolist()) == ref_greedy_hitting(n, tri.tolist(), cand.tolist(), wts, alive, bias)
+    order = rng.permutation(len(tri))
+    assert kept_graph.packing_bound(n, tri, cand, wts, order) == ref_packing_bound(tri.tolist(), cand.tolist(),
+                                                                                  wts, order)
+
+
+def test_threaded_scans_do_not_depend_on_the_thread_count(monkeypatch):
+    # above PARALLEL_MIN_N the scans run on threads; the same matrix on one thread gives the same arrays
+    rng = np.random.default_rng(5)
+    n = max(taxa.PARALLEL_MIN_N, kept_graph.PARALLEL_MIN_N) + 3
+    D = planted(n, [7, 300], seed=5) * np.exp(rng.normal(0, 0.02, (n, n)))
+    D = np.triu(D, 1)
+    D[rng.random((n, n)) < 0.01] = np.nan
+    D = D + D.T
+    runs = []
+    for least in (0, 10**9):
+        monkeypatch.setattr(taxa, "PARALLEL_MIN_N", least)
+        monkeypatch.setattr(kept_graph, "PARALLEL_MIN_N", least)
+        runs.append((taxa.taxon_counts(D, TOL), taxa.violated_taxon_triangles(D, TOL),
+                     kept_graph.violated_triangles(D, TOL)))
+    for a, b in zip(*runs):
+        assert a.tobytes() == b.tobytes()
+    assert len(runs[0][1]) == count_violations(D, TOL)[0] > 0 and len(runs[0][2]) > 0
 
 
 # ------------------------------------------------------------------ fewest taxa against brute force

@@ -11,48 +11,69 @@ real edges. ``A`` is the all-pairs shortest-path matrix of a graph
   without breaking another kept entry, and the O(n^2) update of ``A``.
 * :func:`sweep_nearest` - moves changed entries, one at a time, as close to a
   target as the triangle inequalities with all other entries allow.
+* :func:`violated_triangles`, :func:`greedy_hitting`, :func:`packing_bound` -
+  the violated triangles, a greedy hitting set of their sides and a lower bound
+  on any hitting set.
+
+The loops are Cython (``_kept_graph.pyx``, with the branch-free inner loops in
+``src/kept_graph.h``), compiled when the package is installed; each does the
+float operations of the plain loop it replaces, in the same order. The plain
+references are in tests/test_repair_taxa.py.
 """
 
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+
+from seqdist.kernels import _kept_graph
 
 __all__ = ["dijkstra_kernel", "shortest_tree", "path_from_tree", "path_between", "insert_ok", "insert_edge",
            "sweep_nearest", "violated_triangles", "triangle_sides", "greedy_hitting", "packing_bound"]
 
 
+#: Least number of taxa for which the triangle listing runs on threads: below it the
+#: scan takes a few milliseconds, less than waking threads can cost on a busy machine.
+PARALLEL_MIN_N = 400
+
+
+def _f64(a) -> np.ndarray:
+    return np.ascontiguousarray(a, dtype=np.float64)
+
+
+def _u8(a) -> np.ndarray:
+    a = np.ascontiguousarray(a)
+    # bool and uint8 share one byte per entry: a view, no copy
+    return a.view(np.uint8) if a.dtype == np.bool_ else np.ascontiguousarray(a != 0, dtype=np.uint8)
+
+
 # ------------------------------------------------------- shortest paths
-@njit(cache=True)
-def dijkstra_kernel(W, s):  # pragma: no cover - compiled
-    # Dense O(n^2) Dijkstra; W[i, j] = inf for an absent edge, zeros allowed.
+def dijkstra_kernel(W: np.ndarray, s: int) -> tuple[np.ndarray, np.ndarray]:
+    """Dense O(n^2) Dijkstra from ``s``: distances and predecessors (-1: none) over ``W``.
+
+    ``W[i, j]`` is the edge length, ``inf`` for an absent edge; zeros are real
+    edges.
+
+    Examples
+    --------
+    >>> dijkstra_kernel(np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]]), 0)[1].tolist()
+    [-1, 2, 0]
+    """
+    W = _f64(W)
     n = W.shape[0]
-    dist = np.full(n, np.inf)
-    pred = np.full(n, -1, dtype=np.int64)
-    done = np.zeros(n, dtype=np.bool_)
-    dist[s] = 0.0
-    for _ in range(n):
-        u = -1
-        best = np.inf
-        for v in range(n):
-            if not done[v] and dist[v] < best:
-                best = dist[v]
-                u = v
-        if u < 0:
-            break
-        done[u] = True
-        row = W[u]
-        for v in range(n):
-            if not done[v]:
-                nd = best + row[v]
-                if nd < dist[v]:
-                    dist[v] = nd
-                    pred[v] = u
+    dist = np.empty(n)
+    pred = np.empty(n, dtype=np.int64)
+    _kept_graph.dijkstra(W, int(s), dist, pred)
     return dist, pred
 
 
 def shortest_tree(W: np.ndarray, s: int) -> tuple[np.ndarray, np.ndarray]:
-    """Distances and predecessors from ``s`` over the graph ``W`` (inf = no edge)."""
+    """Distances and predecessors from ``s`` over the graph ``W`` (inf = no edge).
+
+    Examples
+    --------
+    >>> shortest_tree(np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]]), 0)[0].tolist()
+    [0.0, 2.0, 1.0]
+    """
     return dijkstra_kernel(np.ascontiguousarray(W, dtype=np.float64), int(s))
 
 
@@ -84,98 +105,40 @@ def path_between(W: np.ndarray, s: int, t: int) -> list[int] | None:
 
 
 # ------------------------------------------------- growing the kept set
-@njit(cache=True)
-def _insert_ok(A, D, check, i, j, w, tol):  # pragma: no cover - compiled
-    # With edge (i, j) of length w added to the graph whose shortest paths are A,
-    # does every entry marked in `check` still satisfy D <= path + tol?
-    n = A.shape[0]
-    Ai = A[i]
-    Aj = A[j]
-    for a in range(n):
-        ra = A[a]
-        ca = check[a]
-        Da = D[a]
-        x = ra[i] + w
-        y = ra[j] + w
-        for b in range(n):
-            if ca[b]:
-                p = min(x + Aj[b], y + Ai[b])
-                if Da[b] > p + tol:
-                    return False
-    return True
-
-
 def insert_ok(A, D, check, i, j, w, tol) -> bool:
-    """True when adding edge (i, j) of length ``w`` keeps ``D <= A' + tol`` on ``check``."""
-    return bool(_insert_ok(A, D, check, int(i), int(j), float(w), float(tol)))
+    """True when adding edge (i, j) of length ``w`` keeps ``D <= A' + tol`` on ``check``.
 
+    ``A`` holds the shortest paths of the graph, ``D`` the entries to keep
+    satisfied (NaN never fails) and ``check`` (bool) marks them.
 
-@njit(cache=True)
-def _insert_edge(A, i, j, w):  # pragma: no cover - compiled
-    n = A.shape[0]
-    ci = A[:, i].copy()
-    cj = A[:, j].copy()
-    for a in range(n):
-        x = ci[a] + w
-        y = cj[a] + w
-        ra = A[a]
-        for b in range(n):
-            p = min(x + cj[b], y + ci[b])
-            if p < ra[b]:
-                ra[b] = p
-    return A
+    Examples
+    --------
+    >>> A = np.array([[0, 2, 1], [2, 0, 1], [1, 1, 0.]])
+    >>> insert_ok(A, A, np.ones((3, 3), bool), 0, 1, 0.5, 1e-9), insert_ok(A, A, np.ones((3, 3), bool), 0, 1, 3, 1e-9)
+    (False, True)
+    """
+    return _kept_graph.insert_ok(_f64(A), _f64(D), _u8(check), int(i), int(j), float(w), float(tol))
 
 
 def insert_edge(A, i, j, w) -> np.ndarray:
-    """Update shortest paths ``A`` in place for a new edge (i, j) of length ``w``."""
-    return _insert_edge(A, int(i), int(j), float(w))
+    """Update shortest paths ``A`` in place for a new edge (i, j) of length ``w``; returns ``A``.
+
+    Examples
+    --------
+    >>> A = np.array([[0, 2, 1], [2, 0, 1], [1, 1, 0.]])
+    >>> insert_edge(A, 0, 1, 0.5)[0].tolist()
+    [0.0, 0.5, 1.0]
+    """
+    if A.dtype == np.float64 and A.flags.c_contiguous and A.flags.writeable:
+        _kept_graph.insert_edge(A, int(i), int(j), float(w))
+    else:
+        B = np.ascontiguousarray(A, dtype=np.float64).copy()
+        _kept_graph.insert_edge(B, int(i), int(j), float(w))
+        A[...] = B
+    return A
 
 
 # ------------------------------------------------------ nearest values
-@njit(cache=True)
-def _sweep(X, ei, ej, target, lower, tol, max_sweeps):  # pragma: no cover - compiled
-    n = X.shape[0]
-    m = ei.shape[0]
-    sweeps = 0
-    for _ in range(max_sweeps):
-        sweeps += 1
-        moved = 0.0
-        for e in range(m):
-            i = ei[e]
-            j = ej[e]
-            lo = lower[e]
-            hi = np.inf
-            ri = X[i]
-            rj = X[j]
-            for k in range(n):
-                if k == i or k == j:
-                    continue
-                a = ri[k]
-                b = rj[k]
-                s = a + b
-                if s < hi:
-                    hi = s
-                dlt = a - b if a > b else b - a
-                if dlt > lo:
-                    lo = dlt
-            cur = X[i, j]
-            if lo > hi:
-                continue  # only possible through rounding: keep the current value
-            v = target[e]
-            if v < lo:
-                v = lo
-            elif v > hi:
-                v = hi
-            dv = abs(v - cur)
-            if dv > moved:
-                moved = dv
-            X[i, j] = v
-            X[j, i] = v
-        if moved <= tol:
-            break
-    return sweeps
-
-
 def sweep_nearest(X: np.ndarray, ei, ej, target, lower, tol: float, max_sweeps: int = 50) -> int:
     """Move entries ``(ei, ej)`` of the metric ``X`` towards ``target`` (in place).
 
@@ -184,6 +147,12 @@ def sweep_nearest(X: np.ndarray, ei, ej, target, lower, tol: float, max_sweeps: 
     allow, so every triangle through it holds; sweeps repeat until nothing
     moves by more than ``tol``. ``X`` stays a metric throughout. Returns the
     number of sweeps.
+
+    Examples
+    --------
+    >>> X = np.array([[0, 1, 1], [1, 0, 1], [1, 1, 0.]])
+    >>> sweep_nearest(X, [0], [1], [5.0], [0.0], 1e-12), float(X[0, 1])
+    (2, 2.0)
     """
     ei = np.ascontiguousarray(ei, dtype=np.int64)
     ej = np.ascontiguousarray(ej, dtype=np.int64)
@@ -191,44 +160,15 @@ def sweep_nearest(X: np.ndarray, ei, ej, target, lower, tol: float, max_sweeps: 
     lower = np.ascontiguousarray(lower, dtype=np.float64)
     if ei.size == 0:
         return 0
-    return int(_sweep(X, ei, ej, target, lower, float(tol), int(max_sweeps)))
+    if X.dtype == np.float64 and X.flags.c_contiguous and X.flags.writeable:
+        return int(_kept_graph.sweep(X, ei, ej, target, lower, float(tol), int(max_sweeps)))
+    Y = np.ascontiguousarray(X, dtype=np.float64).copy()
+    sweeps = int(_kept_graph.sweep(Y, ei, ej, target, lower, float(tol), int(max_sweeps)))
+    X[...] = Y
+    return sweeps
 
 
 # ------------------------------------------------- violated triangles
-@njit(cache=True)
-def _violated_triangles(D, tol, count_only, out):  # pragma: no cover - compiled
-    # All triples i < j < k with every side observed and the longest side
-    # longer than the sum of the other two by more than tol. out[t] = (i, j, k, h)
-    # with h the heavy side: 0 = (i, j), 1 = (i, k), 2 = (j, k).
-    n = D.shape[0]
-    t = 0
-    for i in range(n):
-        for j in range(i + 1, n):
-            dij = D[i, j]
-            if dij != dij:
-                continue
-            for k in range(j + 1, n):
-                dik = D[i, k]
-                djk = D[j, k]
-                if dik != dik or djk != djk:
-                    continue
-                h = -1
-                if dij > dik + djk + tol:
-                    h = 0
-                elif dik > dij + djk + tol:
-                    h = 1
-                elif djk > dij + dik + tol:
-                    h = 2
-                if h >= 0:
-                    if not count_only:
-                        out[t, 0] = i
-                        out[t, 1] = j
-                        out[t, 2] = k
-                        out[t, 3] = h
-                    t += 1
-    return t
-
-
 def violated_triangles(D: np.ndarray, tol: float) -> np.ndarray:
     """(m, 4) int array of violated triangles ``(i, j, k, heavy)``, i < j < k.
 
@@ -240,11 +180,15 @@ def violated_triangles(D: np.ndarray, tol: float) -> np.ndarray:
     >>> violated_triangles(np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]]), 1e-9).tolist()
     [[0, 1, 2, 0]]
     """
-    D = np.ascontiguousarray(D, dtype=np.float64)
-    dummy = np.empty((0, 4), dtype=np.int64)
-    m = _violated_triangles(D, float(tol), True, dummy)
-    out = np.empty((m, 4), dtype=np.int64)
-    _violated_triangles(D, float(tol), False, out)
+    D = _f64(D)
+    n = D.shape[0]
+    threads = _kept_graph.threads() if n >= PARALLEL_MIN_N else 1
+    per_row = np.zeros(n, dtype=np.int64)
+    _kept_graph.violated_counts(D, float(tol), per_row, threads)
+    offsets = np.zeros(n + 1, dtype=np.int64)
+    np.cumsum(per_row, out=offsets[1:])
+    out = np.empty((int(offsets[-1]), 4), dtype=np.int64)
+    _kept_graph.violated_fill(D, float(tol), offsets, out, threads)
     return out
 
 
@@ -261,129 +205,47 @@ def triangle_sides(tri: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]
 
 
 # ------------------------------------------------------ greedy hitting
-@njit(cache=True)
-def _greedy_hit(n, tri, cand, w, alive, start_score):  # pragma: no cover - compiled
-    # Greedy weighted hitting set of the triangles' candidate sides.
-    # cand[t, s] (s = 0..2) is 1 when side s of triangle t may be picked
-    # (an unlocked side of the right kind); sides are (i,j), (i,k), (j,k).
-    # Picks the side in most unhit triangles per unit weight, until every
-    # triangle is hit. Returns the picked sides (as i*n+j) and their counts.
-    m = tri.shape[0]
-    cnt = np.zeros((n, n), dtype=np.int64)
-    # incidence: for each side, the triangles it is a candidate in
-    deg = np.zeros(n * n, dtype=np.int64)
-    for t in range(m):
-        i, j, k = tri[t, 0], tri[t, 1], tri[t, 2]
-        for s in range(3):
-            if cand[t, s]:
-                a = i if s < 2 else j
-                b = j if s == 0 else k
-                deg[a * n + b] += 1
-    ptr = np.zeros(n * n + 1, dtype=np.int64)
-    for e in range(n * n):
-        ptr[e + 1] = ptr[e] + deg[e]
-    fill = ptr[:-1].copy()
-    inc = np.empty(ptr[-1], dtype=np.int64)
-    for t in range(m):
-        i, j, k = tri[t, 0], tri[t, 1], tri[t, 2]
-        for s in range(3):
-            if cand[t, s]:
-                a = i if s < 2 else j
-                b = j if s == 0 else k
-                inc[fill[a * n + b]] = t
-                fill[a * n + b] += 1
-    hit = ~alive.copy()
-    for t in range(m):
-        if alive[t]:
-            i, j, k = tri[t, 0], tri[t, 1], tri[t, 2]
-            for s in range(3):
-                if cand[t, s]:
-                    a = i if s < 2 else j
-                    b = j if s == 0 else k
-                    cnt[a, b] += 1
-    picked = []
-    picked_cnt = []
-    while True:
-        best = 0.0
-        be = -1
-        for a in range(n):
-            for b in range(a + 1, n):
-                c = cnt[a, b]
-                if c > 0:
-                    ww = w[a, b]
-                    s = np.inf if ww == 0 else (c + start_score[a, b]) / ww
-                    if s > best:
-                        best = s
-                        be = a * n + b
-        if be < 0:
-            break
-        a = be // n
-        b = be % n
-        picked.append(be)
-        picked_cnt.append(cnt[a, b])
-        for q in range(ptr[be], ptr[be + 1]):
-            t = inc[q]
-            if hit[t]:
-                continue
-            hit[t] = True
-            i, j, k = tri[t, 0], tri[t, 1], tri[t, 2]
-            for s in range(3):
-                if cand[t, s]:
-                    x = i if s < 2 else j
-                    y = j if s == 0 else k
-                    cnt[x, y] -= 1
-    out = np.empty(len(picked), dtype=np.int64)
-    outc = np.empty(len(picked), dtype=np.int64)
-    for q in range(len(picked)):
-        out[q] = picked[q]
-        outc[q] = picked_cnt[q]
-    return out, outc
-
-
 def greedy_hitting(n: int, tri: np.ndarray, cand: np.ndarray, w: np.ndarray, alive=None, bias=None):
-    """Greedy weighted hitting set over triangles; returns (edge ids i*n+j, counts at pick time)."""
+    """Greedy weighted hitting set over triangles; returns (edge ids i*n+j, counts at pick time).
+
+    ``cand[t, s]`` (s = 0, 1, 2 for the sides (i, j), (i, k), (j, k) of
+    ``tri[t]``) marks the sides that may be picked. Each step picks the side in
+    the most unhit ``alive`` triangles plus ``bias``, per unit of weight ``w``
+    (a side of weight 0 first), the first in row-major order among equals,
+    until every triangle that has a candidate side is hit.
+
+    Examples
+    --------
+    >>> tri = np.array([[0, 1, 2, 0], [0, 1, 3, 0]])
+    >>> greedy_hitting(4, tri, np.ones((2, 3), bool), np.ones((4, 4)))
+    (array([1]), array([2]))
+    """
     if alive is None:
         alive = np.ones(tri.shape[0], dtype=np.bool_)
     if bias is None:
         bias = np.zeros((n, n))
-    return _greedy_hit(int(n), np.ascontiguousarray(tri, dtype=np.int64), np.ascontiguousarray(cand, dtype=np.bool_),
-                       np.ascontiguousarray(w, dtype=np.float64), np.ascontiguousarray(alive, dtype=np.bool_),
-                       np.ascontiguousarray(bias, dtype=np.float64))
+    return _kept_graph.greedy_hit(int(n), np.ascontiguousarray(tri, dtype=np.int64),
+                                  _u8(np.asarray(cand, dtype=np.bool_)), _f64(w),
+                                  _u8(np.asarray(alive, dtype=np.bool_)), _f64(bias))
 
 
 # ------------------------------------------------------- packing bound
-@njit(cache=True)
-def _packing(n, tri, cand, order, R):  # pragma: no cover - compiled
-    # Greedy fractional packing of triangles (dual of the hitting-set LP):
-    # y_t = least residual weight among the candidate sides; R -= y_t.
-    total = 0.0
-    for q in range(order.shape[0]):
-        t = order[q]
-        i, j, k = tri[t, 0], tri[t, 1], tri[t, 2]
-        y = np.inf
-        for s in range(3):
-            if cand[t, s]:
-                a = i if s < 2 else j
-                b = j if s == 0 else k
-                if R[a, b] < y:
-                    y = R[a, b]
-        if y > 0 and y < np.inf:
-            total += y
-            for s in range(3):
-                if cand[t, s]:
-                    a = i if s < 2 else j
-                    b = j if s == 0 else k
-                    R[a, b] -= y
-    return total
-
-
 def packing_bound(n: int, tri: np.ndarray, cand: np.ndarray, w: np.ndarray, order: np.ndarray) -> float:
     """A lower bound on the weighted hitting set: a greedy packing of the triangles.
 
     Any ``y >= 0`` with ``sum_{t containing e} y_t <= w_e`` for every
     candidate side ``e`` is feasible for the dual of the hitting-set LP, so
-    ``sum y_t`` bounds every hitting set from below (weak duality).
+    ``sum y_t`` bounds every hitting set from below (weak duality). The
+    triangles are packed in ``order``; each takes the least residual weight
+    among its candidate sides.
+
+    Examples
+    --------
+    >>> tri = np.array([[0, 1, 2, 0], [0, 1, 3, 0]])
+    >>> packing_bound(4, tri, np.ones((2, 3), bool), np.ones((4, 4)), np.array([0, 1]))
+    1.0
     """
     R = np.array(w, dtype=np.float64)
-    return float(_packing(int(n), np.ascontiguousarray(tri, dtype=np.int64), np.ascontiguousarray(cand, dtype=np.bool_),
-                          np.ascontiguousarray(order, dtype=np.int64), R))
+    return float(_kept_graph.packing(int(n), np.ascontiguousarray(tri, dtype=np.int64),
+                                     _u8(np.asarray(cand, dtype=np.bool_)), np.ascontiguousarray(order, dtype=np.int64),
+                                     R))

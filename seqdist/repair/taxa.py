@@ -43,7 +43,11 @@ The problem is NP-hard (it contains vertex cover in graphs), so
 Every step is a pure function on arrays; the kernels return the number of
 triples they examined, which is what the work budget
 (:class:`~seqdist.repair.problem.Budget`) is charged with: never the clock.
-:func:`reference_fewest_taxa` is a plain search over all subsets, for tests.
+The kernels are Cython (``_taxa.pyx``, the branch-free scans in
+``seqdist/kernels/src/taxa.h``), compiled when the package is installed; the two full scans
+run on threads, with results that do not depend on their number.
+:func:`reference_violated` (a plain loop) and :func:`reference_fewest_taxa`
+(a plain search over all subsets) are for tests.
 """
 
 from __future__ import annotations
@@ -53,8 +57,9 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from numba import njit
 
+from seqdist.kernels.triangles import tile_starts
+from seqdist.repair import _taxa
 from seqdist.repair.problem import Budget
 
 __all__ = ["TaxaCover", "taxon_counts", "violated_taxon_triangles", "preference_positions", "greedy_cover",
@@ -105,203 +110,6 @@ class TaxaCover:
     forced: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
 
 
-# ------------------------------------------------------------------ kernels
-@njit(cache=True, inline="always")
-def _viol(D, a, b, c, tol):  # pragma: no cover - compiled
-    # The audit's test, with the sides added in the audit's order (sorted
-    # indices), so a triangle is violated here exactly when the audit says so.
-    if a > b:
-        a, b = b, a
-    if b > c:
-        b, c = c, b
-    if a > b:
-        a, b = b, a
-    x = D[a, c]
-    y = D[b, c]
-    z = D[a, b]
-    m = x if x > y else y
-    m = m if m > z else z
-    return 2.0 * m - (x + y + z) > tol
-
-
-@njit(cache=True)
-def _counts(D, tol, alive):  # pragma: no cover - compiled
-    # Violated checked triangles (i < j < k, all alive) through each taxon.
-    n = D.shape[0]
-    cnt = np.zeros(n, dtype=np.int64)
-    for i in range(n):
-        if alive[i] == 0:
-            continue
-        for j in range(i + 1, n):
-            z = D[i, j]
-            if alive[j] == 0 or z != z:
-                continue
-            s = 0
-            for k in range(j + 1, n):  # branch-free: vectorised
-                x = D[i, k]
-                y = D[j, k]
-                m = x if x > y else y
-                m = m if m > z else z
-                f = (2.0 * m - (x + y + z) > tol) & (alive[k] != 0)
-                cnt[k] += f
-                s += f
-            cnt[i] += s
-            cnt[j] += s
-    return cnt
-
-
-@njit(cache=True)
-def _greedy(D, tol, alive, cnt, pos):  # pragma: no cover - compiled
-    # Take the alive taxon in most violated triangles (ties: smaller pos)
-    # until none is in any; returns the picks and the triples examined.
-    n = D.shape[0]
-    alive = alive.copy()
-    cnt = cnt.copy()
-    picked = np.empty(n, dtype=np.int64)
-    npick = 0
-    work = 0
-    while True:
-        best = -1
-        for v in range(n):
-            if alive[v] != 0 and cnt[v] > 0:
-                if best < 0 or cnt[v] > cnt[best] or (cnt[v] == cnt[best] and pos[v] < pos[best]):
-                    best = v
-        if best < 0:
-            break
-        picked[npick] = best
-        npick += 1
-        alive[best] = 0
-        v = best
-        for j in range(n):
-            if alive[j] == 0 or D[v, j] != D[v, j]:
-                continue
-            work += n - j - 1
-            for k in range(j + 1, n):
-                if alive[k] != 0 and _viol(D, v, j, k, tol):
-                    cnt[j] -= 1
-                    cnt[k] -= 1
-    return picked[:npick].copy(), work
-
-
-@njit(cache=True)
-def _fits(D, tol, kept, v):  # pragma: no cover - compiled
-    # True when v forms no violated triangle with two kept taxa; triples examined.
-    n = D.shape[0]
-    work = 0
-    for j in range(n):
-        if kept[j] == 0 or j == v or D[v, j] != D[v, j]:
-            continue
-        work += n - j - 1
-        for k in range(j + 1, n):
-            if kept[k] != 0 and k != v and _viol(D, v, j, k, tol):
-                return False, work
-    return True, work
-
-
-@njit(cache=True)
-def _prune(D, tol, kept, order):  # pragma: no cover - compiled
-    # Return the taxa of ``order`` to the kept set, in that order, while they fit.
-    kept = kept.copy()
-    work = 0
-    for q in range(order.shape[0]):
-        v = order[q]
-        ok, w = _fits(D, tol, kept, v)
-        work += w
-        if ok:
-            kept[v] = 1
-    return kept, work
-
-
-@njit(cache=True)
-def _link_matching(D, tol, alive, cand, cap):  # pragma: no cover - compiled
-    # For each taxon v of cand: a greedy set of disjoint pairs {j, k} of alive
-    # taxa with (v, j, k) violated, stopping once it exceeds cap; its size.
-    n = D.shape[0]
-    out = np.zeros(cand.shape[0], dtype=np.int64)
-    used = np.zeros(n, dtype=np.uint8)
-    work = 0
-    for q in range(cand.shape[0]):
-        v = cand[q]
-        used[:] = 0
-        mu = 0
-        for j in range(n):
-            if alive[j] == 0 or j == v or used[j] != 0 or D[v, j] != D[v, j]:
-                continue
-            for k in range(j + 1, n):
-                work += 1
-                if alive[k] != 0 and k != v and used[k] == 0 and _viol(D, v, j, k, tol):
-                    used[j] = 1
-                    used[k] = 1
-                    mu += 1
-                    break
-            if mu > cap:
-                break
-        out[q] = mu
-    return out, work
-
-
-@njit(cache=True)
-def _pack(D, tol, order):  # pragma: no cover - compiled
-    # Greedy taxon-disjoint violated triangles, scanning triples in ``order``.
-    n = D.shape[0]
-    L = order.shape[0]
-    used = np.zeros(n, dtype=np.uint8)
-    out = np.empty((L // 3 + 1, 3), dtype=np.int64)
-    t = 0
-    work = 0
-    for a in range(L):
-        i = order[a]
-        if used[i] != 0:
-            continue
-        for b in range(a + 1, L):
-            j = order[b]
-            if used[j] != 0 or D[i, j] != D[i, j]:
-                continue
-            for c in range(b + 1, L):
-                work += 1
-                k = order[c]
-                if used[k] == 0 and _viol(D, i, j, k, tol):
-                    used[i] = 1
-                    used[j] = 1
-                    used[k] = 1
-                    out[t, 0] = i
-                    out[t, 1] = j
-                    out[t, 2] = k
-                    t += 1
-                    break
-            if used[i] != 0:
-                break
-    return out[:t].copy(), work
-
-
-@njit(cache=True)
-def _list(D, tol, alive, out, count_only):  # pragma: no cover - compiled
-    # The violated checked triangles (i < j < k) among alive taxa.
-    n = D.shape[0]
-    t = 0
-    for i in range(n):
-        if alive[i] == 0:
-            continue
-        for j in range(i + 1, n):
-            z = D[i, j]
-            if alive[j] == 0 or z != z:
-                continue
-            for k in range(j + 1, n):
-                if alive[k] == 0:
-                    continue
-                x = D[i, k]
-                y = D[j, k]
-                m = x if x > y else y
-                m = m if m > z else z
-                if 2.0 * m - (x + y + z) > tol:
-                    if not count_only:
-                        out[t, 0] = i
-                        out[t, 1] = j
-                        out[t, 2] = k
-                    t += 1
-    return t
-
-
 # ------------------------------------------------------------------ wrappers
 def _arr(D) -> np.ndarray:
     return np.ascontiguousarray(D, dtype=np.float64)
@@ -315,6 +123,26 @@ def _mask(alive, n: int) -> np.ndarray:
 
 def _triples(a: int) -> float:
     return a * (a - 1) * (a - 2) / 6.0
+
+
+#: Rows per tile of the count scan (as in :mod:`seqdist.kernels.triangles`).
+TILE = 32
+#: Least number of taxa for which the two full scans run on threads: below it a scan
+#: takes a few milliseconds, less than waking threads can cost on a busy machine.
+PARALLEL_MIN_N = 400
+
+
+def _threads(n: int) -> int:
+    return _taxa.threads() if n >= PARALLEL_MIN_N else 1
+
+
+def _counts(D: np.ndarray, tol: float, alive: np.ndarray) -> np.ndarray:
+    # Violated checked triangles (i < j < k, all alive) through each taxon: tiles of rows
+    # on threads, each adding into its own row of integers (exact, in any order).
+    n = D.shape[0]
+    buf = np.zeros((_threads(n), n), dtype=np.int64)
+    _taxa.counts(D, tol, alive, tile_starts(n, TILE), TILE, buf)
+    return buf.sum(axis=0)
 
 
 def taxon_counts(D: np.ndarray, tol: float, alive=None) -> np.ndarray:
@@ -348,10 +176,14 @@ def violated_taxon_triangles(D: np.ndarray, tol: float, alive=None) -> np.ndarra
     [[0, 1, 2]]
     """
     D = _arr(D)
-    a = _mask(alive, D.shape[0])
-    m = _list(D, float(tol), a, np.empty((0, 3), dtype=np.int64), True)
-    out = np.empty((m, 3), dtype=np.int64)
-    _list(D, float(tol), a, out, False)
+    n = D.shape[0]
+    a = _mask(alive, n)
+    per_row = np.zeros(n, dtype=np.int64)
+    _taxa.list_counts(D, float(tol), a, per_row, _threads(n))
+    offsets = np.zeros(n + 1, dtype=np.int64)
+    np.cumsum(per_row, out=offsets[1:])
+    out = np.empty((int(offsets[-1]), 3), dtype=np.int64)
+    _taxa.list_fill(D, float(tol), a, offsets, out, _threads(n))
     return out
 
 
@@ -390,12 +222,14 @@ def greedy_cover(D: np.ndarray, tol: float, pos: np.ndarray, alive=None) -> tupl
     n = D.shape[0]
     a = _mask(alive, n)
     cnt = _counts(D, float(tol), a)
-    picked, w1 = _greedy(D, float(tol), a, cnt, np.asarray(pos, dtype=np.int64))
+    picked = np.empty(n, dtype=np.int64)
+    npick, w1 = _taxa.greedy(D, float(tol), a.copy(), cnt, np.ascontiguousarray(pos, dtype=np.int64), picked)
+    picked = picked[:npick]
     kept = a.copy()
     kept[picked] = 0
     # least preferred back first, so the most preferred stay out
-    order = picked[np.argsort(-np.asarray(pos)[picked], kind="stable")]
-    kept, w2 = _prune(D, float(tol), kept, order)
+    order = np.ascontiguousarray(picked[np.argsort(-np.asarray(pos)[picked], kind="stable")])
+    w2 = _taxa.prune(D, float(tol), kept, order)
     cover = np.flatnonzero((a != 0) & (kept == 0))
     return cover, int(w1 + w2)
 
@@ -407,7 +241,10 @@ def link_matchings(D: np.ndarray, tol: float, alive, cand, cap: int) -> tuple[np
     least cover's size forces the taxon into every least cover (module docs).
     """
     D = _arr(D)
-    return _link_matching(D, float(tol), _mask(alive, D.shape[0]), np.asarray(cand, dtype=np.int64), int(cap))
+    cand = np.ascontiguousarray(cand, dtype=np.int64)
+    out = np.zeros(cand.shape[0], dtype=np.int64)
+    work = _taxa.link_matching(D, float(tol), _mask(alive, D.shape[0]), cand, int(cap), out)
+    return out, int(work)
 
 
 def packing(D: np.ndarray, tol: float, order) -> tuple[np.ndarray, int]:
@@ -417,7 +254,10 @@ def packing(D: np.ndarray, tol: float, order) -> tuple[np.ndarray, int]:
     Returns the triangles (k, 3) and the number of triples examined.
     """
     D = _arr(D)
-    return _pack(D, float(tol), np.asarray(order, dtype=np.int64))
+    order = np.ascontiguousarray(order, dtype=np.int64)
+    out = np.empty((order.shape[0] // 3 + 1, 3), dtype=np.int64)
+    t, work = _taxa.pack(D, float(tol), order, out)
+    return out[:t].copy(), int(work)
 
 
 # ------------------------------------------------------------------ integer programs
