@@ -9,6 +9,10 @@ broken cycles.
 
 Algorithm
 ---------
+The stages are shared with grow (:mod:`seqdist.repair.hitting_set`); this
+module holds what is fewest's own: :func:`make_feasible` with
+:func:`cut_locked`, :func:`values` and :data:`RULES`.
+
 1. **Heuristic** (always; it is the answer beyond exact reach and the
    starting incumbent otherwise): a greedy hitting set of the violated
    triangles (the entry in most unhit violated triangles per unit weight,
@@ -45,67 +49,16 @@ Options: see :data:`OPTIONS`.
 
 from __future__ import annotations
 
-import time
-
 import numpy as np
 
 from seqdist.kernels import kept_graph
-from seqdist.repair import kept_sets
-from seqdist.repair.problem import Option, RepairProblem, Solution, rescaled, validate_options
+from seqdist.repair import hitting_set, kept_sets
+from seqdist.repair.problem import RepairProblem, Solution, validate_options
 
-__all__ = ["heuristic", "make_feasible", "cut_locked", "packing_lower_bound", "exact", "solve"]
+__all__ = ["make_feasible", "cut_locked", "values", "solve"]
 
-#: The options fewest reads (checked by :func:`~seqdist.repair.problem.validate_options`).
-OPTIONS = {
-    "method": Option("auto", "exact: the integer program; heuristic: greedy + repair + prune with bounds; "
-                             "auto: exact when the problem is small enough (exact_max_n, exact_max_rows)",
-                     choices=("auto", "exact", "heuristic")),
-    "exact_budget": Option(120.0, "work budget of the exact stage under method auto without a time limit, "
-                                  "in reference seconds", low=0.0),
-    "exact_max_n": Option(200, "largest number of taxa for the exact stage under method auto", low=0),
-    "exact_max_rows": Option(600000, "largest number of violated triangles for the exact stage under auto", low=0),
-    "lp_bound": Option(True, "compute the LP relaxation bound (and the LP-guided second greedy pass)"),
-    "lp_budget": Option(30.0, "work budget of the LP bound, in reference seconds", low=0.0),
-}
-
-
-def _var_mask(problem: RepairProblem) -> np.ndarray:
-    return problem.observed & ~problem.locked
-
-
-def heuristic(problem: RepairProblem, tri=None, budget=None, greedy_weights=None):
-    """Greedy + repair + prune. Returns (S_edges (m,2), F mask, info).
-
-    ``greedy_weights`` replaces the weights in the greedy step only (the
-    LP-guided pass); repair and prune always use the true weights. The
-    greedy step and the repair always run (they make the answer feasible);
-    prune stops early when ``budget`` is spent.
-    """
-    D, tol, n = problem.D, problem.tol, problem.n
-    var = _var_mask(problem)
-    if tri is None:
-        tri = kept_graph.violated_triangles(D, tol)
-    cand = _cand(tri, var)
-    picked, cnt = kept_graph.greedy_hitting(n, tri, cand, problem.weights if greedy_weights is None else greedy_weights)
-    S = np.zeros((n, n), dtype=bool)
-    S.flat[picked] = True
-    keyval = np.zeros((n, n))
-    keyval.flat[picked] = cnt
-    S = kept_sets.sym(S)
-    F = problem.observed & ~S
-    S, F, extra = make_feasible(problem, S, F, budget)
-    S_edges = np.argwhere(np.triu(S, 1))
-    w = problem.weights[S_edges[:, 0], S_edges[:, 1]]
-    keys = (keyval[S_edges[:, 0], S_edges[:, 1]] + 1.0) / np.maximum(w, 1e-300)  # free entries last
-    before = len(S_edges)
-    S_edges = kept_sets.prune(D, F, S_edges, keys, False, tol, budget)
-    info = {"greedy": int(len(picked)), "cycle_repairs": extra, "pruned": before - len(S_edges)}
-    return S_edges, F, info
-
-
-def _cand(tri, var):
-    i, j, k = tri[:, 0], tri[:, 1], tri[:, 2]
-    return np.stack([var[i, j], var[i, k], var[j, k]], 1)
+#: The options fewest reads: those of the method (:data:`seqdist.repair.hitting_set.OPTIONS`).
+OPTIONS = dict(hitting_set.OPTIONS)
 
 
 def make_feasible(problem: RepairProblem, S, F, budget=None):
@@ -186,131 +139,43 @@ def cut_locked(problem: RepairProblem, S, F, pairs, budget=None) -> int:
     return removed
 
 
-def packing_lower_bound(problem: RepairProblem, tri, cand) -> float:
-    """Weighted packing of violated triangles, triangles with rarely-shared sides first."""
-    n = problem.n
-    if len(tri) == 0:
-        return 0.0
-    i, j, k = tri[:, 0], tri[:, 1], tri[:, 2]
-    cnt = np.zeros((n, n))
-    for s, (a, b) in enumerate([(i, j), (i, k), (j, k)]):
-        np.add.at(cnt, (a[cand[:, s]], b[cand[:, s]]), 1.0)
-    key = np.zeros(len(tri))
-    for s, (a, b) in enumerate([(i, j), (i, k), (j, k)]):
-        key += np.where(cand[:, s], cnt[a, b], 0.0)
-    order = np.lexsort((np.arange(len(tri)), key))
-    w = np.where(problem.locked, np.inf, problem.weights)
-    return kept_graph.packing_bound(n, tri, cand, w, order)
+def values(problem: RepairProblem, F, S_edges):
+    """The second stage: values for the kept set ``F``; returns ``(X, report entries)``.
+
+    Shortest paths over ``F``, then each changed entry moved to the value
+    nearest its input that the triangle inequalities allow
+    (:func:`~seqdist.repair.kept_sets.complete`).
+
+    Examples
+    --------
+    >>> from seqdist.repair.problem import RepairProblem
+    >>> D = np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]])
+    >>> F = np.array([[0, 0, 1], [0, 0, 1], [1, 1, 0]], dtype=bool)  # (0, 1) changes
+    >>> X, extra = values(RepairProblem(D, 1 - np.eye(3), np.zeros((3, 3), bool), D > 0, 1e-9), F, np.array([[0, 1]]))
+    >>> float(X[0, 1]), extra  # the longest (0, 1) can be: the path 0-2-1
+    (2.0, {'value_sweeps': 1, 'unlocked_entries': 3})
+    """
+    X, sweeps = kept_sets.complete(problem.D, F, S_edges, problem.tol)
+    return X, {"value_sweeps": sweeps, "unlocked_entries": int(np.triu(problem.observed & ~problem.locked, 1).sum())}
 
 
-def exact(problem: RepairProblem, tri, cand, incumbent_edges, budget, log):
-    """The lazy-cut binary program (see the module docs)."""
-    D, tol, n = problem.D, problem.tol, problem.n
-    var = _var_mask(problem)
-    cuts = []
-    sides = [(tri[:, 0], tri[:, 1]), (tri[:, 0], tri[:, 2]), (tri[:, 1], tri[:, 2])]
-    ids = [a * n + b for a, b in sides]
-    for t in range(len(tri)):
-        cuts.append([int(ids[s][t]) for s in range(3) if cand[t, s]])
-
-    def separate(S_ids):
-        S = kept_sets.ids_to_mask(S_ids, n)
-        F = problem.observed & ~S
-        A = kept_sets.kept_paths(D, F)
-        budget.charge(kept_sets.cost_apsp(n))
-        bad = kept_sets.broken_edges(D, A, F, tol)
-        if len(bad) == 0:
-            return [], None
-        W = np.where(F, D, np.inf)
-        np.fill_diagonal(W, 0.0)
-        # most broken first; a few thousand cuts per round are plenty
-        viol = D[bad[:, 0], bad[:, 1]] - A[bad[:, 0], bad[:, 1]]
-        bad = bad[np.lexsort((np.arange(len(bad)), -viol))][:5000]
-        budget.charge(kept_sets.cost_dijkstra(n) * len(np.unique(bad[:, 0])))
-        new = []
-        for (i, j), path in zip(bad, kept_sets.paths_for(W, bad)):
-            edges = [int(i) * n + int(j)] + (kept_sets.path_edges(path, n) if path else [])
-            new.append([e for e in edges if var.flat[e]])
-        S2, F2, _ = make_feasible(problem, S, F, budget)
-        S_edges = np.argwhere(np.triu(S2, 1))
-        w = problem.weights[S_edges[:, 0], S_edges[:, 1]]
-        S_edges = kept_sets.prune(D, F2, S_edges, -w, False, tol, budget)
-        return new, kept_sets.edges_to_ids(S_edges, n)
-
-    inc_val = (float(problem.weights[incumbent_edges[:, 0], incumbent_edges[:, 1]].sum())
-               if len(incumbent_edges) else 0.0)
-    return kept_sets.lazy_hitting_set(n, np.where(var, problem.weights, 0.0), cuts, separate,
-                                     (kept_sets.edges_to_ids(incumbent_edges, n), inc_val), budget,
-                                     problem.progress, log=log)
+#: What fewest's hitting set is (:class:`~seqdist.repair.hitting_set.Rules`).
+RULES = hitting_set.Rules(
+    increase_only=False, make_feasible=make_feasible, values=values,
+    heuristic_method="heuristic (greedy hitting set, cycle repair, prune)",
+    exact_method="exact (lazy cycle cuts, HiGHS)")
 
 
 def solve(problem: RepairProblem) -> Solution:
-    """Fewest changed entries (weighted); see the module docs."""
-    t0 = time.perf_counter()  # for the report's seconds only, never a decision
-    opts = validate_options("fewest", OPTIONS, problem.options)
-    # weights far from 1 are rescaled by a power of two (exact): HiGHS takes
-    # costs above 1e20 as infinite, and the optimality tests compare at 1e-9
-    problem, _, wexp = rescaled(problem, distances=False)
-    D, tol, n = problem.D, problem.tol, problem.n
-    method = opts["method"]
-    budget = problem.budget()
-    var = _var_mask(problem)
-    tri = kept_graph.violated_triangles(D, tol)
-    budget.charge(kept_sets.TRIANGLES_PER_N3 * float(n) ** 3)
-    cand = _cand(tri, var)
-    problem.report(0.05, f"{len(tri)} violated triangles")
-    S_edges, F, hinfo = heuristic(problem, tri, budget)
-    w = problem.weights
-    value = float(w[S_edges[:, 0], S_edges[:, 1]].sum()) if len(S_edges) else 0.0
-    lb = min(value, packing_lower_bound(problem, tri, cand))
-    seconds = {"heuristic": round(time.perf_counter() - t0, 3)}
-    details = {"method": "heuristic (greedy hitting set, cycle repair, prune)", "heuristic_value": value,
-               "packing_bound": lb, "violated_triangles": int(len(tri)), **hinfo}
-    optimal = value <= lb + 1e-9 * value
-    if not optimal and opts["lp_bound"]:
-        left = budget.left()
-        lp_stage = budget.stage(opts["lp_budget"] if left is None else min(opts["lp_budget"], 0.5 * left))
-        lpb, xlp = kept_sets.lp_bound(n, tri[:, :3], cand, np.where(var, w, 0.0), lp_stage, return_x=True)
-        if lpb is not None:
-            details["lp_bound"] = lpb
-            lb = max(lb, min(value, lpb))
-        if xlp is not None and value > lb + 1e-9 * value:
-            # LP-guided rounding: a second greedy pass where entries the LP
-            # changes are cheap; keep whichever answer is better
-            gw = w * (1.05 - xlp)
-            S2, F2, h2 = heuristic(problem, tri, budget, greedy_weights=gw)
-            v2 = float(w[S2[:, 0], S2[:, 1]].sum()) if len(S2) else 0.0
-            details["lp_guided_value"] = v2
-            if v2 < value - 1e-12:
-                S_edges, F, value = S2, F2, v2
-            optimal = value <= lb + 1e-9 * value
-    problem.report(1.0 if value == 0 else max(0.2, lb / value), "heuristic done")
-    nvar = int(np.triu(var, 1).sum())
-    run_exact = not optimal and (method == "exact" or (
-        method == "auto" and n <= opts["exact_max_n"] and len(tri) <= opts["exact_max_rows"]))
-    if run_exact:
-        # under auto without a time limit the exact stage has its own budget
-        stage = budget.stage(opts["exact_budget"] if method == "auto" and problem.time_limit is None else None)
-        log: list = []
-        res = exact(problem, tri, cand, S_edges, stage, log)
-        details.update({"method": "exact (lazy cycle cuts, HiGHS)" if res["optimal"] else
-                        "exact stage stopped early (" + res["status"] + "); best verified answer",
-                        "rounds": res["rounds"], "cuts": res["cuts"], "nodes": res["nodes"],
-                        "exact_status": res["status"], "exact_log": log[-20:]})
-        lb = max(lb, res["lower_bound"])
-        if res["value"] < value - 1e-12 or res["optimal"]:
-            S = kept_sets.ids_to_mask(res["ids"], n)
-            F = problem.observed & ~S
-            S_edges = np.argwhere(np.triu(S, 1))
-            value = res["value"]
-        optimal = res["optimal"] or value <= lb + 1e-9 * value
-    lb = kept_sets.round_bound(lb, np.where(var, w, 0.0))
-    optimal = optimal or value <= lb + 1e-9 * value
-    X, sweeps = kept_sets.complete(D, F, S_edges, tol)
-    details["value_sweeps"] = sweeps
-    details["unlocked_entries"] = nvar
-    details["work"] = round(budget.spent, 6)
-    seconds["total"] = round(time.perf_counter() - t0, 3)
-    details["seconds"] = seconds
-    value, lb = kept_sets.unscale_weights(details, value, lb, wexp)
-    return Solution(X=X, objective_value=value, lower_bound=min(lb, value), optimal=bool(optimal), details=details)
+    """Fewest changed entries (weighted); see the module docs.
+
+    Examples
+    --------
+    >>> from seqdist.repair.problem import RepairProblem
+    >>> D = np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]])  # (0, 1) is longer than the path 0-2-1
+    >>> W = np.array([[0, 9, 1], [9, 0, 2], [1, 2, 0.]])  # (0, 2) is the cheapest to change
+    >>> s = solve(RepairProblem(D, W, np.zeros((3, 3), bool), D > 0, 1e-9))
+    >>> s.objective_value, s.optimal, float(s.X[0, 2])
+    (1.0, True, 4.0)
+    """
+    return hitting_set.solve(problem, RULES, validate_options("fewest", OPTIONS, problem.options))

@@ -14,6 +14,9 @@ symmetric boolean (n, n) arrays; edge ids are ``i * n + j`` with ``i < j``.
 * :func:`lazy_hitting_set` - the exact binary program with lazy cycle cuts
   (scipy's ``milp``, HiGHS).
 
+The method built on these (its stages, bounds and bookkeeping) is
+:mod:`seqdist.repair.hitting_set`.
+
 Every stopping decision follows a :class:`~seqdist.repair.problem.Budget`
 charged by the work model below (counted steps times fixed per-step costs),
 never the clock: HiGHS gets node and iteration limits, not time limits.
