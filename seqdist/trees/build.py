@@ -32,9 +32,12 @@ so rounding noise never decides (this matters for BIONJ, whose lengths
 depend on which pair is joined first).
 
 Implementation: one compiled kernel per method works in place on a copy of the
-matrix, keeping the active clusters in the first ``r`` rows (the merged
-cluster takes the lower slot, the last active slot moves into the freed
-one). Neighbor joining keeps the row sums up to date incrementally (``O(r)``
+matrix. Neighbor joining and BIONJ keep the active clusters in the first
+``r`` rows (the merged cluster takes the lower slot, the last active slot
+moves into the freed one); UPGMA leaves clusters in their slots (a joined
+cluster's slot is marked dead and the live ones are packed together when half
+are dead), so each join writes one column instead of three; the joins are the
+same. Neighbor joining keeps the row sums up to date incrementally (``O(r)``
 per join, refreshed exactly every 64 joins against rounding drift). To find
 the best pair it keeps, for each row, its distances in increasing order
 (a pair is stored in the row of the younger cluster; distances between
