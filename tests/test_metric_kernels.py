@@ -111,10 +111,21 @@ def test_count_input_untouched_and_fortran_order():
 
 def test_apsp_same_bits_for_any_tiling_rows_and_threads():
     """The blocked kernel forms each candidate sum once and compares them in the order of the
-    pivots for every entry, so the column tiles, the four-row and one-row update paths and the
-    number of threads must not change a single bit (row counts on both sides of multiples of 4
-    and of the block; missing entries and zeros). The values are also checked against the plain numpy reference."""
+    pivots for every entry, so the column tiles, the form of the update (AVX-512 register blocks
+    where the CPU has it, else the portable loops over four rows and one row) and the number of
+    threads must not change a single bit (row counts on both sides of multiples of 4, 8 and the
+    block, column tails; missing entries and zeros). The values are also checked against the
+    plain numpy reference."""
+    from seqdist.kernels._shortest_paths import fw_blocked
     from seqdist.kernels.shortest_paths import apsp_reference
+
+    def portable(D, block, tile):
+        d = np.array(D, dtype=np.float64)
+        d[np.isnan(d)] = np.inf
+        np.fill_diagonal(d, 0.0)
+        b = min(block, len(d))
+        fw_blocked(d, np.empty((b, len(d))), np.empty((len(d), b)), tile, 1, wide=False)
+        return d
 
     rng = np.random.default_rng(17)
     for n, missing in ((2, 0.3), (5, 0.3), (13, 0.3), (64, 0.3), (67, 0.9), (150, 0.3), (150, 0.97)):
@@ -125,6 +136,8 @@ def test_apsp_same_bits_for_any_tiling_rows_and_threads():
         np.fill_diagonal(D, 0)
         for block in (16, 64):
             base = apsp(D, block=block, tile=512, threads=1)
+            for tile in (3, 512):
+                assert portable(D, block, tile).tobytes() == base.tobytes(), (n, block, tile)
             for tile, threads in ((1, 1), (3, 1), (8, 2), (16, 0), (512, 2)):
                 assert apsp(D, block=block, tile=tile, threads=threads).tobytes() == base.tobytes(), (n, block, tile)
         ref = apsp_reference(D)

@@ -1,12 +1,13 @@
 # cython: language_level=3, boundscheck=False, wraparound=False, cdivision=True, initializedcheck=False
 """Compiled part of :mod:`seqdist.kernels.shortest_paths` (see its docstring for the method).
 
-The loops are C (``src/shortest_paths.h``; the panel and the min-plus update are
-built for AVX2 and for the baseline, chosen at load time); this module runs the
-rounds and, with more than one thread, hands the row blocks of a round to OpenMP
-threads (dynamic schedule, chunk 1, heavy and light blocks interleaved). Each row
-block writes only its own rows and reads only the round's panel, so the answer
-does not depend on the number of threads or the order they finish in.
+The loops are C (``src/shortest_paths.h``: the panel and the portable min-plus
+update built for AVX2 and for the baseline, chosen at load time; an AVX-512 form of
+the update, chosen at run time where the CPU has it). This module runs the rounds
+and, with more than one thread, hands the row blocks of a round to OpenMP threads
+(dynamic schedule, chunk 1, heavy and light blocks interleaved). Each row block
+writes only its own rows and reads only the round's panel, so the answer does not
+depend on the number of threads or the order they finish in.
 """
 
 from cython.parallel cimport prange
@@ -17,7 +18,8 @@ from openmp cimport omp_get_max_threads
 cdef extern from "src/shortest_paths.h" nogil:
     void sd_sp_gather(double* d, double* P, double* PT, int64_t n, int64_t b, int64_t k0, int64_t kb)
     void sd_sp_update_rows(double* d, const double* P, const double* PT, int64_t n, int64_t b, int64_t i0,
-                           int64_t i1, int64_t kb, int64_t tile)
+                           int64_t i1, int64_t kb, int64_t tile, int wide)
+    int sd_sp_has_avx512()
     void sd_sp_mirror(double* d, int64_t n)
 
 
@@ -26,14 +28,22 @@ def max_threads():
     return omp_get_max_threads()
 
 
-def fw_blocked(double[:, ::1] d, double[:, ::1] P, double[:, ::1] PT, Py_ssize_t tile, int threads):
+def has_avx512():
+    """True when the min-plus update runs in its AVX-512 form on this CPU."""
+    return sd_sp_has_avx512() == 1
+
+
+def fw_blocked(double[:, ::1] d, double[:, ::1] P, double[:, ::1] PT, Py_ssize_t tile, int threads, bint wide=True):
     """Blocked Floyd-Warshall in place on the C-contiguous float64 (n, n) ``d``.
 
     ``P`` (b, n) and ``PT`` (n, b) are work buffers; ``b`` is the pivot block
     size. Only the upper triangle of ``d`` is read; the result is mirrored.
     ``threads`` 1 runs serially; more share each round's row blocks.
+    ``wide=False`` keeps to the portable form of the update (for tests: every
+    form gives the same bits).
     """
     cdef Py_ssize_t n = d.shape[0], b = P.shape[0], nb, K, I, q, k0, kb, i1
+    cdef int wide_c = 1 if wide else 0
     if n <= 1:
         return
     if b < 1 or P.shape[1] != n or PT.shape[0] != n or PT.shape[1] != b or tile < 1:
@@ -51,12 +61,12 @@ def fw_blocked(double[:, ::1] d, double[:, ::1] P, double[:, ::1] PT, Py_ssize_t
                 for I in range(nb):
                     if I != K:
                         i1 = I * b + b
-                        sd_sp_update_rows(pd, pP, pT, n, b, I * b, n if i1 > n else i1, kb, tile)
+                        sd_sp_update_rows(pd, pP, pT, n, b, I * b, n if i1 > n else i1, kb, tile, wide_c)
             else:
                 for q in prange(nb, num_threads=threads, schedule="dynamic", chunksize=1):
                     # first, last, second, second to last, ...: the top blocks hold more columns
                     I = q // 2 if q % 2 == 0 else nb - 1 - q // 2
                     if I != K:
                         i1 = I * b + b
-                        sd_sp_update_rows(pd, pP, pT, n, b, I * b, n if i1 > n else i1, kb, tile)
+                        sd_sp_update_rows(pd, pP, pT, n, b, I * b, n if i1 > n else i1, kb, tile, wide_c)
         sd_sp_mirror(pd, n)
