@@ -18,6 +18,7 @@ import numpy as np
 
 from cython.parallel cimport prange
 from libc.stdint cimport int64_t, uint8_t
+from libc.stdlib cimport free, malloc
 from openmp cimport omp_get_max_threads, omp_get_thread_num
 
 
@@ -27,6 +28,10 @@ cdef extern from "../kernels/src/taxa.h" nogil:
     int64_t sd_taxa_row_count(const double* xs, const double* ys, const uint8_t* al, int64_t m, double z, double tol)
     int64_t sd_taxa_list_row(const double* d, const uint8_t* alive, int64_t n, int64_t i, double tol, int64_t* out,
                              int64_t t)
+    int64_t sd_taxa_scan_dec(const double* d, const double* colv, const uint8_t* alive, int64_t n, int64_t v,
+                             int64_t j, double tol, int64_t* cnt)
+    int64_t sd_taxa_scan(const double* d, const double* colv, const uint8_t* alive, int64_t n, int64_t v, int64_t j,
+                         double tol)
 
 
 cdef inline bint _viol(const double* d, int64_t n, int64_t a, int64_t b, int64_t c, double tol) noexcept nogil:
@@ -106,11 +111,15 @@ def greedy(const double[:, ::1] D, double tol, uint8_t[::1] alive, int64_t[::1] 
     ``alive`` and ``cnt`` are updated in place; the picks go to ``picked``.
     Returns the number of picks and the triples examined.
     """
-    cdef int64_t n = D.shape[0], npick = 0, work = 0, best, v, j, k
+    cdef int64_t n = D.shape[0], npick = 0, work = 0, best, v, j, k, s
     cdef const double* d
+    cdef double* colv
     if n == 0:
         return 0, 0
     d = &D[0, 0]
+    colv = <double*>malloc(<size_t>n * sizeof(double))
+    if colv == NULL:
+        raise MemoryError()
     with nogil:
         while True:
             best = -1
@@ -124,41 +133,51 @@ def greedy(const double[:, ::1] D, double tol, uint8_t[::1] alive, int64_t[::1] 
             npick += 1
             alive[best] = 0
             v = best
+            for k in range(n):
+                colv[k] = d[k * n + v]
             for j in range(n):
                 if alive[j] == 0 or d[v * n + j] != d[v * n + j]:
                     continue
                 work += n - j - 1
-                for k in range(j + 1, n):
-                    if alive[k] != 0 and _viol(d, n, v, j, k, tol):
-                        cnt[j] -= 1
-                        cnt[k] -= 1
+                # the violated (v, j, k), k > j alive: -1 on cnt[k] each, and on cnt[j] for all
+                s = sd_taxa_scan_dec(d, colv, &alive[0], n, v, j, tol, &cnt[0])
+                cnt[j] -= s
+    free(colv)
     return npick, work
 
 
-cdef bint _fits(const double* d, int64_t n, double tol, const uint8_t* kept, int64_t v,
+cdef bint _fits(const double* d, double* colv, int64_t n, double tol, const uint8_t* kept, int64_t v,
                 int64_t* work) noexcept nogil:
-    # True when v forms no violated triangle with two kept taxa; adds the triples examined to work.
+    # True when v forms no violated triangle with two kept taxa; adds the triples examined to work
+    # (every k of a j is examined, up to the first j that has a violated triangle, as a scan that
+    # stops at it counts them).
     cdef int64_t j, k
+    for k in range(n):
+        colv[k] = d[k * n + v]
     for j in range(n):
         if kept[j] == 0 or j == v or d[v * n + j] != d[v * n + j]:
             continue
         work[0] += n - j - 1
-        for k in range(j + 1, n):
-            if kept[k] != 0 and k != v and _viol(d, n, v, j, k, tol):
-                return False
+        if sd_taxa_scan(d, colv, kept, n, v, j, tol) > 0:
+            return False
     return True
 
 
 def prune(const double[:, ::1] D, double tol, uint8_t[::1] kept, const int64_t[::1] order):
     """Return the taxa of ``order`` to ``kept`` (in place), in that order, while they fit; the triples examined."""
     cdef int64_t n = D.shape[0], q, v, work = 0
+    cdef double* colv
     if n == 0:
         return 0
+    colv = <double*>malloc(<size_t>n * sizeof(double))
+    if colv == NULL:
+        raise MemoryError()
     with nogil:
         for q in range(order.shape[0]):
             v = order[q]
-            if _fits(&D[0, 0], n, tol, &kept[0], v, &work):
+            if _fits(&D[0, 0], colv, n, tol, &kept[0], v, &work):
                 kept[v] = 1
+    free(colv)
     return work
 
 

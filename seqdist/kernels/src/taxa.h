@@ -84,4 +84,50 @@ static int64_t sd_taxa_list_row(const double *restrict d, const uint8_t *restric
     }
     return r;
 }
+/* The violated (v, j, k) for k in j+1 .. n-1, k != v, k alive (v != j): the sides are read at sorted
+ * indices as the audit's test reads them, x = d[a, c], y = d[b, c], z = d[a, b] for a < b < c, so
+ * the k are taken in three runs by where v falls: v < j gives (v, j, k); j < v gives (j, k, v) for
+ * k < v, whose side d[k, v] is read from colv (column v of d, copied), and (j, v, k) for k > v.
+ * Each run is branch-free. With cnt, adds -1 to cnt[k] for each violated (v, j, k); returns how
+ * many there are. */
+#define SD_TAXA_RUN(LO, HI, XE, YE, ZE)                                        \
+    for (int64_t k = (LO); k < (HI); k++) {                                    \
+        double x = (XE), y = (YE), z = (ZE);                                   \
+        double m = x > y ? x : y;                                              \
+        m = m > z ? m : z;                                                     \
+        int64_t f = (2.0 * m - (x + y + z) > tol) & (alive[k] != 0);           \
+        if (CNT) cnt[k] -= f;                                                  \
+        s += f;                                                                \
+    }
+#define SD_TAXA_SCAN_BODY                                                      \
+    const double *rv = d + v * n, *rj = d + j * n;                             \
+    int64_t s = 0;                                                             \
+    if (v < j) {                                                               \
+        double zc = rv[j];                                                     \
+        SD_TAXA_RUN(j + 1, n, rv[k], rj[k], zc)                                \
+    } else {                                                                   \
+        double xc = rj[v];                                                     \
+        SD_TAXA_RUN(j + 1, v, xc, colv[k], rj[k])                              \
+        SD_TAXA_RUN(v + 1, n, rj[k], rv[k], xc)                                \
+    }                                                                          \
+    return s;
+
+SEQDIST_SIMD_WIDE
+static int64_t sd_taxa_scan_dec(const double *restrict d, const double *restrict colv, const uint8_t *restrict alive,
+                                int64_t n, int64_t v, int64_t j, double tol, int64_t *restrict cnt) {
+#define CNT 1
+    SD_TAXA_SCAN_BODY
+#undef CNT
+}
+
+SEQDIST_SIMD_WIDE
+static int64_t sd_taxa_scan(const double *restrict d, const double *restrict colv, const uint8_t *restrict alive,
+                            int64_t n, int64_t v, int64_t j, double tol) {
+#define CNT 0
+    int64_t *cnt = 0;
+    SD_TAXA_SCAN_BODY
+#undef CNT
+}
+#undef SD_TAXA_SCAN_BODY
+#undef SD_TAXA_RUN
 #endif
