@@ -10,8 +10,8 @@ are integers, so the results do not depend on the number of threads or on the
 order in which tiles finish.
 
 The collection of forcing triangles runs in parallel over pairs, each writing
-its own slots; the greedy packing and the quartet statistics are sequential
-(their float sums are kept in the order of the loops).
+its own slots; the greedy packing and the quartet statistics (C, in the same
+header) are sequential (their float sums are kept in the order of the loops).
 """
 
 from cython.parallel cimport prange
@@ -28,6 +28,17 @@ cdef extern from "src/audit_scans.h" nogil:
                             int32_t* cnt, int64_t* qex, int32_t* lng, int64_t* row_ub, int64_t* row_uc,
                             int32_t* Ac, int64_t* Aq, int32_t* Al, int32_t* Bc, int64_t* Bq, int32_t* Bl,
                             double* ebuf, int64_t* hit, int64_t* H)
+    ctypedef struct sd_quartet_acc:
+        int64_t examined
+        int64_t missing
+        int64_t violated
+        int64_t delta_n
+        int64_t star
+        double rel_sum
+        double rel_max
+        double delta_sum
+    void sd_quartets(const double* d, int64_t n, const int64_t* Q, int64_t nq, double tol, sd_quartet_acc* out,
+                     double* dsum, int64_t* dcnt, int64_t* dhist, int64_t nb, int64_t* qworst)
 
 
 def max_threads():
@@ -164,105 +175,35 @@ def greedy(const int64_t[:, ::1] ids, const int64_t[::1] order, Py_ssize_t nent,
 
 
 # ------------------------------------------------------------- quartets
-ctypedef struct quartet_acc:
-    # counts are integers (numba's were float64 counters, exact below 2**53: the same values)
-    int64_t examined
-    int64_t missing
-    int64_t violated
-    int64_t delta_n
-    int64_t star
-    double rel_sum
-    double rel_max
-    double delta_sum
-
-
-cdef inline void _quartet(const double[:, ::1] d, int64_t i, int64_t j, int64_t k, int64_t l, double tol,
-                          quartet_acc* acc, double* dsum, int64_t* dcnt, int64_t* dhist, int64_t nb,
-                          int64_t* qworst) noexcept nogil:
-    cdef double s1 = d[i, j] + d[k, l]
-    cdef double s2 = d[i, k] + d[j, l]
-    cdef double s3 = d[i, l] + d[j, k]
-    cdef double tmp, gap, rel, spread, delta
-    cdef int64_t bi
-    if s1 != s1 or s2 != s2 or s3 != s3:
-        acc.missing += 1  # a missing entry
-        return
-    # sort the three sums: S <= M <= L
-    if s1 > s2:
-        tmp = s1
-        s1 = s2
-        s2 = tmp
-    if s2 > s3:
-        tmp = s2
-        s2 = s3
-        s3 = tmp
-    if s1 > s2:
-        tmp = s1
-        s1 = s2
-        s2 = tmp
-    gap = s3 - s2
-    acc.examined += 1
-    if gap > tol:
-        acc.violated += 1
-    rel = gap / s3 if s3 > 0 else 0.0
-    acc.rel_sum += rel
-    if rel > acc.rel_max:
-        acc.rel_max = rel
-        qworst[0] = i
-        qworst[1] = j
-        qworst[2] = k
-        qworst[3] = l
-    spread = s3 - s1
-    if spread > tol:
-        delta = gap / spread
-        acc.delta_sum += delta
-        acc.delta_n += 1
-        dsum[i] += delta
-        dsum[j] += delta
-        dsum[k] += delta
-        dsum[l] += delta
-        dcnt[i] += 1
-        dcnt[j] += 1
-        dcnt[k] += 1
-        dcnt[l] += 1
-        bi = <int64_t>(delta * nb)
-        if bi >= nb:
-            bi = nb - 1
-        dhist[bi] += 1
-    else:
-        acc.star += 1  # all three sums equal within tol: delta undefined
-
-
 def quartets(const double[:, ::1] d, double tol, const int64_t[:, ::1] Q, double[::1] dsum, int64_t[::1] dcnt,
              int64_t[::1] dhist, int64_t[::1] qworst):
     """Four-point and delta tallies over every quartet ``i < j < k < l`` (``Q`` None)
     or over the rows of ``Q``, in that order; ``dsum``, ``dcnt``, ``dhist`` are
     added to and ``qworst`` set. Returns ``(examined, missing, violated, rel_sum,
     rel_max, delta_sum, delta_n, star)``."""
-    cdef quartet_acc acc
-    cdef Py_ssize_t n = d.shape[0], i, j, k, l, r
+    cdef sd_quartet_acc acc
+    cdef Py_ssize_t n = d.shape[0], i, r
     cdef int64_t nb = dhist.shape[0]
+    cdef const int64_t* pq = NULL
+    cdef int64_t nq = 0
     acc.examined = acc.missing = acc.violated = acc.delta_n = acc.star = 0
     acc.rel_sum = acc.rel_max = acc.delta_sum = 0.0
     if nb < 1 or qworst.shape[0] < 4 or dsum.shape[0] < n or dcnt.shape[0] < n or d.shape[1] != n:
         raise ValueError("quartets: output arrays too small")
     if Q is not None:
-        if Q.shape[0] and Q.shape[1] < 4:
+        if Q.shape[0] and Q.shape[1] != 4:
             raise ValueError("quartets: Q needs 4 columns")
         for r in range(Q.shape[0]):
             for i in range(4):
                 if not 0 <= Q[r, i] < n:
                     raise ValueError("quartets: a taxon number outside 0 .. n - 1")
+        nq = Q.shape[0]
+        if nq == 0:
+            return (0, 0, 0, 0.0, 0.0, 0.0, 0, 0)
+        pq = &Q[0, 0]
+    if n == 0:
+        return (0, 0, 0, 0.0, 0.0, 0.0, 0, 0)
     with nogil:
-        if Q is None:
-            for i in range(n):
-                for j in range(i + 1, n):
-                    for k in range(j + 1, n):
-                        for l in range(k + 1, n):
-                            _quartet(d, i, j, k, l, tol, &acc, &dsum[0], &dcnt[0], &dhist[0], nb, &qworst[0])
-        else:
-            for r in range(Q.shape[0]):
-                _quartet(d, Q[r, 0], Q[r, 1], Q[r, 2], Q[r, 3], tol, &acc, &dsum[0], &dcnt[0], &dhist[0], nb,
-                         &qworst[0])
+        sd_quartets(&d[0, 0], n, pq, nq, tol, &acc, &dsum[0], &dcnt[0], &dhist[0], nb, &qworst[0])
     return (acc.examined, acc.missing, acc.violated, acc.rel_sum, acc.rel_max, acc.delta_sum, acc.delta_n,
             acc.star)

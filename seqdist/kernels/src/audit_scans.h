@@ -1,4 +1,5 @@
-/* The fused triangle scan of seqdist.kernels._audit_scans (see audit_scans.py for the method). */
+/* Hot loops of seqdist.kernels._audit_scans: the fused triangle scan and the quartet statistics
+ * (see audit_scans.py for the method). */
 #ifndef SEQDIST_AUDIT_SCANS_H
 #define SEQDIST_AUDIT_SCANS_H
 #include <stdint.h>
@@ -209,5 +210,105 @@ SEQDIST_SIMD static void sd_audit_scan_tile(
             }
         }
     }
+}
+
+/* ------------------------------------------------------------------ quartets */
+
+/* Tallies of the four-point and delta statistics (counts as integers: the former numba counters
+ * were float64, exact below 2**53, so the values are the same). */
+typedef struct {
+    int64_t examined, missing, violated, delta_n, star;
+    double rel_sum, rel_max, delta_sum;
+} sd_quartet_acc;
+
+/* One quartet (see quartet_stats in audit_scans.py): the float operations of the former numba
+ * kernel in the same order. The three sums are sorted with min and max selects, which give the
+ * same values as the numba code's exchanges (no NaN gets that far; equal sums are equal). */
+static inline __attribute__((always_inline)) void sd_quartet(
+        const double *restrict d, int64_t n, int64_t i, int64_t j, int64_t k, int64_t l, double tol,
+        sd_quartet_acc *restrict acc, double *restrict dsum, int64_t *restrict dcnt, int64_t *restrict dhist,
+        int64_t nb, int64_t *restrict qworst) {
+    double s1 = d[i * n + j] + d[k * n + l];
+    double s2 = d[i * n + k] + d[j * n + l];
+    double s3 = d[i * n + l] + d[j * n + k];
+    if ((s1 != s1) | (s2 != s2) | (s3 != s3)) {
+        acc->missing += 1; /* a missing entry */
+        return;
+    }
+    /* S <= M <= L */
+    double lo = s1 < s2 ? s1 : s2, hi = s1 > s2 ? s1 : s2;
+    double S = lo < s3 ? lo : s3, t = lo > s3 ? lo : s3;
+    double M = hi < t ? hi : t, L = hi > t ? hi : t;
+    double gap = L - M;
+    acc->examined += 1;
+    acc->violated += gap > tol;
+    double rel = L > 0 ? gap / L : 0.0;
+    acc->rel_sum += rel;
+    if (rel > acc->rel_max) {
+        acc->rel_max = rel;
+        qworst[0] = i;
+        qworst[1] = j;
+        qworst[2] = k;
+        qworst[3] = l;
+    }
+    double spread = L - S;
+    if (spread > tol) {
+        double delta = gap / spread;
+        acc->delta_sum += delta;
+        acc->delta_n += 1;
+        dsum[i] += delta;
+        dsum[j] += delta;
+        dsum[k] += delta;
+        dsum[l] += delta;
+        dcnt[i] += 1;
+        dcnt[j] += 1;
+        dcnt[k] += 1;
+        dcnt[l] += 1;
+        int64_t bi = (int64_t)(delta * nb);
+        if (bi >= nb) bi = nb - 1;
+        dhist[bi] += 1;
+    } else {
+        acc->star += 1; /* all three sums equal within tol: delta undefined */
+    }
+}
+
+/* How many quartets ahead the list loop prefetches; a hint only (no effect on results). */
+#define SD_QAHEAD 8
+#if defined(__GNUC__)
+#define SD_PREFETCH(p) __builtin_prefetch((p), 0, 1)
+#else
+#define SD_PREFETCH(p) ((void)0)
+#endif
+
+/* Every quartet i < j < k < l of the (n, n) row-major d, in that order (Q == NULL), or the nq
+ * rows of Q (nq x 4), in order. */
+static void sd_quartets(const double *restrict d, int64_t n, const int64_t *restrict Q, int64_t nq, double tol,
+                        sd_quartet_acc *out, double *restrict dsum, int64_t *restrict dcnt,
+                        int64_t *restrict dhist, int64_t nb, int64_t *restrict qworst) {
+    sd_quartet_acc acc = *out; /* a local copy stays in registers */
+    if (Q == NULL) {
+        for (int64_t i = 0; i < n; i++)
+            for (int64_t j = i + 1; j < n; j++)
+                for (int64_t k = j + 1; k < n; k++)
+                    for (int64_t l = k + 1; l < n; l++)
+                        sd_quartet(d, n, i, j, k, l, tol, &acc, dsum, dcnt, dhist, nb, qworst);
+    } else {
+        for (int64_t r = 0; r < nq; r++) {
+            if (r + SD_QAHEAD < nq) {
+                /* sampled quartets hit the matrix at random: ask for the six entries of a later
+                 * quartet now, so that several cache misses are in flight at once */
+                const int64_t *p = Q + 4 * (r + SD_QAHEAD);
+                SD_PREFETCH(d + p[0] * n + p[1]);
+                SD_PREFETCH(d + p[2] * n + p[3]);
+                SD_PREFETCH(d + p[0] * n + p[2]);
+                SD_PREFETCH(d + p[1] * n + p[3]);
+                SD_PREFETCH(d + p[0] * n + p[3]);
+                SD_PREFETCH(d + p[1] * n + p[2]);
+            }
+            sd_quartet(d, n, Q[4 * r], Q[4 * r + 1], Q[4 * r + 2], Q[4 * r + 3], tol, &acc, dsum, dcnt, dhist, nb,
+                       qworst);
+        }
+    }
+    *out = acc;
 }
 #endif
