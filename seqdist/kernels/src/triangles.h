@@ -2,12 +2,13 @@
 #ifndef SEQDIST_TRIANGLES_H
 #define SEQDIST_TRIANGLES_H
 #include <stdint.h>
-#include "simd.h"
+#include <string.h>
+#include "simd_wide.h"
 
 /* Violated triangles (a, b, c), a in [a0, a1), a < b < c, of the (n, n) row-major d, and the
  * largest excess among them. The loop over c is branch-free so it vectorises; a NaN side gives
  * a NaN excess, which is never counted. Only rows with a violation are scanned again for the max. */
-SEQDIST_SIMD static void sd_tri_count_tile(const double *restrict d, int64_t n, double tol, int64_t a0, int64_t a1,
+SEQDIST_SIMD_WIDE static void sd_tri_count_tile(const double *restrict d, int64_t n, double tol, int64_t a0, int64_t a1,
                                            int64_t *count_out, double *worst_out) {
     int64_t tot = 0;
     double worst = 0.0;
@@ -29,15 +30,22 @@ SEQDIST_SIMD static void sd_tri_count_tile(const double *restrict d, int64_t n, 
             }
             if (k > 0) {
                 tot += k;
-                double w = 0.0;
+                /* The largest excess as an integer max over the bit patterns of non-negative
+                 * doubles (same order as the values): an integer max reduction vectorises, a
+                 * float one does not without relaxed floating-point rules. */
+                int64_t wb = 0;
                 for (int64_t c = 0; c < m_; c++) {
                     double x = xs[c], y = ys[c];
                     double m = x > y ? x : y;
                     m = m > z ? m : z;
                     double e = 2.0 * m - (x + y + z);
                     e = e > tol ? e : 0.0;
-                    w = e > w ? e : w;
+                    int64_t q;
+                    memcpy(&q, &e, sizeof q);
+                    wb = q > wb ? q : wb;
                 }
+                double w;
+                memcpy(&w, &wb, sizeof w);
                 worst = w > worst ? w : worst;
             }
         }
