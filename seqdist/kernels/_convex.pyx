@@ -1,15 +1,20 @@
 # cython: language_level=3, boundscheck=False, wraparound=False, cdivision=True, initializedcheck=False
 """Compiled part of :mod:`seqdist.kernels.convex` (see its docstring for the conventions).
 
-Every function here does the same float operations in the same order as the
-plain loop it replaces, so the l1 and l2 iterates (and the output bytes) do
-not depend on how they are compiled. The two full scans (violated triangles
-and the blend step) hand rows to OpenMP threads; per-row results go to their
-own slots and are combined by integer sums or maxima, so the answer does not
-depend on the number of threads. The sweeps are Gauss-Seidel: each update
-reads the previous one, so they run on one thread, in order.
+Every function here gives bit for bit what the plain loop it replaces gives:
+the same float operations in the same order, so the l1 and l2 iterates (and
+the output bytes) do not depend on how they are compiled. An operation is
+left out only where its result cannot change anything (the l2 sweep skips the
+division for a satisfied constraint whose dual is 0). The full scans (violated
+triangles, the blend step) hand rows to OpenMP threads; per-row results go to
+their own slots and are combined by integer counts or maxima, so the answer
+does not depend on the number of threads. The sweeps are Gauss-Seidel: each
+update reads the previous one, so they run on one thread, in order.
 
-Outputs are allocated by the caller (numpy) and passed in as typed memoryviews.
+The hot inner loops are C in ``src/convex.h`` (the scan's count, built for
+AVX2 and the baseline; the scan's fill; the Dijkstra of the cycle search).
+Outputs of known size are allocated by the caller (numpy) and passed in as
+typed memoryviews; ``merge_active_c`` and ``violated_cycles_c`` build theirs.
 Each ``name_c`` here is the loop of ``name`` in convex.py.
 """
 

@@ -17,11 +17,12 @@ Conventions
   ``x[e0] - sum_k x[e_k] <= 0``; stored in CSR form (``ptr``, ``edges``).
 * ``winv`` holds ``1 / w`` on ``G`` (0 on locked entries, which never move).
 
-The loops are Cython (``_convex.pyx``, with the two full scans' inner loops
-in C, ``src/convex.h``), compiled when the package is installed. Each does
-the same float operations in the same order as a plain loop, so the l1 and
-l2 iterates do not depend on the compiler; the scans share rows between
-threads but combine them by integer counts and maxima only.
+The loops are Cython (``_convex.pyx``; the triangle scan's inner loops and
+the Dijkstra of the cycle search are C, ``src/convex.h``), compiled when the
+package is installed. Each gives bit for bit what a plain loop gives (the same
+float operations in the same order), so the l1 and l2 iterates do not depend
+on the compiler; the scans share rows between threads but combine them by
+integer counts and maxima only.
 
 Every kernel has a plain-Python reference in tests/test_repair_convex_kernels.py.
 """

@@ -1,7 +1,8 @@
 /* Hot loops of seqdist.kernels._convex (see convex.py for the conventions).
  *
- * Each function below does the same float operations, in the same order, as the plain loop it
- * replaces; the vectorised loops only count, which does not depend on the order. */
+ * Each function below gives bit for bit what the plain loop it replaces gives: the float
+ * arithmetic is done in the same order, and the vectorised parts only count, take exact minima,
+ * or update entries independently of one another, none of which depends on the order. */
 #ifndef SEQDIST_CONVEX_H
 #define SEQDIST_CONVEX_H
 #include <stdint.h>
