@@ -87,9 +87,8 @@ def main(ns):
         blas = ", ".join(f"{d.get('internal_api')} {d.get('architecture')}" for d in threadpool_info())
     except Exception:  # pragma: no cover - optional
         blas = "unknown"
-    import numba
-
-    print(f"numba threads: {numba.get_num_threads()}; BLAS: {blas}; load average now: "
+    threads = os.environ.get("OMP_NUM_THREADS", os.cpu_count())
+    print(f"OpenMP threads: {threads}; BLAS: {blas}; load average now: "
           f"{' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     print()
     print("| n | violated triangles | count s | audit command s | scipy FW s | count/FW | audit/FW | targets |")
