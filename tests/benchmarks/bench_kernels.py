@@ -53,7 +53,7 @@ FULL = {
     "triangles": [2000, 4000],
 }
 QUICK = {"distances": [1000], "shrink": [1500], "audit": [2000], "nj": [2000], "bionj": [2000],
-         "upgma": [2000], "l2": [200], "triangles": [2000]}
+         "upgma": [2000], "l2": [500], "triangles": [2000]}
 
 CHILD = r'''
 import json, sys, time
