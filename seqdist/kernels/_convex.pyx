@@ -34,6 +34,7 @@ cdef extern from "src/convex.h" nogil:
                             int64_t* out, int64_t* buf)
     double sd_cvx_blend_row(const double* Y, const double* Z, int64_t n, int64_t i, double best)
     void sd_cvx_dijkstra(const double* W, int64_t n, int64_t s, int64_t* pred, double* dist)
+    void sd_cvx_clamp_one(double* Y, int64_t n, int64_t i, int64_t j, double target)
 
 
 # ------------------------------------------------------------ argument checks
@@ -664,32 +665,14 @@ def blend_step_c(const double[:, ::1] Y, const double[:, ::1] Z, Py_ssize_t nb, 
 
 def clamp_free_c(double[:, ::1] Y, const int64_t[::1] fi, const int64_t[::1] fj, const double[::1] target):
     """Move entries ``(fi, fj)`` of the metric ``Y`` one at a time towards ``target`` (both halves)."""
-    cdef Py_ssize_t n = Y.shape[0], q, k
-    cdef int64_t i, j
-    cdef double lo, hi, a, b, dab, v
+    cdef Py_ssize_t n = Y.shape[0], q
+    cdef double* py
     need(Y.shape[1] == Y.shape[0], "clamp_free: Y must be square")
     need(fj.shape[0] == fi.shape[0] and target.shape[0] == fi.shape[0],
          "clamp_free: fi, fj and target must have one length")
+    if n == 0 or fi.shape[0] == 0:
+        return
+    py = &Y[0, 0]
     with nogil:
         for q in range(fi.shape[0]):
-            i = fi[q]
-            j = fj[q]
-            lo = 0.0
-            hi = INFINITY
-            for k in range(n):
-                if k == i or k == j:
-                    continue
-                a = Y[i, k]
-                b = Y[j, k]
-                if a + b < hi:
-                    hi = a + b
-                dab = fabs(a - b)
-                if dab > lo:
-                    lo = dab
-            v = target[q]
-            if v < lo:
-                v = lo
-            if v > hi:
-                v = hi
-            Y[i, j] = v
-            Y[j, i] = v
+            sd_cvx_clamp_one(py, n, fi[q], fj[q], target[q])

@@ -181,4 +181,74 @@ SEQDIST_SIMD static void sd_cvx_dijkstra(const double *restrict W, int64_t n, in
         }
     }
 }
+/* Running bounds of entry (i, j) of the row-major (n, n) Y over k in [k0, k1): hi = min of
+ * Y[i, k] + Y[j, k], lo = max of |Y[i, k] - Y[j, k]|, in increasing k (a NaN never wins). */
+static inline void sd_cvx_bounds(const double *restrict yi, const double *restrict yj, int64_t k0, int64_t k1,
+                                 double *lo, double *hi) {
+    double l = *lo, h = *hi;
+    for (int64_t k = k0; k < k1; k++) {
+        double a = yi[k], b = yj[k];
+        double s = a + b;
+        double d = __builtin_fabs(a - b);
+        h = s < h ? s : h;
+        l = d > l ? d : l;
+    }
+    *lo = l;
+    *hi = h;
+}
+
+/* The same bounds with four independent running minima and maxima (a shorter dependency chain),
+ * combined at the end. A minimum or maximum does not depend on the order, bit for bit, except
+ * for the sign of a zero minimum (+0 and -0 compare equal): when hi is zero, the plain loop
+ * decides it. lo is a maximum of fabs values, never -0. */
+static inline void sd_cvx_bounds4(const double *restrict yi, const double *restrict yj, int64_t k0, int64_t k1,
+                                  double *lo, double *hi) {
+    double l0 = *lo, l1 = *lo, l2 = *lo, l3 = *lo, h0 = *hi, h1 = *hi, h2 = *hi, h3 = *hi;
+    int64_t k = k0;
+    for (; k + 4 <= k1; k += 4) {
+        double s0 = yi[k] + yj[k], s1 = yi[k + 1] + yj[k + 1], s2 = yi[k + 2] + yj[k + 2], s3 = yi[k + 3] + yj[k + 3];
+        double d0 = __builtin_fabs(yi[k] - yj[k]), d1 = __builtin_fabs(yi[k + 1] - yj[k + 1]);
+        double d2 = __builtin_fabs(yi[k + 2] - yj[k + 2]), d3 = __builtin_fabs(yi[k + 3] - yj[k + 3]);
+        h0 = s0 < h0 ? s0 : h0;
+        h1 = s1 < h1 ? s1 : h1;
+        h2 = s2 < h2 ? s2 : h2;
+        h3 = s3 < h3 ? s3 : h3;
+        l0 = d0 > l0 ? d0 : l0;
+        l1 = d1 > l1 ? d1 : l1;
+        l2 = d2 > l2 ? d2 : l2;
+        l3 = d3 > l3 ? d3 : l3;
+    }
+    double h = h0, l = l0;
+    h = h1 < h ? h1 : h;
+    h = h2 < h ? h2 : h;
+    h = h3 < h ? h3 : h;
+    l = l1 > l ? l1 : l;
+    l = l2 > l ? l2 : l;
+    l = l3 > l ? l3 : l;
+    sd_cvx_bounds(yi, yj, k, k1, &l, &h);
+    if (h == 0.0) {
+        double l_plain = *lo;
+        h = *hi;
+        sd_cvx_bounds(yi, yj, k0, k1, &l_plain, &h);
+    }
+    *lo = l;
+    *hi = h;
+}
+
+/* Move entry (i, j) of the row-major (n, n) metric Y (both halves) to the point of
+ * [max_k |Y_ik - Y_jk|, min_k Y_ik + Y_kj] (k other than i and j) nearest target. The loop over k
+ * is split around i and j instead of testing k against them. */
+static void sd_cvx_clamp_one(double *restrict Y, int64_t n, int64_t i, int64_t j, double target) {
+    const double *yi = Y + i * n, *yj = Y + j * n;
+    int64_t a = i < j ? i : j, b = i < j ? j : i;
+    double lo = 0.0, hi = __builtin_inf();
+    sd_cvx_bounds4(yi, yj, 0, a, &lo, &hi);
+    sd_cvx_bounds4(yi, yj, a + 1, b, &lo, &hi);
+    sd_cvx_bounds4(yi, yj, b + 1, n, &lo, &hi);
+    double v = target;
+    if (v < lo) v = lo;
+    if (v > hi) v = hi;
+    Y[i * n + j] = v;
+    Y[j * n + i] = v;
+}
 #endif
