@@ -5,7 +5,9 @@
  * or update entries independently of one another, none of which depends on the order. */
 #ifndef SEQDIST_CONVEX_H
 #define SEQDIST_CONVEX_H
+#include <math.h>
 #include <stdint.h>
+#include <string.h>
 #include "simd.h"
 
 /* Triangles (i, j, k), j < k, of row i of the (n, n) row-major x violated by more than thr: how
@@ -74,7 +76,7 @@ SEQDIST_SIMD static int64_t sd_cvx_fill_row(const double *restrict x, const unsi
             buf[q] = base | 2;
             q += (int64_t)(e2 > thr) & g;
         }
-        __builtin_memcpy(out + p, buf, (size_t)q * sizeof(int64_t));
+        memcpy(out + p, buf, (size_t)q * sizeof(int64_t));
         p += q;
     }
     return p;
@@ -115,6 +117,7 @@ static double sd_cvx_blend_row(const double *restrict Y, const double *restrict 
     }
     return best;
 }
+#if defined(__GNUC__) /* vector extensions: GCC and clang */
 typedef double sd_cvx_v4d __attribute__((vector_size(32)));
 typedef int64_t sd_cvx_v4i __attribute__((vector_size(32)));
 
@@ -122,7 +125,7 @@ typedef int64_t sd_cvx_v4i __attribute__((vector_size(32)));
  * Eight lanes keep their own first minimum (strict <) and index; the lanes are then combined by
  * value and, on a tie, by the smaller index: the same answer as one pass from the left. */
 SEQDIST_SIMD static int64_t sd_cvx_first_min(const double *restrict d, int64_t n, double *best_out) {
-    const sd_cvx_v4d inf4 = {__builtin_inf(), __builtin_inf(), __builtin_inf(), __builtin_inf()};
+    const sd_cvx_v4d inf4 = {INFINITY, INFINITY, INFINITY, INFINITY};
     sd_cvx_v4d b0 = inf4, b1 = inf4;
     sd_cvx_v4i i0 = {-1, -1, -1, -1}, i1 = i0;
     sd_cvx_v4i k0 = {0, 1, 2, 3}, k1 = {4, 5, 6, 7};
@@ -130,8 +133,8 @@ SEQDIST_SIMD static int64_t sd_cvx_first_min(const double *restrict d, int64_t n
     int64_t v = 0;
     for (; v + 8 <= n; v += 8) {
         sd_cvx_v4d x0, x1;
-        __builtin_memcpy(&x0, d + v, sizeof x0);
-        __builtin_memcpy(&x1, d + v + 4, sizeof x1);
+        memcpy(&x0, d + v, sizeof x0);
+        memcpy(&x1, d + v + 4, sizeof x1);
         sd_cvx_v4i m0 = x0 < b0, m1 = x1 < b1;
         b0 = (sd_cvx_v4d)(((sd_cvx_v4i)x0 & m0) | ((sd_cvx_v4i)b0 & ~m0));
         b1 = (sd_cvx_v4d)(((sd_cvx_v4i)x1 & m1) | ((sd_cvx_v4i)b1 & ~m1));
@@ -140,7 +143,7 @@ SEQDIST_SIMD static int64_t sd_cvx_first_min(const double *restrict d, int64_t n
         k0 += step;
         k1 += step;
     }
-    double best = __builtin_inf();
+    double best = INFINITY;
     int64_t u = -1;
     for (int l = 0; l < 4; l++) {
         if (b0[l] < best || (b0[l] == best && i0[l] >= 0 && i0[l] < u)) { best = b0[l]; u = i0[l]; }
@@ -152,6 +155,18 @@ SEQDIST_SIMD static int64_t sd_cvx_first_min(const double *restrict d, int64_t n
     *best_out = best;
     return u;
 }
+#else
+/* Index of the first smallest of d[0..n) below +inf (-1 if none); NaN entries are never chosen. */
+static int64_t sd_cvx_first_min(const double *restrict d, int64_t n, double *best_out) {
+    double best = INFINITY;
+    int64_t u = -1;
+    for (int64_t v = 0; v < n; v++) {
+        if (d[v] < best) { best = d[v]; u = v; }
+    }
+    *best_out = best;
+    return u;
+}
+#endif
 
 /* Dense O(n^2) Dijkstra from s over the (n, n) row-major W (inf: no edge; zeros are edges): the
  * same predecessors as seqdist.kernels.kept_graph's (each round settles the unsettled node of
@@ -162,7 +177,7 @@ SEQDIST_SIMD static int64_t sd_cvx_first_min(const double *restrict d, int64_t n
 SEQDIST_SIMD static void sd_cvx_dijkstra(const double *restrict W, int64_t n, int64_t s, int64_t *restrict pred,
                                          double *restrict dist) {
     for (int64_t v = 0; v < n; v++) {
-        dist[v] = __builtin_inf();
+        dist[v] = INFINITY;
         pred[v] = -1;
     }
     dist[s] = 0.0;
@@ -170,7 +185,7 @@ SEQDIST_SIMD static void sd_cvx_dijkstra(const double *restrict W, int64_t n, in
         double best;
         int64_t u = sd_cvx_first_min(dist, n, &best);
         if (u < 0) break;
-        dist[u] = __builtin_nan("");
+        dist[u] = NAN;
         const double *row = W + u * n;
         for (int64_t v = 0; v < n; v++) {
             double nd = best + row[v];
@@ -189,7 +204,7 @@ static inline void sd_cvx_bounds(const double *restrict yi, const double *restri
     for (int64_t k = k0; k < k1; k++) {
         double a = yi[k], b = yj[k];
         double s = a + b;
-        double d = __builtin_fabs(a - b);
+        double d = fabs(a - b);
         h = s < h ? s : h;
         l = d > l ? d : l;
     }
@@ -207,8 +222,8 @@ static inline void sd_cvx_bounds4(const double *restrict yi, const double *restr
     int64_t k = k0;
     for (; k + 4 <= k1; k += 4) {
         double s0 = yi[k] + yj[k], s1 = yi[k + 1] + yj[k + 1], s2 = yi[k + 2] + yj[k + 2], s3 = yi[k + 3] + yj[k + 3];
-        double d0 = __builtin_fabs(yi[k] - yj[k]), d1 = __builtin_fabs(yi[k + 1] - yj[k + 1]);
-        double d2 = __builtin_fabs(yi[k + 2] - yj[k + 2]), d3 = __builtin_fabs(yi[k + 3] - yj[k + 3]);
+        double d0 = fabs(yi[k] - yj[k]), d1 = fabs(yi[k + 1] - yj[k + 1]);
+        double d2 = fabs(yi[k + 2] - yj[k + 2]), d3 = fabs(yi[k + 3] - yj[k + 3]);
         h0 = s0 < h0 ? s0 : h0;
         h1 = s1 < h1 ? s1 : h1;
         h2 = s2 < h2 ? s2 : h2;
@@ -241,7 +256,7 @@ static inline void sd_cvx_bounds4(const double *restrict yi, const double *restr
 static void sd_cvx_clamp_one(double *restrict Y, int64_t n, int64_t i, int64_t j, double target) {
     const double *yi = Y + i * n, *yj = Y + j * n;
     int64_t a = i < j ? i : j, b = i < j ? j : i;
-    double lo = 0.0, hi = __builtin_inf();
+    double lo = 0.0, hi = INFINITY;
     sd_cvx_bounds4(yi, yj, 0, a, &lo, &hi);
     sd_cvx_bounds4(yi, yj, a + 1, b, &lo, &hi);
     sd_cvx_bounds4(yi, yj, b + 1, n, &lo, &hi);
