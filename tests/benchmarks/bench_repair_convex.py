@@ -140,7 +140,7 @@ def main() -> int:
         blas = ", ".join(f"{i['internal_api']} {i.get('architecture', '')}" for i in threadpool_info())
     except Exception:  # pragma: no cover
         blas = "unknown"
-    print(f"# BLAS: {blas}; numba threads: {os.environ.get('NUMBA_NUM_THREADS', 'default')}")
+    print(f"# BLAS: {blas}; OpenMP threads: {os.environ.get('OMP_NUM_THREADS', 'default')}")
     for obj in a.objectives.split(","):
         print(f"\n## {obj}")
         if obj == "l2":
