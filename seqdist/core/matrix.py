@@ -9,11 +9,15 @@ sequences). All validation of outside data happens in one place,
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Iterable, Sequence
+from typing import TYPE_CHECKING, Iterable, Sequence
 
 import numpy as np
 
 from seqdist.core.errors import InputError
+
+if TYPE_CHECKING:  # only for the annotations: pandas is imported where a frame is made
+    import pandas as pd
+    from numpy.typing import ArrayLike, DTypeLike
 
 __all__ = ["default_tol", "bad_label_char", "DistanceMatrix"]
 
@@ -63,9 +67,25 @@ def _where(source: str | None) -> str:
 class DistanceMatrix:
     """Labels plus a symmetric, zero-diagonal, non-negative float64 array.
 
-    Build one from outside data with :meth:`from_array` or
-    :meth:`from_frame`, which validate. The array is read-only; derive new
-    matrices with :meth:`with_values`.
+    Build one from outside data with :meth:`from_array`,
+    :meth:`from_frame` (alias :meth:`from_pandas`) or :meth:`from_condensed`,
+    which validate. The array is read-only; derive new matrices with
+    :meth:`with_values`.
+
+    A matrix works where numpy expects an array: ``np.asarray(dm)`` is the
+    read-only (n, n) float64 array itself (no copy), ``np.array(dm)`` and
+    :meth:`to_numpy` a writable copy; :meth:`condensed` is scipy's condensed
+    vector and :meth:`to_frame` (alias :meth:`to_pandas`) a labelled
+    DataFrame. docs/python.md shows them with scipy, scikit-learn, Biopython
+    and dendropy.
+
+    ``==`` between two matrices is identity, as for any object without a
+    value equality (a matrix stays hashable, and the question "equal?" of
+    float matrices has more than one right answer); compare contents with
+    :meth:`equals` (same labels in the same order, same values, NaN equal to
+    NaN) or ``np.allclose(dm, other)`` for values within a tolerance.
+    ``dm == array`` is numpy's element-wise comparison, as for any
+    array-like.
 
     Examples
     --------
@@ -74,6 +94,10 @@ class DistanceMatrix:
     1.0
     >>> dm.condensed()
     array([1.])
+    >>> float(np.asarray(dm).sum()), dm.labels
+    (2.0, ('a', 'b'))
+    >>> dm == DistanceMatrix.from_array([[0, 1], [1, 0]], ["a", "b"]), dm.equals(dm.with_values(np.array(dm)))
+    (False, True)
     """
 
     labels: tuple
@@ -81,7 +105,7 @@ class DistanceMatrix:
 
     # -- construction ----------------------------------------------------
     @classmethod
-    def from_array(cls, values, labels: Sequence[str] | None = None, *, source: str | None = None,
+    def from_array(cls, values: ArrayLike, labels: Sequence[str] | None = None, *, source: str | None = None,
                    col_labels: Sequence[str] | None = None, sym_tol: float | None = None) -> "DistanceMatrix":
         """Validate outside data and build a matrix.
 
@@ -193,8 +217,11 @@ class DistanceMatrix:
         return cls(tuple(labels), arr)
 
     @classmethod
-    def from_frame(cls, frame, *, source: str | None = None) -> "DistanceMatrix":
-        """Build from a pandas DataFrame indexed and columned by label.
+    def from_frame(cls, frame: pd.DataFrame, *, source: str | None = None) -> "DistanceMatrix":
+        """Build from a pandas DataFrame indexed and columned by label (alias :meth:`from_pandas`).
+
+        The index and the columns must hold the same labels in the same
+        order; the values are validated like :meth:`from_array`'s.
 
         Examples
         --------
@@ -207,7 +234,21 @@ class DistanceMatrix:
                               col_labels=list(frame.columns), source=source)
 
     @classmethod
-    def from_condensed(cls, vector, labels: Sequence[str], *, source: str | None = None) -> "DistanceMatrix":
+    def from_pandas(cls, frame: pd.DataFrame, *, source: str | None = None) -> "DistanceMatrix":
+        """The same as :meth:`from_frame` (the name pandas users look for).
+
+        Examples
+        --------
+        >>> import pandas as pd
+        >>> f = pd.DataFrame([[0, 3], [3, 0]], index=["a", "b"], columns=["a", "b"])
+        >>> DistanceMatrix.from_pandas(f).labels
+        ('a', 'b')
+        """
+        return cls.from_frame(frame, source=source)
+
+    @classmethod
+    def from_condensed(cls, vector: ArrayLike, labels: Sequence[str], *,
+                       source: str | None = None) -> "DistanceMatrix":
         """Build from the upper triangle read row by row (scipy's condensed form).
 
         Examples
@@ -243,14 +284,14 @@ class DistanceMatrix:
         except KeyError:
             raise InputError(f"unknown label '{label}'") from None
 
-    def _index_map(self) -> dict:
+    def _index_map(self) -> dict[str, int]:
         cache = self.__dict__.get("_idx")
         if cache is None:
             cache = {lab: i for i, lab in enumerate(self.labels)}
             object.__setattr__(self, "_idx", cache)
         return cache
 
-    def __getitem__(self, pair) -> float:
+    def __getitem__(self, pair: tuple[str, str]) -> float:
         a, b = pair
         return float(self.values[self.index(a), self.index(b)])
 
@@ -267,14 +308,96 @@ class DistanceMatrix:
         return bool(np.isnan(self.values).any())
 
     def condensed(self) -> np.ndarray:
-        """The upper triangle row by row (scipy's condensed distance vector)."""
+        """The upper triangle row by row: scipy's condensed distance vector (a new array).
+
+        ``scipy.spatial.distance.squareform`` and
+        ``scipy.cluster.hierarchy.linkage`` take it; the labels are
+        :attr:`labels` in the same order.
+
+        Raises
+        ------
+        InputError
+            The matrix has missing entries: scipy's condensed form cannot hold
+            them (linkage would refuse NaN or build a meaningless tree), so they
+            must be filled first (``seqdist.repair.repair`` fills them) or left
+            out with :meth:`subset`.
+
+        Examples
+        --------
+        >>> from scipy.spatial.distance import squareform
+        >>> dm = DistanceMatrix.from_array([[0, 1, 2], [1, 0, 3], [2, 3, 0]], ["a", "b", "c"])
+        >>> dm.condensed().tolist(), bool((squareform(dm.condensed()) == np.asarray(dm)).all())
+        ([1.0, 2.0, 3.0], True)
+        """
+        if self.has_missing:
+            i, j = np.argwhere(np.isnan(self.values))[0]
+            raise InputError(f"the matrix has {self.missing_count()} missing entries (first: "
+                             f"({self.labels[min(i, j)]}, {self.labels[max(i, j)]})); scipy's condensed form "
+                             "cannot hold them: fill them first (seqdist.repair.repair fills them) or take a "
+                             "subset without them")
         return self.values[np.triu_indices(self.n, 1)].copy()
 
-    def to_frame(self):
-        """A pandas DataFrame with the labels as index and columns."""
+    def __array__(self, dtype: DTypeLike | None = None, copy: bool | None = None) -> np.ndarray:
+        """The values for numpy (``np.asarray(dm)``, ``np.array(dm)``), following numpy 2's protocol.
+
+        ``copy=None`` (``np.asarray``) returns the read-only array itself
+        when no conversion is needed; ``copy=True`` (``np.array``) a new
+        writable array; ``copy=False`` never copies and raises ``ValueError``
+        when a ``dtype`` other than float64 would need one. Missing entries
+        are NaN.
+
+        Examples
+        --------
+        >>> dm = DistanceMatrix.from_array([[0, 1], [1, 0]], ["a", "b"])
+        >>> np.asarray(dm) is dm.values, np.array(dm).flags.writeable
+        (True, True)
+        """
+        if dtype is not None and np.dtype(dtype) != self.values.dtype:
+            if copy is False:
+                raise ValueError(f"a DistanceMatrix holds float64 values; {np.dtype(dtype)} needs a copy, "
+                                 "and copy=False was asked")
+            return self.values.astype(dtype)
+        if copy:
+            return self.values.copy()
+        return self.values
+
+    def to_numpy(self, dtype: DTypeLike | None = None, copy: bool = True) -> np.ndarray:
+        """The (n, n) values as a numpy array: a writable copy unless ``copy=False``.
+
+        With ``copy=False`` (and float64) the read-only array itself is
+        returned, using no memory; missing entries are NaN.
+
+        Examples
+        --------
+        >>> dm = DistanceMatrix.from_array([[0, 1], [1, 0]], ["a", "b"])
+        >>> a = dm.to_numpy()
+        >>> a[0, 1] = 5.0  # a copy: the matrix is unchanged
+        >>> dm["a", "b"], dm.to_numpy(copy=False).flags.writeable
+        (1.0, False)
+        """
+        return self.__array__(dtype, copy=True if copy else None)
+
+    def to_frame(self) -> pd.DataFrame:
+        """A pandas DataFrame with the labels as index and columns (alias :meth:`to_pandas`).
+
+        Examples
+        --------
+        >>> float(DistanceMatrix.from_array([[0, 1], [1, 0]], ["a", "b"]).to_frame().loc["a", "b"])
+        1.0
+        """
         import pandas as pd
 
         return pd.DataFrame(np.array(self.values), index=list(self.labels), columns=list(self.labels))
+
+    def to_pandas(self) -> pd.DataFrame:
+        """The same as :meth:`to_frame` (the name pandas users look for).
+
+        Examples
+        --------
+        >>> DistanceMatrix.from_array([[0, 1], [1, 0]], ["a", "b"]).to_pandas().shape
+        (2, 2)
+        """
+        return self.to_frame()
 
     def with_values(self, values: np.ndarray) -> "DistanceMatrix":
         """Same labels, new values (validated like outside data)."""
