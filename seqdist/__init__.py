@@ -14,7 +14,11 @@ The package is layered, each layer importing only those below it
 The main functions and types are re-exported here (loaded on first use, so
 that ``import seqdist`` stays cheap). ``audit``, ``repair`` and ``impact`` are
 the names of their subpackages: import those functions from them
-(``from seqdist.repair import repair``).
+(``from seqdist.repair import repair``). :func:`set_progress` chooses when
+progress bars are drawn (by default only on a terminal); conversions to and
+from numpy, pandas, scipy, Biopython and dendropy are in
+:mod:`seqdist.io.interop` and docs/python.md. The package ships ``py.typed``:
+its public functions are annotated.
 
 Examples
 --------
@@ -25,6 +29,7 @@ Examples
 
 __version__ = "0.1.0"
 
+from seqdist.core.console import set_progress
 from seqdist.core.errors import DataWarning, InfeasibleError, InputError, SeqdistError, SeqdistWarning
 from seqdist.core.matrix import DistanceMatrix
 
@@ -48,10 +53,10 @@ _LAZY = {
 }
 
 __all__ = ["__version__", "DistanceMatrix", "SeqdistError", "InputError", "InfeasibleError", "SeqdistWarning",
-           "DataWarning", *_LAZY]
+           "DataWarning", "set_progress", *_LAZY]
 
 
-def __getattr__(name: str):
+def __getattr__(name: str) -> object:
     if name in _LAZY:
         import importlib
 
@@ -61,5 +66,5 @@ def __getattr__(name: str):
     raise AttributeError(f"module 'seqdist' has no attribute {name!r}")
 
 
-def __dir__():
+def __dir__() -> list[str]:
     return sorted(set(globals()) | set(_LAZY))

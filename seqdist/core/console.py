@@ -5,8 +5,10 @@ Warnings are raised through Python's :mod:`warnings` module
 filter them or turn them into errors; :func:`install_warning_printer` (the
 command line calls it) prints each one as one line ``seqdist: warning:
 ...``. Progress bars and warnings are silenced by :func:`set_quiet` (the
-``--quiet`` flag). Nothing here ever writes to standard output, which may
-carry a data stream.
+``--quiet`` flag). Progress bars are shown only when standard error is a
+terminal unless :func:`set_progress` says otherwise (``seqdist.set_progress``
+from Python). Nothing here ever writes to standard output, which may carry a
+data stream.
 """
 
 from __future__ import annotations
@@ -14,20 +16,109 @@ from __future__ import annotations
 import sys
 import time
 import warnings
+from typing import TextIO
 
-__all__ = ["set_quiet", "is_quiet", "warn", "one_line", "install_warning_printer", "info", "Progress"]
+__all__ = ["set_quiet", "is_quiet", "set_progress", "progress_mode", "progress_shown", "warn", "one_line",
+           "install_warning_printer", "info", "Progress"]
 
 _QUIET = False
+_PROGRESS: bool | None = None  # None: only when standard error is a terminal
 
 
 def set_quiet(flag: bool) -> None:
-    """Silence (or re-enable) warnings and progress bars."""
+    """Silence (or re-enable) warnings and progress bars.
+
+    Examples
+    --------
+    >>> set_quiet(True); is_quiet()
+    True
+    >>> set_quiet(False); is_quiet()
+    False
+    """
     global _QUIET
     _QUIET = bool(flag)
 
 
 def is_quiet() -> bool:
+    """Whether :func:`set_quiet` silenced warnings and progress bars.
+
+    Examples
+    --------
+    >>> set_quiet(False); is_quiet()
+    False
+    """
     return _QUIET
+
+
+def set_progress(mode: bool | None) -> None:
+    """Choose when progress bars of long work are drawn on standard error.
+
+    Parameters
+    ----------
+    mode : bool or None
+        ``None`` (the default): only when standard error is a terminal, so a
+        notebook, a test run, a pipe or a workflow manager's log stays clean;
+        ``True``: always (away from a terminal one line at most every ten
+        seconds and one at the end, so that logs stay short); ``False``: never.
+        :func:`set_quiet` silences them whatever the mode.
+
+    Raises
+    ------
+    TypeError
+        ``mode`` is not True, False or None (a string such as ``"off"``
+        would otherwise read as true).
+
+    Examples
+    --------
+    >>> import seqdist
+    >>> seqdist.set_progress(False)  # never, e.g. in a notebook
+    >>> progress_mode()
+    False
+    >>> seqdist.set_progress(None)  # back to the default: only on a terminal
+    """
+    global _PROGRESS
+    if mode is not None and not isinstance(mode, bool):
+        raise TypeError(f"set_progress takes True, False or None, got {mode!r}")
+    _PROGRESS = mode
+
+
+def progress_mode() -> bool | None:
+    """The mode :func:`set_progress` set: True, False or None (only on a terminal).
+
+    Examples
+    --------
+    >>> set_progress(None); progress_mode() is None
+    True
+    """
+    return _PROGRESS
+
+
+def progress_shown(tty: bool | None = None) -> bool:
+    """Whether a progress bar would be drawn now (see :func:`set_progress` and :func:`set_quiet`).
+
+    Parameters
+    ----------
+    tty : bool, optional
+        Whether standard error is a terminal (default: ask it).
+
+    Examples
+    --------
+    >>> set_quiet(False); set_progress(None)
+    >>> progress_shown(tty=False), progress_shown(tty=True)
+    (False, True)
+    """
+    if _QUIET:
+        return False
+    if _PROGRESS is not None:
+        return _PROGRESS
+    return _stderr_is_tty() if tty is None else bool(tty)
+
+
+def _stderr_is_tty() -> bool:
+    try:
+        return bool(sys.stderr.isatty())
+    except (AttributeError, ValueError, OSError):  # replaced, closed or detached streams
+        return False
 
 
 def warn(message: str, category: type | None = None, stacklevel: int = 2) -> None:
@@ -70,7 +161,8 @@ def install_warning_printer() -> None:
     """
     from seqdist.core.errors import SeqdistWarning
 
-    def show(message, category, filename, lineno, file=None, line=None):
+    def show(message: Warning | str, category: type[Warning], filename: str, lineno: int,
+             file: TextIO | None = None, line: str | None = None) -> None:
         if _QUIET:
             return
         text = one_line(str(message))
@@ -87,7 +179,12 @@ def install_warning_printer() -> None:
 
 
 def info(message: str) -> None:
-    """Print one informative line on standard error."""
+    """Print one informative line on standard error (unless quiet).
+
+    Examples
+    --------
+    >>> info("wrote out.tsv (tsv)")  # doctest: +SKIP
+    """
     if not _QUIET:
         print(f"seqdist: {message}", file=sys.stderr, flush=True)
 
@@ -97,7 +194,9 @@ class Progress:
 
     On a terminal it redraws one line; elsewhere (logs of a workflow manager)
     it prints a line at most every ``log_every`` seconds and at the end, so
-    that logs stay short. It does nothing when quiet.
+    that logs stay short. It draws nothing when quiet, and away from a
+    terminal only when :func:`set_progress` asked for it (by default a
+    notebook, a pipe or a log stays clean).
 
     The time left is estimated only when it can be honest: ``estimate`` is
     true (the units of ``total`` take about equal work), at least a tenth of
@@ -113,7 +212,7 @@ class Progress:
     """
 
     def __init__(self, what: str, total: float | None = None, log_every: float = 10.0,
-                 min_seconds: float = 1.0, estimate: bool = True):
+                 min_seconds: float = 1.0, estimate: bool = True) -> None:
         self.what = what
         self.total = total
         self.done = 0.0
@@ -122,14 +221,14 @@ class Progress:
         self.log_every = log_every
         self.min_seconds = min_seconds
         self.estimate = estimate
-        self.tty = hasattr(sys.stderr, "isatty") and sys.stderr.isatty()
+        self.tty = _stderr_is_tty()
         self.drawn = False
         self._first = None  # (time, done) when the first unit finished
 
-    def __enter__(self):
+    def __enter__(self) -> "Progress":
         return self
 
-    def __exit__(self, *exc):
+    def __exit__(self, *exc: object) -> bool:
         self.close()
         return False
 
@@ -157,10 +256,11 @@ class Progress:
         return f"seqdist: {self.what} {self.done:g} done, {el:.1f}s elapsed"
 
     def update(self, step: float = 1.0, note: str | None = None) -> None:
+        """Count ``step`` more units done and redraw when it is time (see the class notes)."""
         self.done += step
         if self._first is None and self.done > 0:
             self._first = (time.perf_counter(), self.done)
-        if _QUIET:
+        if not progress_shown(self.tty):
             return
         now = time.perf_counter()
         if now - self.start < self.min_seconds:
@@ -178,6 +278,7 @@ class Progress:
         self.drawn = True
 
     def close(self) -> None:
+        """Finish the bar's line (only if one was drawn)."""
         if _QUIET or not self.drawn:
             return
         if self.tty:
