@@ -11,19 +11,20 @@ sd=${SEQDIST:-seqdist}
 
 # (a) clean DNA: 30 taxa x 1200 columns, HKY85, gamma, a few indel runs
 $sd --quiet simulate -o "$out/dna_clean.fasta" --tree-out "$out/dna_clean.true.nwk" \
-    --summary-out "$out/dna_clean.sim.json" --taxa 30 --length 1200 --alphabet dna --seed 11 \
-    --model hky85 --kappa 4 --freqs 0.3,0.2,0.2,0.3 --alpha 0.5 --scale 0.05 --gap-rate 0.005 --prefix t
+    --summary-out "$out/dna_clean.sim.json" --taxa 30 --columns 1200 --alphabet dna --seed 11 \
+    --model hky85 --kappa 4 --frequencies 0.3,0.2,0.2,0.3 --gamma 0.5/4 --branch-mean 0.05 --indels 0.005/3 \
+    --label-prefix t
 
 # (b) protein: 24 taxa x 360 columns, equal rates with uneven frequencies, gamma, indels;
 #     its first 10 rows also as Stockholm with insert columns
 $sd --quiet simulate -o "$out/protein.fasta" --tree-out "$out/protein.true.nwk" \
     --summary-out "$out/protein.sim.json" --stockholm-out "$out/protein_small.sto" --stockholm-taxa 10 \
-    --taxa 24 --length 360 --alphabet protein --seed 22 --model poisson-f --alpha 1 --scale 0.08 \
-    --gap-rate 0.01 --prefix p
+    --taxa 24 --columns 360 --alphabet protein --seed 22 --model poisson-f --gamma 1/4 --branch-mean 0.08 \
+    --indels 0.01/3 --label-prefix p
 
 # (c) DNA with planted trouble: 30 taxa x 1200 columns, K80, gamma, indels; then a 70%-gap row,
 #     a chimera of two distant taxa, and a pair on very long branches (past saturation)
 $sd --quiet simulate -o "$out/dna_trouble.fasta" --tree-out "$out/dna_trouble.true.nwk" \
-    --summary-out "$out/dna_trouble.sim.json" --taxa 30 --length 1200 --alphabet dna --seed 3 \
-    --model k80 --kappa 3 --alpha 1 --scale 0.05 --gap-rate 0.01 --prefix x \
+    --summary-out "$out/dna_trouble.sim.json" --taxa 30 --columns 1200 --alphabet dna --seed 3 \
+    --model k80 --kappa 3 --gamma 1/4 --branch-mean 0.05 --indels 0.01/3 --label-prefix x \
     --gappy auto --gappy-fraction 0.7 --chimera auto --saturate auto --saturate-length 50

@@ -33,7 +33,7 @@ from typing import Sequence
 
 import numpy as np
 
-from seqdist.core.errors import InputError, ParameterError
+from seqdist.core.errors import InputError, ParameterError, SeqdistWarning
 from seqdist.core.params import NONNEG, POSITIVE, Number
 
 DNA_LETTERS = "ACGT"
@@ -57,13 +57,13 @@ MAX_LENGTH = 1_000_000
 MAX_CELLS = 20_000_000
 #: More discrete gamma categories than this add nothing but matrix exponentials.
 MAX_RATE_CATEGORIES = 256
-#: Largest mean branch length (--scale) and added saturation length: far past
+#: Largest mean branch length (--branch-mean) and added saturation length: far past
 #: saturation already (p within 1e-40 of its limit), and longer branches push
 #: the matrix exponential towards overflow.
 MAX_SCALE = 100.0
 MAX_SATURATE = 1000.0
-#: Most indel work: expected events over the whole tree (gap_rate x tree
-#: length x length) times expected columns, since each event costs one pass
+#: Most indel work: expected events over the whole tree (indel_rate x tree
+#: length x columns) times expected columns, since each event costs one pass
 #: over the columns (measured: about 37 ns a column, so 2e9 is about a minute).
 MAX_INDEL_WORK = 2e9
 
@@ -71,14 +71,14 @@ MAX_INDEL_WORK = 2e9
 #: them and the command line makes its option types from them (one range, one
 #: message form; see :mod:`seqdist.core.params`).
 PARAMETERS = {
-    "n_taxa": Number(int, 3, MAX_TAXA),
-    "length": Number(int, 1, MAX_LENGTH),
+    "taxa": Number(int, 3, MAX_TAXA),
+    "columns": Number(int, 1, MAX_LENGTH),
     "kappa": POSITIVE,
-    "alpha": POSITIVE,
-    "rate_categories": Number(int, 0, MAX_RATE_CATEGORIES),
-    "scale": Number(float, 0, MAX_SCALE, lo_open=True),
-    "gap_rate": NONNEG,
-    "gap_length": Number(float, 1),
+    "gamma": POSITIVE,
+    "gamma_categories": Number(int, 0, MAX_RATE_CATEGORIES),
+    "branch_mean": Number(float, 0, MAX_SCALE, lo_open=True),
+    "indel_rate": NONNEG,
+    "indel_length": Number(float, 1),
     "gappy_fraction": Number(float, 0, 1, lo_open=True, hi_open=True),
     "saturate_length": Number(float, 0, MAX_SATURATE, lo_open=True),
     "misread_stretches": Number(int, 1, MAX_LENGTH),
@@ -86,6 +86,41 @@ PARAMETERS = {
     "contaminant_distance": Number(float, 0, MAX_SATURATE, lo_open=True),
     "stockholm_taxa": Number(int, 2),
 }
+
+#: Keyword arguments renamed in 0.x (old name -> new name). The old names are
+#: still accepted for one release, with a :class:`RenamedWarning`; they lined
+#: up one for one with another program's flags, the new ones are our own.
+RENAMED = {
+    "freqs": "frequencies", "alpha": "gamma",
+    "rate_categories": "gamma_categories", "scale": "branch_mean", "clock": "ultrametric",
+    "prefix": "label_prefix", "gap_rate": "indel_rate", "gap_length": "indel_length",
+}
+
+
+class RenamedWarning(SeqdistWarning, FutureWarning):
+    """An old option or keyword name was used; it still works for one release (FutureWarning: shown to users)."""
+
+
+def _take_renamed(where: str, given: dict, current: dict, defaults: dict) -> dict:
+    """Move old keyword names in ``given`` onto their new names, warning once per name.
+
+    ``current`` holds the new names' values as called and ``defaults`` their
+    defaults; an old and a new name given together is a TypeError, as Python
+    gives for a keyword passed twice.
+    """
+    from seqdist.core.console import warn
+
+    out = dict(current)
+    for old, value in given.items():
+        new = RENAMED.get(old)
+        if new is None or new not in current:
+            raise TypeError(f"{where}() got an unexpected keyword argument '{old}'")
+        if current[new] is not defaults[new] and current[new] != defaults[new]:
+            raise TypeError(f"{where}() got both '{new}' and its old name '{old}'")
+        warn(f"{where}(): '{old}' is now called '{new}'; the old name will be removed in the next release",
+             RenamedWarning, stacklevel=3)
+        out[new] = value
+    return out
 
 # Branch lengths are rounded to this many decimals when drawn, so the Newick
 # file (written with the same number of decimals) states the simulated tree exactly.
@@ -173,16 +208,16 @@ def _check_freqs(freqs, k: int, what: str) -> np.ndarray:
     return f / f.sum()
 
 
-def hky85(kappa: float = 2.0, freqs: Sequence[float] | None = None) -> Model:
+def hky85(kappa: float = 2.0, frequencies: Sequence[float] | None = None, **renamed) -> Model:
     """HKY85 (Hasegawa, Kishino & Yano 1985): ``q_ij = pi_j * kappa`` for transitions, ``pi_j`` otherwise.
 
     Parameters
     ----------
     kappa : float
         Transition/transversion rate ratio (> 0); 1 with equal frequencies is JC69.
-    freqs : sequence of 4 floats, optional
+    frequencies : sequence of 4 floats, optional
         Base frequencies in the order A, C, G, T (normalised to sum 1;
-        default equal, which is K80).
+        default equal, which is K80). (Old name: ``freqs``.)
 
     Examples
     --------
@@ -190,6 +225,10 @@ def hky85(kappa: float = 2.0, freqs: Sequence[float] | None = None) -> Model:
     >>> round(float(-(m.freqs * np.diag(m.Q)).sum()), 12)
     1.0
     """
+    if renamed:
+        frequencies = _take_renamed("hky85", renamed, {"frequencies": frequencies}, {"frequencies": None})[
+            "frequencies"]
+    freqs = frequencies
     kappa = float(kappa)
     if not np.isfinite(kappa) or kappa <= 0:
         raise InputError(f"kappa must be a positive number (got {kappa})")
@@ -216,12 +255,13 @@ def k80(kappa: float = 2.0) -> Model:
     return hky85(kappa, None)
 
 
-def protein_poisson(freqs: Sequence[float] | None = None) -> Model:
+def protein_poisson(frequencies: Sequence[float] | str | None = None, **renamed) -> Model:
     """Equal-rates protein model: ``q_ij = pi_j`` (the Poisson model when frequencies are equal).
 
-    With ``freqs`` (20 values in the order ``ACDEFGHIKLMNPQRSTVWY``) this is
+    With ``frequencies`` (20 values in the order ``ACDEFGHIKLMNPQRSTVWY``) this is
     the equal-input ("F81-like") model, here called ``poisson-f``; pass
-    ``freqs="invented"`` for the project's own uneven composition.
+    ``frequencies="invented"`` for the project's own uneven composition.
+    (Old name: ``freqs``.)
 
     Examples
     --------
@@ -229,6 +269,10 @@ def protein_poisson(freqs: Sequence[float] | None = None) -> Model:
     >>> round(float(m.Q[0, 1] * 19), 12)  # each of the 19 changes equally likely
     1.0
     """
+    if renamed:
+        frequencies = _take_renamed("protein_poisson", renamed, {"frequencies": frequencies},
+                                    {"frequencies": None})["frequencies"]
+    freqs = frequencies
     if isinstance(freqs, str):
         if freqs != "invented":
             raise InputError(f"unknown protein frequency set '{freqs}'")
@@ -242,18 +286,23 @@ def protein_poisson(freqs: Sequence[float] | None = None) -> Model:
 
 
 def make_model(alphabet: str = "dna", model: str | None = None, kappa: float = 2.0,
-               freqs: Sequence[float] | str | None = None) -> Model:
+               frequencies: Sequence[float] | str | None = None, **renamed) -> Model:
     """The model by name (``k80``, ``hky85``, ``poisson``, ``poisson-f``) with alphabet checks.
 
     Defaults: ``k80`` for DNA (``hky85`` when frequencies are given), ``poisson``
     for protein (``poisson-f`` when frequencies are given). ``poisson-f``
-    without frequencies uses the invented composition.
+    without frequencies uses the invented composition. (Old keyword name of
+    ``frequencies``: ``freqs``.)
 
     Examples
     --------
     >>> make_model("protein", "poisson-f").name
     'poisson-f'
     """
+    if renamed:
+        frequencies = _take_renamed("make_model", renamed, {"frequencies": frequencies},
+                                    {"frequencies": None})["frequencies"]
+    freqs = frequencies
     if alphabet not in ("dna", "protein"):
         raise InputError(f"unknown alphabet '{alphabet}' (choose dna or protein)")
     if alphabet == "dna":
@@ -382,7 +431,7 @@ class TrueTree:
 
         Examples
         --------
-        >>> tr = random_tree(3, np.random.default_rng(0), scale=0.1)
+        >>> tr = random_tree(3, np.random.default_rng(0), branch_mean=0.1)
         >>> tr.newick().count(":")
         4
         """
@@ -399,19 +448,22 @@ class TrueTree:
                         self.children.copy())
 
 
-def random_tree(n: int, rng, scale: float = 0.05, clock: bool = False, prefix: str = "t") -> TrueTree:
-    """A random rooted binary tree with ``n`` leaves labelled ``{prefix}01..``.
+def random_tree(n: int, rng, branch_mean: float = 0.05, ultrametric: bool = False, label_prefix: str = "t",
+                **renamed) -> TrueTree:
+    """A random rooted binary tree with ``n`` leaves labelled ``{label_prefix}01..``.
 
     The topology is coalescent-like: lineages are joined two at a time,
     each pair chosen uniformly at random. Branch lengths (expected
     substitutions per site):
 
-    * ``clock=False`` (default): independent exponentials with mean ``scale``;
-    * ``clock=True``: the Kingman coalescent's waiting times (exponential with
+    * ``ultrametric=False`` (default): independent exponentials with mean ``branch_mean``;
+    * ``ultrametric=True``: the Kingman coalescent's waiting times (exponential with
       rate ``k(k-1)/2`` while ``k`` lineages remain), rescaled so the mean
-      branch length is exactly ``scale``; the tree is ultrametric.
+      branch length is exactly ``branch_mean``; the tree is ultrametric.
 
-    Lengths are rounded to 6 decimals (at least 1e-6).
+    Lengths are rounded to 6 decimals (at least 1e-6). Old keyword names
+    (``scale``, ``clock``, ``prefix``) still work for one release, with a
+    :class:`RenamedWarning`.
 
     Examples
     --------
@@ -419,13 +471,17 @@ def random_tree(n: int, rng, scale: float = 0.05, clock: bool = False, prefix: s
     >>> tr.labels[:2], int(tr.parent[tr.root])
     (['t01', 't02'], -1)
     """
+    if renamed:
+        new = _take_renamed("random_tree", renamed,
+                            {"branch_mean": branch_mean, "ultrametric": ultrametric, "label_prefix": label_prefix},
+                            {"branch_mean": 0.05, "ultrametric": False, "label_prefix": "t"})
+        branch_mean, ultrametric, label_prefix = new["branch_mean"], new["ultrametric"], new["label_prefix"]
+    scale, clock, prefix = branch_mean, ultrametric, label_prefix
     rng = np.random.default_rng(rng)
     n = int(n)
     if n < 3:
         raise InputError(f"a tree needs at least 3 taxa (got {n})")
-    scale = float(scale)
-    if not np.isfinite(scale) or scale <= 0:
-        raise InputError(f"scale must be a positive number (got {scale})")
+    scale = PARAMETERS["branch_mean"].check("branch_mean", scale)
     width = max(2, len(str(n)))
     labels = [f"{prefix}{i + 1:0{width}d}" for i in range(n)]
     n_nodes = 2 * n - 1
@@ -555,20 +611,32 @@ class Simulation:
         return dataclasses.replace(self, **changes)
 
 
-def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: str | None = None,
-             kappa: float = 2.0, freqs=None, alpha: float | None = None, rate_categories: int = 4,
-             scale: float = 0.05, clock: bool = False, gap_rate: float = 0.0, gap_length: float = 3.0,
-             prefix: str = "t") -> Simulation:
-    """Simulate an alignment of ``n_taxa`` sequences with exactly ``length`` columns.
+_SIMULATE_DEFAULTS = {"model": None, "kappa": 2.0, "frequencies": None, "gamma": None, "gamma_categories": 4,
+                      "branch_mean": 0.05, "ultrametric": False, "indel_rate": 0.0, "indel_length": 3.0,
+                      "label_prefix": "t"}
+
+
+def simulate(taxa: int, columns: int, alphabet: str = "dna", seed=0, *, model: str | None = None,
+             kappa: float = 2.0, frequencies: Sequence[float] | str | None = None, gamma: float | None = None,
+             gamma_categories: int = 4, branch_mean: float = 0.05, ultrametric: bool = False,
+             indel_rate: float = 0.0, indel_length: float = 3.0, label_prefix: str = "t",
+             **renamed) -> Simulation:
+    """Simulate an alignment of ``taxa`` sequences with exactly ``columns`` columns.
+
+    The keyword names are those of the command line's options (``--gamma``,
+    ``--branch-mean``, ...; docs/simulator.md). The old names (``alpha``,
+    ``rate_categories``, ``scale``, ``clock``, ``gap_rate``, ``gap_length``,
+    ``freqs``, ``prefix``; see :data:`RENAMED`) still work for one release,
+    with a :class:`RenamedWarning`.
 
     Parameters
     ----------
-    n_taxa : int
+    taxa : int
         Number of leaves (>= 3).
-    length : int
+    columns : int
         Columns of the final alignment (>= 1). With indels, sequences are
-        simulated from a root of ``length`` residues; columns that no leaf
-        holds are dropped and the alignment is cut to ``length`` columns
+        simulated from a root of ``columns`` residues; columns that no leaf
+        holds are dropped and the alignment is cut to ``columns`` columns
         (a longer root is used if it came out short).
     alphabet : {"dna", "protein"}
     seed : int or numpy.random.Generator
@@ -577,23 +645,23 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
         ``k80`` / ``hky85`` (DNA), ``poisson`` / ``poisson-f`` (protein); see :func:`make_model`.
     kappa : float
         Transition/transversion rate ratio (DNA).
-    freqs : sequence of float, optional
+    frequencies : sequence of float, optional
         Stationary frequencies (A C G T, or the 20 amino acids in ``ACDEFGHIKLMNPQRSTVWY`` order).
-    alpha : float, optional
-        Gamma shape for rate variation across sites; None means equal rates.
-    rate_categories : int
+    gamma : float, optional
+        Shape of the gamma distribution of rates across sites (mean 1); None means equal rates.
+    gamma_categories : int
         Discrete gamma with this many equal-probability categories (Yang 1994),
         or 0 for a continuous gamma rate drawn per site.
-    scale : float
+    branch_mean : float
         Mean branch length in expected substitutions per site (see :func:`random_tree`).
-    clock : bool
+    ultrametric : bool
         Ultrametric coalescent branch lengths instead of independent exponentials.
-    gap_rate : float
-        Indel events per residue per unit branch length (0: no gaps).
-    gap_length : float
-        Mean length of an indel run (geometric, >= 1).
-    prefix : str
-        Label prefix: labels are ``{prefix}01``, ``{prefix}02``, ...
+    indel_rate : float
+        Insertion and deletion events per residue per unit branch length (0: no gaps).
+    indel_length : float
+        Mean length of an inserted or deleted run (geometric, >= 1).
+    label_prefix : str
+        Labels are ``{label_prefix}01``, ``{label_prefix}02``, ...
 
     Returns
     -------
@@ -601,42 +669,52 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
 
     Examples
     --------
-    >>> sim = simulate(4, 30, "protein", seed=7, alpha=0.5)
+    >>> sim = simulate(4, 30, "protein", seed=7, gamma=0.5)
     >>> sim.records[0][0], len(sim.records[0][1])
     ('t01', 30)
     """
+    if renamed:
+        current = {"model": model, "kappa": kappa, "frequencies": frequencies, "gamma": gamma,
+                   "gamma_categories": gamma_categories, "branch_mean": branch_mean, "ultrametric": ultrametric,
+                   "indel_rate": indel_rate, "indel_length": indel_length, "label_prefix": label_prefix}
+        v = _take_renamed("simulate", renamed, current, _SIMULATE_DEFAULTS)
+        frequencies, gamma, gamma_categories = v["frequencies"], v["gamma"], v["gamma_categories"]
+        branch_mean, ultrametric, label_prefix = v["branch_mean"], v["ultrametric"], v["label_prefix"]
+        indel_rate, indel_length = v["indel_rate"], v["indel_length"]
+    # Short local names for the body below.
+    n_taxa, length, freqs, alpha, rate_categories = taxa, columns, frequencies, gamma, gamma_categories
+    scale, clock, prefix = branch_mean, ultrametric, label_prefix
     rng = np.random.default_rng(seed)
     n_taxa, length = int(n_taxa), int(length)
     check_size(n_taxa, length)
     if not prefix or not all(c.isascii() and (c.isalnum() or c == "_") for c in prefix):
         raise InputError(f"label prefix '{prefix}' must be letters, digits or underscores")
-    gap_rate = PARAMETERS["gap_rate"].check("gap_rate", gap_rate)
-    gap_length = PARAMETERS["gap_length"].check("gap_length", gap_length)
-    PARAMETERS["scale"].check("scale", scale)
+    gap_rate = PARAMETERS["indel_rate"].check("indel_rate", indel_rate)
+    gap_length = PARAMETERS["indel_length"].check("indel_length", indel_length)
+    PARAMETERS["branch_mean"].check("branch_mean", scale)
     if gap_rate > 0:
-        # Expected events: rate x tree length (2n - 2 branches of mean `scale`) x residues.
+        # Expected events: rate x tree length (2n - 2 branches of mean `branch_mean`) x residues.
         events = gap_rate * (2 * n_taxa - 2) * float(scale) * length
-        columns = length + 0.5 * events * gap_length   # half the events insert a run
-        if events * columns > MAX_INDEL_WORK:
+        expected = length + 0.5 * events * gap_length   # columns: half the events insert a run
+        if events * expected > MAX_INDEL_WORK:
             raise ParameterError.text(
-                f"{{gap_rate}} {gap_rate:g} with {{gap_length}} {gap_length:g} means about {events:.3g} indel "
-                f"events over about {columns:.3g} columns, more than the limit of {MAX_INDEL_WORK:.3g} (events x "
-                "columns, about a minute); lower {gap_rate} or {gap_length}", "gap_rate", "gap_length")
-        if n_taxa * columns > MAX_CELLS:
+                f"{{indel_rate}} {gap_rate:g} with {{indel_length}} {gap_length:g} means about {events:.3g} indel "
+                f"events over about {expected:.3g} columns, more than the limit of {MAX_INDEL_WORK:.3g} (events x "
+                "columns, about a minute); lower {indel_rate} or {indel_length}", "indel_rate", "indel_length")
+        if n_taxa * expected > MAX_CELLS:
             raise ParameterError.text(
-                f"{{gap_rate}} {gap_rate:g} with {{gap_length}} {gap_length:g} inserts about {columns - length:.3g} "
-                f"columns; {n_taxa} taxa x {columns:.3g} columns is more than the limit of {MAX_CELLS} cells; "
-                "lower {gap_rate} or {gap_length}", "gap_rate", "gap_length")
+                f"{{indel_rate}} {gap_rate:g} with {{indel_length}} {gap_length:g} inserts about "
+                f"{expected - length:.3g} columns; {n_taxa} taxa x {expected:.3g} columns is more than the limit of "
+                f"{MAX_CELLS} cells; lower {{indel_rate}} or {{indel_length}}", "indel_rate", "indel_length")
     m = make_model(alphabet, model, kappa, freqs)
     cats = None
     if alpha is not None:
-        PARAMETERS["rate_categories"].check("rate_categories", rate_categories)
+        alpha = PARAMETERS["gamma"].check("gamma", alpha)
+        PARAMETERS["gamma_categories"].check("gamma_categories", rate_categories)
         if int(rate_categories) > 0:
             cats = gamma_rates(alpha, int(rate_categories))
-        elif not np.isfinite(float(alpha)) or float(alpha) <= 0:
-            raise InputError(f"gamma shape alpha must be a positive number (got {alpha})")
 
-    tree = random_tree(n_taxa, rng, scale=scale, clock=clock, prefix=prefix)
+    tree = random_tree(n_taxa, rng, branch_mean=scale, ultrametric=clock, label_prefix=prefix)
     n = n_taxa
 
     root_length = length
@@ -651,8 +729,8 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
         root_length += (length - keep.size) + 8        # deletions won; try a longer root
         if root_length > 20 * length + 1000 or n_taxa * root_length > MAX_CELLS:
             raise ParameterError.text(
-                f"deletions remove nearly every column ({{gap_rate}} {gap_rate:g}, {{gap_length}} {gap_length:g}): "
-                "lower {gap_length} or {gap_rate}", "gap_rate", "gap_length")
+                f"deletions remove nearly every column ({{indel_rate}} {gap_rate:g}, {{indel_length}} "
+                f"{gap_length:g}): lower {{indel_length}} or {{indel_rate}}", "indel_rate", "indel_length")
     n_cols = present.shape[1]
 
     # Site rates: a category per column (discrete gamma) or a rate per column (continuous).
@@ -679,7 +757,7 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
                 P = m.transition_matrices(tree.length[node], rate_values)   # (categories, k, k)
                 if not np.isfinite(P).all():  # guarded by MAX_SCALE; never draw from nan rows
                     raise InputError(f"branch length {tree.length[node]:g} is too long for the model "
-                                     "(lower --scale)")
+                                     "(lower branch_mean, --branch-mean)")
                 rows = P[cat, par]
             else:
                 rows = m.transition_rows(tree.length[node], site_rate, par)
@@ -690,6 +768,8 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
     leaf = letters[states[:n][:, cols]]
     leaf[~present[:n][:, cols]] = ord("-")
     records = [(tree.labels[i], leaf[i].tobytes().decode("ascii")) for i in range(n)]
+    # The summary keeps its keys from before the options were renamed (the demo
+    # .sim.json files are byte-identical); docs/simulator.md maps them to the options.
     params = {"taxa": n, "length": length, "alphabet": m.alphabet, "model": m.name,
               "kappa": m.kappa, "freqs": [round(float(f), 6) for f in m.freqs],
               "alpha": None if alpha is None else float(alpha),
@@ -698,11 +778,11 @@ def simulate(n_taxa: int, length: int, alphabet: str = "dna", seed=0, *, model: 
     return Simulation(records, tree, m, site_rate[cols].copy(), params, [])
 
 
-def check_size(n_taxa: int, length: int) -> None:
+def check_size(taxa: int, columns: int) -> None:
     """Refuse alignment sizes beyond the documented limits (before any work).
 
     Limits: 3 to :data:`MAX_TAXA` taxa, 1 to :data:`MAX_LENGTH` columns and at
-    most :data:`MAX_CELLS` cells (taxa x length), so that a typo cannot ask for
+    most :data:`MAX_CELLS` cells (taxa x columns), so that a typo cannot ask for
     more memory than the machine has.
 
     Raises
@@ -716,13 +796,13 @@ def check_size(n_taxa: int, length: int) -> None:
     >>> check_size(1000, 1000000)  # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...
-    seqdist.core.errors.ParameterError: parameter 'n_taxa' 1000 x parameter 'length' 1000000 is ...
+    seqdist.core.errors.ParameterError: parameter 'taxa' 1000 x parameter 'columns' 1000000 is ...
     """
-    PARAMETERS["n_taxa"].check("n_taxa", n_taxa)
-    PARAMETERS["length"].check("length", length)
-    if n_taxa * length > MAX_CELLS:
-        raise ParameterError.text(f"{{n_taxa}} {n_taxa} x {{length}} {length} is {n_taxa * length} cells, more "
-                                  f"than the limit of {MAX_CELLS} (about 0.5 GB of memory)", "n_taxa", "length")
+    PARAMETERS["taxa"].check("taxa", taxa)
+    PARAMETERS["columns"].check("columns", columns)
+    if taxa * columns > MAX_CELLS:
+        raise ParameterError.text(f"{{taxa}} {taxa} x {{columns}} {columns} is {taxa * columns} cells, more "
+                                  f"than the limit of {MAX_CELLS} (about 0.5 GB of memory)", "taxa", "columns")
 
 
 def _one_blas_thread():
@@ -1160,4 +1240,4 @@ __all__ = ["Model", "TrueTree", "Simulation", "hky85", "k80", "protein_poisson",
            "random_tree", "simulate", "plant_gappy", "plant_chimera", "plant_saturated_pair", "plant_misread",
            "plant_contaminant", "consensus",
            "format_fasta", "format_stockholm", "summary", "check_size", "DNA_LETTERS", "PROTEIN_LETTERS",
-           "MAX_TAXA", "MAX_LENGTH", "MAX_CELLS", "MAX_INDEL_WORK"]
+           "MAX_TAXA", "MAX_LENGTH", "MAX_CELLS", "MAX_INDEL_WORK", "PARAMETERS", "RENAMED", "RenamedWarning"]
