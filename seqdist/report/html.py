@@ -23,8 +23,10 @@ from __future__ import annotations
 
 import base64
 import html
+import re
 import struct
 import zlib
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -32,7 +34,8 @@ from seqdist.core.tree import Tree, rooted_for_drawing
 from seqdist.impact.compare import CAUTION, ImpactResult, summary_lines
 from seqdist.trees.compare import nontrivial, splits
 
-__all__ = ["png_bytes", "draw_tree", "draw_heatmap", "render_html"]
+__all__ = ["png_bytes", "TreeLayout", "layout_trees", "draw_tree", "draw_trees", "draw_heatmap", "svg_download",
+           "render_html"]
 
 HIGHLIGHT = "#d95f02"
 PLAIN = "#3a3a3a"
@@ -44,6 +47,7 @@ MADE_UP_RGB = np.array([20, 20, 20], np.uint8)
 MAX_TREE_LEAVES = 1000
 MAX_LABELLED_LEAVES = 300
 MAX_RECT_HEATMAP = 80
+MAX_VECTOR_HEATMAP = 200
 MAX_HEATMAP_PIXELS = 800
 
 CSS = """
@@ -54,9 +58,27 @@ padding-bottom:3px} .files{color:#555;margin:0 0 14px;font-size:.95em}
 .summary{background:#f3f6fa;border-left:4px solid #2166ac;padding:10px 14px;font-size:1.05em}
 .summary p{margin:4px 0}
 .caution{background:#fff7e0;border-left:4px solid #e0a100;padding:8px 14px;margin-top:10px}
-.pair{display:flex;gap:18px;flex-wrap:wrap;align-items:flex-start}
+figure{margin:0}
 .panel{border:1px solid #e2e2e2;padding:8px;background:#fff}
 .panel h3{margin:0 0 4px;font-size:1em}
+.panel svg{display:block;max-width:100%;height:auto}
+.heat{display:inline-block;max-width:100%}
+.dl{margin:4px 0 0;font-size:.85em}
+.trees{display:grid;gap:18px;align-items:start;grid-template-columns:repeat(2,minmax(0,1fr))}
+.trees.k3{grid-template-columns:repeat(3,minmax(0,1fr))}
+.trees .panel{display:grid;grid-row:span 3;grid-template-rows:subgrid;row-gap:0}
+@media (max-width:1180px){.trees.k3{grid-template-columns:repeat(2,minmax(0,1fr))}}
+@media (max-width:900px){.trees,.trees.k3{grid-template-columns:minmax(0,1fr)}}
+@media print{
+@page{margin:16mm 14mm}
+body{margin:0;max-width:none;font-size:10pt;color:#000}
+h1,h2,h3{break-after:avoid;page-break-after:avoid}
+figure,.panel,svg,tr,.summary,.caution{break-inside:avoid;page-break-inside:avoid}
+.summary,.caution,th,.panel{background:none}
+.trees,.trees.k3{grid-template-columns:repeat(2,minmax(0,1fr))}
+.dl{display:none}
+.bar{print-color-adjust:exact;-webkit-print-color-adjust:exact}
+}
 table{border-collapse:collapse;font-size:.92em} td,th{border:1px solid #ddd;padding:3px 8px;text-align:right}
 th{background:#f5f5f5} td.l,th.l{text-align:left}
 .note{color:#666;font-size:.9em} .key{display:inline-block;width:22px;height:0;border-top:3px solid;
@@ -124,6 +146,54 @@ def png_bytes(rgb: np.ndarray) -> bytes:
 
 
 # --------------------------------------------------------------- tree panel
+@dataclass(frozen=True)
+class TreeLayout:
+    """A tree laid out as a rectangular phylogram, in data units.
+
+    Nodes are listed in preorder (the root first). ``x`` is the depth from
+    the root along the drawn branches (a branch longer than ``cap`` counts
+    as ``cap`` and is marked in ``shortened``); ``y`` is the row: leaves at
+    0, 1, 2, ... top to bottom, an inner node midway between its first and
+    last child. ``split`` is the bitset over the compared taxa of the side
+    of the node's branch without ``taxa[0]`` (taxa not compared add no bit).
+
+    Attributes
+    ----------
+    names : list of str or None
+        Leaf labels (``None`` for inner nodes).
+    x, y : list of float
+    parent : list of int
+        Index of each node's parent (-1 for the root).
+    length : list of float or None
+        True branch lengths (``None`` for the root or when not given).
+    shortened : list of bool
+    split : list of int
+    leaves : list of str
+        Leaf labels top to bottom.
+    cap : float
+        Longest branch drawn at full length (0: none shortened).
+    """
+
+    names: list
+    x: list
+    y: list
+    parent: list
+    length: list
+    shortened: list
+    split: list
+    leaves: list
+    cap: float
+
+    @property
+    def children(self) -> list:
+        """Child indices of every node."""
+        out: list = [[] for _ in self.names]
+        for k, p in enumerate(self.parent):
+            if p >= 0:
+                out[p].append(k)
+        return out
+
+
 def _ladderised(tree: Tree, rank: dict) -> None:
     first: dict[int, int] = {}
     for node in tree.postorder():
@@ -132,6 +202,213 @@ def _ladderised(tree: Tree, rank: dict) -> None:
         else:
             node.children.sort(key=lambda c: first[id(c)])
             first[id(node)] = first[id(node.children[0])]
+
+
+def _layout(t: Tree, taxa: list, cap: float) -> TreeLayout:
+    """Lay out ``t`` (already rooted for drawing; ladderised in place)."""
+    # taxa left out of the comparison sort after the compared ones
+    rank = {lab: k for k, lab in enumerate(taxa)}
+    for k, lab in enumerate(sorted(x for x in t.labels() if x not in rank)):
+        rank[lab] = len(taxa) + k
+    _ladderised(t, rank)
+    nodes = list(t.preorder())
+    index = {id(nd): k for k, nd in enumerate(nodes)}
+    full = (1 << len(taxa)) - 1
+    x = [0.0] * len(nodes)
+    shortened = [False] * len(nodes)
+    parent = [-1] * len(nodes)
+    for k, node in enumerate(nodes):
+        if node.parent is not None:
+            parent[k] = index[id(node.parent)]
+            ln = float(node.length or 0.0)
+            if cap > 0 and ln > cap:
+                shortened[k] = True
+                ln = cap
+            x[k] = x[parent[k]] + ln
+    y = [0.0] * len(nodes)
+    mask = [0] * len(nodes)
+    leaves = []
+    for k, node in enumerate(nodes):
+        if node.is_leaf:
+            y[k] = float(len(leaves))
+            leaves.append(node.name)
+            mask[k] = 1 << rank[node.name] if rank[node.name] < len(taxa) else 0
+    for node in reversed(nodes):
+        if not node.is_leaf:
+            k = index[id(node)]
+            kids = [index[id(c)] for c in node.children]
+            y[k] = 0.5 * (y[kids[0]] + y[kids[-1]])
+            m = 0
+            for c in kids:
+                m |= mask[c]
+            mask[k] = m
+    split = [m ^ full if m & 1 else m for m in mask]
+    return TreeLayout(names=[nd.name if nd.is_leaf else None for nd in nodes], x=x, y=y, parent=parent,
+                      length=[None if nd.parent is None else nd.length for nd in nodes], shortened=shortened,
+                      split=split, leaves=leaves, cap=cap)
+
+
+def layout_trees(trees: list, taxa: list | None = None, outgroup: str | None = None) -> list:
+    """Lay out trees to be drawn side by side on one scale.
+
+    Every tree is rooted for drawing on the same reference taxon (unrooted
+    trees: at the middle of the branch to ``outgroup``, default ``taxa[0]``;
+    rooted trees keep their root), children are ordered by their first taxon
+    in ``taxa`` order, and one length ``cap`` (3 times the 95th percentile
+    of all the trees' branch lengths) decides which branches are drawn
+    shortened, so equal drawn lengths mean equal branch lengths in every tree.
+
+    Parameters
+    ----------
+    trees : list of Tree
+    taxa : list of str, optional
+        The compared taxa in split-bit order (default: the labels all trees
+        share, sorted).
+    outgroup : str, optional
+
+    Returns
+    -------
+    list of TreeLayout
+
+    Examples
+    --------
+    >>> from seqdist.core.tree import Node, Tree
+    >>> t = Tree(Node(children=[Node("a", 1.0), Node("b", 2.0), Node("c", 0.5)]))
+    >>> lay, = layout_trees([t])
+    >>> lay.leaves, max(lay.x)
+    (['a', 'b', 'c'], 2.5)
+    """
+    trees = list(trees)
+    if taxa is None:
+        taxa = sorted(set.intersection(*(set(t.labels()) for t in trees)))
+    ref = outgroup if outgroup is not None else taxa[0]
+    rooted = [rooted_for_drawing(t, ref) for t in trees]
+    # one cap for all: a branch shortened in one tree is shortened in every tree
+    lengths = np.array([abs(float(b.length or 0.0)) for t in rooted for b in t.branches()])
+    cap = 3.0 * float(np.quantile(lengths, 0.95)) if lengths.size else 0.0
+    return [_layout(t, list(taxa), cap) for t in rooted]
+
+
+def _tree_svg(lay: TreeLayout, taxa: list, highlight: set, support: dict | None, g: dict) -> str:
+    """One tree's SVG with the shared geometry ``g`` (scale, rows, fonts)."""
+    width, dy, font, lo, sx = g["width"], g["dy"], g["font"], g["lo"], g["sx"]
+    top, bottom, left, labelled = g["top"], g["bottom"], g["left"], g["labelled"]
+    n = len(taxa)
+    compared = set(taxa)
+
+    def X(v: float) -> float:
+        return left + (v - lo) * sx
+
+    def Y(row: float) -> float:
+        return top + (row + 0.5) * dy
+
+    n_all = len(lay.leaves)
+    height = top + n_all * dy + bottom
+    parts = [f'<svg xmlns="http://www.w3.org/2000/svg" class="tree" width="{width}" height="{height:.0f}" '
+             f'viewBox="0 0 {width} {height:.0f}" font-family="Helvetica,Arial,sans-serif">']
+    lw = 1.6 if dy >= 4 else 1.0
+    small = max(6.0, font - 2)
+    children = lay.children
+    for k, name in enumerate(lay.names):
+        kids = children[k]
+        if kids:
+            xk = X(lay.x[k])
+            parts.append(f'<line x1="{xk:.2f}" y1="{Y(lay.y[kids[0]]):.2f}" x2="{xk:.2f}" '
+                         f'y2="{Y(lay.y[kids[-1]]):.2f}" stroke="{PLAIN}" stroke-width="{lw}"/>')
+        p = lay.parent[k]
+        if p < 0:
+            continue
+        m = lay.split[k]
+        hl = m in highlight
+        colour = HIGHLIGHT if hl else PLAIN
+        w = lw * 2 if hl else lw
+        length = lay.length[k]
+        dash = ' stroke-dasharray="4,2"' if (length or 0.0) < 0 else ""
+        x0, x1, y = X(lay.x[p]), X(lay.x[k]), Y(lay.y[k])
+        parts.append(f'<line x1="{x0:.2f}" y1="{y:.2f}" x2="{x1:.2f}" y2="{y:.2f}" stroke="{colour}" '
+                     f'stroke-width="{w}"{dash}><title>{_esc(name) if name is not None else "branch"} '
+                     f'length {_num(length, 6)}</title></line>')
+        if hl:
+            parts.append(f'<circle cx="{x1:.2f}" cy="{y:.2f}" r="3.5" fill="{HIGHLIGHT}"/>')
+        if lay.shortened[k]:
+            xm = 0.5 * (x0 + x1)
+            for d in (-3.0, 3.0):
+                parts.append(f'<line x1="{xm + d - 2:.2f}" y1="{y + 4:.2f}" x2="{xm + d + 2:.2f}" '
+                             f'y2="{y - 4:.2f}" stroke="#000" stroke-width="1"/>')
+            parts.append(f'<text x="{xm:.2f}" y="{y - 3:.2f}" font-size="{small:.1f}" '
+                         f'text-anchor="middle" fill="#555">{_num(length)}</text>')
+        if support is not None and kids and 2 <= m.bit_count() <= n - 2 and m in support and labelled:
+            pct = int(round(100 * support[m]))
+            parts.append(f'<text x="{x1 - 2:.2f}" y="{y - 2:.2f}" font-size="{small:.1f}" '
+                         f'text-anchor="end" fill="#1b7837">{pct}</text>')
+        if not kids and labelled:
+            odd = name not in compared  # not compared (left out of the other tree)
+            style = ' fill="#888" font-style="italic"' if odd else f' fill="{PLAIN}"'
+            parts.append(f'<text x="{x1 + 4:.2f}" y="{y + font * 0.35:.2f}" font-size="{font:.1f}"{style}>'
+                         f'{_esc(name)}{" *" if odd else ""}</text>')
+    # the scale bar: the same value and the same length in every tree drawn together
+    step = g["step"]
+    yb = top + n_all * dy + 22
+    parts.append(f'<line class="scale-bar" x1="{left:.2f}" y1="{yb:.2f}" x2="{left + step * sx:.2f}" '
+                 f'y2="{yb:.2f}" stroke="#000" stroke-width="1.5"/>')
+    parts.append(f'<text class="scale-label" x="{left + step * sx + 6:.2f}" y="{yb + 4:.2f}" '
+                 f'font-size="11">{_num(step)}</text>')
+    parts.append("</svg>")
+    return "".join(parts)
+
+
+def draw_trees(trees: list, taxa: list, highlights: list | None = None, supports: list | None = None, *,
+               width: int = 620, outgroup: str | None = None) -> list:
+    """SVGs of trees drawn on one scale; a list of (svg text, leaf labels top to bottom).
+
+    Every tree gets the same width, units per pixel, row height, font and
+    scale bar (value and length), so branch lengths compare by eye across
+    the figures when they are shown at the same size.
+
+    Parameters
+    ----------
+    trees : list of Tree
+    taxa : list of str
+        Sorted compared labels (the split bit order; ``taxa[0]`` is the
+        reference for rooting).
+    highlights : list of set of int, optional
+        Per tree, split bitsets to draw in colour.
+    supports : list of dict or None, optional
+        Per tree, split bitset -> fraction of replicates (printed as a percentage).
+    width : int
+        Width of every SVG in pixels.
+    outgroup : str, optional
+
+    Examples
+    --------
+    >>> from seqdist.core.tree import Node, Tree
+    >>> a = Tree(Node(children=[Node("a", 1.0), Node("b", 1.0), Node("c", 1.0)]))
+    >>> b = Tree(Node(children=[Node("a", 2.0), Node("b", 2.0), Node("c", 2.0)]))
+    >>> (sa, _), (sb, _) = draw_trees([a, b], ["a", "b", "c"])
+    >>> import re
+    >>> [re.search(r'scale-label[^>]*>([^<]*)', s).group(1) for s in (sa, sb)]
+    ['0.5', '0.5']
+    """
+    lays = layout_trees(trees, taxa, outgroup)
+    k = len(lays)
+    highlights = list(highlights) if highlights is not None else [set()] * k
+    supports = list(supports) if supports is not None else [None] * k
+    compared = set(taxa)
+    n_all = max(len(lay.leaves) for lay in lays)
+    labelled = n_all <= MAX_LABELLED_LEAVES
+    dy = max(2.0, min(18.0, 900.0 / n_all)) if labelled else max(0.6, 900.0 / n_all)
+    font = max(6.0, min(12.0, dy * 0.8))
+    longest = max(len(lab) + (2 if lab not in compared else 0) for lay in lays for lab in lay.leaves)
+    label_w = min(0.42 * width, 0.62 * font * longest + 12) if labelled else 6.0
+    left = 12.0
+    lo = min(0.0, min(min(lay.x) for lay in lays))
+    hi = max(max(lay.x) for lay in lays)
+    span = hi - lo if hi > lo else 1.0
+    sx = (width - left - label_w - 8) / span
+    g = dict(width=width, dy=dy, font=font, lo=lo, sx=sx, top=10.0, bottom=40.0, left=left,
+             labelled=labelled, step=_nice_step(span))
+    return [(_tree_svg(lay, list(taxa), hl, sup, g), lay.leaves)
+            for lay, hl, sup in zip(lays, highlights, supports)]
 
 
 def draw_tree(tree: Tree, taxa: list, highlight: set, support: dict | None = None, *, width: int = 620,
@@ -147,119 +424,76 @@ def draw_tree(tree: Tree, taxa: list, highlight: set, support: dict | None = Non
         Split bitsets to draw in colour.
     support : dict, optional
         Split bitset -> fraction of replicates, printed as a percentage.
+
+    Examples
+    --------
+    >>> from seqdist.core.tree import Node, Tree
+    >>> t = Tree(Node(children=[Node("a", 1.0), Node("b", 2.0), Node("c", 0.5)]))
+    >>> svg, order = draw_tree(t, ["a", "b", "c"], set())
+    >>> svg.startswith("<svg"), order
+    (True, ['a', 'b', 'c'])
     """
-    t = rooted_for_drawing(tree, outgroup if outgroup is not None else taxa[0])
-    # taxa left out of the comparison sort after the compared ones
-    rank = {lab: k for k, lab in enumerate(taxa)}
-    for k, lab in enumerate(sorted(x for x in t.labels() if x not in rank)):
-        rank[lab] = len(taxa) + k
-    _ladderised(t, rank)
-    n_all = len(rank)
-    n = len(taxa)
-    full = (1 << n) - 1
-    pos = {lab: k for k, lab in enumerate(taxa)}
-    labelled = n_all <= MAX_LABELLED_LEAVES
-    dy = max(2.0, min(18.0, 900.0 / n_all)) if labelled else max(0.6, 900.0 / n_all)
-    font = max(6.0, min(12.0, dy * 0.8))
-    longest = max(len(lab) + (2 if lab not in pos else 0) for lab in rank)
-    label_w = min(260.0, 0.62 * font * longest + 12) if labelled else 6.0
-    top, bottom, left = 10.0, 40.0, 12.0
-    # depth (x) and row (y) of every node
-    # Display lengths: a branch far longer than the rest (e.g. a saturated
-    # taxon) would squash the drawing, so it is drawn shortened with a break
-    # mark and its true length written beside it.
-    lengths = np.array([abs(float(b.length or 0.0)) for b in t.branches()])
-    cap = 3.0 * float(np.quantile(lengths, 0.95)) if lengths.size else 0.0
-    broken: set[int] = set()
-    depth: dict[int, float] = {id(t.root): 0.0}
-    for node in t.preorder():
-        for c in node.children:
-            ln = float(c.length or 0.0)
-            if cap > 0 and ln > cap:
-                broken.add(id(c))
-                ln = cap
-            depth[id(c)] = depth[id(node)] + ln
-    leaves = t.leaves()
-    ys: dict[int, float] = {}
-    masks: dict[int, int] = {}
-    for k, leaf in enumerate(leaves):
-        ys[id(leaf)] = top + (k + 0.5) * dy
-    for node in t.postorder():
-        if node.is_leaf:
-            masks[id(node)] = 1 << pos[node.name] if node.name in pos else 0
-        else:
-            ys[id(node)] = 0.5 * (ys[id(node.children[0])] + ys[id(node.children[-1])])
-            m = 0
-            for c in node.children:
-                m |= masks[id(c)]
-            masks[id(node)] = m
-    xs = list(depth.values())
-    lo, hi = min(0.0, min(xs)), max(xs)
-    span = hi - lo if hi > lo else 1.0
-    plot_w = width - left - label_w - 8
-    sx = plot_w / span
+    return draw_trees([tree], taxa, [highlight], [support], width=width, outgroup=outgroup)[0]
 
-    def X(v: float) -> float:
-        return left + (v - lo) * sx
 
-    height = top + n_all * dy + bottom
-    parts = [f'<svg xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height:.0f}" '
-             f'viewBox="0 0 {width} {height:.0f}" font-family="Helvetica,Arial,sans-serif">']
-    lw = 1.6 if dy >= 4 else 1.0
-    for node in t.preorder():
-        if node is t.root:
-            pass
-        if node.children:
-            y0, y1 = ys[id(node.children[0])], ys[id(node.children[-1])]
-            parts.append(f'<line x1="{X(depth[id(node)]):.2f}" y1="{y0:.2f}" x2="{X(depth[id(node)]):.2f}" '
-                         f'y2="{y1:.2f}" stroke="{PLAIN}" stroke-width="{lw}"/>')
-        if node is t.root:
-            continue
-        m = masks[id(node)]
-        if m & 1:
-            m ^= full
-        hl = m in highlight
-        colour = HIGHLIGHT if hl else PLAIN
-        w = lw * 2 if hl else lw
-        dash = ' stroke-dasharray="4,2"' if (node.length or 0.0) < 0 else ""
-        x0, x1, y = X(depth[id(node.parent)]), X(depth[id(node)]), ys[id(node)]
-        parts.append(f'<line x1="{x0:.2f}" y1="{y:.2f}" x2="{x1:.2f}" y2="{y:.2f}" stroke="{colour}" '
-                     f'stroke-width="{w}"{dash}><title>{_esc(node.name) if node.is_leaf else "branch"} '
-                     f'length {_num(node.length, 6)}</title></line>')
-        if hl:
-            parts.append(f'<circle cx="{x1:.2f}" cy="{y:.2f}" r="3.5" fill="{HIGHLIGHT}"/>')
-        if id(node) in broken:
-            xm = 0.5 * (x0 + x1)
-            for dx in (-3.0, 3.0):
-                parts.append(f'<line x1="{xm + dx - 2:.2f}" y1="{y + 4:.2f}" x2="{xm + dx + 2:.2f}" '
-                             f'y2="{y - 4:.2f}" stroke="#000" stroke-width="1"/>')
-            parts.append(f'<text x="{xm:.2f}" y="{y - 3:.2f}" font-size="{max(6.0, font - 2):.1f}" '
-                         f'text-anchor="middle" fill="#555">{_num(node.length)}</text>')
-        if support is not None and not node.is_leaf and 2 <= m.bit_count() <= n - 2 and m in support and labelled:
-            pct = int(round(100 * support[m]))
-            parts.append(f'<text x="{x1 - 2:.2f}" y="{y - 2:.2f}" font-size="{max(6.0, font - 2):.1f}" '
-                         f'text-anchor="end" fill="#1b7837">{pct}</text>')
-        if node.is_leaf and labelled:
-            odd = node.name not in pos  # not compared (left out of the other tree)
-            style = ' fill="#888" font-style="italic"' if odd else f' fill="{PLAIN}"'
-            parts.append(f'<text x="{x1 + 4:.2f}" y="{y + font * 0.35:.2f}" font-size="{font:.1f}"{style}>'
-                         f'{_esc(node.name)}{" *" if odd else ""}</text>')
-    # scale bar
-    step = _nice_step(span)
-    yb = top + n_all * dy + 22
-    parts.append(f'<line x1="{left:.2f}" y1="{yb:.2f}" x2="{left + step * sx:.2f}" y2="{yb:.2f}" '
-                 f'stroke="#000" stroke-width="1.5"/>')
-    parts.append(f'<text x="{left + step * sx + 6:.2f}" y="{yb + 4:.2f}" font-size="11">{_num(step)}</text>')
-    parts.append("</svg>")
-    return "".join(parts), [leaf.name for leaf in leaves]
+def svg_download(svg: str, filename: str, text: str = "SVG") -> str:
+    """A link that saves ``svg`` as a standalone file (a ``data:`` address; no script).
+
+    Examples
+    --------
+    >>> svg_download('<svg xmlns="http://www.w3.org/2000/svg"/>', "f.svg")[:46]
+    '<a class="svg-file" download="f.svg" href="dat'
+    """
+    data = base64.b64encode(f'<?xml version="1.0" encoding="UTF-8"?>\n{svg}\n'.encode("utf-8")).decode("ascii")
+    return (f'<a class="svg-file" download="{_esc(filename)}" href="data:image/svg+xml;base64,{data}" '
+            f'title="save this figure as an SVG file">{_esc(text)}</a>')
+
+
+def _file_stem(name: str) -> str:
+    return re.sub(r"[^a-z0-9]+", "_", name.lower()).strip("_") or "figure"
 
 
 # ------------------------------------------------------------------ heatmap
-def draw_heatmap(change: np.ndarray, labels: list, size: int = 560, made_up: np.ndarray | None = None) -> str:
+def _cell_paths(cols: np.ndarray, x0: float, y0: float, cell: float) -> str:
+    """Cells as one path per colour, runs along a row merged, on a neutral ground
+    (compact: an unchanged cell costs nothing)."""
+    n = cols.shape[0]
+    key = (cols[..., 0].astype(np.int64) << 16) | (cols[..., 1].astype(np.int64) << 8) | cols[..., 2]
+    ground = int(MID_RGB[0]) << 16 | int(MID_RGB[1]) << 8 | int(MID_RGB[2])
+    runs: dict[int, list] = {}
+    for i in range(n):
+        row = key[i]
+        cuts = np.flatnonzero(np.diff(row)) + 1
+        starts = np.concatenate(([0], cuts))
+        ends = np.concatenate((cuts, [n]))
+        for a, b in zip(starts.tolist(), ends.tolist()):
+            c = int(row[a])
+            if c != ground:
+                runs.setdefault(c, []).append(f"M{x0 + a * cell:.2f} {y0 + i * cell:.2f}h{(b - a) * cell:.2f}"
+                                              f"v{cell:.2f}h{-(b - a) * cell:.2f}z")
+    parts = [f'<g shape-rendering="crispEdges"><rect x="{x0}" y="{y0}" width="{n * cell:.2f}" '
+             f'height="{n * cell:.2f}" fill="{_hex(MID_RGB)}"/>']
+    parts += [f'<path fill="#{c:06x}" d="{"".join(d)}"/>' for c, d in sorted(runs.items())]
+    parts.append("</g>")
+    return "".join(parts)
+
+
+def draw_heatmap(change: np.ndarray, labels: list, size: int = 560, made_up: np.ndarray | None = None,
+                 tooltips: bool = True) -> str:
     """SVG heatmap of ``after - before`` with a diverging legend.
 
     NaN cells are missing before and filled after: grey when filled from
     evidence, black where ``made_up`` is true (filled without evidence).
+    With ``tooltips`` (the page) every cell is a rectangle with its pair and
+    change as a tooltip up to ``MAX_RECT_HEATMAP`` taxa, an embedded image
+    above; without (a file to save) the cells are vector shapes up to
+    ``MAX_VECTOR_HEATMAP`` taxa, one path per colour.
+
+    Examples
+    --------
+    >>> svg = draw_heatmap(np.array([[0, 0.5], [0.5, 0]]), ["a", "b"])
+    >>> svg.count("<rect") >= 4 and "<title>a - b: +0.5</title>" in svg
+    True
     """
     n = change.shape[0]
     filled = np.isnan(change)
@@ -269,18 +503,22 @@ def draw_heatmap(change: np.ndarray, labels: list, size: int = 560, made_up: np.
     change = np.where(np.isnan(change), 0.0, change)
     vmax = float(np.abs(change).max()) if change.size else 0.0
     labelled = n <= MAX_RECT_HEATMAP
+    vector = labelled if tooltips else n <= MAX_VECTOR_HEATMAP
     font = max(5.0, min(11.0, size / n * 0.8)) if labelled else 0.0
     margin = (min(160.0, 0.6 * font * max(len(x) for x in labels) + 8)) if labelled else 10.0
     cell = size / n
     legend_h = 70 + 22 * (int(filled_ev.any()) + int(made_up.any()))
     W = margin + size + 20
     H = margin + size + legend_h
-    parts = [f'<svg xmlns="http://www.w3.org/2000/svg" width="{W:.0f}" height="{H:.0f}" '
+    parts = [f'<svg xmlns="http://www.w3.org/2000/svg" class="heatmap" width="{W:.0f}" height="{H:.0f}" '
              f'viewBox="0 0 {W:.0f} {H:.0f}" font-family="Helvetica,Arial,sans-serif">']
-    if labelled:
+    if vector:
         cols = _colour(change, vmax)
         cols[filled] = FILLED_RGB
         cols[made_up] = MADE_UP_RGB
+    if vector and not tooltips:
+        parts.append(_cell_paths(cols, margin, margin, cell))
+    elif vector:
         for i in range(n):
             for j in range(n):
                 title = (labels[i] if i == j else f"{labels[i]} - {labels[j]}: missing before, filled without evidence"
@@ -288,6 +526,7 @@ def draw_heatmap(change: np.ndarray, labels: list, size: int = 560, made_up: np.
                          if filled[i, j] else f"{labels[i]} - {labels[j]}: {change[i, j]:+.6g}")
                 parts.append(f'<rect x="{margin + j * cell:.2f}" y="{margin + i * cell:.2f}" width="{cell:.2f}" '
                              f'height="{cell:.2f}" fill="{_hex(cols[i, j])}"><title>{_esc(title)}</title></rect>')
+    if labelled:
         for i, lab in enumerate(labels):
             yc = margin + (i + 0.5) * cell + font * 0.35
             parts.append(f'<text x="{margin - 3:.2f}" y="{yc:.2f}" font-size="{font:.1f}" '
@@ -295,7 +534,7 @@ def draw_heatmap(change: np.ndarray, labels: list, size: int = 560, made_up: np.
             xc = margin + (i + 0.5) * cell + font * 0.35
             parts.append(f'<text x="{xc:.2f}" y="{margin - 3:.2f}" font-size="{font:.1f}" '
                          f'transform="rotate(-90 {xc:.2f} {margin - 3:.2f})">{_esc(lab)}</text>')
-    else:
+    if not vector:
         # Downsample to at most MAX_HEATMAP_PIXELS per side, keeping in each
         # block the change of largest magnitude so that single entries stay visible.
         k = int(np.ceil(n / MAX_HEATMAP_PIXELS))
@@ -415,38 +654,41 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
     root_note = ("UPGMA trees are rooted." if res.tree_before.rooted else
                  f"Unrooted trees, drawn rooted on the branch to {_esc(outgroup or taxa[0])} (a fixed "
                  "reference taxon, the same for both).")
-    out.append(f'<p class="note">{root_note}<span class="key" style="border-color:{HIGHLIGHT}"></span>split '
-               f'found only in this tree<span class="key dash" style="border-color:{PLAIN}"></span>negative '
-               "branch length &middot; // a very long branch drawn shortened (true length written on it)"
-               + (" &middot; green numbers: % of bootstrap replicates with the split" if sup else "")
-               + "</p>")
     if n <= MAX_TREE_LEAVES:
-        svg_b, order_b = draw_tree(res.tree_before, taxa, nb - na, sup_b, outgroup=outgroup)
-        svg_a, order_a = draw_tree(res.tree_after, taxa, na - nb, sup_a, outgroup=outgroup)
+        extra = [(name, tree) for name, tree in extra_trees or []]
+        drawn = [(names[0], res.tree_before), (names[1], res.tree_after)] + extra
+        k = len(drawn)
+        # one scale for all trees; a narrower drawing when three share a row
+        svgs = draw_trees([tree for _, tree in drawn], taxa, [nb - na, na - nb] + [set()] * len(extra),
+                          [sup_b, sup_a] + [None] * len(extra), width=620 if k <= 2 else 420, outgroup=outgroup)
+        (svg_b, order_b), (_, order_a) = svgs[0], svgs[1]
         order = order_b if len(order_b) >= len(order_a) else order_a
-        out.append('<div class="pair">')
-        for name, tree, svg, only in ((names[0], res.tree_before, svg_b, len(nb - na)),
-                                      (names[1], res.tree_after, svg_a, len(na - nb))):
+        step = re.search(r'class="scale-label"[^>]*>([^<]*)<', svg_b).group(1)
+        out.append('<figure class="fig">')
+        out.append(f'<p class="note">{root_note}<span class="key" style="border-color:{HIGHLIGHT}"></span>split '
+                   f'found only in this tree<span class="key dash" style="border-color:{PLAIN}"></span>negative '
+                   "branch length &middot; // a very long branch drawn shortened (true length written on it)"
+                   + (" &middot; green numbers: % of bootstrap replicates with the split" if sup else "")
+                   + f" &middot; all trees on one scale (the bar is {step} in each).</p>")
+        out.append(f'<div class="trees k{min(k, 3)}">')
+        used: set = set()
+        for j, ((name, tree), (svg, _)) in enumerate(zip(drawn, svgs)):
             leaves = tree.labels()
             own = len(nontrivial(splits(tree, sorted(leaves)), len(leaves)))
-            cmp = "" if len(leaves) == n else f" on the {n:,} compared taxa"
-            out.append(f'<div class="panel"><h3>{_esc(name)}: {len(leaves):,} taxa, {own:,} splits; '
-                       f'{only} of its splits{cmp} not in the other tree</h3>{svg}</div>')
-        for name, tree in extra_trees or []:
-            leaves = tree.labels()
-            own = len(nontrivial(splits(tree, sorted(leaves)), len(leaves)))
-            svg_x, _ = draw_tree(tree, taxa, set(), None, outgroup=outgroup)
-            out.append(f'<div class="panel"><h3>{_esc(name)}: {len(leaves):,} taxa, {own:,} splits '
-                       f"(for comparison)</h3>{svg_x}</div>")
-        out.append("</div>")
-        if n > MAX_LABELLED_LEAVES:
-            out.append(f'<p class="note">Leaf labels are left out above {MAX_LABELLED_LEAVES} taxa.</p>')
-        odd = sorted((set(res.tree_before.labels()) | set(res.tree_after.labels())) - set(taxa))
-        if odd:
-            reasons = r.left_out_reasons
-            out.append('<p class="note">* in one tree only, so not compared: '
-                       + _esc("; ".join(f"{lab}" + (f" ({reasons[lab]})" if reasons.get(lab) else "") for lab in odd))
-                       + ".</p>")
+            if j < 2:
+                only = len(nb - na) if j == 0 else len(na - nb)
+                cmp = "" if len(leaves) == n else f" on the {n:,} compared taxa"
+                head = (f"{_esc(name)}: {len(leaves):,} taxa, {own:,} splits; {only} of its splits{cmp} "
+                        "not in the other tree")
+            else:
+                head = f"{_esc(name)}: {len(leaves):,} taxa, {own:,} splits (for comparison)"
+            stem = "tree_" + _file_stem(name)
+            while stem in used:
+                stem += "_"
+            used.add(stem)
+            out.append(f'<div class="panel"><h3>{head}</h3>{svg}'
+                       f'<p class="dl">{svg_download(svg, stem + ".svg", "save as SVG")}</p></div>')
+        out.append("</div></figure>")
     else:
         order = []
         out.append(f'<p class="note">Trees with more than {MAX_TREE_LEAVES:,} taxa are not drawn; '
@@ -470,12 +712,15 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
     n_made_up = int(np.triu(made_up, 1).sum()) if made_up is not None else 0
     filled_note = (f'{_num(r.entries_filled)} missing entries filled'
                    + (f" ({n_made_up:,} of them filled without evidence)" if n_made_up else ""))
+    out.append('<figure class="fig">')
     out.append(f'<p class="note">after - before on the {len(order):,} taxa of both matrices, rows and columns '
                f'in the leaf order of the tree drawn above. Of {_num(r.entries_measured)} '
                f'measured entries, {_num(r.entries_increased)} increased and {_num(r.entries_decreased)} '
                f'decreased (by more than the tolerance); {filled_note}; total absolute change '
                f'{_num(r.l1_change)}, largest {_num(r.max_change)}.</p>')
-    out.append(f'<div class="panel" style="display:inline-block">{draw_heatmap(change, order, made_up=made_up)}</div>')
+    saved = draw_heatmap(change, order, made_up=made_up, tooltips=False)
+    out.append(f'<div class="panel heat">{draw_heatmap(change, order, made_up=made_up)}'
+               f'<p class="dl">{svg_download(saved, "matrix_change.svg", "save as SVG")}</p></div></figure>')
 
     # triangles and measures
     out.append("<h2>Triangle inequality and measures</h2>")
