@@ -387,7 +387,7 @@ def draw_trees(trees: list, taxa: list, highlights: list | None = None, supports
     >>> (sa, _), (sb, _) = draw_trees([a, b], ["a", "b", "c"])
     >>> import re
     >>> [re.search(r'scale-label[^>]*>([^<]*)', s).group(1) for s in (sa, sb)]
-    ['0.5', '0.5']
+    ['1', '1']
     """
     lays = layout_trees(trees, taxa, outgroup)
     k = len(lays)
