@@ -109,7 +109,7 @@ def dendropy_tree(path):
 
 # -------------------------------------------------------------- determinism
 def test_same_seed_same_result_api():
-    kw = dict(alpha=0.5, gap_rate=0.02, kappa=3.0)
+    kw = dict(gamma=0.5, indel_rate=0.02, kappa=3.0)
     a, b = simulate(12, 300, "dna", seed=5, **kw), simulate(12, 300, "dna", seed=5, **kw)
     assert a.records == b.records and a.tree.newick() == b.tree.newick()
     assert format_fasta(a.records) == format_fasta(b.records)
@@ -121,7 +121,7 @@ def test_same_seed_identical_files_cli(tmp_path):
     def go(folder, seed):
         folder.mkdir()
         p = run_cli("simulate", "-o", folder / "a.fasta", "--tree-out", folder / "t.nwk", "--taxa", 12,
-                    "--length", 200, "--seed", seed, "--alpha", 0.7, "--gap-rate", 0.02, "--gappy", "auto",
+                    "--columns", 200, "--seed", seed, "--gamma", 0.7, "--indels", 0.02, "--gappy", "auto",
                     "--chimera", "auto", "--saturate", "auto", "--stockholm-out", folder / "s.sto",
                     "--summary-out", folder / "s.json")
         assert p.returncode == 0, p.stderr
@@ -134,7 +134,7 @@ def test_same_seed_identical_files_cli(tmp_path):
     assert (one / "a.fasta").read_bytes() != (other / "a.fasta").read_bytes()
     # The command is a thin wrapper: the API with the same seed and steps gives the same bytes.
     rng = np.random.default_rng(9)
-    sim = simulate(12, 200, "dna", rng, alpha=0.7, gap_rate=0.02)
+    sim = simulate(12, 200, "dna", rng, gamma=0.7, indel_rate=0.02)
     sim = plant_saturated_pair(plant_chimera(plant_gappy(sim, None, 0.7, rng=rng), rng=rng), None, 50.0, rng=rng)
     assert format_fasta(sim.records) == (one / "a.fasta").read_text()
     assert sim.tree.newick() == (one / "t.nwk").read_text()
@@ -143,7 +143,7 @@ def test_same_seed_identical_files_cli(tmp_path):
 # -------------------------------------------------------------- tree and alignment shape
 @pytest.mark.parametrize("clock", [False, True])
 def test_tree_leaves_equal_ids_two_readers(tmp_path, clock):
-    sim = simulate(17, 150, "protein", seed=3, clock=clock, gap_rate=0.01, prefix="taxon_")
+    sim = simulate(17, 150, "protein", seed=3, ultrametric=clock, indel_rate=0.01, label_prefix="taxon_")
     ids = [lab for lab, _ in sim.records]
     path = tmp_path / "t.nwk"
     path.write_text(sim.tree.newick())
@@ -172,7 +172,7 @@ def test_path_lengths_agree_with_biopython_and_dendropy(tmp_path):
 
 
 def test_clock_tree_is_ultrametric_and_scaled():
-    tr = random_tree(40, np.random.default_rng(1), scale=0.03, clock=True)
+    tr = random_tree(40, np.random.default_rng(1), branch_mean=0.03, ultrametric=True)
     depth = np.zeros(len(tr.parent))
     for node in range(len(tr.parent) - 2, -1, -1):
         depth[node] = depth[tr.parent[node]] + tr.length[node]
@@ -185,7 +185,7 @@ def test_clock_tree_is_ultrametric_and_scaled():
 @pytest.mark.parametrize("alphabet", ["dna", "protein"])
 def test_rows_same_length_gaps_as_runs(alphabet):
     L = 800
-    sim = simulate(20, L, alphabet, seed=4, gap_rate=0.03, gap_length=4, alpha=1.0)
+    sim = simulate(20, L, alphabet, seed=4, indel_rate=0.03, indel_length=4, gamma=1.0)
     assert {len(s) for _, s in sim.records} == {L}
     X = as_matrix(sim.records)
     gap = X == ord("-")
@@ -265,7 +265,7 @@ def _observed_vs_path(sim):
 
 def test_p_distance_matches_jc69_for_true_path_length():
     # JC69 (Jukes & Cantor 1969): P(different) = 3/4 (1 - exp(-4d/3)); K80 with kappa = 1 is JC69.
-    sim = simulate(5, 60000, "dna", seed=12, kappa=1.0, scale=0.15)
+    sim = simulate(5, 60000, "dna", seed=12, kappa=1.0, branch_mean=0.15)
     checked = 0
     for a, b, d in _observed_vs_path(sim):
         p, n = p_and_compared(a, b)
@@ -278,7 +278,7 @@ def test_p_distance_matches_jc69_for_true_path_length():
 
 def test_transitions_and_transversions_match_k80():
     kappa = 4.0
-    sim = simulate(4, 80000, "dna", seed=13, kappa=kappa, scale=0.2)
+    sim = simulate(4, 80000, "dna", seed=13, kappa=kappa, branch_mean=0.2)
     for a, b, d in _observed_vs_path(sim):
         P, Q, n = ts_tv(a, b)
         bt = d / (kappa + 2)
@@ -292,8 +292,8 @@ def test_transitions_and_transversions_match_k80():
 @pytest.mark.parametrize("categories", [0, 4])
 def test_gamma_rates_lower_p_as_predicted(categories):
     alpha = 0.4
-    sim = simulate(4, 60000, "dna", seed=14, kappa=1.0, scale=0.5, alpha=alpha, rate_categories=categories)
-    flat = simulate(4, 60000, "dna", seed=14, kappa=1.0, scale=0.5)
+    sim = simulate(4, 60000, "dna", seed=14, kappa=1.0, branch_mean=0.5, gamma=alpha, gamma_categories=categories)
+    flat = simulate(4, 60000, "dna", seed=14, kappa=1.0, branch_mean=0.5)
     assert sim.tree.newick() == flat.tree.newick()      # same tree: the tree is drawn first
     rates = gamma_rates(alpha, 4)
     for (a, b, d), (fa, fb, _) in zip(_observed_vs_path(sim), _observed_vs_path(flat)):
@@ -310,7 +310,7 @@ def test_gamma_rates_lower_p_as_predicted(categories):
 
 # -------------------------------------------------------------- planted trouble
 def test_plants_do_what_they_say():
-    sim = simulate(12, 600, "dna", seed=21, gap_rate=0.01, alpha=1.0)
+    sim = simulate(12, 600, "dna", seed=21, indel_rate=0.01, gamma=1.0)
     rng = np.random.default_rng(0)
     sim = plant_gappy(sim, None, 0.7, rng=rng)
     g = sim.planted[-1]["labels"][0]
@@ -340,7 +340,7 @@ def _changed_rows(before, after):
 
 def test_misread_random_changes_only_its_stretches():
     """Issue 15: base-calling errors in a few stretches of one row, seeded and recorded."""
-    sim = simulate(10, 800, "dna", seed=31, gap_rate=0.01, alpha=1.0)
+    sim = simulate(10, 800, "dna", seed=31, indel_rate=0.01, gamma=1.0)
     out = plant_misread(sim, None, stretches=3, stretch_length=60, rng=5)
     note = out.planted[-1]
     lab, = note["labels"]
@@ -369,7 +369,7 @@ def test_misread_random_changes_only_its_stretches():
 
 
 def test_misread_shift_slides_the_stretch():
-    sim = simulate(6, 300, "dna", seed=32, gap_rate=0.02)
+    sim = simulate(6, 300, "dna", seed=32, indel_rate=0.02)
     out = plant_misread(sim, "t02", stretches=2, stretch_length=40, how="shift", shift=3, rng=1)
     note = out.planted[-1]
     assert note["how"] == "shift" and note["shift"] == 3 and _changed_rows(sim, out) == ["t02"]
@@ -395,7 +395,7 @@ def _k80_p(d, kappa):
 
 def test_contaminant_is_a_mutated_consensus():
     """Issue 15: one row replaced by the column-wise consensus evolved along `distance`; tree unchanged."""
-    sim = simulate(16, 3000, "dna", seed=33, kappa=3.0, gap_rate=0.005)
+    sim = simulate(16, 3000, "dna", seed=33, kappa=3.0, indel_rate=0.005)
     out = plant_contaminant(sim, None, distance=0.4, rng=2)
     note = out.planted[-1]
     lab, = note["labels"]
@@ -421,7 +421,7 @@ def test_contaminant_is_a_mutated_consensus():
 def test_new_plants_through_the_cli_match_the_api(tmp_path):
     """The command applies misread and contaminant after the older kinds, from the same generator."""
     p = run_cli("simulate", "-o", tmp_path / "a.fasta", "--tree-out", tmp_path / "t.nwk", "--taxa", 12,
-                "--length", 400, "--seed", 8, "--gappy", "auto", "--misread", "auto", "--misread-stretches", 2,
+                "--columns", 400, "--seed", 8, "--gappy", "auto", "--misread", "auto", "--misread-stretches", 2,
                 "--misread-length", 30, "--contaminant", "auto", "--contaminant-distance", 0.6,
                 "--summary-out", tmp_path / "s.json")
     assert p.returncode == 0, p.stderr
@@ -512,44 +512,55 @@ def test_format_stockholm_marks_insert_columns():
 
 # -------------------------------------------------------------- bad options
 @pytest.mark.parametrize("args, needle", [
-    (["--taxa", "2", "--length", "10"], "--taxa must be an integer from 3 to 20000, got 2"),
-    (["--taxa", "5", "--length", "0"], "--length must be an integer from 1 to 1000000, got 0"),
-    (["--taxa", "5", "--length", "10", "--kappa", "-1"], "--kappa must be a finite number above 0"),
-    (["--taxa", "5", "--length", "10", "--gappy", "t99"], "no taxon labelled 't99'"),
-    (["--taxa", "4", "--length", "10", "--gappy", "auto", "--chimera", "auto", "--saturate", "auto"],
+    (["--taxa", "2", "--columns", "10"], "--taxa must be an integer from 3 to 20000, got 2"),
+    (["--taxa", "5", "--columns", "0"], "--columns must be an integer from 1 to 1000000, got 0"),
+    (["--taxa", "5", "--columns", "10", "--kappa", "-1"], "--kappa must be a finite number above 0"),
+    (["--taxa", "5", "--columns", "10", "--gappy", "t99"], "no taxon labelled 't99'"),
+    (["--taxa", "4", "--columns", "10", "--gappy", "auto", "--chimera", "auto", "--saturate", "auto"],
      "needs at least 5 taxa"),
-    (["--taxa", "5", "--length", "10", "--alphabet", "protein", "--model", "k80"], "not a protein model"),
-    (["--taxa", "five", "--length", "10"], "--taxa must be an integer from 3 to 20000, got five"),
+    (["--taxa", "5", "--columns", "10", "--alphabet", "protein", "--model", "k80"], "not a protein model"),
+    (["--taxa", "five", "--columns", "10"], "--taxa must be an integer from 3 to 20000, got five"),
     # issue 14: every numeric option is checked where it is read, and sizes that would exhaust memory are refused
-    (["--taxa", "5", "--length", "10", "--seed", "-1"], "--seed must be an integer from 0"),
-    (["--taxa", "1000000", "--length", "1000000"], "--taxa must be an integer from 3 to 20000"),
-    (["--taxa", "1000", "--length", "1000000"], "--taxa 1000 x --length 1000000 is 1000000000 cells, more than "
+    (["--taxa", "5", "--columns", "10", "--seed", "-1"], "--seed must be an integer from 0"),
+    (["--taxa", "1000000", "--columns", "1000000"], "--taxa must be an integer from 3 to 20000"),
+    (["--taxa", "1000", "--columns", "1000000"], "--taxa 1000 x --columns 1000000 is 1000000000 cells, more than "
                                                 "the limit of 20000000"),
-    (["--taxa", "5", "--length", "2000000"], "--length must be an integer from 1 to 1000000"),
-    (["--taxa", "5", "--length", "60", "--gap-rate", "1e6"], "indel events"),
-    (["--taxa", "5", "--length", "60", "--gap-rate", "100", "--gap-length", "1000"], "lower --gap-rate"),
-    (["--taxa", "5", "--length", "10", "--gap-rate", "-0.1"], "--gap-rate must be a finite number >= 0"),
-    (["--taxa", "5", "--length", "10", "--gap-length", "0.5"], "--gap-length must be a finite number >= 1"),
-    (["--taxa", "5", "--length", "10", "--scale", "1e300"],
-     "--scale must be a finite number above 0 and at most 100"),
-    (["--taxa", "5", "--length", "10", "--scale", "nan"], "--scale must be"),
-    (["--taxa", "5", "--length", "10", "--saturate", "auto", "--saturate-length", "1e300"],
+    (["--taxa", "5", "--columns", "2000000"], "--columns must be an integer from 1 to 1000000"),
+    (["--taxa", "5", "--columns", "60", "--indels", "1e6"], "indel events"),
+    (["--taxa", "5", "--columns", "60", "--indels", "100/1000"], "lower --indels RATE or --indels MEAN_LENGTH"),
+    (["--taxa", "5", "--columns", "10", "--indels", "-0.1"],
+     "argument --indels: rate must be a finite number >= 0, got -0.1"),
+    (["--taxa", "5", "--columns", "10", "--indels", "0.1/0.5"],
+     "argument --indels: mean length must be a finite number >= 1, got 0.5"),
+    (["--taxa", "5", "--columns", "10", "--branch-mean", "1e300"],
+     "--branch-mean must be a finite number above 0 and at most 100"),
+    (["--taxa", "5", "--columns", "10", "--branch-mean", "nan"], "--branch-mean must be"),
+    (["--taxa", "5", "--columns", "10", "--saturate", "auto", "--saturate-length", "1e300"],
      "--saturate-length must be a finite number above 0 and at most 1000"),
-    (["--taxa", "5", "--length", "10", "--alpha", "0.5", "--rate-categories", "100000"],
-     "--rate-categories must be an integer from 0 to 256"),
-    (["--taxa", "5", "--length", "10", "--alpha", "0"], "--alpha must be a finite number above 0"),
-    (["--taxa", "5", "--length", "10", "--gappy-fraction", "1"], "--gappy-fraction must be a finite number above 0"),
-    (["--taxa", "5", "--length", "10", "--freqs", "1,nan,1,1"], "argument --freqs: expected comma-separated positive"),
-    (["--taxa", "5", "--length", "10", "--stockholm-taxa", "1"], "--stockholm-taxa must be an integer >= 2"),
+    (["--taxa", "5", "--columns", "10", "--gamma", "0.5/100000"],
+     "argument --gamma: categories must be an integer from 0 to 256 (or 'continuous'), got 100000"),
+    (["--taxa", "5", "--columns", "10", "--gamma", "0"],
+     "argument --gamma: shape must be a finite number above 0, got 0"),
+    (["--taxa", "5", "--columns", "10", "--gappy-fraction", "1"], "--gappy-fraction must be a finite number above 0"),
+    (["--taxa", "5", "--columns", "10", "--frequencies", "1,nan,1,1"],
+     "argument --frequencies: expected comma-separated positive"),
+    (["--taxa", "5", "--columns", "10", "--stockholm-taxa", "1"], "--stockholm-taxa must be an integer >= 2"),
     # issue 15: the misread and contaminant plants
-    (["--taxa", "5", "--length", "60", "--misread", "auto"], "would cover more than half of the 60 columns"),
-    (["--taxa", "5", "--length", "60", "--misread", "t09"], "no taxon labelled 't09'"),
-    (["--taxa", "5", "--length", "60", "--misread-how", "garble"], "argument --misread-how: invalid choice"),
-    (["--taxa", "5", "--length", "60", "--contaminant", "auto", "--contaminant-distance", "0"],
+    (["--taxa", "5", "--columns", "60", "--misread", "auto"], "would cover more than half of the 60 columns"),
+    (["--taxa", "5", "--columns", "60", "--misread", "t09"], "no taxon labelled 't09'"),
+    (["--taxa", "5", "--columns", "60", "--misread-how", "garble"], "argument --misread-how: invalid choice"),
+    (["--taxa", "5", "--columns", "60", "--contaminant", "auto", "--contaminant-distance", "0"],
      "--contaminant-distance must be a finite number above 0"),
-    (["--taxa", "5", "--length", "60", "--gappy", "t01", "--contaminant", "t01"], "already used"),
-    (["--taxa", "3", "--length", "60", "--gappy", "auto", "--chimera", "auto", "--misread", "auto"],
+    (["--taxa", "5", "--columns", "60", "--gappy", "t01", "--contaminant", "t01"], "already used"),
+    (["--taxa", "3", "--columns", "60", "--gappy", "auto", "--chimera", "auto", "--misread", "auto"],
      "needs at least 4 taxa"),
+    # issue 18: the options of our own; an old name given with its new one is refused
+    (["--taxa", "5"], "the following arguments are required: --columns"),
+    (["--taxa", "5", "--columns", "10", "--length", "10"], "--length is the old name of --columns; give only"),
+    (["--taxa", "5", "--columns", "10", "--gamma", "0.5", "--rate-categories", "8"],
+     "--rate-categories is the old name of --gamma"),
+    (["--taxa", "5", "--columns", "10", "--gamma", "0.5/"], "argument --gamma: nothing after '/'"),
+    (["--taxa", "5", "--columns", "10", "--indels", "x/3"], "argument --indels: rate must be a finite number"),
 ])
 def test_bad_options_exit_2_one_line(tmp_path, capsys, args, needle):
     # In-process through the CLI's one error path (fast); one case below runs as a real process.
@@ -567,7 +578,7 @@ def test_bad_options_exit_2_one_line(tmp_path, capsys, args, needle):
 
 def test_bad_option_as_a_process(tmp_path):
     p = run_cli("simulate", "-o", tmp_path / "a.fasta", "--tree-out", tmp_path / "t.nwk", "--taxa", 2,
-                "--length", 10)
+                "--columns", 10)
     assert p.returncode == 2
     assert p.stderr.strip() == ("seqdist: error: --taxa must be an integer from 3 to 20000, got 2 "
                                 "(see 'seqdist simulate --help')")
@@ -580,7 +591,7 @@ def test_size_limits_in_the_api():
 
     with pytest.raises(InputError, match="more than the limit of 20000000"):
         simulate(1000, 1_000_000, seed=1)
-    with pytest.raises(InputError, match="parameter 'n_taxa' must be an integer from 3 to 20000, got 1000000"):
+    with pytest.raises(InputError, match="parameter 'taxa' must be an integer from 3 to 20000, got 1000000"):
         simulate(1_000_000, 10, seed=1)
     check_size(20, MAX_CELLS // 20)        # the limits themselves are allowed
     with pytest.raises(InputError, match="saturation branch length must be above 0 and at most 1000"):
@@ -604,7 +615,7 @@ def test_duplicate_outputs_refused_before_work(tmp_path):
     keep.write_text("old\n")
     for extra in (["--tree-out", keep], ["--tree-out", tmp_path / "t.nwk", "--summary-out", tmp_path / "t.nwk"],
                   ["--tree-out", tmp_path / "t.nwk", "--stockholm-out", tmp_path / "x" / ".." / "a.fasta"]):
-        p = run_cli("simulate", "-o", keep, "--taxa", 5, "--length", 20, *extra)
+        p = run_cli("simulate", "-o", keep, "--taxa", 5, "--columns", 20, *extra)
         assert p.returncode == 2, p.stderr
         line, = p.stderr.strip().splitlines()
         assert line.startswith("seqdist: error: --") and "both write to" in line
