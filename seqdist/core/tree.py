@@ -17,12 +17,18 @@ import numpy as np
 
 from seqdist.core.errors import InputError
 
-__all__ = ["Node", "Tree", "rooted_for_drawing", "quote_label", "format_length", "write_newick"]
+__all__ = ["Node", "Tree", "rooted_for_drawing", "quote_label", "format_length", "format_support", "write_newick"]
 
 
 class Node:
     """One node: a name (leaf label, or ``None``), the length of the branch
-    to its parent (``None`` when not given) and its children.
+    to its parent (``None`` when not given), its children, and the support
+    of the branch to its parent (``None`` when not given).
+
+    ``support`` is the number written after an internal node's closing
+    parenthesis in Newick (``(a,b)95:0.1``). seqdist writes bootstrap and
+    consensus support in percent (0-100); a value read from a file is kept
+    as written (percent or fraction, whatever that file used).
 
     Examples
     --------
@@ -32,12 +38,13 @@ class Node:
     (True, False)
     """
 
-    __slots__ = ("name", "length", "children", "parent")
+    __slots__ = ("name", "length", "children", "parent", "support")
 
     def __init__(self, name: str | None = None, length: float | None = None,
-                 children: Sequence["Node"] | None = None):
+                 children: Sequence["Node"] | None = None, support: float | None = None):
         self.name = name
         self.length = length
+        self.support = support
         self.children: list[Node] = []
         self.parent: Node | None = None
         for c in children or ():
@@ -136,12 +143,12 @@ class Tree:
 
     def copy(self) -> "Tree":
         """A deep copy (iterative)."""
-        new_root = Node(self.root.name, self.root.length)
+        new_root = Node(self.root.name, self.root.length, support=self.root.support)
         stack = [(self.root, new_root)]
         while stack:
             old, new = stack.pop()
             for c in old.children:
-                nc = new.add_child(Node(c.name, c.length))
+                nc = new.add_child(Node(c.name, c.length, support=c.support))
                 stack.append((c, nc))
         t = Tree(new_root, self.rooted, self.method)
         t.clamped = self.clamped
@@ -221,25 +228,25 @@ class Tree:
         from Bio.Phylo.BaseTree import Clade
         from Bio.Phylo.BaseTree import Tree as PhyloTree
 
-        top = Clade(branch_length=self.root.length, name=self.root.name)
+        top = Clade(branch_length=self.root.length, name=self.root.name, confidence=self.root.support)
         stack = [(self.root, top)]
         while stack:
             old, new = stack.pop()
             for c in old.children:
-                nc = Clade(branch_length=c.length, name=c.name)
+                nc = Clade(branch_length=c.length, name=c.name, confidence=c.support)
                 new.clades.append(nc)
                 stack.append((c, nc))
         return PhyloTree(root=top, rooted=self.rooted)
 
     @classmethod
     def from_phylo(cls, phylo_tree) -> "Tree":
-        """Build from a Biopython ``Bio.Phylo`` tree."""
-        root = Node(phylo_tree.root.name, phylo_tree.root.branch_length)
+        """Build from a Biopython ``Bio.Phylo`` tree (a clade's ``confidence`` becomes the support)."""
+        root = Node(phylo_tree.root.name, phylo_tree.root.branch_length, support=phylo_tree.root.confidence)
         stack = [(phylo_tree.root, root)]
         while stack:
             old, new = stack.pop()
             for c in old.clades:
-                nc = new.add_child(Node(c.name, c.branch_length))
+                nc = new.add_child(Node(c.name, c.branch_length, support=c.confidence))
                 stack.append((c, nc))
         return cls(root, rooted=bool(phylo_tree.rooted))
 
@@ -274,16 +281,20 @@ def rooted_for_drawing(tree: Tree, outgroup: str | None = None) -> Tree:
     while node is not None:
         path.append(node)
         node = node.parent
+    # the support belongs to the branch, so it moves with the length
     lengths = [n.length for n in path]
+    supports = [n.support for n in path]
     for k in range(len(path) - 1):
         child, up = path[k], path[k + 1]
         up.children.remove(child)
         child.children.append(up)
         up.parent = child
         up.length = lengths[k]
+        up.support = supports[k]
     half = (leaf.length or 0.0) / 2.0
     parent.children.remove(leaf)
     parent.length = half
+    parent.support = None  # half of the outgroup's own branch: a trivial split
     leaf.length = half
     new_root = Node(children=[leaf, parent])
     # The old root may now have one child; splice it out to keep the tree clean.
@@ -294,6 +305,8 @@ def rooted_for_drawing(tree: Tree, outgroup: str | None = None) -> Tree:
         up.children[up.children.index(old)] = only
         only.parent = up
         only.length = (only.length or 0.0) + (old.length or 0.0)
+        if only.support is None:  # the two halves are one unrooted branch
+            only.support = old.support
     return Tree(new_root, rooted=True, method=tree.method)
 
 
@@ -336,7 +349,21 @@ def format_length(x: float) -> str:
     return repr(x)
 
 
-def write_newick(tree: Tree, lengths: bool = True) -> str:
+def format_support(x: float) -> str:
+    """A support value as Newick text: 6 significant digits, no trailing zeros.
+
+    Examples
+    --------
+    >>> format_support(95.0), format_support(200 / 3), format_support(0.95)
+    ('95', '66.6667', '0.95')
+    """
+    x = float(x)
+    if x != x or x in (float("inf"), float("-inf")):
+        raise InputError(f"support value {x!r} cannot be written as Newick")
+    return f"{x:.6g}" if x != 0.0 else "0"
+
+
+def write_newick(tree: Tree, lengths: bool = True, support: bool = True, quote=None) -> str:
     """Newick text of a tree, ending in ``;`` and a newline.
 
     Parameters
@@ -344,13 +371,23 @@ def write_newick(tree: Tree, lengths: bool = True) -> str:
     tree : Tree
     lengths : bool
         Write branch lengths (default True).
+    support : bool
+        Write the support of internal nodes that have one (default True),
+        in place of their name (see :func:`format_support`).
+    quote : callable, optional
+        Label to text (default :func:`quote_label`; the NEXUS writer passes
+        its stricter quoting).
 
     Examples
     --------
     >>> t = Tree(Node(children=[Node("a", 1.0), Node("b c", 2.5), Node("d", -0.25)]))
     >>> write_newick(t)
     "(a:1.0,'b c':2.5,d:-0.25);\\n"
+    >>> t = Tree(Node(children=[Node(children=[Node("a"), Node("b")], support=95.0), Node("c"), Node("d")]))
+    >>> write_newick(t)
+    '((a,b)95,c,d);\\n'
     """
+    quote = quote or quote_label
     out: list[str] = []
     # Iterative: ("open", node) emits the subtree, ("close", node) its tail.
     stack: list[tuple[int, Node]] = [(0, tree.root)]
@@ -370,8 +407,10 @@ def write_newick(tree: Tree, lengths: bool = True) -> str:
             continue
         if kind == 1:
             out.append(")")
-        if node.name is not None and node.name != "":
-            out.append(quote_label(str(node.name)))
+        if support and node.children and node.support is not None:
+            out.append(format_support(node.support))
+        elif node.name is not None and node.name != "":
+            out.append(quote(str(node.name)))
         if lengths and node.length is not None and node is not tree.root:
             out.append(":" + format_length(node.length))
     out.append(";\n")

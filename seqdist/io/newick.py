@@ -12,10 +12,16 @@ Writer
     ``-0.0`` is written as ``0.0``. Children appear in the tree's order.
 Reader
     Quoted and bare labels, branch lengths, internal node labels (kept as the
-    node's name, e.g. support values), ``[...]`` comments (skipped), white
-    space between tokens. Bare labels are kept as written (underscores are
-    not turned into blanks, as most software does in practice). Errors name
-    the file and character position.
+    node's name; one that is a number is also the node's ``support``, e.g.
+    a bootstrap value), ``[...]`` comments (skipped), white space between
+    tokens. Bare labels are kept as written (underscores are not turned
+    into blanks, as most software does in practice). Errors name the file
+    and character position. :func:`read_newick_file` also reads a NEXUS
+    file (first line ``#NEXUS``; :mod:`seqdist.io.nexus_trees`).
+Support
+    Written after an internal node's closing parenthesis, before its length:
+    ``(a,b)95:0.1``. seqdist writes bootstrap and consensus support in
+    percent (0-100, common practice), with up to 6 significant digits.
 """
 
 from __future__ import annotations
@@ -27,7 +33,7 @@ from seqdist.core.errors import InputError
 # the writer lives with the tree type; re-exported here beside the reader
 from seqdist.core.tree import Node, Tree, format_length, quote_label, write_newick  # noqa: F401
 
-__all__ = ["read_newick", "read_newick_file", "write_newick", "quote_label", "format_length"]
+__all__ = ["read_newick", "read_newick_file", "is_nexus", "write_newick", "quote_label", "format_length"]
 
 _TOKEN = re.compile(r"""
     (?P<ws>\s+)
@@ -141,15 +147,46 @@ def read_newick(text: str, source: str | None = None, rooted: bool | None = None
     for n in t.preorder():
         if n.is_leaf and (n.name is None or n.name == ""):
             raise InputError(f"{where}Newick: a leaf has no label")
+        if not n.is_leaf and n.name:
+            n.support = _number(n.name)
     return t
 
 
+def _number(text: str) -> float | None:
+    """The finite number a label spells, else None (a name, not a support value)."""
+    try:
+        x = float(text)
+    except ValueError:
+        return None
+    return x if x == x and abs(x) != float("inf") else None
+
+
 def read_newick_file(path: str, rooted: bool | None = None) -> Tree:
-    """Read the first tree of a Newick file (``-`` for standard input)."""
+    """Read the first tree of a Newick or NEXUS file (``-`` for standard input).
+
+    A file whose first line is ``#NEXUS`` is read as NEXUS (the first tree
+    of its TREES block, see :func:`seqdist.io.nexus_trees.read_nexus_trees`);
+    any other as Newick. Same as :func:`seqdist.io.nexus_trees.read_tree_file`.
+    """
     from seqdist.io.matrices import read_text
 
     text = read_text(path, "tree file")
     name = "<stdin>" if path == "-" else path
     if not text.strip():
         raise InputError(f"{name}: empty file")
+    if is_nexus(text):
+        from seqdist.io.nexus_trees import read_nexus_trees
+
+        return read_nexus_trees(text, source=name, rooted=rooted, first_only=True)[0][1]
     return read_newick(text, source=name, rooted=rooted)
+
+
+def is_nexus(text: str) -> bool:
+    """Whether a text is NEXUS: its first token is ``#NEXUS`` (any case).
+
+    Examples
+    --------
+    >>> is_nexus("#nexus\\nbegin trees;"), is_nexus("(a,b,c);")
+    (True, False)
+    """
+    return text.lstrip("\ufeff \t\r\n")[:6].upper() == "#NEXUS"
