@@ -91,6 +91,39 @@ ALPHABETS = ("auto", "dna", "protein")
 # Default matrix by alphabet: both ship with Biopython (NUC.4.4: +5/-4 with the IUPAC codes).
 DEFAULT_MATRIX = {"dna": "NUC.4.4", "protein": "BLOSUM62"}
 
+#: The gap-cost convention, stated once for --help, docs/scores.md and the JSON
+#: summary. It is Biopython's: PairwiseAligner gives the first column of a gap
+#: the open gap score and each further column the extend gap score (Biopython
+#: Tutorial and Cookbook, chapter "Pairwise sequence alignment", its table of
+#: the score each column of an example alignment gets).
+GAP_COST_CONVENTION = "a gap of k residues costs open + (k - 1) x extend"
+
+
+def gap_cost(k: int, gap_open: float, gap_extend: float) -> float:
+    """What one gap of ``k`` residues costs (subtracted from the alignment score): ``open + (k - 1) extend``.
+
+    Examples
+    --------
+    >>> gap_cost(3, 11, 1)   # the defaults: 11 + 2 x 1
+    13.0
+    >>> gap_cost(0, 11, 1)
+    0.0
+    """
+    k = int(k)
+    return 0.0 if k <= 0 else float(gap_open) + (k - 1) * float(gap_extend)
+
+
+def gap_cost_summary(gap_open: float, gap_extend: float, free_end_gaps: bool = False) -> dict:
+    """The gap costs and their convention, as written in ``pairscores --json`` under ``gap_cost``.
+
+    Examples
+    --------
+    >>> gap_cost_summary(11, 1)["formula"]
+    'a gap of k residues costs open + (k - 1) x extend'
+    """
+    return {"open": float(gap_open), "extend": float(gap_extend), "formula": GAP_COST_CONVENTION,
+            "end_gaps": "free" if free_end_gaps else "same as internal gaps"}
+
 
 # ----------------------------------------------------------------- input
 def read_fasta(path: str) -> tuple[list[str], list[str], list[int]]:
@@ -383,9 +416,10 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix=None, *, mod
         when the matrix has ``T`` but no ``U``.
     mode : {"global", "local"}
     gap_open, gap_extend : float
-        Gap costs (positive numbers): a gap of length k costs
-        ``gap_open + (k - 1) * gap_extend`` (Biopython's convention). End
-        gaps cost the same as internal gaps unless ``free_end_gaps``.
+        Gap costs (non-negative numbers): a gap of k residues costs
+        ``gap_open + (k - 1) * gap_extend`` (:data:`GAP_COST_CONVENTION`,
+        :func:`gap_cost`; Biopython's convention). End gaps cost the same as
+        internal gaps unless ``free_end_gaps``.
     free_end_gaps : bool
         Gaps at either end of a global alignment cost nothing (for fragments).
     formula : {"fd", "cosine"}
@@ -516,4 +550,5 @@ def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix=None, *, mod
 
 __all__ = ["read_fasta", "score_distances", "distances_from_scores", "ScoreDistances", "ScoreFormula", "REGISTRY",
            "FORMULAS", "DEFAULT_FORMULA", "formula_guide", "formula_table", "MODES",
-           "ALPHABETS", "DEFAULT_MATRIX", "default_processes"]
+           "ALPHABETS", "DEFAULT_MATRIX", "default_processes", "GAP_COST_CONVENTION", "gap_cost",
+           "gap_cost_summary"]

@@ -12,8 +12,14 @@ the scores into distances.
 formulas (--formula):
 {formulas}
 Identical sequences get 0; undefined values are written as missing entries and
-named in a warning. A gap of length k costs G + (k-1) E (end gaps included,
-unless --free-end-gaps).
+named in a warning.
+
+gap costs: {convention}, with open = --gap-open
+and extend = --gap-extend (Biopython's convention: the first residue of a gap
+costs open, each further one extend); e.g. with the defaults 11 and 1 a gap of
+3 residues costs 11 + 2 x 1 = 13. End gaps cost the same, unless
+--free-end-gaps. --json writes the costs and this rule under "gap_cost".
+
 Gaps ('-', '.') in the input are removed: the sequences are treated as unaligned.
 
 matrix: DNA or protein is detected as for alignments (DNA when >= 90% of the
@@ -29,11 +35,11 @@ examples:
 
 
 def register(subs, common):
-    from seqdist.scores.pairwise import DEFAULT_FORMULA, FORMULAS, formula_guide
+    from seqdist.scores.pairwise import DEFAULT_FORMULA, FORMULAS, GAP_COST_CONVENTION, formula_guide
 
     p = add_subcommand(subs, common, "pairscores",
                        "distances between unaligned sequences from pairwise alignment scores",
-                       _HELP.format(formulas=formula_guide()))
+                       _HELP.format(formulas=formula_guide(), convention=GAP_COST_CONVENTION))
     p.add_argument("sequences", metavar="SEQUENCES", help="FASTA file of unaligned sequences ('-' for standard input)")
     p.add_argument("-o", "--out", required=True, metavar="PATH",
                    help="output distance matrix ('-' for standard output)")
@@ -45,9 +51,10 @@ def register(subs, common):
                    help="sequence type (default: auto, DNA when >= 90%% of letters are ACGTUN)")
     p.add_argument("--mode", choices=("global", "local"), default="global", help="alignment mode (default global)")
     p.add_argument("--gap-open", type=float, default=11.0, metavar="G",
-                   help="cost of the first position of a gap (default 11)")
+                   help="open: cost of the first residue of a gap (default 11)")
     p.add_argument("--gap-extend", type=float, default=1.0, metavar="E",
-                   help="cost of each further position of a gap (default 1)")
+                   help="extend: cost of each further residue of a gap; a gap of k residues costs "
+                        "open + (k - 1) x extend (default 1)")
     p.add_argument("--free-end-gaps", action="store_true",
                    help="gaps at either end of a global alignment cost nothing (sequence fragments)")
     p.add_argument("--formula", choices=FORMULAS, default=DEFAULT_FORMULA,
@@ -60,7 +67,7 @@ def register(subs, common):
 
 def _run(args) -> int:
     from seqdist.core.console import warn
-    from seqdist.scores.pairwise import read_fasta, score_distances
+    from seqdist.scores.pairwise import gap_cost_summary, read_fasta, score_distances
 
     ids, seqs, lines = read_fasta(args.sequences)
     src = "<stdin>" if args.sequences == "-" else args.sequences
@@ -82,6 +89,7 @@ def _run(args) -> int:
             out.add_json(args.json, {
                 "n": n, "pairs": n * (n - 1) // 2, "matrix": res.matrix, "alphabet": res.alphabet, "mode": args.mode,
                 "gap_open": args.gap_open, "gap_extend": args.gap_extend, "free_end_gaps": args.free_end_gaps,
+                "gap_cost": gap_cost_summary(args.gap_open, args.gap_extend, args.free_end_gaps),
                 "formula": args.formula,
                 "missing_pairs": [[a, b, why] for a, b, why in res.missing],
                 "clipped_pairs": [[a, b, v] for a, b, v in res.clipped],
