@@ -23,7 +23,7 @@ Formulas and sources: docs/distances.md.
 
 examples:
   seqdist distances example_sequences/dna_clean.fasta -o dist.tsv --model tn93 --gamma 0.5
-  seqdist distances example_sequences/protein_small.sto -o dist.phy --out-format square --model kimura
+  seqdist distances example_sequences/protein_small.sto -o dist_square.txt --out-format square --model kimura
   seqdist distances example_sequences/dna_trouble.fasta -o d.tsv --sites sites.tsv --undefined u.txt"""
 
 
