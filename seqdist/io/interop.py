@@ -25,8 +25,8 @@ Examples
 --------
 >>> dm = DistanceMatrix.from_array([[0, 1, 2], [1, 0, 3], [2, 3, 0]], ["a", "b", "c"])
 >>> bm = to_biopython_matrix(dm)
->>> bm.names, bm.matrix
-(['a', 'b', 'c'], [[0.0], [1.0, 0.0], [2.0, 3.0, 0.0]])
+>>> bm.names, bm["c", "a"], bm["a", "c"]
+(['a', 'b', 'c'], 2.0, 2.0)
 >>> from_biopython_matrix(bm).equals(dm)
 True
 """
@@ -164,7 +164,7 @@ def to_biopython_alignment(alignment: Alignment, *, missing: str = "-") -> Multi
 
     Examples
     --------
-    >>> aln = Alignment.from_sequences(["a", "b"], ["ACgu-", "ACRTN"])
+    >>> aln = Alignment.from_sequences(["a", "b"], ["ACgu-", "ACRTN"], alphabet="dna")
     >>> [str(r.seq) for r in to_biopython_alignment(aln)]
     ['ACGT-', 'ACRT-']
     """
@@ -315,7 +315,7 @@ def from_dendropy(tree: dendropy.Tree, *, source: str | None = None) -> Tree:
 
 
 def _dendropy_newick(tree: Any) -> str:
-    # preserve_spaces (blanks not turned into underscores) and quoted underscores keep labels exactly as seqdist's reader reads them;
-    # the rooting comment is left out because the rooting is passed on separately
+    # blanks kept (not turned into underscores) and underscores quoted: labels read back exactly;
+    # no rooting comment, because the rooting is passed on separately
     return tree.as_string(schema="newick", suppress_rooting=True, preserve_spaces=True,
                           unquoted_underscores=False, suppress_internal_node_labels=False).strip()
