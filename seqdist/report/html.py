@@ -248,7 +248,7 @@ def _layout(t: Tree, taxa: list, cap: float) -> TreeLayout:
                       split=split, leaves=leaves, cap=cap)
 
 
-def layout_trees(trees: list, taxa: list | None = None, outgroup: str | None = None) -> list:
+def layout_trees(trees: list, taxa: list | None = None, outgroup: str | None = None, shorten: bool = True) -> list:
     """Lay out trees to be drawn side by side on one scale.
 
     Every tree is rooted for drawing on the same reference taxon (unrooted
@@ -256,7 +256,8 @@ def layout_trees(trees: list, taxa: list | None = None, outgroup: str | None = N
     rooted trees keep their root), children are ordered by their first taxon
     in ``taxa`` order, and one length ``cap`` (3 times the 95th percentile
     of all the trees' branch lengths) decides which branches are drawn
-    shortened, so equal drawn lengths mean equal branch lengths in every tree.
+    shortened, so equal drawn lengths mean equal branch lengths in every tree
+    (``shorten=False``: none is, and ``x`` is the true depth).
 
     Parameters
     ----------
@@ -265,6 +266,8 @@ def layout_trees(trees: list, taxa: list | None = None, outgroup: str | None = N
         The compared taxa in split-bit order (default: the labels all trees
         share, sorted).
     outgroup : str, optional
+    shorten : bool
+        Draw branches longer than the cap shortened.
 
     Returns
     -------
@@ -285,7 +288,7 @@ def layout_trees(trees: list, taxa: list | None = None, outgroup: str | None = N
     rooted = [rooted_for_drawing(t, ref) for t in trees]
     # one cap for all: a branch shortened in one tree is shortened in every tree
     lengths = np.array([abs(float(b.length or 0.0)) for t in rooted for b in t.branches()])
-    cap = 3.0 * float(np.quantile(lengths, 0.95)) if lengths.size else 0.0
+    cap = 3.0 * float(np.quantile(lengths, 0.95)) if lengths.size and shorten else 0.0
     return [_layout(t, list(taxa), cap) for t in rooted]
 
 
