@@ -18,6 +18,13 @@ leaves out a taxon of the after tree (no measured distance joins it to the
 others in that resample) has no "after" tree. Support is the fraction of the
 replicates that have the tree (both counts are reported).
 
+The replicate trees' splits (with their lengths) are tallied in a
+:class:`SplitTallies`, which :func:`add_support` returns: the support is
+also written on the two main trees (``Node.support``, in percent), and
+:meth:`SplitTallies.consensus` gives the majority-rule consensus of the
+before- or after-replicates (Margush & McMorris 1981; see
+:mod:`seqdist.trees.consensus`), on the compared taxa.
+
 Replicates run in separate processes (``concurrent.futures``, "spawn"
 start, so no compiled-kernel thread pools are forked). Replicate ``k`` uses
 the ``k``-th child of ``numpy.random.SeedSequence(seed)`` both for the
@@ -28,15 +35,66 @@ of worker processes.
 from __future__ import annotations
 
 import os
+from dataclasses import dataclass, field
 
 import numpy as np
 
 from seqdist.core.errors import InputError
 from seqdist.core.params import POSITIVE_INT
 from seqdist.impact.result import BootstrapSupport, SplitSupport
-from seqdist.trees.compare import nontrivial, split_labels, splits
+from seqdist.trees.compare import split_labels, splits
 
-__all__ = ["split_support", "add_support"]
+__all__ = ["split_support", "split_tallies", "add_support", "SplitTallies"]
+
+
+@dataclass
+class SplitTallies:
+    """What the bootstrap replicates' trees held, split by split.
+
+    Bitsets are over ``taxa`` (sorted compared labels; the side without
+    ``taxa[0]``). ``counts_*`` hold the non-trivial splits, ``lengths_*``
+    the summed branch lengths of every split (leaf branches too) over the
+    replicates that had that tree.
+
+    Examples
+    --------
+    >>> t = SplitTallies(taxa=list("abcd"), n_before=4, counts_before={0b1100: 3},
+    ...                  lengths_before={0b1100: 0.9, 0b0010: 4.0, 0b0100: 4.0, 0b1000: 4.0, 0b1110: 4.0})
+    >>> t.consensus("before").to_newick()
+    '(a:1.0,b:1.0,(c:1.0,d:1.0)75:0.3);\\n'
+    """
+
+    taxa: list
+    n_before: int = 0
+    n_after: int = 0
+    counts_before: dict = field(default_factory=dict)
+    counts_after: dict = field(default_factory=dict)
+    lengths_before: dict = field(default_factory=dict)
+    lengths_after: dict = field(default_factory=dict)
+
+    def consensus(self, which: str = "after", threshold: float = 0.5, *, extended: bool = False):
+        """The majority-rule consensus of the ``before`` or ``after`` replicate trees.
+
+        Support in percent of the replicates that had that tree; lengths the
+        mean over them (a split absent from a replicate adds nothing).
+        ``None`` when no replicate had that tree.
+        """
+        from seqdist.trees.consensus import consensus_from_counts
+
+        if which not in ("before", "after"):
+            raise ValueError(f"which must be 'before' or 'after', got {which!r}")
+        n = self.n_before if which == "before" else self.n_after
+        if not n:
+            return None
+        counts = self.counts_before if which == "before" else self.counts_after
+        sums = self.lengths_before if which == "before" else self.lengths_after
+        k = len(self.taxa)
+
+        def held(m):  # a leaf branch is in every replicate, an internal one where its split is
+            return counts.get(m, 0) if 2 <= m.bit_count() <= k - 2 else n
+
+        lengths = {m: v / held(m) for m, v in sums.items() if held(m)}
+        return consensus_from_counts(counts, n, self.taxa, threshold, extended=extended, lengths=lengths)
 
 _STATE: dict = {}
 
@@ -48,6 +106,8 @@ def _init(aln, options):
 
 def _replicate(key) -> tuple[list, list, bool, bool]:
     """One replicate: (splits of the before tree, of the after tree, had a before tree, had an after tree).
+
+    Each list holds ``(bitset, length)`` for every split, leaf branches included, sorted.
 
     ``key`` is ``(entropy, *spawn_key)`` of the replicate's SeedSequence.
     """
@@ -64,12 +124,11 @@ def _replicate(key) -> tuple[list, list, bool, bool]:
                               variance=o["weighted"], progress=False, warn=False)
     dm = dres.matrix
     taxa = o["taxa"]
-    n = len(taxa)
     before: list = []
     sub = dm.subset(o["keep_before"])
     ok = not sub.has_missing
     if ok:
-        before = sorted(nontrivial(splits(_on(build_tree(sub, o["method"]), taxa), taxa), n))
+        before = sorted(splits(_on(build_tree(sub, o["method"]), taxa), taxa).items())
     import warnings
 
     from seqdist.core.errors import DataWarning
@@ -88,7 +147,7 @@ def _replicate(key) -> tuple[list, list, bool, bool]:
     if fixed.n < len(o["keep_after"]):
         return before, [], ok, False
     tree = build_tree(fixed.subset(o["keep_after"]), o["method"])
-    after = sorted(nontrivial(splits(_on(tree, taxa), taxa), n))
+    after = sorted(splits(_on(tree, taxa), taxa).items())
     return before, after, ok, True
 
 
@@ -99,12 +158,25 @@ def _on(tree, taxa):
     return tree if tree.n_leaves == len(taxa) else prune(tree, set(taxa))
 
 
-def split_support(alignment, labels, *, replicates: int, model: str, objective: str, method: str = "nj",
+def split_support(alignment, labels, **options) -> tuple[dict, dict, int, int]:
+    """Count, over bootstrap replicates, how often each split appears.
+
+    Takes the arguments of :func:`split_tallies` and returns
+    ``(before_counts, after_counts, n_before, n_after)``: split bitset (bit
+    order: ``sorted(labels)``, or the compared taxa) -> number of replicates
+    containing it, for the before and after trees, and the numbers of
+    replicates that had a before and an after tree.
+    """
+    t = split_tallies(alignment, labels, **options)
+    return t.counts_before, t.counts_after, t.n_before, t.n_after
+
+
+def split_tallies(alignment, labels, *, replicates: int, model: str, objective: str, method: str = "nj",
                   seed: int = 0, gamma: float | None = None, gaps: str = "pairwise",
                   workers: int | None = None, keep_before=None, keep_after=None,
                   compared=None, keep_unmeasured: bool = False,
-                  weighted: bool = False) -> tuple[dict, dict, int, int]:
-    """Count, over bootstrap replicates, how often each split appears.
+                  weighted: bool = False) -> SplitTallies:
+    """Tally, over bootstrap replicates, the splits (and their lengths) of the replicate trees.
 
     Parameters
     ----------
@@ -130,11 +202,10 @@ def split_support(alignment, labels, *, replicates: int, model: str, objective: 
 
     Returns
     -------
-    (before_counts, after_counts, n_before, n_after)
-        Split bitset (bit order: ``sorted(labels)``) -> number of replicates
-        containing it, for the before and after trees; ``n_before`` and
-        ``n_after`` are the numbers of replicates that had a before and an
-        after tree.
+    SplitTallies
+        Counts of the non-trivial splits and summed lengths of every split
+        (bit order: ``sorted(compared)``), and how many replicates had a
+        before and an after tree.
     """
     from seqdist.core.console import Progress
 
@@ -146,21 +217,22 @@ def split_support(alignment, labels, *, replicates: int, model: str, objective: 
                "keep_unmeasured": bool(keep_unmeasured), "weighted": bool(weighted)}
     children = np.random.SeedSequence(seed).spawn(replicates)
     keys = [(int(c.entropy), *c.spawn_key) for c in children]
-    cb: dict[int, int] = {}
-    ca: dict[int, int] = {}
-    n_before = n_after = 0
+    out = SplitTallies(taxa=taxa)
+    n = len(taxa)
     workers = workers or os.cpu_count() or 1
     workers = max(1, min(workers, replicates))
 
     def tally(result):
-        nonlocal n_before, n_after
+        # in replicate order whatever the pool size, so the float sums are too
         before, after, ok, ok_after = result
-        n_before += ok
-        n_after += ok_after
-        for m in before:
-            cb[m] = cb.get(m, 0) + 1
-        for m in after:
-            ca[m] = ca.get(m, 0) + 1
+        out.n_before += ok
+        out.n_after += ok_after
+        for got, counts, sums in ((before, out.counts_before, out.lengths_before),
+                                  (after, out.counts_after, out.lengths_after)):
+            for m, length in got:
+                sums[m] = sums.get(m, 0.0) + length
+                if 2 <= m.bit_count() <= n - 2:
+                    counts[m] = counts.get(m, 0) + 1
 
     with Progress("bootstrap replicates", total=replicates) as bar:
         if workers == 1:
@@ -181,20 +253,31 @@ def split_support(alignment, labels, *, replicates: int, model: str, objective: 
                 for result in pool.map(_replicate, keys, chunksize=max(1, replicates // (8 * workers))):
                     tally(result)
                     bar.update(1)
-    return cb, ca, n_before, n_after
+    return out
 
 
 def add_support(res, alignment, *, replicates: int, model: str, objective: str, seed: int = 0,
                 gamma: float | None = None, gaps: str = "pairwise", workers: int | None = None,
-                clamp_negative: bool = False, keep_unmeasured: bool = False, weighted: bool = False) -> None:
+                clamp_negative: bool = False, keep_unmeasured: bool = False,
+                weighted: bool = False) -> SplitTallies:
     """Add split support to an :class:`~seqdist.impact.compare.ImpactResult` (in place).
 
     Sets ``res.report.support`` (a :class:`~seqdist.impact.result.BootstrapSupport`:
     the settings and, for every split of the two main trees, its support
     before and after repair), a one-line ``res.report.support_summary`` and
-    ``res.support`` (bitset -> (before, after) fractions) for the html page. ``alignment`` is an
-    :class:`~seqdist.io.alignment.Alignment` (as read for the distances, with
-    the same format and alphabet) or a file path read with the defaults.
+    ``res.support`` (bitset -> (before, after) fractions) for the html page,
+    and writes the support in percent on the internal nodes of
+    ``res.tree_before`` (among the before-replicates) and ``res.tree_after``
+    (among the after-replicates), so that their Newick text carries it.
+    ``alignment`` is an :class:`~seqdist.io.alignment.Alignment` (as read
+    for the distances, with the same format and alphabet) or a file path
+    read with the defaults.
+
+    Returns
+    -------
+    SplitTallies
+        The replicates' splits, for their majority-rule consensus
+        (``tallies.consensus("before")``, ``tallies.consensus("after")``).
     """
     from seqdist.core.console import warn
     from seqdist.io.alignment import read_alignment
@@ -226,12 +309,13 @@ def add_support(res, alignment, *, replicates: int, model: str, objective: str, 
         warn(f"the BEFORE matrix is not the {model} distances of {alignment_path}; the support values "
              "describe the alignment under that model")
     labels = [lab for lab in aln.labels if lab in in_trees]
-    cb, ca, n_before, n_after = split_support(aln, labels, replicates=replicates, model=model,
-                                              objective=objective, method=res.report.method, seed=seed,
-                                              gamma=gamma, gaps=gaps, workers=workers,
-                                              keep_before=res.tree_before.labels(),
-                                              keep_after=res.tree_after.labels(), compared=res.taxa,
-                                              keep_unmeasured=keep_unmeasured, weighted=weighted)
+    tallies = split_tallies(aln, labels, replicates=replicates, model=model,
+                            objective=objective, method=res.report.method, seed=seed,
+                            gamma=gamma, gaps=gaps, workers=workers,
+                            keep_before=res.tree_before.labels(),
+                            keep_after=res.tree_after.labels(), compared=res.taxa,
+                            keep_unmeasured=keep_unmeasured, weighted=weighted)
+    cb, ca, n_before, n_after = tallies.counts_before, tallies.counts_after, tallies.n_before, tallies.n_after
     taxa = res.taxa
     sb, sa = res.splits_before, res.splits_after
     support = {}
@@ -274,3 +358,10 @@ def add_support(res, alignment, *, replicates: int, model: str, objective: str, 
         ma = float(np.median([support[m][1] for m in shared]))
         text += f"; shared splits: median support {100 * mb:.0f}% before, {100 * ma:.0f}% after repair"
     res.report.support_summary = text + "."
+    from seqdist.trees.consensus import set_support
+
+    # support on the trees themselves (their Newick text then carries it); none without replicates
+    for tree, counts, k in ((res.tree_before, cb, n_before), (res.tree_after, ca, n_after)):
+        if k:
+            set_support(tree, {m: c / k for m, c in counts.items()}, taxa)
+    return tallies

@@ -11,6 +11,7 @@ from seqdist.cli.commands._shared import (
     positive_float,
     positive_int,
 )
+from seqdist.io.nexus_trees import TREE_FORMATS
 from seqdist.models.registry import MODEL_NAMES
 from seqdist.trees.build import METHODS
 
@@ -29,13 +30,20 @@ def register(subs, common):
         "the others (left_out_taxa) and says how many were compared (n_compared).\n\n"
         "With --alignment ALN --bootstrap B (plus --model, --objective, --seed), the alignment's\n"
         "columns are resampled B times; each replicate's distances are computed, repaired, and both\n"
-        "trees rebuilt, giving every split its support before and after repair.\n\n"
+        "trees rebuilt, giving every split its support before and after repair. The support is then\n"
+        "written on --before-tree and --after-tree (in percent, after each internal node's closing\n"
+        "parenthesis: (a,b)95:0.1), and --consensus-before / --consensus-after write the majority-rule\n"
+        "consensus of the replicates' before and after trees (split frequencies in percent as support,\n"
+        "mean branch lengths; on the compared taxa).\n\n"
+        "Tree files are Newick, or NEXUS (a TAXA and a TREES block) when a name ends in .nex, .nexus\n"
+        "or .nxs or with --tree-format nexus. --truth reads either (NEXUS: the first tree).\n\n"
         "A repaired matrix is altered data: report the objective and the changes with any result.\n\n"
         "examples:\n"
         "  seqdist impact dist.tsv fixed.tsv --json impact.json --html impact.html\n"
         "  seqdist impact dist.tsv fixed.tsv --truth example_sequences/dna_clean.true.nwk --method bionj\n"
         "  seqdist impact dist.tsv fixed.tsv --alignment example_sequences/dna_clean.fasta --bootstrap 100 \\\n"
-        "      --model tn93 --gamma 0.5 --objective fewest --seed 1 --html impact.html\n"
+        "      --model tn93 --gamma 0.5 --objective fewest --seed 1 --html impact.html \\\n"
+        "      --after-tree after.nwk --consensus-after after.consensus.nwk\n"
         "(dist.tsv and fixed.tsv as made by the examples of 'seqdist distances' and 'seqdist repair')")
     p.add_argument("before", help="matrix before the change (e.g. as measured)")
     p.add_argument("after", help="matrix after the change (e.g. repaired)")
@@ -43,7 +51,8 @@ def register(subs, common):
     p.add_argument("--method", choices=METHODS, default="nj", help="tree method (default: nj)")
     p.add_argument("--json", metavar="FILE", default=None, help="write the report as JSON ('-' for standard output)")
     p.add_argument("--html", metavar="FILE", default=None, help="write a self-contained html page")
-    p.add_argument("--truth", metavar="TREE.nwk", default=None, help="a reference tree to score both trees against")
+    p.add_argument("--truth", metavar="TREE", default=None,
+                   help="a reference tree (Newick, or NEXUS: its first tree) to score both trees against")
     add_tol(p)
     p.add_argument("--clamp-negative", action="store_true",
                    help="set negative branch lengths to zero in both trees (counted and reported)")
@@ -52,8 +61,13 @@ def register(subs, common):
                         "both trees are built on the other taxa and the dropped ones are listed")
     p.add_argument("--outgroup", metavar="LABEL", default=None,
                    help="taxon to root unrooted trees on for drawing (default: the first label in sorted order)")
-    p.add_argument("--before-tree", metavar="FILE", default=None, help="also write the BEFORE tree as Newick")
-    p.add_argument("--after-tree", metavar="FILE", default=None, help="also write the AFTER tree as Newick")
+    p.add_argument("--before-tree", metavar="FILE", default=None,
+                   help="also write the BEFORE tree (with --bootstrap: with its support)")
+    p.add_argument("--after-tree", metavar="FILE", default=None,
+                   help="also write the AFTER tree (with --bootstrap: with its support)")
+    p.add_argument("--tree-format", choices=TREE_FORMATS, default=None,
+                   help="format of the tree files written: newick or nexus "
+                        "(default: nexus for .nex/.nexus/.nxs, else newick)")
     g = p.add_argument_group("split support (bootstrap)")
     g.add_argument("--alignment", metavar="ALN", default=None, help="the alignment the BEFORE matrix came from")
     g.add_argument("--bootstrap", metavar="B", type=nonneg_int, default=0,
@@ -69,6 +83,10 @@ def register(subs, common):
                    help="worker processes (default: the number of cores)")
     g.add_argument("--keep-unmeasured", action="store_true",
                    help="repair the replicates keeping taxa with no measured distance (as for 'seqdist repair')")
+    g.add_argument("--consensus-before", metavar="FILE", default=None,
+                   help="write the majority-rule consensus of the replicates' BEFORE trees")
+    g.add_argument("--consensus-after", metavar="FILE", default=None,
+                   help="write the majority-rule consensus of the replicates' AFTER trees")
     p.set_defaults(func=_run)
 
 
@@ -79,7 +97,11 @@ def _run(args) -> int:
     from seqdist.io.newick import read_newick_file
 
     check_distinct_outputs({"--json": args.json, "--html": args.html, "--before-tree": args.before_tree,
-                            "--after-tree": args.after_tree})
+                            "--after-tree": args.after_tree, "--consensus-before": args.consensus_before,
+                            "--consensus-after": args.consensus_after})
+    for flag, value in (("--consensus-before", args.consensus_before), ("--consensus-after", args.consensus_after)):
+        if value and not args.bootstrap:
+            raise InputError(f"{flag} needs --bootstrap B (the consensus is of the bootstrap replicates' trees)")
     if args.bootstrap and not args.alignment:
         raise InputError("--bootstrap needs --alignment ALN (the alignment the BEFORE matrix came from)")
     if args.alignment and not args.bootstrap:
@@ -118,15 +140,26 @@ def _checked_truth(truth, before, args):
 def _finish(args, res) -> int:
     import sys
 
+    from seqdist.core.errors import InputError
     from seqdist.impact.compare import summary_lines
     from seqdist.io.matrices import OutputSet
+    from seqdist.io.nexus_trees import format_tree, tree_format_for
 
+    consensus = {}
     if args.bootstrap:
         from seqdist.impact.support import add_support
 
-        add_support(res, args.alignment, replicates=args.bootstrap, model=args.model, objective=args.objective,
-                    seed=args.seed, gamma=args.gamma, gaps=args.gaps, workers=args.workers,
-                    clamp_negative=args.clamp_negative, keep_unmeasured=args.keep_unmeasured)
+        tallies = add_support(res, args.alignment, replicates=args.bootstrap, model=args.model,
+                              objective=args.objective, seed=args.seed, gamma=args.gamma, gaps=args.gaps,
+                              workers=args.workers, clamp_negative=args.clamp_negative,
+                              keep_unmeasured=args.keep_unmeasured)
+        for which, path in (("before", args.consensus_before), ("after", args.consensus_after)):
+            if path:
+                tree = tallies.consensus(which)
+                if tree is None:
+                    raise InputError(f"--consensus-{which}: no bootstrap replicate had a {which} tree "
+                                     "(see the support counts in the report)")
+                consensus[path] = tree
     report = res.report
     with OutputSet() as out:
         if args.json:
@@ -136,11 +169,14 @@ def _finish(args, res) -> int:
 
             out.add_text(args.html, render_html(res, names=("before", "after"), outgroup=args.outgroup,
                                                 reference=args.truth, command=_command(args)))
-        if args.before_tree:
-            out.add_text(args.before_tree, res.tree_before.to_newick())
-        if args.after_tree:
-            out.add_text(args.after_tree, res.tree_after.to_newick())
-    to_stdout = "-" in (args.json, args.html, args.before_tree, args.after_tree)
+        for path, tree, name in ((args.before_tree, res.tree_before, "before"),
+                                 (args.after_tree, res.tree_after, "after"),
+                                 (args.consensus_before, consensus.get(args.consensus_before), "consensus_before"),
+                                 (args.consensus_after, consensus.get(args.consensus_after), "consensus_after")):
+            if path:
+                out.add_text(path, format_tree(tree, tree_format_for(path, args.tree_format), name=name))
+    to_stdout = "-" in (args.json, args.html, args.before_tree, args.after_tree, args.consensus_before,
+                        args.consensus_after)
     stream = sys.stderr if to_stdout else sys.stdout
     from seqdist.core.console import is_quiet
 
