@@ -2,7 +2,9 @@
 
 :func:`read_alignment` reads any format Biopython's ``AlignIO`` reads
 (FASTA, Clustal, Stockholm, NEXUS, PHYLIP, MSF, ...), chosen by an explicit
-format, else by the file's extension, else by its first line. FASTA is read
+format, else by the file's extension, else by its first line. gzip and bz2
+files are decompressed first (recognised by their first bytes), and a final
+``.gz`` or ``.bz2`` is looked through when the extension is read. FASTA is read
 by a small parser of our own so that every error names the line; every other
 format goes through Biopython.
 
@@ -365,11 +367,13 @@ def read_alignment(path: str, fmt: str | None = None, alphabet: str = "auto") ->
     Parameters
     ----------
     path : str
-        File path, or ``-`` for standard input.
+        File path, or ``-`` for standard input; gzip or bz2 content is
+        decompressed first (recognised by its first bytes).
     fmt : str, optional
         A Biopython AlignIO format name (``fasta``, ``clustal``,
         ``stockholm``, ``nexus``, ``phylip``, ``phylip-relaxed``, ``msf``,
-        ...). By default from the extension, else from the first line.
+        ...). By default from the extension (looking through a final ``.gz``
+        or ``.bz2``), else from the first line.
     alphabet : {"auto", "dna", "protein"}
         ``auto`` calls it DNA when at least 90% of the letters are
         ``A C G T U N`` (common practice).
@@ -415,7 +419,9 @@ def read_alignment(path: str, fmt: str | None = None, alphabet: str = "auto") ->
 
 
 def _format_from_extension(path: str) -> str | None:
-    base = path.lower()
+    from seqdist.io.matrices import strip_compression_suffix
+
+    base = strip_compression_suffix(path).lower()  # aln.fasta.gz is FASTA
     for f in REGISTRY.values():
         if f.extensions and base.endswith(f.extensions):
             return f.name
@@ -757,5 +763,11 @@ def _fasta_line(seqs, lines, i, k):
 
 
 def guess_path_format(path: str) -> str | None:
-    """The format implied by a file name's extension, or None."""
+    """The format implied by a file name's extension (through ``.gz``/``.bz2``), or None.
+
+    Examples
+    --------
+    >>> guess_path_format("aln.fasta.gz"), guess_path_format("aln.txt")
+    ('fasta', None)
+    """
     return _format_from_extension(os.fspath(path))

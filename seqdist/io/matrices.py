@@ -1,17 +1,24 @@
 """Matrix files and safe output.
 
-Formats (see the outside contract): ``tsv``, ``csv``, ``square`` and
-``lower``, one :class:`MatrixFormat` entry each in :data:`REGISTRY` (its
+Formats (see the outside contract and docs/formats.md): ``tsv``, ``csv``,
+``square``, ``lower``, ``nexus`` (a NEXUS DISTANCES block) and ``npz``
+(binary), one :class:`MatrixFormat` entry each in :data:`REGISTRY` (its
 extensions, reader, writer, how it is recognised and a description). A new
 format is its reader and writer here plus one entry.
 
 The format is taken from an explicit option, else the extension (``.tsv``,
-``.csv``), else tsv. When reading a file with another extension whose first
-line is a lone integer, ``square`` or ``lower`` is recognised from its shape.
+``.csv``, ``.nex``/``.nexus``, ``.npz``; looking through a final ``.gz`` or
+``.bz2``), else from the content (an npz archive by its first bytes, a NEXUS
+file with a DISTANCES block, ``square`` or ``lower`` when the first line is
+a lone integer), else tsv.
+
+Every reader takes gzip or bz2 input, recognised by its first bytes (not its
+name), standard input too; :data:`MAX_DECOMPRESSED` caps the expansion.
 
 Every file is written atomically: to a temporary file in the target folder,
 then renamed, so a failed command never leaves a partial file and never
-touches an existing one. ``-`` means standard input or output.
+touches an existing one. A path ending in ``.gz`` or ``.bz2`` is written
+compressed. ``-`` means standard input or output.
 """
 
 from __future__ import annotations
@@ -21,6 +28,7 @@ import csv
 import io
 import json
 import os
+import re
 import sys
 import tempfile
 from dataclasses import dataclass, field
@@ -32,6 +40,7 @@ from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix, bad_label_char
 
 __all__ = ["MatrixFormat", "REGISTRY", "MATRIX_FORMATS", "DEFAULT_FORMAT", "format_table", "read_text",
+           "read_bytes", "strip_compression_suffix", "COMPRESSED_SUFFIXES", "MAX_DECOMPRESSED", "NAME_WIDTH",
            "matrix_format", "read_matrix", "read_pairs", "format_matrix", "quote_cell", "OutputSet",
            "check_distinct_outputs", "to_jsonable", "write_matrix", "write_text", "iter_nonblank"]
 
@@ -39,16 +48,105 @@ _NA = {"", "na", "nan"}
 
 
 # ----------------------------------------------------------------- reading
-def read_text(path: str, what: str = "file") -> str:
-    """Whole text of a file (or standard input for ``-``), with clear errors."""
+# Compressed input is recognised by its first bytes (never by its name): gzip files begin
+# with 1f 8b (RFC 1952), bzip2 files with "BZh" and the block size digit.
+_BZ2_BLOCKS = (b"\x31\x41\x59\x26\x53\x59", b"\x17\x72\x45\x38\x50\x90")  # a block, or the end
+
+
+def _compression(head: bytes) -> str | None:
+    """``gzip``, ``bz2`` or None from a file's first 10 bytes.
+
+    bzip2 is taken only with its block size digit and the magic of its first
+    block after "BZh", so a text that happens to begin with "BZh" stays text.
+    """
+    if head.startswith(b"\x1f\x8b"):
+        return "gzip"
+    if head[:3] == b"BZh" and head[3:4] in b"123456789" and len(head) >= 10 and head[4:10] in _BZ2_BLOCKS:
+        return "bz2"
+    return None
+#: Names that say "compressed": looked through when a format is guessed from an extension.
+COMPRESSED_SUFFIXES = (".gz", ".bz2")
+#: The most bytes one compressed input may expand to (4 GiB; a text matrix of about 14,000
+#: taxa). A larger expansion is refused with an error rather than exhausting memory (a
+#: "decompression bomb"). The environment variable SEQDIST_MAX_DECOMPRESSED (bytes, or with a
+#: K, M or G suffix) overrides it; so does setting this attribute from Python.
+MAX_DECOMPRESSED = 4 << 30
+_CHUNK = 1 << 20
+
+
+def _decompression_limit() -> int:
+    raw = os.environ.get("SEQDIST_MAX_DECOMPRESSED", "").strip()
+    if not raw:
+        return int(MAX_DECOMPRESSED)
+    scale = {"K": 1 << 10, "M": 1 << 20, "G": 1 << 30}.get(raw[-1:].upper(), 1)
+    digits = raw[:-1] if scale != 1 else raw
+    if not digits.isdigit() or int(digits) < 1:
+        raise InputError(f"SEQDIST_MAX_DECOMPRESSED must be a positive number of bytes (e.g. 8G), got {raw!r}")
+    return int(digits) * scale
+
+
+def _decompress(fh, kind: str, name: str) -> bytes:
+    """Read a gzip or bz2 stream in chunks, refusing to expand beyond the limit, with one-line errors."""
+    import bz2
+    import gzip
+    import zlib
+
+    limit = _decompression_limit()
+    opened = gzip.GzipFile(fileobj=fh, mode="rb") if kind == "gzip" else bz2.BZ2File(fh, mode="rb")
+    chunks, total = [], 0
+    try:
+        with opened:
+            while True:
+                chunk = opened.read(_CHUNK)
+                if not chunk:
+                    break
+                total += len(chunk)
+                if total > limit:
+                    raise InputError(f"{name}: the {kind} data expands to more than {_size(limit)}, the limit for "
+                                     "a compressed input (a damaged or hostile file?); decompress it yourself, "
+                                     "or raise SEQDIST_MAX_DECOMPRESSED")
+                chunks.append(chunk)
+    except (OSError, EOFError, zlib.error, ValueError) as exc:  # bad magic, CRC, truncation...
+        why = " ".join(str(exc).split()) or type(exc).__name__
+        if isinstance(exc, EOFError):
+            why = "the file ends before the compressed stream does (truncated?)"
+        raise InputError(f"{name}: corrupt {kind} data ({why})") from None
+    return b"".join(chunks)
+
+
+def _size(nbytes: int) -> str:
+    for unit, scale in (("GiB", 1 << 30), ("MiB", 1 << 20), ("KiB", 1 << 10)):
+        if nbytes >= scale:
+            return f"{nbytes / scale:g} {unit}"
+    return f"{nbytes} bytes"
+
+
+def read_bytes(path: str, what: str = "file") -> bytes:
+    """Whole content of a file (or standard input for ``-``), decompressed when it is gzip or bz2.
+
+    Compression is recognised by the first bytes, never by the name, and the
+    expansion is capped at :data:`MAX_DECOMPRESSED` bytes.
+
+    Raises
+    ------
+    InputError
+        Missing, unreadable or corrupt file, or one expanding beyond the limit.
+
+    Examples
+    --------
+    >>> import gzip, tempfile, os
+    >>> p = os.path.join(tempfile.mkdtemp(), "x")
+    >>> from pathlib import Path
+    >>> _ = Path(p).write_bytes(gzip.compress(b"hello", mtime=0))
+    >>> read_bytes(p)
+    b'hello'
+    """
+    name = "<stdin>" if path == "-" else path
     if path == "-":
-        data = sys.stdin.buffer.read()
-        name = "<stdin>"
+        fh = io.BytesIO(sys.stdin.buffer.read())
     else:
-        name = path
         try:
-            with open(path, "rb") as fh:
-                data = fh.read()
+            fh = open(path, "rb")
         except FileNotFoundError:
             raise InputError(f"{path}: no such {what}") from None
         except IsADirectoryError:
@@ -57,14 +155,63 @@ def read_text(path: str, what: str = "file") -> str:
             raise InputError(f"{path}: permission denied") from None
         except OSError as exc:
             raise InputError(f"{path}: cannot read ({exc.strerror})") from None
+    try:
+        with fh:
+            head = fh.read(10)
+            kind = _compression(head)
+            if fh.seekable():
+                fh.seek(0)
+            else:  # a pipe (e.g. a shell's <(...)): put the first bytes back in front
+                fh = io.BytesIO(head + fh.read())
+            return _decompress(fh, kind, name) if kind else fh.read()
+    except OSError as exc:
+        raise InputError(f"{name}: cannot read ({exc.strerror or exc})") from None
+
+
+def read_text(path: str, what: str = "file") -> str:
+    """Whole text of a file (or standard input for ``-``), with clear errors.
+
+    gzip and bz2 input is decompressed first (see :func:`read_bytes`).
+
+    Examples
+    --------
+    >>> import bz2, tempfile, os
+    >>> p = os.path.join(tempfile.mkdtemp(), "x.txt")
+    >>> from pathlib import Path
+    >>> _ = Path(p).write_bytes(bz2.compress(b"a\\tb\\n"))
+    >>> read_text(p)
+    'a\\tb\\n'
+    """
+    return _decode(read_bytes(path, what), "<stdin>" if path == "-" else path, what)
+
+
+def _decode(data: bytes, name: str, what: str) -> str:
     if b"\x00" in data[:65536]:
-        raise InputError(f"{name}: binary data, not a text {what}")
+        hint = ""
+        if what == "matrix file" and REGISTRY["npz"].recognise(data):
+            hint = " (an npz archive? give --in-format npz or name it .npz)"
+        raise InputError(f"{name}: binary data, not a text {what}{hint}")
     try:
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
         line = data[: exc.start].count(b"\n") + 1
         raise InputError(f"{name}: line {line}: not UTF-8 text") from None
     return text
+
+
+def strip_compression_suffix(path: str) -> str:
+    """The path without a trailing ``.gz`` or ``.bz2``, so that ``aln.fasta.gz`` is guessed as FASTA.
+
+    Examples
+    --------
+    >>> strip_compression_suffix("m.tsv.GZ"), strip_compression_suffix("m.tsv")
+    ('m.tsv', 'm.tsv')
+    """
+    low = path.lower()
+    for suffix in COMPRESSED_SUFFIXES:
+        if low.endswith(suffix):
+            return path[: -len(suffix)]
+    return path
 
 
 # Output paths whose matrix format was guessed (no explicit format, no known
@@ -85,8 +232,8 @@ def _check_format(fmt) -> None:
 
 
 def _by_extension(path: str) -> str | None:
-    """The format whose extensions hold the path's extension, else None."""
-    ext = os.path.splitext(path)[1].lower()
+    """The format whose extensions hold the path's extension (looking through ``.gz``/``.bz2``), else None."""
+    ext = os.path.splitext(strip_compression_suffix(path))[1].lower()
     for f in REGISTRY.values():
         if ext in f.extensions:
             return f.name
@@ -116,16 +263,22 @@ def _square_shape(text: str) -> str | None:
     first = text.lstrip("\n").split("\n", 1)[0].strip()
     if not first.isdigit():
         return None
-    lines = [ln for ln in text.split("\n")[1:] if ln.strip()]
-    if lines and len(lines[0].split()) == 1:
-        return "lower"
-    return "square"
+    lines = [ln for ln in text.lstrip("\n").split("\n")[1:] if ln.strip()]
+    if not lines:
+        return "square"
+    row, toks = lines[0].rstrip("\r"), lines[0].split()
+    if len(toks) == 1:
+        return "lower"  # the first row holds a name and no distance
+    if all(_is_number(t) for t in toks[1:]):
+        return "square"
+    # a name with spaces in a fixed-width field: lower when nothing follows the field
+    return "square" if row[NAME_WIDTH:].strip() else "lower"
 
 
 def _recognise(text: str) -> str | None:
-    """The first format whose ``recognise`` accepts the text, else None."""
+    """The first text format whose ``recognise`` accepts the text, else None."""
     for f in REGISTRY.values():
-        if f.recognise is not None and f.recognise(text):
+        if not f.binary and f.recognise is not None and f.recognise(text):
             return f.name
     return None
 
@@ -136,11 +289,13 @@ def read_matrix(path: str, fmt: str | None = None) -> DistanceMatrix:
     Parameters
     ----------
     path : str
-        File path, or ``-`` for standard input.
+        File path, or ``-`` for standard input; gzip or bz2 content is
+        decompressed first (recognised by its first bytes).
     fmt : str, optional
         One of :data:`MATRIX_FORMATS` (``tsv``, ``csv``, ``square``,
-        ``lower``); by default from the extension, else from the content,
-        else tsv (see the module docs).
+        ``lower``, ``nexus``, ``npz``); by default from the extension
+        (through ``.gz``/``.bz2``), else from the content, else tsv (see the
+        module docs).
 
     Returns
     -------
@@ -160,13 +315,25 @@ def read_matrix(path: str, fmt: str | None = None) -> DistanceMatrix:
     >>> read_matrix(p)["a", "b"]
     1.5
     """
-    text = read_text(path, "matrix file")
+    if fmt is not None:
+        _check_format(fmt)
+    data = read_bytes(path, "matrix file")
     name = "<stdin>" if path == "-" else path
+    if fmt is None:
+        fmt = _by_extension(path)
+    if fmt is None:  # binary formats are recognised from their first bytes, before any decoding
+        fmt = next((f.name for f in REGISTRY.values() if f.binary and f.recognise and f.recognise(data)), None)
+    if fmt is not None and REGISTRY[fmt].binary:
+        if not data:
+            raise InputError(f"{name}: empty file")
+        return REGISTRY[fmt].reader(data, name)
+    text = _decode(data, name, "matrix file")
+    del data
     if not text.strip():
         raise InputError(f"{name}: empty file")
-    if fmt is None and _by_extension(path) is None:
-        fmt = _recognise(text)
-    return REGISTRY[_format_for(path, fmt)].reader(text, name)
+    if fmt is None:
+        fmt = _recognise(text) or DEFAULT_FORMAT
+    return REGISTRY[fmt].reader(text, name)
 
 
 def _check_label(label: str, name: str, line: int) -> None:
@@ -287,7 +454,71 @@ def _read_delimited_careful(text: str, name: str, sep: str) -> DistanceMatrix:
     return DistanceMatrix.from_array(values, row_labels, col_labels=labels, source=name)
 
 
+#: The width of the name field in square layouts written with names padded to a fixed width
+#: (common practice): the name may hold spaces and run straight into the first number.
+NAME_WIDTH = 10
+
+
 def _read_square(text: str, name: str, lower: bool) -> DistanceMatrix:
+    """Names separated by white space; failing that, names in a fixed field of :data:`NAME_WIDTH` characters.
+
+    The white-space reading is tried first and its error is the one reported
+    when the fixed-width reading fails too, so a plain file's mistakes are
+    named as they always were.
+    """
+    try:
+        return _read_square_tokens(text, name, lower)
+    except InputError as first:
+        try:
+            dm = _read_square_fixed(text, name, lower)
+        except InputError:
+            dm = None
+        if dm is None:
+            raise first from None
+        return dm
+
+
+def _read_square_fixed(text: str, name: str, lower: bool) -> DistanceMatrix | None:
+    """Rows whose first :data:`NAME_WIDTH` characters are the name; None when the file is not laid out so."""
+    lines = [(ln, line.rstrip("\r")) for ln, line in enumerate(text.split("\n"), start=1) if line.strip()]
+    if not lines or not lines[0][1].strip().isdigit():
+        return None
+    n = int(lines[0][1].strip())
+    if n < 1 or n > len(lines) - 1:
+        return None
+    labels, rows = [], []
+    k = 1
+    for i in range(n):
+        want = i if lower else n
+        if k >= len(lines):
+            return None
+        ln, line = lines[k]
+        k += 1
+        label = line[:NAME_WIDTH].strip()
+        if not label or line[:NAME_WIDTH].startswith((" ", "\t")):
+            return None
+        _check_label(label, name, ln)
+        toks = [(t, ln) for t in line[NAME_WIDTH:].split()]
+        while len(toks) < want and k < len(lines) and all(_is_number(t) for t in lines[k][1].split()):
+            toks.extend((t, lines[k][0]) for t in lines[k][1].split())  # a row wrapped over lines
+            k += 1
+        if len(toks) != want:
+            return None
+        labels.append(label)
+        rows.append([_parse_cell(t, name, tl, label, f"position {j + 1}") for j, (t, tl) in enumerate(toks)])
+    if k != len(lines):
+        return None
+    values = np.full((n, n), np.nan)
+    for i, row in enumerate(rows):
+        values[i, :len(row)] = row
+    if lower:
+        iu = np.triu_indices(n, 1)
+        values[iu] = values.T[iu]
+        np.fill_diagonal(values, 0.0)
+    return DistanceMatrix.from_array(values, labels, source=name)
+
+
+def _read_square_tokens(text: str, name: str, lower: bool) -> DistanceMatrix:
     # Tokens with their line numbers; a row may wrap over several lines.
     toks: list[tuple[str, int]] = []
     for ln, line in enumerate(text.split("\n"), start=1):
@@ -379,17 +610,450 @@ def read_pairs(path: str, dm: DistanceMatrix, what: str = "pair file") -> np.nda
     return np.array(out, dtype=np.intp).reshape(-1, 2)
 
 
+# ----------------------------------------------------------------- NEXUS DISTANCES
+# The block as the NEXUS standard defines it: Maddison, Swofford & Maddison 1997, "NEXUS: an
+# extensible file format for systematic information", Syst. Biol. 46:590-621 (the DISTANCES
+# block: DIMENSIONS [NEWTAXA] NTAX= [NCHAR=]; FORMAT TRIANGLE=LOWER|UPPER|BOTH [NO]DIAGONAL
+# [NO]LABELS MISSING= INTERLEAVE; TAXLABELS; MATRIX). Defaults: TRIANGLE=LOWER, DIAGONAL,
+# LABELS, MISSING=?.
+_NEXUS_TOKEN = re.compile(r"""
+    (?P<ws>\s+)
+  | (?P<quoted>'(?:[^']|'')*')
+  | (?P<open>\[)
+  | (?P<punct>[;=])
+  | (?P<word>[^\s;=\['\]]+)
+  | (?P<bad>['\]])
+""", re.VERBOSE)
+
+
+class _NexusText:
+    """Tokens of a NEXUS text (comments dropped, quotes undone) with their offsets, for line numbers."""
+
+    def __init__(self, text: str, name: str):
+        self.text, self.name = text, name
+        self.toks: list[str] = []
+        self.starts: list[int] = []
+        self.quoted: list[bool] = []
+        self._nl = None
+        pos, end = 0, len(text)
+        match = _NEXUS_TOKEN.match
+        while pos < end:
+            m = match(text, pos)
+            kind = m.lastgroup
+            if kind == "open":  # a comment; comments nest
+                depth, j = 0, pos
+                while j < end:
+                    c = text[j]
+                    depth += (c == "[") - (c == "]")
+                    j += 1
+                    if depth == 0:
+                        break
+                if depth:
+                    raise InputError(f"{name}: line {self.line(pos)}: a comment opened with '[' is never closed "
+                                     "(truncated?)")
+                pos = j
+                continue
+            if kind == "bad":
+                what = "a quote that is never closed" if m.group() == "'" else "a ']' with no '[' before it"
+                raise InputError(f"{name}: line {self.line(pos)}: {what} (truncated?)")
+            if kind != "ws":
+                tok = m.group()
+                q = kind == "quoted"
+                self.toks.append(tok[1:-1].replace("''", "'") if q else tok)
+                self.starts.append(pos)
+                self.quoted.append(q)
+            pos = m.end()
+
+    def line(self, offset: int) -> int:
+        if self._nl is None:
+            self._nl = np.flatnonzero(np.frombuffer(self.text.encode("utf-32-le"), dtype=np.uint32) == 10)
+        return int(np.searchsorted(self._nl, offset)) + 1
+
+    def at(self, k: int) -> int:
+        """Line of token k (the end of the text when k is past the last token)."""
+        return self.line(self.starts[k] if k < len(self.toks) else len(self.text.rstrip()))
+
+    def first_on_line(self, k: int) -> bool:
+        return k == 0 or "\n" in self.text[self.starts[k - 1]:self.starts[k]]
+
+
+def _nexus_commands(nx: _NexusText):
+    """{block name: [(begin token, [(command token, end token), ...]), ...]} of a NEXUS text.
+
+    A command runs from its first token to the token before its ';'.
+    """
+    toks, name = nx.toks, nx.name
+    if not toks or toks[0].upper() != "#NEXUS":
+        raise InputError(f"{name}: line 1: a NEXUS file begins with '#NEXUS'")
+    blocks: dict = {}
+    k = 1
+    while k < len(toks):
+        if toks[k].upper() != "BEGIN" or nx.quoted[k]:
+            raise InputError(f"{name}: line {nx.at(k)}: expected 'BEGIN' (a block), found '{toks[k]}'")
+        if k + 2 >= len(toks) or toks[k + 2] != ";":
+            raise InputError(f"{name}: line {nx.at(k)}: 'BEGIN' needs a block name and ';' (truncated?)")
+        block, begin = toks[k + 1].upper(), k
+        commands = []
+        k += 3
+        while True:
+            if k >= len(toks):
+                raise InputError(f"{name}: line {nx.at(k)}: the {block} block (line {nx.at(begin)}) has no 'END;' "
+                                 "(truncated?)")
+            first = k
+            while k < len(toks) and toks[k] != ";":
+                k += 1
+            if k >= len(toks):
+                raise InputError(f"{name}: line {nx.at(k)}: the {toks[first].upper()} command of the {block} block "
+                                 f"(line {nx.at(first)}) never ends with ';' (truncated?)")
+            k += 1
+            if toks[first].upper() in ("END", "ENDBLOCK") and first + 1 == k - 1:
+                break
+            commands.append((first, k - 1))
+        blocks.setdefault(block, []).append((begin, commands))
+    return blocks
+
+
+def _nexus_options(nx: _NexusText, a: int, b: int) -> list:
+    """(key, value or None, token index) for the tokens a..b-1 of a command (``KEY=VALUE`` or ``KEY``)."""
+    out, k = [], a
+    while k < b:
+        key = nx.toks[k].upper()
+        if k + 1 < b and nx.toks[k + 1] == "=":
+            if k + 2 >= b:
+                raise InputError(f"{nx.name}: line {nx.at(k)}: '{nx.toks[k]}=' has no value")
+            out.append((key, nx.toks[k + 2], k))
+            k += 3
+        else:
+            out.append((key, None, k))
+            k += 1
+    return out
+
+
+def _read_nexus(text: str, name: str) -> DistanceMatrix:
+    nx = _NexusText(text, name)
+    blocks = _nexus_commands(nx)
+    toks = nx.toks
+    dist = blocks.get("DISTANCES", [])
+    if not dist:
+        held = ", ".join(blocks) or "no block"
+        raise InputError(f"{name}: no DISTANCES block in this NEXUS file (it holds {held})")
+    if len(dist) > 1:
+        raise InputError(f"{name}: line {nx.at(dist[1][0])}: a second DISTANCES block; give one matrix per file")
+    taxa, taxa_line = None, None
+    for _begin, commands in blocks.get("TAXA", [])[:1]:
+        ntax = None
+        for a, b in commands:
+            cmd = toks[a].upper()
+            if cmd == "DIMENSIONS":
+                ntax = _nexus_ntax(nx, a, b)
+            elif cmd == "TAXLABELS":
+                taxa, taxa_line = _nexus_labels(nx, a + 1, b), nx.at(a)
+        if taxa is None:
+            raise InputError(f"{name}: line {nx.at(_begin)}: the TAXA block has no TAXLABELS")
+        if ntax is not None and ntax[0] != len(taxa):
+            raise InputError(f"{name}: line {ntax[1]}: the TAXA block gives NTAX={ntax[0]} but TAXLABELS "
+                             f"(line {taxa_line}) lists {len(taxa)} taxa")
+    begin, commands = dist[0]
+    triangle, diagonal, labelled, missing, interleave = "LOWER", True, True, "?", False
+    ntax, matrix, newtaxa = None, None, False
+    for a, b in commands:
+        cmd = toks[a].upper()
+        if cmd == "DIMENSIONS":
+            newtaxa = any(key == "NEWTAXA" for key, _, _ in _nexus_options(nx, a + 1, b))
+            ntax = _nexus_ntax(nx, a, b)
+        elif cmd == "FORMAT":
+            for key, value, k in _nexus_options(nx, a + 1, b):
+                if key == "TRIANGLE" and value is not None and value.upper() in ("LOWER", "UPPER", "BOTH"):
+                    triangle = value.upper()
+                elif key in ("DIAGONAL", "NODIAGONAL") and value is None:
+                    diagonal = key == "DIAGONAL"
+                elif key in ("LABELS", "NOLABELS") and value is None:
+                    labelled = key == "LABELS"
+                elif key == "MISSING" and value is not None:
+                    missing = value
+                elif key in ("INTERLEAVE", "NOINTERLEAVE") and value is None:
+                    interleave = key == "INTERLEAVE"
+                elif key == "INTERLEAVE" and value is not None and value.upper() in ("YES", "NO"):
+                    interleave = value.upper() == "YES"
+                else:
+                    shown = toks[k] + (f"={value}" if value is not None else "")
+                    raise InputError(f"{name}: line {nx.at(k)}: unknown FORMAT option '{shown}' in the DISTANCES "
+                                     "block (TRIANGLE=LOWER|UPPER|BOTH, [NO]DIAGONAL, [NO]LABELS, MISSING=, "
+                                     "INTERLEAVE)")
+        elif cmd == "TAXLABELS":
+            taxa, taxa_line = _nexus_labels(nx, a + 1, b), nx.at(a)
+        elif cmd == "MATRIX":
+            matrix = (a + 1, b)
+        # other commands (TITLE, LINK, ...) do not change the numbers
+    if matrix is None:
+        raise InputError(f"{name}: line {nx.at(begin)}: the DISTANCES block has no MATRIX")
+    if ntax is not None and taxa is not None and ntax[0] != len(taxa):
+        where = "its TAXLABELS" if newtaxa and taxa_line else "the TAXA block"
+        raise InputError(f"{name}: line {ntax[1]}: the DISTANCES block gives NTAX={ntax[0]} but {where} "
+                         f"(line {taxa_line}) lists {len(taxa)} taxa")
+    n = len(taxa) if taxa is not None else (ntax[0] if ntax is not None else None)
+    if taxa is None and not labelled:
+        raise InputError(f"{name}: line {nx.at(begin)}: a DISTANCES matrix with NOLABELS needs its taxa from a "
+                         "TAXA block or TAXLABELS")
+    if n is None and triangle != "LOWER":
+        raise InputError(f"{name}: line {nx.at(begin)}: TRIANGLE={triangle} needs the number of taxa "
+                         "(DIMENSIONS NEWTAXA NTAX=, or a TAXA block)")
+    if interleave and not labelled:
+        raise InputError(f"{name}: line {nx.at(begin)}: an INTERLEAVE matrix needs LABELS")
+    rows = _nexus_rows(nx, matrix, taxa, n, triangle, diagonal, labelled, interleave)
+    labels = list(rows)
+    n = len(labels)
+    values = np.full((n, n), np.nan)
+    if not diagonal:
+        np.fill_diagonal(values, 0.0)
+    order = {lab: i for i, lab in enumerate(labels)}
+    for lab, (cells, ln) in rows.items():
+        i = order[lab]
+        cols = _nexus_columns(i, n, triangle, diagonal)
+        if len(cells) != len(cols):
+            raise InputError(f"{name}: line {ln}: row '{lab}' holds {len(cells)} values, expected {len(cols)} "
+                             f"(TRIANGLE={triangle}, {'DIAGONAL' if diagonal else 'NODIAGONAL'}, {n} taxa)")
+        row = [_nexus_cell(nx, kk, missing, lab, labels[j]) for kk, j in zip(cells, cols)]
+        values[i, cols] = row
+        if triangle != "BOTH":
+            values[cols, i] = row
+    return DistanceMatrix.from_array(values, labels, source=name)
+
+
+def _nexus_cell(nx: _NexusText, k: int, missing: str, row: str, col: str) -> float:
+    cell = nx.toks[k]
+    if cell == missing and not nx.quoted[k]:
+        return np.nan
+    try:
+        return float(cell)
+    except ValueError:  # NA and nan are read as missing too; anything else is named with its line
+        return _parse_cell(cell, nx.name, nx.at(k), row, col)
+
+
+def _nexus_columns(i: int, n: int, triangle: str, diagonal: bool) -> list:
+    if triangle == "LOWER":
+        return list(range(i + 1 if diagonal else i))
+    if triangle == "UPPER":
+        return list(range(i if diagonal else i + 1, n))
+    return [j for j in range(n) if diagonal or j != i]
+
+
+def _nexus_ntax(nx: _NexusText, a: int, b: int):
+    for key, value, k in _nexus_options(nx, a + 1, b):
+        if key == "NTAX":
+            if value is None or not value.isdigit() or int(value) < 1:
+                raise InputError(f"{nx.name}: line {nx.at(k)}: NTAX must be a positive whole number, got '{value}'")
+            return int(value), nx.at(k)
+    return None
+
+
+def _nexus_labels(nx: _NexusText, a: int, b: int) -> list:
+    labels, seen = [], {}
+    for k in range(a, b):
+        lab = nx.toks[k]
+        _check_label(lab, nx.name, nx.at(k))
+        if lab in seen:
+            raise InputError(f"{nx.name}: line {nx.at(k)}: taxon '{lab}' is listed twice in TAXLABELS")
+        seen[lab] = k
+        labels.append(lab)
+    return labels
+
+
+def _nexus_rows(nx: _NexusText, span, taxa, n, triangle, diagonal, labelled, interleave) -> dict:
+    """{label: ([token index of each cell], line of its first row)} in taxon order."""
+    toks, name = nx.toks, nx.name
+    a, b = span
+    known = {lab: i for i, lab in enumerate(taxa)} if taxa is not None else None
+    rows: dict = {}
+
+    def start_row(k: int) -> str:
+        lab = toks[k]
+        if known is not None and lab not in known:
+            raise InputError(f"{name}: line {nx.at(k)}: unknown label '{lab}' in the DISTANCES matrix "
+                             "(not one of the taxa listed in TAXLABELS)")
+        if known is None:
+            _check_label(lab, name, nx.at(k))
+            if n is not None and len(rows) >= n and lab not in rows:
+                raise InputError(f"{name}: line {nx.at(k)}: row '{lab}' is one more than the NTAX={n} taxa")
+        if lab not in rows:
+            rows[lab] = ([], nx.at(k))
+        return lab
+
+    if interleave:  # each line: a label, then more of that taxon's row
+        lab = None
+        for k in range(a, b):
+            if k == a or nx.first_on_line(k):
+                lab = start_row(k)
+            else:
+                rows[lab][0].append(k)
+    else:
+        k = a
+        i = 0
+        while k < b:
+            if labelled:
+                lab = toks[k]
+                if lab in rows:
+                    raise InputError(f"{name}: line {nx.at(k)}: row '{lab}' appears twice in the DISTANCES matrix "
+                                     "(give FORMAT INTERLEAVE for a matrix in blocks)")
+                lab = start_row(k)
+                k += 1
+            else:
+                if i >= len(taxa):
+                    raise InputError(f"{name}: line {nx.at(k)}: more values than the {len(taxa)} rows hold")
+                lab = taxa[i]
+                rows[lab] = ([], nx.at(k))
+            idx = known[lab] if known is not None else len(rows) - 1
+            want = len(_nexus_columns(idx, n if n is not None else idx + 1, triangle, diagonal))
+            got = range(k, min(k + want, b))
+            rows[lab][0].extend(got)
+            k += len(got)
+            i += 1
+    if known is not None:
+        absent = [lab for lab in taxa if lab not in rows]
+        if absent:
+            more = f" and {len(absent) - 1} more" if len(absent) > 1 else ""
+            raise InputError(f"{name}: line {nx.at(b)}: the DISTANCES matrix has no row for '{absent[0]}'{more} "
+                             "(truncated?)")
+        return {lab: rows[lab] for lab in taxa}
+    if n is not None and len(rows) != n:
+        raise InputError(f"{name}: line {nx.at(b)}: the DISTANCES matrix has {len(rows)} rows, NTAX={n}")
+    return rows
+
+
+_NEXUS_BARE = re.compile(r"[A-Za-z0-9.|]+")
+
+
+def _nexus_label(label: str) -> str:
+    """A label as a NEXUS word: bare when safe, else in single quotes with inner quotes doubled.
+
+    Quoted too: underscores (the standard reads a bare one as a blank) and
+    labels that read as numbers (a bare number may name a taxon by position).
+    """
+    if _NEXUS_BARE.fullmatch(label) and not _is_number(label):
+        return label
+    return "'" + label.replace("'", "''") + "'"
+
+
+def _write_nexus(dm: DistanceMatrix) -> str:
+    """A TAXA block and a DISTANCES block (TRIANGLE=LOWER, DIAGONAL, LABELS, MISSING=?), values by ``repr``."""
+    labels = [_nexus_label(lab) for lab in dm.labels]
+    width = max(len(lab) for lab in labels)
+    heads = ["        " + lab.ljust(width) for lab in labels]
+    rows = _rows_text(dm.values, heads, " ", lower=True)
+    # the lower triangle with its diagonal: row i holds columns 0..i, so append the diagonal cell
+    diag = [_fmt(v) for v in np.diagonal(dm.values).tolist()]
+    body = [r[:-1] + " " + d + "\n" for r, d in zip(rows, diag)]
+    parts = ["#NEXUS\n\nBEGIN TAXA;\n", f"    DIMENSIONS NTAX={dm.n};\n", "    TAXLABELS\n"]
+    parts += [f"        {lab}\n" for lab in labels]
+    parts += ["    ;\nEND;\n\nBEGIN DISTANCES;\n", "    FORMAT TRIANGLE=LOWER DIAGONAL LABELS MISSING=?;\n",
+              "    MATRIX\n"]
+    parts += [h + r[len(h):].replace(" NA", " ?") for h, r in zip(heads, body)]
+    parts += ["    ;\nEND;\n"]
+    return "".join(parts)
+
+
+def _is_nexus_distances(text: str) -> bool:
+    return text.lstrip()[:6].upper() == "#NEXUS" and re.search(r"(?i)\bbegin\s+distances\s*;", text) is not None
+
+
+# ----------------------------------------------------------------- npz
+# numpy's .npz: a zip archive of .npy files (numpy's documented array format, NEP 1), here
+# "values" (n x n, float64 as written; float32 read too) and "labels" (a 1-d unicode array).
+_NPZ_MAGIC = (b"PK\x03\x04", b"PK\x05\x06")
+
+
+def _is_npz(data: bytes) -> bool:
+    return data[:4] in _NPZ_MAGIC
+
+
+def _npy_bytes(arr: np.ndarray) -> bytes:
+    buf = io.BytesIO()
+    np.lib.format.write_array(buf, arr, version=(1, 0) if arr.nbytes < 1 << 31 else None, allow_pickle=False)
+    return buf.getvalue()
+
+
+def _write_npz(dm: DistanceMatrix) -> bytes:
+    """An .npz archive as numpy.savez writes it, but byte-identical on every run (a fixed date in the zip).
+
+    Members are stored, not deflated: distances barely compress, and a
+    stored member is read straight into the array.
+    """
+    import zipfile
+
+    width = max(1, max(len(lab) for lab in dm.labels))
+    members = (("values.npy", np.ascontiguousarray(dm.values, dtype=np.float64)),
+               ("labels.npy", np.array(dm.labels, dtype=f"<U{width}")))
+    out = io.BytesIO()
+    with zipfile.ZipFile(out, "w", compression=zipfile.ZIP_STORED, allowZip64=True) as zf:
+        for member, arr in members:
+            info = zipfile.ZipInfo(member, date_time=(1980, 1, 1, 0, 0, 0))
+            info.external_attr = 0o644 << 16
+            zf.writestr(info, _npy_bytes(arr))
+    return out.getvalue()
+
+
+def _read_npz(data: bytes, name: str) -> DistanceMatrix:
+    import zipfile
+
+    limit = _decompression_limit()
+    try:
+        zf = zipfile.ZipFile(io.BytesIO(data))
+    except (zipfile.BadZipFile, OSError, ValueError) as exc:
+        raise InputError(f"{name}: not a readable npz archive ({' '.join(str(exc).split())})") from None
+    with zf:
+        held = {i.filename: i for i in zf.infolist()}
+        arrays = {}
+        for key in ("values", "labels"):
+            info = held.get(key + ".npy")
+            if info is None:
+                have = ", ".join(sorted(m[:-4] if m.endswith(".npy") else m for m in held)) or "nothing"
+                raise InputError(f"{name}: the npz archive holds no '{key}' array (it holds: {have}); "
+                                 "seqdist reads 'values' (n x n) and 'labels' (n names)")
+            if info.file_size > limit:
+                raise InputError(f"{name}: the '{key}' array would take {_size(info.file_size)}, more than the "
+                                 f"{_size(limit)} limit (raise SEQDIST_MAX_DECOMPRESSED)")
+            try:
+                with zf.open(info) as fh:
+                    arrays[key] = np.lib.format.read_array(fh, allow_pickle=False)
+            except ValueError as exc:
+                if "allow_pickle" in str(exc) or "Object arrays" in str(exc):
+                    raise InputError(f"{name}: the '{key}' array holds Python objects, which seqdist never "
+                                     "unpickles; store numbers (values) and unicode strings (labels)") from None
+                raise InputError(f"{name}: the '{key}' array is not readable ({' '.join(str(exc).split())})") \
+                    from None
+            except (zipfile.BadZipFile, OSError, EOFError) as exc:
+                raise InputError(f"{name}: corrupt npz archive ({' '.join(str(exc).split()) or 'truncated'})") \
+                    from None
+    values, labels = arrays["values"], arrays["labels"]
+    if labels.dtype.kind == "S":
+        try:
+            labels = np.char.decode(labels, "utf-8")
+        except UnicodeDecodeError:
+            raise InputError(f"{name}: the 'labels' array holds bytes that are not UTF-8 text") from None
+    if labels.dtype.kind != "U" or labels.ndim != 1:
+        raise InputError(f"{name}: 'labels' must be a 1-d array of strings, found dtype {labels.dtype.str} "
+                         f"and shape {labels.shape}")
+    if values.dtype.kind not in "fiu":
+        raise InputError(f"{name}: 'values' must hold real numbers, found dtype {values.dtype.str}")
+    n = labels.shape[0]
+    if values.shape != (n, n):
+        raise InputError(f"{name}: 'values' has shape {values.shape}, but 'labels' names {n} taxa "
+                         f"(expected ({n}, {n}))")
+    return DistanceMatrix.from_array(values, labels.tolist(), source=name)
+
+
 # ----------------------------------------------------------------- writing
 def _fmt(v: float) -> str:
     # repr is the shortest string that reads back to the same float: exact and deterministic.
     return "NA" if v != v else repr(v)
 
 
-def format_matrix(dm: DistanceMatrix, fmt: str = "tsv") -> str:
-    """The text of a matrix file in one of :data:`MATRIX_FORMATS`.
+def format_matrix(dm: DistanceMatrix, fmt: str = "tsv") -> str | bytes:
+    """The content of a matrix file in one of :data:`MATRIX_FORMATS`: text, or bytes for a binary format.
 
     Values are written with ``repr`` (the shortest text that reads back to
-    the same float: exact and deterministic); missing entries as ``NA``.
+    the same float: exact and deterministic); missing entries as ``NA``
+    (``?`` in NEXUS, NaN in npz).
 
     Examples
     --------
@@ -478,6 +1142,9 @@ class MatrixFormat:
     recognise : callable or None
         ``recognise(text) -> bool``: the format of a file read without a
         known extension or an explicit format (else it is read as tsv).
+    binary : bool
+        The reader takes bytes, the writer returns bytes and ``recognise``
+        looks at the first bytes (before any decoding), instead of text.
     """
 
     name: str
@@ -486,6 +1153,7 @@ class MatrixFormat:
     reader: Callable = field(repr=False)
     writer: Callable = field(repr=False)
     recognise: Callable | None = field(default=None, repr=False)
+    binary: bool = False
 
 
 #: The matrix formats, read by :func:`read_matrix`, :func:`format_matrix` and
@@ -500,12 +1168,22 @@ REGISTRY = {f.name: f for f in (
                  "quoted the usual CSV way",
                  lambda text, name: _read_delimited(text, name, ","), lambda dm: _write_delimited(dm, ",")),
     MatrixFormat("square", (), "first line the number of taxa, then one line per taxon: its name, then its "
-                 "distances, separated by white space",
+                 "distances, separated by white space; a name may instead fill a field of 10 characters (spaces "
+                 "inside, no separator before the first number)",
                  lambda text, name: _read_square(text, name, lower=False),
                  lambda dm: _write_whitespace(dm, lower=False), lambda text: _square_shape(text) == "square"),
     MatrixFormat("lower", (), "the same with only the entries below the diagonal",
                  lambda text, name: _read_square(text, name, lower=True),
                  lambda dm: _write_whitespace(dm, lower=True), lambda text: _square_shape(text) == "lower"),
+    MatrixFormat("nexus", (".nex", ".nexus"), "a NEXUS file with a DISTANCES block (Maddison, Swofford & Maddison "
+                 "1997): TRIANGLE=LOWER, UPPER or BOTH, with or without the diagonal and labels, MISSING=, "
+                 "INTERLEAVE; taxa from a TAXA block or the rows; written as a TAXA block and the lower triangle "
+                 "with its diagonal",
+                 _read_nexus, _write_nexus, _is_nexus_distances),
+    MatrixFormat("npz", (".npz",), "binary: numpy's .npz archive holding 'values' (n x n float64; float32 is read "
+                 "too) and 'labels' (n unicode strings); exact, and fast to read for large matrices; never "
+                 "unpickled",
+                 _read_npz, _write_npz, _is_npz, binary=True),
 )}
 #: The format names, in the order help texts list them (the functions here read REGISTRY itself).
 MATRIX_FORMATS = tuple(REGISTRY)
@@ -524,7 +1202,7 @@ def format_table() -> str:
     lines = ["| format | extensions | recognised from the content | layout |", "| --- | --- | --- | --- |"]
     for f in REGISTRY.values():
         name = f"`{f.name}`" + (" (default)" if f.name == DEFAULT_FORMAT else "")
-        exts = " ".join(f"`{e}`" for e in f.extensions) or "-"
+        exts = " ".join(f"`{e}`" for e in f.extensions) or "-"  # each also with .gz or .bz2 when reading
         lines.append(f"| {name} | {exts} | {'yes' if f.recognise else '-'} | {f.description} |")
     return "\n".join(lines) + "\n"
 
@@ -572,11 +1250,17 @@ class OutputSet:
             self.discard()
         return False
 
-    def add_text(self, path: str, text: str) -> None:
-        """Stage ``text`` for ``path`` (``-`` for standard output)."""
+    def add_text(self, path: str, text: str | bytes) -> None:
+        """Stage ``text`` (or bytes, e.g. a binary matrix) for ``path`` (``-`` for standard output).
+
+        A path ending in ``.gz`` or ``.bz2`` is written compressed, the same
+        bytes on every run (no time or name in the gzip header).
+        """
         if path == "-":
             self._stdout.append(text)
             return
+        data = text.encode("utf-8") if isinstance(text, str) else bytes(text)
+        data = _compress_for(path, data)
         folder = os.path.dirname(os.path.abspath(path))
         if not os.path.isdir(folder):
             raise InputError(f"{path}: output folder '{folder}' does not exist")
@@ -593,8 +1277,8 @@ class OutputSet:
         # Recorded at once, so discard() removes it whatever happens next.
         self._staged.append((tmp, path))
         try:
-            with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
-                fh.write(text)
+            with os.fdopen(fd, "wb") as fh:
+                fh.write(data)
             os.chmod(tmp, 0o666 & ~_umask())
         except BaseException as exc:
             self._staged.pop()
@@ -656,7 +1340,11 @@ class OutputSet:
                 _GUESSED.discard(key)
                 info(f"{path}: no known matrix extension, wrote {DEFAULT_FORMAT} (choose with --out-format)")
         for text in self._stdout:
-            sys.stdout.write(text)
+            if isinstance(text, str):
+                sys.stdout.write(text)
+            else:  # a binary matrix piped on
+                sys.stdout.flush()
+                sys.stdout.buffer.write(text)
         sys.stdout.flush()
         self._stdout = []
 
@@ -667,6 +1355,20 @@ class OutputSet:
                 os.unlink(tmp)
         self._staged = []
         self._stdout = []
+
+
+def _compress_for(path: str, data: bytes) -> bytes:
+    """``data`` gzip- or bz2-compressed when the path says so, deterministically; else as it is."""
+    low = path.lower()
+    if low.endswith(".gz"):
+        import gzip
+
+        return gzip.compress(data, compresslevel=6, mtime=0)
+    if low.endswith(".bz2"):
+        import bz2
+
+        return bz2.compress(data, 9)
+    return data
 
 
 def _roll_back(staged, reserved, moved) -> list:

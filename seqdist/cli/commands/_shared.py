@@ -37,15 +37,17 @@ def matrix_formats_help(indent: str = "  ") -> str:
 
 
 def add_matrix_in(p: argparse.ArgumentParser) -> None:
-    shapes = " or ".join(f.name for f in REGISTRY.values() if f.recognise is not None)
+    shapes = ", ".join(f.name for f in REGISTRY.values() if f.recognise is not None)
     p.add_argument("--in-format", choices=tuple(REGISTRY), default=None,
-                   help=f"input matrix format (default: by extension, {_by_extension()}; else {shapes} when "
-                        f"the file has that shape; else {DEFAULT_FORMAT})")
+                   help=f"input matrix format (default: by extension, {_by_extension()}, also after .gz or "
+                        f".bz2; else {shapes} when the content is recognised; else {DEFAULT_FORMAT}); "
+                        "gzip and bz2 files are decompressed, recognised by their first bytes")
 
 
 def add_out_format(p: argparse.ArgumentParser, what: str = "output matrix format") -> None:
     p.add_argument("--out-format", choices=tuple(REGISTRY), default=None,
-                   help=f"{what} (default: by extension, {_by_extension()}; else {DEFAULT_FORMAT})")
+                   help=f"{what} (default: by extension, {_by_extension()}; else {DEFAULT_FORMAT}); a "
+                        "path ending in .gz or .bz2 is written compressed")
 
 
 def add_matrix_out(p: argparse.ArgumentParser, required: bool = True) -> None:

@@ -13,7 +13,10 @@ def register(subs, common):
                        f"Reads a matrix file ({names}), checks it (square, unique labels,\n"
                        "symmetric, zero diagonal, non-negative) and writes it in the chosen format.\n\n"
                        f"formats (--in-format, --out-format):\n{matrix_formats_help()}\n\n"
-                       "example:\n  seqdist convert dist.tsv -o dist.phy --out-format square")
+                       "Compressed input (gzip, bz2) is recognised by its first bytes; an output\n"
+                       "path ending in .gz or .bz2 is written compressed.\n\n"
+                       "examples:\n  seqdist convert dist.tsv -o dist.txt --out-format square\n"
+                       "  seqdist convert dist.tsv.gz -o dist.npz\n  seqdist convert dist.npz -o dist.nex")
     p.add_argument("matrix", help="input matrix file ('-' for standard input)")
     add_matrix_in(p)
     add_matrix_out(p)
