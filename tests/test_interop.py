@@ -16,6 +16,7 @@ from __future__ import annotations
 import doctest
 import io
 import os
+import re
 import subprocess
 import sys
 
@@ -439,7 +440,10 @@ def test_python_page_examples_run():
     pytest.importorskip("sklearn")
     path = os.path.join(ROOT, "docs", "python.md")
     parser = doctest.DocTestParser()
-    test = parser.get_doctest(open(path, encoding="utf-8").read(), {}, "docs/python.md", path, 0)
+    with open(path, encoding="utf-8") as fh:
+        # the ```pycon blocks, in order, as one session (the fences are not part of the expected output)
+        blocks = re.findall(r"^```pycon\n(.*?)^```", fh.read(), flags=re.M | re.S)
+    test = parser.get_doctest("\n".join(blocks), {}, "docs/python.md", path, 0)
     assert len(test.examples) >= 20
     runner = doctest.DocTestRunner(optionflags=doctest.ELLIPSIS | doctest.NORMALIZE_WHITESPACE)
     old = os.getcwd()
