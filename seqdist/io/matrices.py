@@ -889,7 +889,8 @@ def _nexus_rows(nx: _NexusText, span, taxa, n, triangle, diagonal, labelled, int
     else:
         k = a
         i = 0
-        while k < b:
+        # labelled rows run while tokens last; unlabelled rows are the taxa in order (the last may be empty)
+        while (k < b) if labelled else (i < len(taxa)):
             if labelled:
                 lab = toks[k]
                 if lab in rows:
@@ -898,8 +899,6 @@ def _nexus_rows(nx: _NexusText, span, taxa, n, triangle, diagonal, labelled, int
                 lab = start_row(k)
                 k += 1
             else:
-                if i >= len(taxa):
-                    raise InputError(f"{name}: line {nx.at(k)}: more values than the {len(taxa)} rows hold")
                 lab = taxa[i]
                 rows[lab] = ([], nx.at(k))
             idx = known[lab] if known is not None else len(rows) - 1
@@ -908,6 +907,8 @@ def _nexus_rows(nx: _NexusText, span, taxa, n, triangle, diagonal, labelled, int
             rows[lab][0].extend(got)
             k += len(got)
             i += 1
+    if not interleave and not labelled and k < b:
+        raise InputError(f"{name}: line {nx.at(k)}: more values than the {len(taxa)} rows hold")
     if known is not None:
         absent = [lab for lab in taxa if lab not in rows]
         if absent:
