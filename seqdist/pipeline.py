@@ -14,12 +14,12 @@ import os
 import platform
 import time
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Callable
 
 from seqdist import __version__
 from seqdist.audit.suspects import REASON_PREFIX
 from seqdist.core.console import info
-from seqdist.core.errors import InputError, ParameterError
+from seqdist.core.errors import InputError
 from seqdist.models.distances import inverse_variance_weights  # noqa: F401  (the weights of --weighted; public here too)
 from seqdist.repair.registry import WEIGHTED_OBJECTIVES
 
@@ -32,7 +32,9 @@ if TYPE_CHECKING:  # the types of JobResult's fields, without importing them for
     from seqdist.repair.result import RepairReport
 
 __all__ = ["JobResult", "split_times", "check_outdir", "unmeasured_reasons", "rres_unmeasured",
-           "suspects_to_leave_out", "command_line", "run_job", "left_out_section", "suspects_section", "job_section"]
+           "suspects_to_leave_out", "command_line", "find_truth", "OPTION_DEFAULTS", "resolve_weighted", "Step",
+           "STEPS", "STEP_NAMES", "job_options", "step_arguments", "step_files", "run_step", "run_job",
+           "find_alignments", "alignment_name", "left_out_section", "suspects_section", "job_section"]
 
 #: The default remedy of ``seqdist run``, chosen by the simulation study in
 #: docs/remedies.md: leave the suspect sequences out, then the shortest-path
@@ -269,12 +271,734 @@ def command_line(alignment: str, options: dict) -> str:
     return " ".join(shlex.quote(x) if x != "DIR" else x for x in parts)
 
 
-def _find_truth(alignment_path: str) -> str | None:
+def find_truth(alignment_path: str) -> str | None:
+    """The reference tree beside an alignment, as ``run`` finds it: ``NAME.true.nwk``, else ``NAME.nwk``.
+
+    Examples
+    --------
+    >>> find_truth("example_sequences/dna_clean.fasta")  # doctest: +SKIP
+    'example_sequences/dna_clean.true.nwk'
+    """
     base = os.path.splitext(alignment_path)[0]
     for cand in (base + ".true.nwk", base + ".nwk"):
         if os.path.isfile(cand):
             return cand
     return None
+
+
+# ----------------------------------------------------------------- finding alignments in a folder
+_COMPRESSED = {b"\x1f\x8b": (".gz", "gzip"), b"BZh": (".bz2", "bz2")}
+
+
+def _head(path: str, size: int = 1 << 16) -> str:
+    """The first ``size`` bytes of a file as text, gzip and bz2 opened by their first bytes ("" when unreadable)."""
+    import bz2
+    import gzip
+
+    try:
+        with open(path, "rb") as fh:
+            magic = fh.read(3)
+        opener = gzip.open if magic[:2] == b"\x1f\x8b" else bz2.open if magic == b"BZh" else open
+        with opener(path, "rb") as fh:
+            data = fh.read(size)
+    except (OSError, EOFError, ValueError):
+        return ""
+    if b"\x00" in data:
+        return ""
+    return data.decode("utf-8", errors="replace")
+
+
+def _has_characters(path: str) -> bool:
+    """A NEXUS file holds an alignment when it has a DATA or CHARACTERS block (a TREES block alone is not one)."""
+    import re
+
+    pattern = re.compile(r"\bbegin\s+(data|characters)\s*;", re.IGNORECASE)
+    size = 1 << 16
+    while True:
+        text = _head(path, size)
+        if pattern.search(text) or len(text) < size:
+            return bool(pattern.search(text))
+        size *= 8  # a long TAXA block first: look further
+
+
+def _alignment_format(path: str) -> str | None:
+    """The alignment format of a file, from its extension or, failing that, its first line; None: not one."""
+    from seqdist.io.alignment import REGISTRY, guess_path_format
+
+    stripped = path
+    for suffix, _ in _COMPRESSED.values():
+        if path.lower().endswith(suffix):
+            stripped = path[: -len(suffix)]
+    fmt = guess_path_format(stripped)
+    if fmt is None:
+        lines = [line.strip() for line in _head(path, 4096).splitlines() if line.strip()]
+        first = lines[0] if lines else ""
+        fmt = next((f.name for f in REGISTRY.values() if f.first_line is not None and f.first_line(first)), None)
+    if fmt == "nexus" and not _has_characters(path):
+        return None
+    return fmt
+
+
+def alignment_name(path: str) -> str:
+    """The job name of an alignment file: its file name without the extension (and without ``.gz``/``.bz2``).
+
+    Examples
+    --------
+    >>> alignment_name("data/a.fasta.gz"), alignment_name("b.sto")
+    ('a', 'b')
+    """
+    base = os.path.basename(path)
+    for suffix, _ in _COMPRESSED.values():
+        if base.lower().endswith(suffix):
+            base = base[: -len(suffix)]
+    return os.path.splitext(base)[0] or base
+
+
+def find_alignments(folder: str) -> dict:
+    """Every alignment in ``folder``, found by extension or by content: ``{name: path}``, sorted by name.
+
+    A file counts when its extension names an alignment format or, whatever its extension, its
+    first line is one the readers recognise (``#NEXUS``, ``>``, ``CLUSTAL``, ``# STOCKHOLM``...),
+    compressed or not; a NEXUS file counts only with a DATA or CHARACTERS block (one holding only
+    TREES is not an alignment). Hidden files are skipped.
+
+    Raises
+    ------
+    InputError
+        ``folder`` is not a folder, or two alignments would have the same name (``a.fasta`` and
+        ``a.aln`` both give ``a``): both files are named.
+
+    Examples
+    --------
+    >>> find_alignments("example_sequences")  # doctest: +SKIP
+    {'dna_clean': 'example_sequences/dna_clean.fasta', ...}
+    """
+    if not os.path.isdir(folder):
+        raise InputError(f"{folder}: not a folder")
+    found: dict = {}
+    for entry in sorted(os.listdir(folder)):
+        path = os.path.join(folder, entry)
+        if entry.startswith(".") or not os.path.isfile(path) or _alignment_format(path) is None:
+            continue
+        name = alignment_name(path)
+        if name in found:
+            raise InputError(f"{found[name]} and {path}: both would be the job '{name}'; rename one "
+                             "(each alignment's results go into a folder named after it)")
+        found[name] = path
+    return dict(sorted(found.items()))
+
+
+# ----------------------------------------------------------------- the steps
+#: The options of :func:`run_job` that change its files, with their defaults ("auto" truth: the
+#: tree beside the alignment, see :func:`find_truth`; None weighted: see :func:`resolve_weighted`).
+OPTION_DEFAULTS = {"in_format": None, "alphabet": "auto", "model": None, "gamma": None, "gaps": "pairwise",
+                   "objective": DEFAULT_OBJECTIVE, "weighted": None, "method": "nj", "truth": "auto",
+                   "time_limit": None, "seed": 1, "bootstrap": 0, "keep_unmeasured": False,
+                   "keep_suspects": False}
+
+_FLAGS = {"in_format": "--in-format", "alphabet": "--alphabet", "model": "--model", "gamma": "--gamma",
+          "gaps": "--gaps", "objective": "--objective", "method": "--method", "truth": "--truth",
+          "time_limit": "--time-limit", "seed": "--seed", "bootstrap": "--bootstrap"}
+
+
+def resolve_weighted(objective: str, weighted: bool | None) -> bool:
+    """Whether the repair is weighted: ``weighted``, or when None, whether weights change the objective's result.
+
+    (``run`` always computes variances, so every model can be weighted.)
+
+    Examples
+    --------
+    >>> resolve_weighted("shrink", None), resolve_weighted("l2", None), resolve_weighted("l2", False)
+    (False, True, False)
+    """
+    return objective in WEIGHTED_OBJECTIVES if weighted is None else bool(weighted)
+
+
+@dataclass(frozen=True)
+class Step:
+    """One step of the job: what it reads, what it writes, which options it uses, and its function.
+
+    ``run_job`` runs :data:`STEPS` in order in one process; the Snakemake workflow
+    (workflows/) makes one rule per step from the same list, each running
+    ``seqdist run ALIGNMENT --outdir DIR --step NAME`` (:func:`run_step`).
+
+    Attributes
+    ----------
+    name : str
+        The step's name (``--step NAME``, the workflow's rule name).
+    description : str
+        What it does, in a few words.
+    options : tuple of str
+        The options (keys of :data:`OPTION_DEFAULTS`) it uses; the step sees no other, and the
+        workflow passes only these (so changing another option does not rerun it).
+    reads : callable
+        ``reads(options) -> tuple`` of what it reads with these (resolved) options: ``"alignment"``,
+        ``"truth"`` (the reference tree, when there is one) or keys of :data:`FILES`.
+    writes : callable
+        ``writes(options) -> tuple`` of the keys of :data:`FILES` it always writes with these options.
+    may_write : tuple of str
+        Keys it writes or not depending on the data (the other choice about suspect sequences).
+    """
+
+    name: str
+    description: str
+    options: tuple
+    reads: Callable = field(repr=False)
+    writes: Callable = field(repr=False)
+    may_write: tuple = ()
+    function: Callable = field(repr=False, default=None)
+
+
+def _js(obj) -> str:
+    import json
+
+    from seqdist.io.matrices import to_jsonable
+
+    return json.dumps(to_jsonable(obj), indent=2, allow_nan=False) + "\n"
+
+
+class _Job:
+    """One run's alignment, folder and options, and the files made so far.
+
+    In one process (``run_job``) the files stay in memory until every step is done and the
+    matrices are handed on as objects; a single step (``run_step``) reads its inputs from the
+    folder. Matrices are written with ``repr`` values, so both give the same numbers.
+    """
+
+    def __init__(self, alignment: str, outdir: str, options: dict, progress: bool, workers, from_dir: bool):
+        self.alignment_path = alignment
+        self.outdir = outdir
+        self.all_options = options
+        self.o: dict = {}
+        self.progress = progress
+        self.workers = workers
+        self.from_dir = from_dir
+        self.texts: dict = {}
+        self.objects: dict = {}
+        self.seconds: dict = {}
+        self.step_times: dict = {}
+        self.t_all = time.perf_counter()
+        self.say = info if progress else (lambda *_: None)
+
+    # ------------------------------------------------------------ inputs
+    def path(self, key: str) -> str:
+        return os.path.join(self.outdir, FILES[key])
+
+    def text(self, key: str) -> str:
+        if key in self.texts:
+            return self.texts[key]
+        from seqdist.io.matrices import read_text
+
+        return read_text(self.path(key), "file")
+
+    def doc(self, key: str) -> dict:
+        import json
+
+        try:
+            return json.loads(self.text(key))
+        except ValueError as exc:
+            raise InputError(f"{self.path(key)}: not a JSON document ({exc}); run its step again") from None
+
+    def matrix(self, key: str):
+        if key not in self.objects:
+            from seqdist.io.matrices import read_matrix
+
+            self.objects[key] = read_matrix(self.path(key), "tsv")
+        return self.objects[key]
+
+    def alignment(self):
+        if "alignment" not in self.objects:
+            from seqdist.io.alignment import read_alignment
+
+            self.objects["alignment"] = read_alignment(self.alignment_path, self.o["in_format"], self.o["alphabet"])
+        return self.objects["alignment"]
+
+    # ------------------------------------------------------------ outputs
+    def keep(self, key: str, text: str, obj=None) -> None:
+        self.texts[key] = text
+        if obj is not None:
+            self.objects[key] = obj
+
+    def run(self, step: Step) -> None:
+        # the step sees only the options it declares: the workflow passes no other
+        self.o = {k: self.all_options[k] for k in step.options}
+        step.function(self)
+
+
+def _suspect_report(audit_doc: dict):
+    """The suspects of ``audit.json`` as a :class:`~seqdist.audit.suspects.SuspectReport` (None: none searched)."""
+    from seqdist.audit.suspects import Suspect, SuspectReport
+
+    block = audit_doc.get("suspects")
+    if block is None:
+        return None
+
+    def one(d):
+        return Suspect(d["label"], d["score"], d["evidence"], tuple(d["reasons"]))
+
+    return SuspectReport(suspects=[one(d) for d in audit_doc["suspect_taxa"]],
+                         ranking=[one(d) for d in block["ranking"]], threshold=block["threshold"],
+                         statistics=list(block["statistics"]))
+
+
+class _AuditView:
+    """What the report page takes from the audit, read from ``audit.json``."""
+
+    def __init__(self, doc: dict):
+        self.violated = doc["violated_triangles"]
+        self.triangles = doc["triangles"]
+        self.checked_triangles = doc["checked_triangles"]
+        self.min_changes_lower_bound = doc["min_changes_lower_bound"]
+        self.max_violation = doc["max_violation"]
+        self.suspects = _suspect_report(doc)
+        self._taxa = doc["taxa"]  # every taxon, most violated triangles first
+
+    def taxa_most_involved(self, limit: int = 5) -> list:
+        return [t["taxon"] for t in self._taxa[:limit] if t["violated_triangles"]]
+
+
+class _DistancesView:
+    """What the report page takes from the distances step, read from ``distances.json``."""
+
+    def __init__(self, doc: dict, matrix):
+        self.matrix = matrix
+        self.model = doc["model"]
+        self.alphabet = doc["alphabet"]
+        self.undefined = tuple((u["a"], u["b"], u["reason"]) for u in doc["undefined"])
+
+
+def _undefined(doc: dict) -> list:
+    return [(u["a"], u["b"], u["reason"]) for u in doc["undefined"]]
+
+
+def _step_distances(job: _Job) -> None:
+    from seqdist.io.matrices import format_matrix
+    from seqdist.models.distances import pairwise_distances, undefined_message
+
+    t = time.perf_counter()
+    o = job.o
+    aln = job.alignment()
+    job.say(f"[1/5] distances: {job.alignment_path}")
+    dres = pairwise_distances(aln, o["model"], gamma=o["gamma"], gaps=o["gaps"], variance=True,
+                              progress=job.progress, warn=False)
+    if dres.undefined:
+        from seqdist.core.console import warn
+
+        warn(undefined_message(dres, hint="(they stay missing in distances.tsv; all in distances.json)"))
+    dm = dres.matrix
+    job.seconds["distances"] = time.perf_counter() - t
+    job.say(f"      {dm.n} sequences x {aln.length} columns, model {dres.model}, "
+            f"{len(dres.undefined)} undefined pairs ({job.seconds['distances']:.2f} s)")
+    if dm.n < 3:
+        raise InputError(f"{job.alignment_path}: {dm.n} sequences; the job needs at least 3")
+    job.objects["dres"] = dres
+    job.keep("distances", format_matrix(dm, "tsv"), dm)
+    job.keep("sites", format_matrix(dres.sites, "tsv"))
+    job.keep("variance", format_matrix(dres.variance, "tsv"), dres.variance)
+    job.keep("distances_json", _js(dres.summary()))
+
+
+def _step_audit(job: _Job) -> None:
+    from seqdist.audit.report import audit
+    from seqdist.audit.suspects import find_suspects
+
+    t = time.perf_counter()
+    o = job.o
+    dm = job.matrix("distances")
+    model = job.doc("distances_json")["model"]
+    job.say("[2/5] audit: triangles, lower bound, tree-likeness, suspect sequences")
+    arep = audit(dm, seed=o["seed"], suspects=False)
+    # the suspects with what only the columns can show (block incongruence, gaps)
+    # with --bootstrap, the placement instability (leaf stability) joins the evidence (shown, not scored)
+    arep.suspects = find_suspects(dm, audit_report=arep, alignment=job.alignment(), model=model, gamma=o["gamma"],
+                                  gaps=o["gaps"], seed=o["seed"], replicates=o["bootstrap"])
+    job.seconds["audit"] = time.perf_counter() - t
+    sus = arep.suspects.suspects
+    job.say(f"      {arep.violated} of {arep.checked_triangles} checked triangles violated; "
+            f"{len(sus)} suspect sequence{'s' if len(sus) != 1 else ''}"
+            f"{': ' + ', '.join(x.label for x in sus[:8]) + (' ...' if len(sus) > 8 else '') if sus else ''} "
+            f"({job.seconds['audit']:.2f} s)")
+    audit_dict, job.step_times["audit"] = split_times(arep.to_dict())
+    job.objects["arep"] = arep
+    job.keep("audit_json", _js(audit_dict))
+    job.keep("audit_text", arep.summary(source=FILES["distances"]))
+
+
+def _repair_common(job: _Job, dm, weighted: bool) -> dict:
+    """The repair's settings shared by the chosen repair and the other choice about suspects."""
+    o = job.o
+    return dict(weights=job.matrix("weights") if weighted else None, time_limit=o["time_limit"], seed=o["seed"],
+                progress=job.progress, keep_unmeasured=o["keep_unmeasured"],
+                unmeasured_reasons=unmeasured_reasons(_undefined(job.doc("distances_json")), dm.labels),
+                source=FILES["distances"])
+
+
+def _step_repair(job: _Job) -> None:
+    from seqdist.io.matrices import format_matrix
+    from seqdist.repair import repair
+
+    t = time.perf_counter()
+    o = job.o
+    objective = o["objective"]
+    dm = job.matrix("distances")
+    weighted = resolve_weighted(objective, o["weighted"])
+    if weighted:
+        weights = inverse_variance_weights(job.matrix("variance"), dm)
+        job.keep("weights", format_matrix(weights, "tsv"), weights)
+    common = _repair_common(job, dm, weighted)
+    suspects = suspects_to_leave_out(dm, _suspect_report(job.doc("audit_json")), o["keep_unmeasured"])
+    drop = bool(suspects) and not o["keep_suspects"]
+    job.say(f"[3/5] repair: objective {objective}{' (inverse-variance weights)' if weighted else ''}"
+            + (f", {len(suspects)} suspect sequence{'s' if len(suspects) != 1 else ''} "
+               f"{'left out' if drop else 'kept'}" if suspects else ""))
+    rres = repair(dm, objective, leave_out=suspects if drop else None, **common)
+    if drop:
+        from seqdist.core.console import warn
+
+        shown = "; ".join(f"{lab} ({why.removeprefix(REASON_PREFIX)})"
+                          for lab, why in list(suspects.items())[:5])
+        more = f"; and {len(suspects) - 5} more" if len(suspects) > 5 else ""
+        warn(f"{len(suspects)} suspect sequence{'s' if len(suspects) != 1 else ''} left out of the repaired "
+             f"matrix and its tree (--keep-suspects keeps them): {shown}{more}")
+    rep = rres.report
+    job.seconds["repair"] = time.perf_counter() - t
+    left = f", {len(rep.left_out_taxa)} taxa left out" if rep.left_out_taxa else ""
+    made_up = (f" ({rep.filled_without_evidence} without evidence)" if rep.filled_without_evidence else "")
+    job.say(f"      {rep.changed_entries} of {rep.observed_entries} measured entries changed, "
+            f"{rep.filled_entries} missing filled{made_up}{left}, "
+            f"{'optimal' if rep.optimal else 'not proven optimal'} ({job.seconds['repair']:.2f} s)")
+    rep_dict, job.step_times["repair"] = split_times(rep.to_dict())
+    job.objects["rres"] = rres
+    job.objects["made_up_pairs"] = [(c[0], c[1]) for c in rres.changes if c[5] == "filled_without_evidence"]
+    job.keep("repaired", format_matrix(rres.matrix, "tsv"), rres.matrix)
+    job.keep("repair_json", _js({**rep_dict, "input": FILES["distances"]}))
+    job.keep("changes", rres.changes_text())
+
+
+def _repair_report(doc: dict):
+    """The :class:`~seqdist.repair.result.RepairReport` of ``repair.json`` (its times were taken out)."""
+    from seqdist.repair.result import RepairReport
+
+    doc = {k: v for k, v in doc.items() if k != "input"}
+    return RepairReport.from_dict({**doc, "seconds": 0.0})
+
+
+def _made_up_pairs(job: _Job) -> list:
+    """The pairs filled without evidence, from the repair (one process) or ``changes.tsv``."""
+    if "made_up_pairs" in job.objects:
+        return job.objects["made_up_pairs"]
+    import csv
+    import io
+
+    rows = csv.reader(io.StringIO(job.text("changes")), delimiter="\t", quotechar='"')
+    next(rows, None)
+    return [(r[0], r[1]) for r in rows if len(r) >= 6 and r[5] == "filled_without_evidence"]
+
+
+def _step_impact(job: _Job) -> None:
+    from seqdist.impact.compare import impact, remedy_table
+    from seqdist.io.newick import read_newick_file
+    from seqdist.repair import repair
+    from seqdist.report.html import render_html
+    from seqdist.trees.build import build_tree
+
+    t = time.perf_counter()
+    o = job.o
+    alignment, objective, method, truth = job.alignment_path, o["objective"], o["method"], o["truth"]
+    weighted = resolve_weighted(objective, o["weighted"])
+    dm = job.matrix("distances")
+    dj = job.doc("distances_json")
+    audit_doc = job.doc("audit_json")
+    rep = _repair_report(job.doc("repair_json"))
+    suspects = suspects_to_leave_out(dm, _suspect_report(audit_doc), o["keep_unmeasured"])
+    drop = bool(suspects) and not o["keep_suspects"]
+    job.say(f"[4/5] trees ({method}) before and after repair, compared")
+    truth_tree = None
+    if truth:
+        truth_tree = read_newick_file(truth)
+        truth_tree.check_labels(truth)
+        if set(truth_tree.labels()) != set(dm.labels):
+            raise InputError(f"{truth}: the reference tree's leaves differ from the alignment's ids")
+    reasons = {lab: (f"kept by the repair with a made-up value, {why}" if o["keep_unmeasured"]
+                     else f"left out by the repair, {why}") for lab, why in rep.unmeasured_taxa.items()}
+    reasons.update({lab: f"left out as a {why}" for lab, why in suspects.items() if drop})
+    ires = impact(dm, job.matrix("repaired"), method, truth=truth_tree, drop_incomplete=True,
+                  names=("measured", "repaired"), reasons=reasons)
+    other_tree = None
+    if suspects:
+        # the other choice, so that the report shows what leaving the suspects out did
+        import warnings
+
+        from seqdist.core.errors import DataWarning
+
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", DataWarning)  # the chosen repair has said it already
+            other = repair(dm, objective, leave_out=None if drop else suspects,
+                           **{**_repair_common(job, dm, weighted), "progress": False})
+        other_tree = build_tree(other.matrix, method)
+        chosen = "repaired, suspects left out" if drop else "repaired, suspects kept"
+        alt = "repaired, suspects kept" if drop else "repaired, suspects left out"
+        table = remedy_table({"measured": ires.tree_before, chosen: ires.tree_after, alt: other_tree},
+                             truth_tree)
+        table.chosen = chosen
+        table.suspects = list(suspects)
+        # the two choices about the suspects, on the taxa both trees hold
+        table.rf_with_without_suspects = table.rf_between[1][2]
+        ires.report.remedies = table
+    if o["bootstrap"]:
+        from seqdist.impact.support import add_support
+
+        add_support(ires, job.alignment(), replicates=o["bootstrap"], model=dj["model"], objective=objective,
+                    seed=o["seed"], gamma=o["gamma"], gaps=o["gaps"], workers=job.workers,
+                    keep_unmeasured=o["keep_unmeasured"], weighted=weighted)
+    job.seconds["trees"] = time.perf_counter() - t
+
+    t = time.perf_counter()
+    job.say("[5/5] report")
+    options = {"alignment": alignment, "in_format": o["in_format"], "alphabet": dj["alphabet"], "model": dj["model"],
+               "gamma": o["gamma"], "gaps": o["gaps"], "objective": objective, "weighted": weighted,
+               "method": method, "truth": truth, "time_limit": o["time_limit"], "seed": o["seed"],
+               "bootstrap": o["bootstrap"], "keep_unmeasured": o["keep_unmeasured"],
+               "keep_suspects": o["keep_suspects"]}
+    command = command_line(alignment, options)
+    irep, job.step_times["impact"] = split_times(ires.report.to_dict())
+    job.objects["ires"] = ires
+    job.keep("tree_before", ires.tree_before.to_newick())
+    job.keep("tree_after", ires.tree_after.to_newick())
+    if other_tree is not None:
+        job.keep("tree_with_suspects" if drop else "tree_without_suspects", other_tree.to_newick())
+    job.keep("impact_json", _js(irep))
+    name = os.path.basename(alignment)
+    job.keep("report", render_html(
+        ires, names=("measured", "repaired"), title=f"seqdist report: {name}",
+        preamble=job_section(name, _DistancesView(dj, dm), dj["columns"], _AuditView(audit_doc), rep, objective,
+                             weighted),
+        reference=truth, command=command, made_up_pairs=_made_up_pairs(job),
+        lead=left_out_section(rep) + suspects_section(_AuditView(audit_doc), ires.report, o["keep_suspects"]),
+        extra_trees=[("repaired, suspects kept" if drop else "repaired, suspects left out", other_tree)]
+        if other_tree is not None else None))
+    job.seconds["report"] = time.perf_counter() - t
+    job.seconds["total"] = time.perf_counter() - job.t_all
+
+    # the checksum of every file of the job: this step's from memory, the others' from memory
+    # (one process) or from the folder (they are this step's inputs)
+    outputs = {}
+    for key in _written_keys(options):
+        outputs[FILES[key]] = (_sha256(job.texts[key]) if key in job.texts
+                               else _file_sha256(job.path(key)))
+    for key in FILES:  # this step's (the manifest is written last, not listed)
+        if key in job.texts and FILES[key] not in outputs:
+            outputs[FILES[key]] = _sha256(job.texts[key])
+    manifest = {
+        "seqdist_version": __version__,
+        "command": "run",
+        "command_line": command,
+        "options": options,
+        "seeds": {"audit_quartets": o["seed"], "repair": o["seed"], "bootstrap": o["seed"] if o["bootstrap"] else None},
+        "inputs": {alignment: _file_sha256(alignment), **({truth: _file_sha256(truth)} if truth else {})},
+        "outputs": dict(sorted(outputs.items())),
+        "python": platform.python_version(),
+        # one process: every step; a single step (the workflow): that step's (the others: benchmark files)
+        "seconds": {k: round(v, 3) for k, v in job.seconds.items()},
+        "step_times": job.step_times,
+        "note": "repaired.tsv is altered data: report the objective and changes.tsv with any published result",
+    }
+    job.keep("manifest", _js(manifest))
+
+
+def _all(*keys):
+    return lambda options: keys
+
+
+def _repair_reads(options) -> tuple:
+    weighted = resolve_weighted(options["objective"], options["weighted"])
+    return ("distances", "distances_json", "audit_json") + (("variance",) if weighted else ())
+
+
+def _repair_writes(options) -> tuple:
+    weighted = resolve_weighted(options["objective"], options["weighted"])
+    return ("repaired", "repair_json", "changes") + (("weights",) if weighted else ())
+
+
+_READ_ALIGNMENT = ("in_format", "alphabet")
+
+#: The job, step by step (``run_job`` runs them in order; the workflow makes one rule of each).
+STEPS = (
+    Step("distances", "distances, compared columns and variances from the alignment",
+         _READ_ALIGNMENT + ("model", "gamma", "gaps"), _all("alignment"),
+         _all("distances", "sites", "variance", "distances_json"), function=_step_distances),
+    Step("audit", "triangle audit, lower bound, tree-likeness and the suspect sequences",
+         _READ_ALIGNMENT + ("gamma", "gaps", "seed", "bootstrap"), _all("alignment", "distances", "distances_json"),
+         _all("audit_json", "audit_text"), function=_step_audit),
+    Step("repair", "the repaired matrix, with or without the suspect sequences",
+         ("objective", "weighted", "seed", "time_limit", "keep_unmeasured", "keep_suspects"), _repair_reads,
+         _repair_writes, function=_step_repair),
+    Step("impact", "trees before and after repair compared, the report page and the manifest",
+         tuple(OPTION_DEFAULTS), lambda options: _impact_reads(options),
+         _all("tree_before", "tree_after", "impact_json", "report", "manifest"),
+         ("tree_with_suspects", "tree_without_suspects"), _step_impact),
+)
+_STEPS_BY_NAME = {s.name: s for s in STEPS}
+#: The names of the steps, in order.
+STEP_NAMES = tuple(_STEPS_BY_NAME)
+
+
+def _written_keys(options: dict) -> list:
+    """The keys of the files the steps before ``impact`` always write with these options."""
+    keys = []
+    for s in STEPS:
+        if s.name != "impact":
+            keys += [k for k in s.writes(options) if k not in keys]
+    return keys
+
+
+def _impact_reads(options) -> tuple:
+    # the manifest holds the checksum of every file, so the last step reads them all
+    return ("alignment",) + (("truth",) if options["truth"] else ()) + tuple(_written_keys(options))
+
+
+def job_options(alignment: str, **options) -> dict:
+    """The options of a job, checked, with the defaults filled in and the reference tree found.
+
+    Keys are those of :data:`OPTION_DEFAULTS`; ``truth="auto"`` becomes the tree found by
+    :func:`find_truth` (or None). Raises :class:`InputError` for a bad value.
+
+    Examples
+    --------
+    >>> job_options("a.fasta", objective="l2", truth=None)["objective"]
+    'l2'
+    """
+    from seqdist.repair.engine import load_objective
+    from seqdist.trees.build import METHODS
+
+    unknown = sorted(set(options) - set(OPTION_DEFAULTS))
+    if unknown:
+        raise TypeError(f"unknown job option {unknown[0]!r}")
+    o = {**OPTION_DEFAULTS, **options}
+    seed = o["seed"]
+    if seed is None or isinstance(seed, bool) or not 0 <= int(seed) <= 2**32 - 1:
+        raise InputError(f"seed must be an integer from 0 to {2**32 - 1}, got {seed!r}")
+    if o["bootstrap"] < 0:
+        raise InputError(f"bootstrap must be 0 or more, got {o['bootstrap']!r}")
+    load_objective(o["objective"])  # a bad objective fails before any work
+    if o["method"] not in METHODS:
+        raise InputError(f"unknown tree method '{o['method']}' (choose from {', '.join(METHODS)})")
+    if o["truth"] == "auto":
+        o["truth"] = find_truth(alignment)
+    return o
+
+
+def step_arguments(step: str | Step, options: dict) -> list:
+    """The ``seqdist run`` arguments that give step ``step`` its options (those it uses, when not the default).
+
+    The workflow puts them after ``seqdist run ALIGNMENT --outdir DIR --step NAME``; each is one
+    argument (the workflow quotes each for the shell).
+
+    Examples
+    --------
+    >>> step_arguments("repair", {"objective": "l2", "seed": 7, "model": "jc69"})
+    ['--objective', 'l2', '--seed', '7']
+    """
+    step = _STEPS_BY_NAME[step] if isinstance(step, str) else step
+    o = {**OPTION_DEFAULTS, **options}
+    out = []
+    for key in step.options:
+        v = o[key]
+        if v == OPTION_DEFAULTS[key] or v is None:
+            continue
+        if key == "weighted":
+            out.append("--weighted" if v else "--unweighted")
+        elif key in ("keep_unmeasured", "keep_suspects"):
+            out.append("--" + key.replace("_", "-"))
+        elif key == "truth" and v is False:
+            out.append("--no-truth")
+        else:
+            out += [_FLAGS[key], str(v)]
+    return out
+
+
+def step_files(step: str | Step, alignment: str, outdir: str, options: dict) -> tuple[list, list]:
+    """The files step ``step`` reads and the files it always writes, as paths.
+
+    ``options`` as :func:`job_options` returns them (``truth`` found or None). What a step writes
+    only for some data (:attr:`Step.may_write`) is not listed.
+
+    Examples
+    --------
+    >>> o = job_options("a.fasta", truth=None)
+    >>> step_files("audit", "a.fasta", "out", o)
+    (['a.fasta', 'out/distances.tsv', 'out/distances.json'], ['out/audit.json', 'out/audit.txt'])
+    """
+    step = _STEPS_BY_NAME[step] if isinstance(step, str) else step
+    where = {"alignment": alignment, "truth": options.get("truth")}
+    reads = [where[k] if k in where else os.path.join(outdir, FILES[k]) for k in step.reads(options)]
+    writes = [os.path.join(outdir, FILES[k]) for k in step.writes(options)]
+    return reads, writes
+
+
+def _producer(key: str) -> str:
+    for s in STEPS:
+        if key in s.writes({**OPTION_DEFAULTS, "weighted": True}) or key in s.may_write:
+            return s.name
+    return "?"
+
+
+def _publish(job: _Job, steps) -> dict:
+    """Write the job's files into its folder, all or nothing; remove what these steps wrote before but
+    not now (the other choice about suspects), so the folder never mixes two runs."""
+    from seqdist.io.matrices import OutputSet
+
+    try:
+        os.makedirs(job.outdir, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"{job.outdir}: cannot make the output folder ({exc.strerror})") from None
+    paths = {}
+    with OutputSet() as out:
+        for key, text in job.texts.items():
+            paths[key] = job.path(key)
+            out.add_text(paths[key], text)
+    for s in steps:
+        for key in s.may_write:
+            if key not in job.texts and os.path.isfile(job.path(key)):
+                os.remove(job.path(key))
+    return paths
+
+
+def run_step(alignment: str, outdir: str, step: str, *, workers: int | None = None, progress: bool = True,
+             **options) -> dict:
+    """Run one step of the job, reading its inputs from ``outdir`` and writing its files there.
+
+    This is what each rule of the Snakemake workflow runs (``seqdist run ALIGNMENT --outdir DIR
+    --step NAME``): the steps of :data:`STEPS` run one after another give the same files as
+    :func:`run_job` (apart from the times in ``manifest.json``).
+
+    Returns
+    -------
+    dict of str to str
+        Path of each file written, by its key in ``FILES``.
+
+    Examples
+    --------
+    >>> for s in STEP_NAMES:  # doctest: +SKIP
+    ...     run_step("example_sequences/dna_clean.fasta", "out", s, progress=False)
+    """
+    if step not in _STEPS_BY_NAME:
+        raise InputError(f"unknown step '{step}' (choose from {', '.join(STEP_NAMES)})")
+    check_outdir(outdir)
+    if workers is not None and int(workers) < 1:
+        raise InputError(f"workers must be a positive integer, got {workers!r}")
+    opts = job_options(alignment, **options)
+    s = _STEPS_BY_NAME[step]
+    for key in s.reads(opts):
+        if key in ("alignment", "truth"):
+            continue  # their readers name them when missing
+        path = os.path.join(outdir, FILES[key])
+        if not os.path.isfile(path):
+            raise InputError(f"{path}: missing; step '{step}' reads it (run step '{_producer(key)}' first, "
+                             "with the same options)")
+    job = _Job(alignment, outdir, opts, progress, workers, from_dir=True)
+    job.run(s)
+    return _publish(job, [s])
 
 
 def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphabet: str = "auto",
@@ -284,6 +1008,9 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
             bootstrap: int = 0, workers: int | None = None, progress: bool = True,
             keep_unmeasured: bool = False, keep_suspects: bool = False) -> JobResult:
     """Run the whole job on one alignment and write every file into ``outdir``.
+
+    The job is the steps of :data:`STEPS`, run in order in this process (the Snakemake
+    workflow runs the same steps as separate rules, see :func:`run_step`).
 
     Parameters
     ----------
@@ -303,7 +1030,7 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
         Weight the repair by the inverse variance of each distance, so that
         poorly supported entries move first (the weights are written too).
         None (the default): weighted when the objective's result depends on
-        weights (all but ``shrink``) and the model has a variance formula.
+        weights (all but ``shrink``).
     method : {"nj", "bionj", "upgma"}
         Tree method.
     truth : str or None
@@ -339,219 +1066,21 @@ def run_job(alignment: str, outdir: str, *, in_format: str | None = None, alphab
     >>> r.repair.report.changed_entries  # doctest: +SKIP
     0
     """
-    from seqdist.audit.report import audit
-    from seqdist.impact.compare import impact, remedy_table
-    from seqdist.io.alignment import read_alignment
-    from seqdist.io.matrices import OutputSet, format_matrix
-    from seqdist.io.newick import read_newick_file
-    from seqdist.models.distances import pairwise_distances, undefined_message
-    from seqdist.repair import repair
-    from seqdist.report.html import render_html
-    from seqdist.trees.build import build_tree
-
-    t_all = time.perf_counter()
-    seconds = {}
     check_outdir(outdir)
-    if seed is None or not 0 <= int(seed) <= 2**32 - 1:
-        raise InputError(f"seed must be an integer from 0 to {2**32 - 1}, got {seed!r}")
     if workers is not None and int(workers) < 1:
         raise InputError(f"workers must be a positive integer, got {workers!r}")
-    if bootstrap < 0:
-        raise InputError(f"bootstrap must be 0 or more, got {bootstrap!r}")
-    if truth == "auto":
-        truth = _find_truth(alignment)
-    say = info if progress else (lambda *_: None)
-
-    from seqdist.repair.engine import load_objective
-    from seqdist.trees.build import METHODS
-
-    load_objective(objective)  # a bad objective fails before any work
-    if method not in METHODS:
-        raise InputError(f"unknown tree method '{method}' (choose from {', '.join(METHODS)})")
-    t = time.perf_counter()
-    aln = read_alignment(alignment, in_format, alphabet)
-    say(f"[1/5] distances: {alignment}")
-    dres = pairwise_distances(aln, model, gamma=gamma, gaps=gaps, variance=True, progress=progress, warn=False)
-    if dres.undefined:
-        from seqdist.core.console import warn
-
-        warn(undefined_message(dres, hint="(they stay missing in distances.tsv; all in distances.json)"))
-    dm = dres.matrix
-    seconds["distances"] = time.perf_counter() - t
-    say(f"      {dm.n} sequences x {aln.length} columns, model {dres.model}, "
-        f"{len(dres.undefined)} undefined pairs ({seconds['distances']:.2f} s)")
-    if dm.n < 3:
-        raise InputError(f"{alignment}: {dm.n} sequences; the job needs at least 3")
-
-    t = time.perf_counter()
-    say("[2/5] audit: triangles, lower bound, tree-likeness, suspect sequences")
-    from seqdist.audit.suspects import find_suspects
-
-    arep = audit(dm, seed=seed, suspects=False)
-    # the suspects with what only the columns can show (block incongruence, gaps)
-    # with --bootstrap, the placement instability (leaf stability) joins the evidence (shown, not scored)
-    arep.suspects = find_suspects(dm, audit_report=arep, alignment=aln, model=dres.model, gamma=gamma,
-                                  gaps=gaps, seed=seed, replicates=bootstrap)
-    seconds["audit"] = time.perf_counter() - t
-    sus = arep.suspects.suspects
-    say(f"      {arep.violated} of {arep.checked_triangles} checked triangles violated; "
-        f"{len(sus)} suspect sequence{'s' if len(sus) != 1 else ''}"
-        f"{': ' + ', '.join(x.label for x in sus[:8]) + (' ...' if len(sus) > 8 else '') if sus else ''} "
-        f"({seconds['audit']:.2f} s)")
-
-    t = time.perf_counter()
-    weights = None
-    if weighted is None:
-        # weights only where they change the result and the model gives variances
-        weighted = objective in WEIGHTED_OBJECTIVES and dres.variance is not None
-        if objective in WEIGHTED_OBJECTIVES and not weighted:
-            say(f"      model {dres.model} has no variance formula: the repair is unweighted")
-    if weighted:
-        if dres.variance is None:
-            raise ParameterError.text(f"{{weighted}} needs variances, and model {dres.model} has no variance "
-                                      "formula", "weighted")
-        weights = inverse_variance_weights(dres.variance, dm)
-    unmeasured = unmeasured_reasons(dres.undefined, dm.labels)
-    common = dict(weights=weights, time_limit=time_limit, seed=seed, progress=progress,
-                  keep_unmeasured=keep_unmeasured, unmeasured_reasons=unmeasured, source=FILES["distances"])
-    suspects = suspects_to_leave_out(dm, arep.suspects, keep_unmeasured)
-    drop = bool(suspects) and not keep_suspects
-    say(f"[3/5] repair: objective {objective}{' (inverse-variance weights)' if weighted else ''}"
-        + (f", {len(suspects)} suspect sequence{'s' if len(suspects) != 1 else ''} "
-           f"{'left out' if drop else 'kept'}" if suspects else ""))
-    rres = repair(dm, objective, leave_out=suspects if drop else None, **common)
-    if drop:
-        from seqdist.core.console import warn
-
-        shown = "; ".join(f"{lab} ({why.removeprefix(REASON_PREFIX)})"
-                          for lab, why in list(suspects.items())[:5])
-        more = f"; and {len(suspects) - 5} more" if len(suspects) > 5 else ""
-        warn(f"{len(suspects)} suspect sequence{'s' if len(suspects) != 1 else ''} left out of the repaired "
-             f"matrix and its tree (--keep-suspects keeps them): {shown}{more}")
-    other = None
-    if suspects:
-        # the other choice, so that the report shows what leaving the suspects out did
-        import warnings
-
-        from seqdist.core.errors import DataWarning
-
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", DataWarning)  # the main repair has said it already
-            other = repair(dm, objective, leave_out=None if drop else suspects, **{**common, "progress": False})
-    rep = rres.report
-    seconds["repair"] = time.perf_counter() - t
-    left = f", {len(rep.left_out_taxa)} taxa left out" if rep.left_out_taxa else ""
-    made_up = (f" ({rep.filled_without_evidence} without evidence)" if rep.filled_without_evidence else "")
-    say(f"      {rep.changed_entries} of {rep.observed_entries} measured entries changed, "
-        f"{rep.filled_entries} missing filled{made_up}{left}, "
-        f"{'optimal' if rep.optimal else 'not proven optimal'} ({seconds['repair']:.2f} s)")
-
-    t = time.perf_counter()
-    say(f"[4/5] trees ({method}) before and after repair, compared")
-    truth_tree = None
-    if truth:
-        truth_tree = read_newick_file(truth)
-        truth_tree.check_labels(truth)
-        if set(truth_tree.labels()) != set(dm.labels):
-            raise InputError(f"{truth}: the reference tree's leaves differ from the alignment's ids")
-    reasons = {lab: (f"kept by the repair with a made-up value, {why}" if keep_unmeasured
-                     else f"left out by the repair, {why}") for lab, why in rep.unmeasured_taxa.items()}
-    reasons.update({lab: f"left out as a {why}" for lab, why in suspects.items() if drop})
-    ires = impact(dm, rres.matrix, method, truth=truth_tree, drop_incomplete=True,
-                  names=("measured", "repaired"), reasons=reasons)
-    other_tree = build_tree(other.matrix, method) if other is not None else None
-    if other_tree is not None:
-        chosen = "repaired, suspects left out" if drop else "repaired, suspects kept"
-        alt = "repaired, suspects kept" if drop else "repaired, suspects left out"
-        table = remedy_table({"measured": ires.tree_before, chosen: ires.tree_after, alt: other_tree},
-                             truth_tree)
-        table.chosen = chosen
-        table.suspects = list(suspects)
-        # the two choices about the suspects, on the taxa both trees hold
-        table.rf_with_without_suspects = table.rf_between[1][2]
-        ires.report.remedies = table
-    if bootstrap:
-        from seqdist.impact.support import add_support
-
-        add_support(ires, aln, replicates=bootstrap, model=dres.model, objective=objective, seed=seed,
-                    gamma=gamma, gaps=gaps, workers=workers, keep_unmeasured=keep_unmeasured,
-                    weighted=bool(weighted))
-    seconds["trees"] = time.perf_counter() - t
-
-    t = time.perf_counter()
-    say("[5/5] report")
-    options = {"alignment": alignment, "in_format": in_format, "alphabet": dres.alphabet, "model": dres.model,
-               "gamma": gamma, "gaps": gaps, "objective": objective, "weighted": weighted, "method": method,
-               "truth": truth, "time_limit": time_limit, "seed": seed, "bootstrap": bootstrap,
-               "keep_unmeasured": keep_unmeasured, "keep_suspects": keep_suspects}
-    command = command_line(alignment, options)
-    audit_dict, audit_times = split_times(arep.to_dict())
-    rep_dict, repair_times = split_times(rep.to_dict())
-    irep, impact_times = split_times(ires.report.to_dict())
-    texts = {}
-    texts["distances"] = format_matrix(dm, "tsv")
-    texts["sites"] = format_matrix(dres.sites, "tsv")
-    if dres.variance is not None:
-        texts["variance"] = format_matrix(dres.variance, "tsv")
-    import json
-
-    from seqdist.io.matrices import to_jsonable
-
-    def js(obj):
-        return json.dumps(to_jsonable(obj), indent=2, allow_nan=False) + "\n"
-
-    texts["distances_json"] = js(dres.summary())
-    texts["audit_json"] = js(audit_dict)
-    texts["audit_text"] = arep.summary(source=FILES["distances"])
-    texts["repaired"] = format_matrix(rres.matrix, "tsv")
-    texts["repair_json"] = js({**rep_dict, "input": FILES["distances"]})
-    texts["changes"] = rres.changes_text()
-    if weights is not None:
-        texts["weights"] = format_matrix(weights, "tsv")
-    texts["tree_before"] = ires.tree_before.to_newick()
-    texts["tree_after"] = ires.tree_after.to_newick()
-    if other_tree is not None:
-        texts["tree_with_suspects" if drop else "tree_without_suspects"] = other_tree.to_newick()
-    texts["impact_json"] = js(irep)
-    made_up_pairs = [(c[0], c[1]) for c in rres.changes if c[5] == "filled_without_evidence"]
-    texts["report"] = render_html(ires, names=("measured", "repaired"),
-                                  title=f"seqdist report: {os.path.basename(alignment)}",
-                                  preamble=job_section(os.path.basename(alignment), dres, aln.length, arep, rep,
-                                                       objective, weighted),
-                                  reference=truth, command=command,
-                                  made_up_pairs=made_up_pairs,
-                                  lead=left_out_section(rep) + suspects_section(arep, ires.report, keep_suspects),
-                                  extra_trees=[("repaired, suspects kept" if drop else "repaired, suspects left out",
-                                                other_tree)] if other_tree is not None else None)
-    seconds["report"] = time.perf_counter() - t
-    seconds["total"] = time.perf_counter() - t_all
-
-    manifest = {
-        "seqdist_version": __version__,
-        "command": "run",
-        "command_line": command,
-        "options": options,
-        "seeds": {"audit_quartets": seed, "repair": seed, "bootstrap": seed if bootstrap else None},
-        "inputs": {alignment: _file_sha256(alignment), **({truth: _file_sha256(truth)} if truth else {})},
-        "outputs": {FILES[k]: _sha256(v) for k, v in sorted(texts.items(), key=lambda kv: FILES[kv[0]])},
-        "python": platform.python_version(),
-        "seconds": {k: round(v, 3) for k, v in seconds.items()},
-        "step_times": {"audit": audit_times, "repair": repair_times, "impact": impact_times},
-        "note": "repaired.tsv is altered data: report the objective and changes.tsv with any published result",
-    }
-    texts["manifest"] = js(manifest)
-    try:
-        os.makedirs(outdir, exist_ok=True)
-    except OSError as exc:
-        raise InputError(f"{outdir}: cannot make the output folder ({exc.strerror})") from None
-    paths = {}
-    with OutputSet() as out:
-        for key, text in texts.items():
-            paths[key] = os.path.join(outdir, FILES[key])
-            out.add_text(paths[key], text)
-    say(f"done in {seconds['total']:.1f} s: report {paths['report']}")
-    return JobResult(outdir=outdir, files=paths, distances=dres, audit=arep, repair=rres, impact=ires,
-                     seconds=seconds)
+    opts = job_options(alignment, in_format=in_format, alphabet=alphabet, model=model, gamma=gamma, gaps=gaps,
+                       objective=objective, weighted=weighted, method=method, truth=truth,
+                       time_limit=time_limit, seed=seed, bootstrap=bootstrap, keep_unmeasured=keep_unmeasured,
+                       keep_suspects=keep_suspects)
+    job = _Job(alignment, outdir, opts, progress, workers, from_dir=False)
+    for step in STEPS:
+        job.run(step)
+    paths = _publish(job, STEPS)
+    job.say(f"done in {job.seconds['total']:.1f} s: report {paths['report']}")
+    o = job.objects
+    return JobResult(outdir=outdir, files=paths, distances=o["dres"], audit=o["arep"], repair=o["rres"],
+                     impact=o["ires"], seconds=job.seconds)
 
 
 def _esc(x) -> str:

@@ -5,7 +5,7 @@ from __future__ import annotations
 from seqdist.cli.commands._shared import add_seed, add_subcommand, nonneg_int, positive_float, positive_int
 from seqdist.io.alignment import alignment_format_help
 from seqdist.models.registry import MODEL_NAMES
-from seqdist.pipeline import DEFAULT_OBJECTIVE
+from seqdist.pipeline import DEFAULT_OBJECTIVE, STEP_NAMES
 from seqdist.repair.registry import OBJECTIVES
 from seqdist.trees.build import METHODS
 
@@ -42,7 +42,9 @@ def register(subs, common):
         "  seqdist run example_sequences/protein_small.sto --outdir results/protein_small \\\n"
         "      --objective l2 --method bionj\n"
         "  seqdist run example_sequences/dna_trouble.fasta --outdir results/dna_trouble_all --keep-suspects\n"
-        "  seqdist run example_sequences/dna_trouble.fasta --outdir results/dna_trouble_kept --keep-unmeasured")
+        "  seqdist run example_sequences/dna_trouble.fasta --outdir results/dna_trouble_kept --keep-unmeasured\n\n"
+        "One step at a time (what each rule of the workflow in workflows/ runs; docs/workflow.md):\n"
+        "  seqdist run ALIGNMENT --outdir DIR --step distances   (then audit, repair, impact)")
     p.add_argument("alignment", help="alignment file (FASTA, Clustal, Stockholm, NEXUS, PHYLIP...)")
     p.add_argument("--outdir", required=True, metavar="DIR", help="output folder (created if needed)")
     p.add_argument("--in-format", default=None, help=alignment_format_help())
@@ -80,16 +82,25 @@ def register(subs, common):
                         "suspects' placement instability (leaf stability; shown, not scored) (default: 0)")
     p.add_argument("--workers", type=positive_int, default=None, metavar="P",
                    help="worker processes for the bootstrap (default: the number of cores)")
+    p.add_argument("--step", choices=STEP_NAMES, default=None, metavar="NAME",
+                   help=f"run one step only ({', '.join(STEP_NAMES)}), reading what it needs from DIR (the "
+                        "files of the steps before it, written with the same options); the steps run in "
+                        "order give the same files as the whole job. The workflow in workflows/ runs each "
+                        "step as a rule this way")
     p.set_defaults(func=_run)
 
 
 def _run(args) -> int:
     from seqdist.core.console import is_quiet
-    from seqdist.pipeline import run_job
+    from seqdist.pipeline import run_job, run_step
 
-    run_job(args.alignment, args.outdir, in_format=args.in_format, alphabet=args.alphabet, model=args.model,
-            gamma=args.gamma, gaps=args.gaps, objective=args.objective, weighted=args.weighted,
-            method=args.method, truth=None if args.no_truth else args.truth, time_limit=args.time_limit,
-            seed=args.seed, bootstrap=args.bootstrap, workers=args.workers, progress=not is_quiet(),
-            keep_unmeasured=args.keep_unmeasured, keep_suspects=args.keep_suspects)
+    options = dict(in_format=args.in_format, alphabet=args.alphabet, model=args.model, gamma=args.gamma,
+                   gaps=args.gaps, objective=args.objective, weighted=args.weighted, method=args.method,
+                   truth=None if args.no_truth else args.truth, time_limit=args.time_limit, seed=args.seed,
+                   bootstrap=args.bootstrap, keep_unmeasured=args.keep_unmeasured,
+                   keep_suspects=args.keep_suspects)
+    if args.step is not None:
+        run_step(args.alignment, args.outdir, args.step, workers=args.workers, progress=not is_quiet(), **options)
+    else:
+        run_job(args.alignment, args.outdir, workers=args.workers, progress=not is_quiet(), **options)
     return 0
