@@ -1,5 +1,11 @@
-"""The self-contained html report (no scripts, no external files)."""
+"""The self-contained html report (no scripts, no external files) and figures for papers.
 
-from seqdist.report.html import render_html
+:mod:`seqdist.report.html` writes the page (trees on one scale side by side,
+the heatmap of the change, a save-as-SVG link per figure);
+:mod:`seqdist.report.plots` draws the same figures with matplotlib, an
+optional extra (``pip install "seqdist[plot]"``), imported only when used.
+"""
 
-__all__ = ["render_html"]
+from seqdist.report.html import draw_trees, layout_trees, render_html
+
+__all__ = ["render_html", "draw_trees", "layout_trees"]
