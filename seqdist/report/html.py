@@ -656,7 +656,7 @@ def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"),
     out.append("<h2>Trees</h2>")
     root_note = ("UPGMA trees are rooted." if res.tree_before.rooted else
                  f"Unrooted trees, drawn rooted on the branch to {_esc(outgroup or taxa[0])} (a fixed "
-                 "reference taxon, the same for both).")
+                 "reference taxon, the same for every tree).")
     if n <= MAX_TREE_LEAVES:
         extra = [(name, tree) for name, tree in extra_trees or []]
         drawn = [(names[0], res.tree_before), (names[1], res.tree_after)] + extra
