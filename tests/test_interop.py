@@ -130,6 +130,13 @@ def test_array_copies_and_converts_as_numpy_documents():
     assert (dm == dm.values).all()
 
 
+def test_a_matrix_passed_as_values_keeps_its_labels():
+    # with __array__, from_array(dm) reads the values; the labels must not silently become t0..
+    dm = random_matrix(3, 8)
+    assert DistanceMatrix.from_array(dm).labels == dm.labels
+    assert DistanceMatrix.from_array(dm, ["x", "y", "z"]).labels == ("x", "y", "z")
+
+
 def test_to_numpy_and_labels():
     dm = random_matrix(4, 3)
     a = dm.to_numpy()

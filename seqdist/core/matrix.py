@@ -114,7 +114,8 @@ class DistanceMatrix:
         values : array_like, shape (n, n)
             Distances; NaN marks a missing entry.
         labels : sequence of str, optional
-            Row labels (default ``t0 .. t{n-1}``).
+            Row labels (default: the labels of ``values`` when it is a
+            :class:`DistanceMatrix`, else ``t0 .. t{n-1}``).
         source : str, optional
             Where the data came from (a file name), used in error messages.
         col_labels : sequence of str, optional
@@ -138,6 +139,8 @@ class DistanceMatrix:
         2
         """
         where = _where(source)
+        if labels is None and isinstance(values, DistanceMatrix):
+            labels = values.labels  # an array-like that knows its labels keeps them
         try:
             arr = np.array(values, dtype=np.float64)
         except (TypeError, ValueError) as exc:
