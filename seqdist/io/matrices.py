@@ -260,8 +260,8 @@ def matrix_format(path: str, explicit: str | None = None) -> str:
 
 def _square_shape(text: str) -> str | None:
     """``square`` or ``lower`` when the first line is a lone count (by the next row's length), else None."""
-    first = text.lstrip("\n").split("\n", 1)[0].strip()
-    if not first.isdigit():
+    first = text.lstrip("\n").split("\n", 1)[0]
+    if not first.strip().isdigit() or "\t" in first:  # a tsv header with one numeric label is not a count
         return None
     lines = [ln for ln in text.lstrip("\n").split("\n")[1:] if ln.strip()]
     if not lines:
