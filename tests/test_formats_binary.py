@@ -18,11 +18,12 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from conftest import ROOT, euclidean, write_tsv
 from seqdist import DistanceMatrix
 from seqdist.cli import main
 from seqdist.io import matrices as mio
 from seqdist.io.matrices import REGISTRY, format_matrix, matrix_format, read_matrix, write_matrix
+
+from conftest import ROOT, euclidean, write_tsv
 
 LABELS = ["a", "b c", "it's", "é"]
 

@@ -17,12 +17,13 @@ import sys
 import numpy as np
 import pytest
 
-from conftest import ROOT, euclidean, write_tsv
 from seqdist import DistanceMatrix, InputError
 from seqdist.cli import main
 from seqdist.io import matrices as mio
 from seqdist.io.alignment import guess_path_format, read_alignment
 from seqdist.io.matrices import matrix_format, read_matrix, read_text, write_matrix
+
+from conftest import ROOT, euclidean, write_tsv
 
 ALN = ">a\nACGTACGTAC\n>b\nACGTTCGTAC\n>c\nACCTTCGAAC\n>d\nTCCTTGGAAC\n"
 
