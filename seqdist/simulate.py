@@ -229,9 +229,7 @@ def hky85(kappa: float = 2.0, frequencies: Sequence[float] | None = None, **rena
         frequencies = _take_renamed("hky85", renamed, {"frequencies": frequencies}, {"frequencies": None})[
             "frequencies"]
     freqs = frequencies
-    kappa = float(kappa)
-    if not np.isfinite(kappa) or kappa <= 0:
-        raise InputError(f"kappa must be a positive number (got {kappa})")
+    kappa = PARAMETERS["kappa"].check("kappa", kappa)   # the range the command line's --kappa reads too
     pi = np.full(4, 0.25) if freqs is None else _check_freqs(freqs, 4, "base frequencies")
     # A<->G and C<->T are the transitions (purine-purine, pyrimidine-pyrimidine).
     ts = np.zeros((4, 4), dtype=bool)
