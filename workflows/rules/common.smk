@@ -61,6 +61,11 @@ def _input_dir():
     return os.path.normpath(os.path.join(base, value))
 
 
+def flag(value):
+    """A yes/no setting: YAML's true/false, or the words (--config turns True, not true, into a boolean)."""
+    return value is True or value == "true"
+
+
 def _check_results(out):
     """Refuse a results folder that `seqdist run` wrote (its manifest.json, without our mark)."""
     if not os.path.isdir(out) or os.path.exists(os.path.join(out, MARK)):
@@ -82,13 +87,13 @@ OPTIONS = {
     "gamma": config["gamma"],
     "gaps": config["gaps"],
     "objective": config["objective"],
-    "weighted": None if config["weighted"] == "auto" else bool(config["weighted"]),
+    "weighted": None if config["weighted"] == "auto" else flag(config["weighted"]),
     "method": config["method"],
     "seed": int(config["seed"]),
     "bootstrap": int(config["bootstrap"]),
     "time_limit": config["time_limit"],
-    "keep_suspects": bool(config["keep_suspects"]),
-    "keep_unmeasured": bool(config["keep_unmeasured"]),
+    "keep_suspects": flag(config["keep_suspects"]),
+    "keep_unmeasured": flag(config["keep_unmeasured"]),
 }
 try:
     # name -> path, relative to the working directory so that no data file holds an absolute path
