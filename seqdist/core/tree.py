@@ -11,7 +11,7 @@ leaves with deep, caterpillar-like shapes are fine.
 
 from __future__ import annotations
 
-from typing import Iterator, Sequence
+from typing import Any, Callable, Iterator, Sequence
 
 import numpy as np
 
@@ -212,11 +212,11 @@ class Tree:
         return P
 
     # -- conversion -----------------------------------------------------
-    def to_newick(self, **kwargs) -> str:
+    def to_newick(self, **kwargs: Any) -> str:
         """Newick text (see :func:`write_newick`)."""
         return write_newick(self, **kwargs)
 
-    def to_phylo(self):
+    def to_phylo(self) -> Any:
         """The same tree as a Biopython ``Bio.Phylo.BaseTree.Tree``.
 
         Examples
@@ -239,7 +239,7 @@ class Tree:
         return PhyloTree(root=top, rooted=self.rooted)
 
     @classmethod
-    def from_phylo(cls, phylo_tree) -> "Tree":
+    def from_phylo(cls, phylo_tree: Any) -> "Tree":
         """Build from a Biopython ``Bio.Phylo`` tree (a clade's ``confidence`` becomes the support)."""
         root = Node(phylo_tree.root.name, phylo_tree.root.branch_length, support=phylo_tree.root.confidence)
         stack = [(phylo_tree.root, root)]
@@ -363,7 +363,8 @@ def format_support(x: float) -> str:
     return f"{x:.6g}" if x != 0.0 else "0"
 
 
-def write_newick(tree: Tree, lengths: bool = True, support: bool = True, quote=None) -> str:
+def write_newick(tree: Tree, lengths: bool = True, support: bool = True,
+                 quote: Callable[[str], str] | None = None) -> str:
     """Newick text of a tree, ending in ``;`` and a newline.
 
     Parameters

@@ -36,6 +36,7 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any, Sequence
 
 import numpy as np
 
@@ -45,6 +46,11 @@ from seqdist.impact.result import BootstrapSupport, SplitSupport
 from seqdist.trees.compare import split_labels, splits
 
 __all__ = ["split_support", "split_tallies", "add_support", "SplitTallies"]
+
+if TYPE_CHECKING:  # annotations only
+    from seqdist.core.tree import Tree
+    from seqdist.impact.compare import ImpactResult
+    from seqdist.io.alignment import Alignment
 
 
 @dataclass
@@ -72,7 +78,7 @@ class SplitTallies:
     lengths_before: dict = field(default_factory=dict)
     lengths_after: dict = field(default_factory=dict)
 
-    def consensus(self, which: str = "after", threshold: float = 0.5, *, extended: bool = False):
+    def consensus(self, which: str = "after", threshold: float = 0.5, *, extended: bool = False) -> Tree | None:
         """The majority-rule consensus of the ``before`` or ``after`` replicate trees.
 
         Support in percent of the replicates that had that tree; lengths the
@@ -158,7 +164,7 @@ def _on(tree, taxa):
     return tree if tree.n_leaves == len(taxa) else prune(tree, set(taxa))
 
 
-def split_support(alignment, labels, **options) -> tuple[dict, dict, int, int]:
+def split_support(alignment: Alignment, labels: Sequence[str], **options: Any) -> tuple[dict, dict, int, int]:
     """Count, over bootstrap replicates, how often each split appears.
 
     Takes the arguments of :func:`split_tallies` and returns
@@ -171,11 +177,11 @@ def split_support(alignment, labels, **options) -> tuple[dict, dict, int, int]:
     return t.counts_before, t.counts_after, t.n_before, t.n_after
 
 
-def split_tallies(alignment, labels, *, replicates: int, model: str, objective: str, method: str = "nj",
-                  seed: int = 0, gamma: float | None = None, gaps: str = "pairwise",
-                  workers: int | None = None, keep_before=None, keep_after=None,
-                  compared=None, keep_unmeasured: bool = False,
-                  weighted: bool = False) -> SplitTallies:
+def split_tallies(alignment: Alignment, labels: Sequence[str], *, replicates: int, model: str, objective: str,
+                  method: str = "nj", seed: int = 0, gamma: float | None = None, gaps: str = "pairwise",
+                  workers: int | None = None, keep_before: Sequence[str] | None = None,
+                  keep_after: Sequence[str] | None = None, compared: Sequence[str] | None = None,
+                  keep_unmeasured: bool = False, weighted: bool = False) -> SplitTallies:
     """Tally, over bootstrap replicates, the splits (and their lengths) of the replicate trees.
 
     Parameters
@@ -256,8 +262,8 @@ def split_tallies(alignment, labels, *, replicates: int, model: str, objective: 
     return out
 
 
-def add_support(res, alignment, *, replicates: int, model: str, objective: str, seed: int = 0,
-                gamma: float | None = None, gaps: str = "pairwise", workers: int | None = None,
+def add_support(res: ImpactResult, alignment: Alignment | str, *, replicates: int, model: str, objective: str,
+                seed: int = 0, gamma: float | None = None, gaps: str = "pairwise", workers: int | None = None,
                 clamp_negative: bool = False, keep_unmeasured: bool = False,
                 weighted: bool = False) -> SplitTallies:
     """Add split support to an :class:`~seqdist.impact.compare.ImpactResult` (in place).
