@@ -7,9 +7,11 @@ Three ratios, each against a reference measured in the same run (minimum of
 1. A warm small command, ``seqdist audit`` of a 4x4 matrix, against
    ``python -c "import numpy, scipy.sparse, pandas"`` (target: at most 1.5).
 2. The first run after install against a warm run: before the first run the
-   package's own ``__pycache__`` folders are removed (its byte-code and, for a
-   JIT version, its kernel cache), as right after install; the libraries keep
-   the byte-code pip wrote for them. The warm run reuses what the first wrote.
+   package's own ``__pycache__`` folders are emptied (for a JIT version, that
+   empties its kernel cache) and its byte-code is written again, which is the
+   state right after ``pip install`` (pip byte-compiles what it installs; this
+   package's build does the same for an editable install). The warm run reuses
+   what the first wrote.
    Measured for the 4x4 audit and for ``seqdist run`` of the demo alignment
    (target: at most 1.5).
 3. ``seqdist repair --objective shrink`` at n = 1500, the whole command,
@@ -25,6 +27,7 @@ Usage: python tests/benchmarks/bench_startup.py [--reps 5] [--old REV] [--n 1500
 from __future__ import annotations
 
 import argparse
+import compileall
 import os
 import shutil
 import subprocess
@@ -53,10 +56,16 @@ pd.DataFrame(X, index=f.index, columns=f.columns).to_csv(sys.argv[2], sep="\t", 
 BASE_ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
 
 
+#: Every child runs in a neutral folder: ``python -m seqdist`` puts the working directory first on
+#: ``sys.path``, so run from a checkout it would import that checkout's package whatever
+#: ``PYTHONPATH`` says (an earlier version of this script measured the new package as the old).
+NEUTRAL = tempfile.mkdtemp(prefix="seqdist-bench-cwd-")
+
+
 def wall(cmd: list[str], env: dict | None = None) -> float:
     env = BASE_ENV if env is None else env
     t = time.perf_counter()
-    p = subprocess.run(cmd, capture_output=True, text=True, env=env)
+    p = subprocess.run(cmd, capture_output=True, text=True, env=env, cwd=NEUTRAL)
     took = time.perf_counter() - t
     if p.returncode != 0:
         raise SystemExit(f"failed: {' '.join(cmd)}\n{p.stderr[-2000:]}")
@@ -69,12 +78,13 @@ def seqdist_cmd(root: str, *args: str) -> tuple[list[str], dict]:
 
 
 def fresh_caches(env: dict, root: str) -> dict:
-    """The state right after install: no cache of the package's own (its byte-code and, for a JIT
-    version, the kernels' cache, both kept in ``__pycache__`` folders). The libraries it uses keep
-    the byte-code pip wrote when it installed them."""
+    """The state right after install: the package's byte-code written (as ``pip install .`` does,
+    and as this package's build does for ``pip install -e .``), and no other cache of its own
+    (for a JIT version, the kernels' cache, also kept in ``__pycache__`` folders, is emptied)."""
     for folder, subdirs, _ in os.walk(os.path.join(root, "seqdist")):
         if "__pycache__" in subdirs:
             shutil.rmtree(os.path.join(folder, "__pycache__"))
+    compileall.compile_dir(os.path.join(root, "seqdist"), quiet=1)
     return {k: v for k, v in env.items() if k != "NUMBA_CACHE_DIR"}
 
 
@@ -101,6 +111,10 @@ def measure(root: str, label: str, reps: int, n: int, tmp: str) -> dict:
                             "--quiet")
     run_out = os.path.join(tmp, "run")
     run, _ = seqdist_cmd(root, "run", DEMO, "--outdir", run_out, "--quiet")
+    where = subprocess.run([sys.executable, "-c", "import seqdist; print(seqdist.__file__)"], env=env,
+                           cwd=NEUTRAL, capture_output=True, text=True).stdout.strip()
+    if not where.startswith(root):  # the package measured must be the one named
+        raise SystemExit(f"{label}: imported {where}, not the package under {root}")
     ref = [sys.executable, os.path.join(tmp, "ref.py"), big, os.path.join(tmp, "r.tsv")]
 
     first_audit, first_run = [], []
