@@ -46,6 +46,9 @@ def _common_flags() -> argparse.ArgumentParser:
                         help="no progress bars or warnings on standard error")
     common.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                         help="show the traceback of internal faults")
+    common.add_argument("--progress", action="store_true", default=argparse.SUPPRESS,
+                        help="progress lines on standard error even when it is not a terminal "
+                             "(by default only on a terminal)")
     return common
 
 
@@ -75,9 +78,10 @@ def main(argv: list[str] | None = None) -> int:
         parser = build_parser()
         args = parser.parse_args(argv)
         debug = bool(getattr(args, "debug", False))
-        from seqdist.core.console import install_warning_printer, set_quiet
+        from seqdist.core.console import install_warning_printer, set_progress, set_quiet
 
         set_quiet(bool(getattr(args, "quiet", False)))
+        set_progress(True if getattr(args, "progress", False) else None)
         install_warning_printer()
         if not getattr(args, "func", None):
             parser.print_help(sys.stderr)
