@@ -29,7 +29,7 @@ from __future__ import annotations
 
 import dataclasses
 from dataclasses import dataclass, field
-from typing import Sequence
+from typing import Any, Sequence
 
 import numpy as np
 
@@ -208,7 +208,7 @@ def _check_freqs(freqs, k: int, what: str) -> np.ndarray:
     return f / f.sum()
 
 
-def hky85(kappa: float = 2.0, frequencies: Sequence[float] | None = None, **renamed) -> Model:
+def hky85(kappa: float = 2.0, frequencies: Sequence[float] | None = None, **renamed: Any) -> Model:
     """HKY85 (Hasegawa, Kishino & Yano 1985): ``q_ij = pi_j * kappa`` for transitions, ``pi_j`` otherwise.
 
     Parameters
@@ -253,7 +253,7 @@ def k80(kappa: float = 2.0) -> Model:
     return hky85(kappa, None)
 
 
-def protein_poisson(frequencies: Sequence[float] | str | None = None, **renamed) -> Model:
+def protein_poisson(frequencies: Sequence[float] | str | None = None, **renamed: Any) -> Model:
     """Equal-rates protein model: ``q_ij = pi_j`` (the Poisson model when frequencies are equal).
 
     With ``frequencies`` (20 values in the order ``ACDEFGHIKLMNPQRSTVWY``) this is
@@ -284,7 +284,7 @@ def protein_poisson(frequencies: Sequence[float] | str | None = None, **renamed)
 
 
 def make_model(alphabet: str = "dna", model: str | None = None, kappa: float = 2.0,
-               frequencies: Sequence[float] | str | None = None, **renamed) -> Model:
+               frequencies: Sequence[float] | str | None = None, **renamed: Any) -> Model:
     """The model by name (``k80``, ``hky85``, ``poisson``, ``poisson-f``) with alphabet checks.
 
     Defaults: ``k80`` for DNA (``hky85`` when frequencies are given), ``poisson``
@@ -447,7 +447,7 @@ class TrueTree:
 
 
 def random_tree(n: int, rng, branch_mean: float = 0.05, ultrametric: bool = False, label_prefix: str = "t",
-                **renamed) -> TrueTree:
+                **renamed: Any) -> TrueTree:
     """A random rooted binary tree with ``n`` leaves labelled ``{label_prefix}01..``.
 
     The topology is coalescent-like: lineages are joined two at a time,
@@ -618,7 +618,7 @@ def simulate(taxa: int, columns: int, alphabet: str = "dna", seed=0, *, model: s
              kappa: float = 2.0, frequencies: Sequence[float] | str | None = None, gamma: float | None = None,
              gamma_categories: int = 4, branch_mean: float = 0.05, ultrametric: bool = False,
              indel_rate: float = 0.0, indel_length: float = 3.0, label_prefix: str = "t",
-             **renamed) -> Simulation:
+             **renamed: Any) -> Simulation:
     """Simulate an alignment of ``taxa`` sequences with exactly ``columns`` columns.
 
     The keyword names are those of the command line's options (``--gamma``,
