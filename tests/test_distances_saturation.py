@@ -342,7 +342,7 @@ def test_simulated_missing_entries_equal_undefined_pairs(gaps):
     # K80): 3 missing entries where 6 pairs are undefined by their integer counts (Kimura 1980).
     from seqdist.simulate import simulate
 
-    sim = simulate(8, 30, seed=3, scale=0.3, gap_rate=0.02)
+    sim = simulate(8, 30, seed=3, branch_mean=0.3, indel_rate=0.02)
     aln = Alignment.from_sequences(*zip(*sim.records))
     for model in ("jc69", "k80", "f81", "tn84", "t92", "tn93", "logdet"):
         want = _undefined_by_counts(aln, model, gaps == "complete")
@@ -368,8 +368,8 @@ def test_simulated_missing_entries_equal_undefined_pairs(gaps):
 
 def test_simulated_regression_through_the_command_line(cli, tmp_path):
     fa = tmp_path / "sim.fasta"
-    p = cli("simulate", "-o", str(fa), "--tree-out", str(tmp_path / "t.nwk"), "--taxa", "8", "--length", "30",
-            "--seed", "3", "--scale", "0.3", "--gap-rate", "0.02", "--quiet")
+    p = cli("simulate", "-o", str(fa), "--tree-out", str(tmp_path / "t.nwk"), "--taxa", "8", "--columns", "30",
+            "--seed", "3", "--branch-mean", "0.3", "--indels", "0.02", "--quiet")
     assert p.returncode == 0, p.stderr
     from seqdist.io.alignment import read_alignment
 

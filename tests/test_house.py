@@ -113,23 +113,24 @@ def test_parameter_errors_name_the_parameter_in_python_and_the_flag_on_the_comma
 
     with pytest.raises(ParameterError) as err:
         simulate(2, 10, seed=1)
-    assert str(err.value) == "parameter 'n_taxa' must be an integer from 3 to 20000, got 2"
+    assert str(err.value) == "parameter 'taxa' must be an integer from 3 to 20000, got 2"
     with pytest.raises(ParameterError) as err:
-        simulate(5, 10, seed=1, gap_rate=1e6)
-    assert str(err.value).startswith("parameter 'gap_rate' 1e+06 with parameter 'gap_length' 3 means about")
-    p = run_cli("simulate", "--taxa", 5, "--length", 10, "--gap-rate", 1e6, "-o", tmp_path / "a.fasta",
+        simulate(5, 10, seed=1, indel_rate=1e6)
+    assert str(err.value).startswith("parameter 'indel_rate' 1e+06 with parameter 'indel_length' 3 means about")
+    p = run_cli("simulate", "--taxa", 5, "--columns", 10, "--indels", 1e6, "-o", tmp_path / "a.fasta",
                 "--tree-out", tmp_path / "t.nwk")
     assert p.returncode == 2 and p.stderr.count("\n") == 1
-    assert p.stderr.startswith("seqdist: error: --gap-rate 1e+06 with --gap-length 3 means about")
-    assert p.stderr.rstrip().endswith("lower --gap-rate or --gap-length")
+    assert p.stderr.startswith("seqdist: error: --indels RATE 1e+06 with --indels MEAN_LENGTH 3 means about")
+    assert p.stderr.rstrip().endswith("lower --indels RATE or --indels MEAN_LENGTH")
     assert "parameter '" not in p.stderr and not os.path.exists(tmp_path / "a.fasta")
 
 
 @pytest.mark.parametrize("name, flag, value, call", [
-    ("n_taxa", "--taxa", 2, lambda v: __import__("seqdist.simulate").simulate.simulate(v, 10, seed=1)),
-    ("length", "--length", 0, lambda v: __import__("seqdist.simulate").simulate.simulate(5, v, seed=1)),
-    ("scale", "--scale", 0, lambda v: __import__("seqdist.simulate").simulate.simulate(5, 10, seed=1, scale=v)),
-    ("gap_rate", "--gap-rate", -1, lambda v: __import__("seqdist.simulate").simulate.simulate(5, 10, gap_rate=v)),
+    ("taxa", "--taxa", 2, lambda v: __import__("seqdist.simulate").simulate.simulate(v, 10, seed=1)),
+    ("columns", "--columns", 0, lambda v: __import__("seqdist.simulate").simulate.simulate(5, v, seed=1)),
+    ("branch_mean", "--branch-mean", 0,
+     lambda v: __import__("seqdist.simulate").simulate.simulate(5, 10, seed=1, branch_mean=v)),
+    ("kappa", "--kappa", -1, lambda v: __import__("seqdist.simulate").simulate.simulate(5, 10, kappa=v)),
 ])
 def test_a_range_is_declared_once_and_refused_in_the_same_words(tmp_path, name, flag, value, call):
     # the library and the command line read one declaration (seqdist.core.params.Number), so the
@@ -140,10 +141,10 @@ def test_a_range_is_declared_once_and_refused_in_the_same_words(tmp_path, name, 
         call(value)
     library = str(err.value)
     assert library.startswith(f"parameter '{name}' must be ")
-    args = {"n_taxa": 5, "length": 10, name: value}
-    argv = ["simulate", "--taxa", args["n_taxa"], "--length", args["length"], "-o", tmp_path / "a.fa",
+    args = {"taxa": 5, "columns": 10, name: value}
+    argv = ["simulate", "--taxa", args["taxa"], "--columns", args["columns"], "-o", tmp_path / "a.fa",
             "--tree-out", tmp_path / "t.nwk"]
-    if name not in ("n_taxa", "length"):
+    if name not in ("taxa", "columns"):
         argv += [flag, value]
     else:
         argv[argv.index(flag) + 1] = value

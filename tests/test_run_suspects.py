@@ -55,7 +55,7 @@ def planted_labels(sim):
 def planted(tmp_path_factory):
     """A 24-taxon alignment with a planted chimera and a contaminant, and the default run on it."""
     d = tmp_path_factory.mktemp("planted")
-    p = run_cli("simulate", "-o", d / "aln.fasta", "--tree-out", d / "aln.true.nwk", "--taxa", 24, "--length",
+    p = run_cli("simulate", "-o", d / "aln.fasta", "--tree-out", d / "aln.true.nwk", "--taxa", 24, "--columns",
                 1000, "--seed", 1, "--chimera", "auto", "--contaminant", "auto", "--summary-out", d / "sim.json",
                 "--quiet")
     assert p.returncode == 0, p.stderr

@@ -24,7 +24,7 @@ from seqdist.core.errors import SeqdistError
 
 # In the order of the contract's table; a module that is not there yet is skipped.
 #: Python parameters whose flag is not ``--`` + the name with ``-`` for ``_``.
-_FLAGS = {"n_taxa": "--taxa", "replicates": "--bootstrap"}
+_FLAGS = {"replicates": "--bootstrap"}
 
 COMMANDS = ["distances", "scores", "audit", "repair", "tree", "impact", "run", "convert", "simulate", "pairscores"]
 

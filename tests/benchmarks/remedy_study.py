@@ -162,9 +162,9 @@ def make_replicate(scenario: str, index: int, seed: int = 1, alpha: float | None
         st["alpha"] = float(alpha)
     rng = replicate_rng(seed, scenario, index)
     kappa = float(rng.uniform(*st["kappa_range"]))
-    sim = S.simulate(st["taxa"], st["columns"], "dna", rng, model=st["model"], kappa=kappa, alpha=st["alpha"],
-                     rate_categories=st["rate_categories"], scale=st["scale"], gap_rate=st["gap_rate"],
-                     gap_length=st["gap_length"])
+    sim = S.simulate(st["taxa"], st["columns"], "dna", rng, model=st["model"], kappa=kappa, gamma=st["alpha"],
+                     gamma_categories=st["rate_categories"], branch_mean=st["scale"],
+                     indel_rate=st["gap_rate"], indel_length=st["gap_length"])
     planted: list = []
     if scenario == "chimera":
         for _ in range(st["chimeras"]):
