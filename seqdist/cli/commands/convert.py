@@ -16,7 +16,7 @@ def register(subs, common):
                        "Compressed input (gzip, bz2) is recognised by its first bytes; an output\n"
                        "path ending in .gz or .bz2 is written compressed.\n\n"
                        "examples:\n  seqdist convert dist.tsv -o dist.txt --out-format square\n"
-                       "  seqdist convert dist.tsv.gz -o dist.npz\n  seqdist convert dist.npz -o dist.nex")
+                       "  seqdist convert dist.tsv -o dist.npz\n  seqdist convert dist.npz -o dist.nex.gz")
     p.add_argument("matrix", help="input matrix file ('-' for standard input)")
     add_matrix_in(p)
     add_matrix_out(p)
