@@ -162,7 +162,7 @@ def test_unknown_names_list_the_registry():
     with pytest.raises(InputError, match=r"unknown model 'nope' \(DNA: p, jc69, k80, f81, tn84, t92, tn93, "
                                          r"logdet; protein: p, poisson, kimura\)"):
         check_options("dna", "nope", None, "pairwise", "alignment", "skip")
-    with pytest.raises(InputError, match=r"unknown matrix format 'xml' \(choose from tsv, csv, square, lower\)"):
+    with pytest.raises(InputError, match=r"unknown matrix format 'xml' \(choose from tsv, csv, square, lower, nexus, npz\)"):
         mat_io.format_matrix(_small(), "xml")
     with pytest.raises(InputError, match="unknown alignment format 'xml' .choose from clustal, emboss, fasta,"):
         aln_io.read_alignment(os.path.join(EXAMPLES, "protein_small.sto"), "xml")
@@ -172,7 +172,7 @@ def test_unknown_names_list_the_registry():
 DOC_TABLES = [
     ("docs/distances.md", models.model_table, models.REGISTRY),
     ("docs/distances.md", aln_io.format_table, aln_io.REGISTRY),
-    ("docs/distances.md", mat_io.format_table, mat_io.REGISTRY),
+    ("docs/formats.md", mat_io.format_table, mat_io.REGISTRY),
     ("docs/scores.md", score_mx.transform_table, score_mx.TRANSFORMS),
     ("docs/scores.md", score_pw.formula_table, score_pw.REGISTRY),
 ]
@@ -340,12 +340,12 @@ def test_each_matrix_format_reads_what_it_writes_and_is_found_again(fmt, tmp_pat
     for ext in entry.extensions:
         assert mat_io.matrix_format(f"d{ext}") == fmt
         path = tmp_path / f"d{ext}"
-        path.write_text(entry.writer(dm))
+        (path.write_bytes if entry.binary else path.write_text)(entry.writer(dm))
         assert np.array_equal(mat_io.read_matrix(str(path)).values, dm.values, equal_nan=True)
     # a file without a known extension is read as this format when the entry recognises its shape,
     # else as the default (tsv); an explicit format always wins
     path = tmp_path / "noext"
-    path.write_text(entry.writer(dm))
+    (path.write_bytes if entry.binary else path.write_text)(entry.writer(dm))
     if entry.recognise is not None or fmt == mat_io.DEFAULT_FORMAT:
         assert np.array_equal(mat_io.read_matrix(str(path)).values, dm.values, equal_nan=True)
     else:
@@ -369,7 +369,7 @@ def _toy_matrix_format():
 
 
 def test_a_new_matrix_format_is_one_entry(monkeypatch, tmp_path, capsys):
-    # The shape issue 18 needs (NEXUS next): registering an entry is all it takes for the readers,
+    # The shape issue 18 needs (NEXUS and npz were added this way): registering an entry is all it takes for the readers,
     # the writers, the guessing by extension and by content, and the command line's choices.
     from seqdist.cli import main
 
