@@ -857,7 +857,7 @@ def _impact_reads(options) -> tuple:
     return ("alignment",) + (("truth",) if options["truth"] else ()) + tuple(_written_keys(options))
 
 
-def job_options(alignment: str, **options) -> dict:
+def job_options(alignment: str, **options: object) -> dict:
     """The options of a job, checked, with the defaults filled in and the reference tree found.
 
     Keys are those of :data:`OPTION_DEFAULTS`; ``truth="auto"`` becomes the tree found by
@@ -965,7 +965,7 @@ def _publish(job: _Job, steps) -> dict:
 
 
 def run_step(alignment: str, outdir: str, step: str, *, workers: int | None = None, progress: bool = True,
-             **options) -> dict:
+             **options: object) -> dict:
     """Run one step of the job, reading its inputs from ``outdir`` and writing its files there.
 
     This is what each rule of the Snakemake workflow runs (``seqdist run ALIGNMENT --outdir DIR
