@@ -1,7 +1,7 @@
 """seqdist: distance matrices from sequence alignments and score matrices.
 
 The package is layered, each layer importing only those below it
-(docs/contributing.md has the picture):
+(DEVELOPERS.md has the picture):
 
 * :mod:`seqdist.core` - the labelled matrix and tree types, errors, the console;
 * :mod:`seqdist.io` - matrix files and output staging, alignments, Newick;
@@ -41,6 +41,8 @@ _LAZY = {
     "read_matrix": "seqdist.io.matrices",
     "write_matrix": "seqdist.io.matrices",
     "read_newick": "seqdist.io.newick",
+    "read_tree_file": "seqdist.io.nexus_trees",
+    "majority_consensus": "seqdist.trees.consensus",
     "pairwise_distances": "seqdist.models.distances",
     "find_suspects": "seqdist.audit.suspects",
     "AuditReport": "seqdist.audit.report",

@@ -11,11 +11,17 @@ when a function here is called, so ``import seqdist`` never needs it.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING, Sequence
+
 import numpy as np
 
+from seqdist.core.matrix import DistanceMatrix
 from seqdist.core.tree import Tree
 from seqdist.report.html import HIGHLIGHT, MID_RGB, NEG_RGB, PLAIN, POS_RGB, layout_trees
 from seqdist.trees.compare import nontrivial, splits
+
+if TYPE_CHECKING:  # matplotlib is optional: only for the annotations
+    from matplotlib.axes import Axes
 
 __all__ = ["plot_tree", "plot_trees", "plot_change_heatmap", "INSTALL_HINT"]
 
@@ -68,8 +74,8 @@ def _draw(lay, ax, highlight: set, color: str, linewidth: float, fontsize: float
     ax.set_xlabel("branch length")
 
 
-def plot_tree(tree: Tree, ax=None, *, outgroup: str | None = None, color: str = PLAIN, linewidth: float = 1.2,
-              fontsize: float | None = None):
+def plot_tree(tree: Tree, ax: "Axes | None" = None, *, outgroup: str | None = None, color: str = PLAIN,
+              linewidth: float = 1.2, fontsize: float | None = None) -> "Axes":
     """Draw one tree as a rectangular phylogram; the x axis is the branch length.
 
     Unrooted trees are rooted for drawing at the middle of the branch to
@@ -108,9 +114,9 @@ def plot_tree(tree: Tree, ax=None, *, outgroup: str | None = None, color: str = 
     return ax
 
 
-def plot_trees(tree_a: Tree, tree_b: Tree, axes=None, same_scale: bool = True, *,
+def plot_trees(tree_a: Tree, tree_b: Tree, axes: "Sequence[Axes] | None" = None, same_scale: bool = True, *,
                names: tuple[str, str] = ("before", "after"), outgroup: str | None = None,
-               highlight: bool = True, linewidth: float = 1.2, fontsize: float | None = None):
+               highlight: bool = True, linewidth: float = 1.2, fontsize: float | None = None) -> "list[Axes]":
     """Draw two trees side by side, on one scale, with the splits found in only one of them in colour.
 
     Both trees are rooted for drawing on the same reference taxon (``outgroup``,
@@ -187,8 +193,9 @@ def _aligned(before, after, order):
     return [str(k) for k in idx], b[np.ix_(idx, idx)], a[np.ix_(idx, idx)]
 
 
-def plot_change_heatmap(before, after, ax=None, order=None, *, colorbar: bool = True,
-                        missing_color: str = "#787878"):
+def plot_change_heatmap(before: DistanceMatrix, after: DistanceMatrix, ax: "Axes | None" = None,
+                        order: Sequence[str] | None = None, *, colorbar: bool = True,
+                        missing_color: str = "#787878") -> "Axes":
     """Draw ``after - before`` as a heatmap: blue decreased, white unchanged, red increased.
 
     The colour scale is symmetric about zero and square-root (small changes
