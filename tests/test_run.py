@@ -4,13 +4,10 @@ from __future__ import annotations
 
 import json
 import os
-import shutil
-import subprocess
-import sys
 
 import pytest
 
-from conftest import EXAMPLES, ROOT, open_text
+from conftest import EXAMPLES, open_text
 
 ALIGNMENTS = ["dna_clean.fasta", "protein.fasta", "dna_trouble.fasta", "protein_small.sto"]
 EXPECTED = ["distances.tsv", "sites.tsv", "variance.tsv", "distances.json", "audit.json", "audit.txt",
@@ -92,29 +89,3 @@ def test_run_bad_input(tmp_path):
     assert not (tmp_path / "out").exists() or os.listdir(tmp_path / "out") == []
     p = run_cli("run", os.path.join(EXAMPLES, "dna_clean.fasta"), "--outdir", tmp_path / "o2", "--objective", "nope")
     assert p.returncode == 2 and "nope" in p.stderr
-
-
-@pytest.mark.skipif(shutil.which("snakemake") is None and
-                    not os.path.exists(os.path.join(os.path.dirname(sys.executable), "snakemake")),
-                    reason="snakemake is in the test extra")
-def test_snakemake_workflow(tmp_path):
-    """The real workflow on the demo data, as the README runs it (separate rules, logs)."""
-    snake = shutil.which("snakemake") or os.path.join(os.path.dirname(sys.executable), "snakemake")
-    data = tmp_path / "data"
-    data.mkdir()
-    for f in ("dna_trouble.fasta", "dna_trouble.true.nwk", "protein_small.sto"):
-        shutil.copy(os.path.join(EXAMPLES, f), data / f)
-    env = dict(os.environ)
-    env["PATH"] = os.path.dirname(sys.executable) + os.pathsep + env.get("PATH", "")
-    cmd = [snake, "-s", os.path.join(ROOT, "workflows", "Snakefile"), "--cores", "2", "--quiet",
-           "--config", f"input_dir={data}", f"results={tmp_path / 'results'}"]
-    p = subprocess.run(cmd, capture_output=True, text=True, cwd=tmp_path, env=env, timeout=900)
-    assert p.returncode == 0, p.stdout[-3000:] + p.stderr[-3000:]
-    for name in ("dna_trouble", "protein_small"):
-        res = tmp_path / "results" / name
-        for f in ("distances.tsv", "audit.json", "repaired.tsv", "changes.tsv", "tree_measured.nwk",
-                  "tree_repaired.nwk", "impact.json", "report.html"):
-            assert (res / f).exists(), f"{name}/{f}"
-        assert (res / "logs" / "repair.log").exists()
-    imp = json.loads(open_text(tmp_path / "results" / "dna_trouble" / "impact.json"))
-    assert "rf_to_truth_after" in imp
