@@ -62,6 +62,9 @@ FILES = {
     # the other choice about the suspects, for comparison (one of the two, when there are suspects)
     "tree_with_suspects": "tree_with_suspects.nwk",
     "tree_without_suspects": "tree_without_suspects.nwk",
+    # with --bootstrap: the majority-rule consensus of the replicates' trees (support in percent)
+    "consensus_before": "consensus_before.nwk",
+    "consensus_after": "consensus_after.nwk",
     "impact_json": "impact.json",
     "report": "report.html",
     "manifest": "manifest.json",
@@ -437,7 +440,8 @@ class Step:
     writes : callable
         ``writes(options) -> tuple`` of the keys of :data:`FILES` it always writes with these options.
     may_write : tuple of str
-        Keys it writes or not depending on the data (the other choice about suspect sequences).
+        Keys it writes or not depending on the data (the other choice about suspect sequences; the
+        bootstrap consensus trees, made when a replicate gave that tree).
     """
 
     name: str
@@ -745,10 +749,11 @@ def _step_impact(job: _Job) -> None:
         # the two choices about the suspects, on the taxa both trees hold
         table.rf_with_without_suspects = table.rf_between[1][2]
         ires.report.remedies = table
+    tallies = None
     if o["bootstrap"]:
         from seqdist.impact.support import add_support
 
-        add_support(ires, job.alignment(), replicates=o["bootstrap"], model=dj["model"], objective=objective,
+        tallies = add_support(ires, job.alignment(), replicates=o["bootstrap"], model=dj["model"], objective=objective,
                     seed=o["seed"], gamma=o["gamma"], gaps=o["gaps"], workers=job.workers,
                     keep_unmeasured=o["keep_unmeasured"], weighted=weighted)
     job.seconds["trees"] = time.perf_counter() - t
@@ -767,6 +772,11 @@ def _step_impact(job: _Job) -> None:
     job.keep("tree_after", ires.tree_after.to_newick())
     if other_tree is not None:
         job.keep("tree_with_suspects" if drop else "tree_without_suspects", other_tree.to_newick())
+    if tallies is not None:  # None of a side only when no replicate gave that tree
+        for which in ("before", "after"):
+            con = tallies.consensus(which)
+            if con is not None:
+                job.keep(f"consensus_{which}", con.to_newick())
     job.keep("impact_json", _js(irep))
     name = os.path.basename(alignment)
     job.keep("report", render_html(
@@ -836,7 +846,7 @@ STEPS = (
     Step("impact", "trees before and after repair compared, the report page and the manifest",
          tuple(OPTION_DEFAULTS), lambda options: _impact_reads(options),
          _all("tree_before", "tree_after", "impact_json", "report", "manifest"),
-         ("tree_with_suspects", "tree_without_suspects"), _step_impact),
+         ("tree_with_suspects", "tree_without_suspects", "consensus_before", "consensus_after"), _step_impact),
 )
 _STEPS_BY_NAME = {s.name: s for s in STEPS}
 #: The names of the steps, in order.

@@ -89,3 +89,48 @@ def test_run_bad_input(tmp_path):
     assert not (tmp_path / "out").exists() or os.listdir(tmp_path / "out") == []
     p = run_cli("run", os.path.join(EXAMPLES, "dna_clean.fasta"), "--outdir", tmp_path / "o2", "--objective", "nope")
     assert p.returncode == 2 and "nope" in p.stderr
+
+
+def test_run_bootstrap_writes_the_consensus_of_the_replicates(tmp_path):
+    """--bootstrap: the majority-rule consensus trees (Margush & McMorris 1981, "Consensus n-trees")
+    hold exactly the replicates' splits above one half, with their support in percent; each split
+    also named in impact.json carries the same support there (as a fraction)."""
+    from seqdist.io.newick import read_newick_file
+
+    from conftest import run_cli
+
+    out = tmp_path / "bs"
+    p = run_cli("run", os.path.join(EXAMPLES, "protein_small.sto"), "--outdir", out, "--bootstrap", 5, "--quiet")
+    assert p.returncode == 0, p.stderr
+    imp = json.loads(open_text(out / "impact.json"))
+    taxa = set(imp["taxa"]) if "taxa" in imp else None
+    for which in ("before", "after"):
+        tree = read_newick_file(str(out / f"consensus_{which}.nwk"))
+        every = set(tree.labels())
+        taxa = taxa or every
+        assert every == taxa
+        in_json = {frozenset(s["taxa"]): s[f"support_{which}"] for s in imp["support"]["splits"]}
+        checked = 0
+        for node in tree.preorder():
+            if node.is_leaf or node is tree.root:
+                continue
+            below = frozenset(leaf.name for leaf in _leaves(node))
+            assert node.support is not None and 50 < node.support <= 100
+            side = below if below in in_json else frozenset(every - below)
+            if side in in_json:
+                assert node.support == pytest.approx(100 * in_json[side])
+                checked += 1
+        assert checked >= 3
+    manifest = json.loads(open_text(out / "manifest.json"))
+    assert "consensus_after.nwk" in manifest["outputs"]
+
+
+def _leaves(node):
+    stack, found = [node], []
+    while stack:
+        n = stack.pop()
+        if n.is_leaf:
+            found.append(n)
+        else:
+            stack.extend(n.children)
+    return found
