@@ -9,6 +9,8 @@ so library users can filter them (``warnings.simplefilter("error",
 SeqdistWarning)``); the command line prints them as ``seqdist: warning: ...``.
 """
 
+from typing import Callable
+
 
 class SeqdistError(Exception):
     """Base class of the errors seqdist reports to users."""
@@ -42,8 +44,8 @@ class ParameterError(InputError):
     ("parameter 'taxa' x parameter 'length' is too many cells", '--taxa x --length is too many cells')
     """
 
-    def __init__(self, parameter: str, allowed: str | None = None, got=None, *, template: str | None = None,
-                 parameters: tuple = ()):
+    def __init__(self, parameter: str, allowed: str | None = None, got: object = None, *,
+                 template: str | None = None, parameters: tuple[str, ...] = ()) -> None:
         self.parameter = parameter
         self.parameters = tuple(parameters) or (parameter,)
         self.template = template if template is not None else (
@@ -56,7 +58,7 @@ class ParameterError(InputError):
         """An error with a free-form ``template`` naming ``parameters`` as ``{name}`` fields."""
         return cls(parameters[0], template=template, parameters=parameters)
 
-    def render(self, name_of) -> str:
+    def render(self, name_of: Callable[[str], str]) -> str:
         """The message with each parameter named by ``name_of(parameter)``."""
         return self.template.format(**{p: name_of(p) for p in self.parameters})
 

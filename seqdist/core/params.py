@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Callable
 
 from seqdist.core.errors import ParameterError
 
@@ -62,7 +63,7 @@ class Number:
             parts.append(f"below {_g(hi)}" if self.hi_open else f"at most {_g(hi)}")
         return " ".join([what, " and ".join(parts)]) if parts else what
 
-    def ok(self, value) -> bool:
+    def ok(self, value: object) -> bool:
         """Whether ``value`` is of the kind and in the range."""
         if isinstance(value, (bool, str)):
             return False
@@ -84,13 +85,13 @@ class Number:
             return False
         return not (self.hi is not None and (value >= self.hi if self.hi_open else value > self.hi))
 
-    def check(self, name: str, value):
+    def check(self, name: str, value: object) -> int | float:
         """``value`` (as ``kind``) if it is allowed, else a :class:`ParameterError` naming ``name``."""
         if not self.ok(value):
             raise ParameterError(name, self.allowed(), value)
         return self.kind(value)
 
-    def parse(self, name: str, text: str):
+    def parse(self, name: str, text: str) -> int | float:
         """The value of an option's text, checked (a :class:`ParameterError` naming ``name``).
 
         Examples
@@ -110,14 +111,14 @@ class Number:
             raise ParameterError(name, self.allowed(), text if self.kind is float else value)
         return value
 
-    def argtype(self, name: str):
+    def argtype(self, name: str) -> Callable[[str], int | float]:
         """An argparse ``type=``: parses and checks the option's text; a bad value is one usage error.
 
         The command line's parser turns the message into ``--flag must be ...``.
         """
         import argparse
 
-        def convert(text: str):
+        def convert(text: str) -> int | float:
             try:
                 return self.parse(name, text)
             except ParameterError:

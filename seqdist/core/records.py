@@ -12,21 +12,25 @@ from __future__ import annotations
 
 import dataclasses
 from dataclasses import field
+from typing import Any, TypeVar
 
 __all__ = ["optional", "present_with", "nested", "record_dict", "record_from_dict"]
 
+#: the record class read by record_from_dict
+_R = TypeVar("_R")
 
-def optional(**kwargs):
+
+def optional(**kwargs: Any) -> Any:  # Any, as dataclasses.field: the default of a field of any type
     """A field whose key is written only when its value is not None (None means "absent")."""
     return field(default=None, metadata={"optional": True, **kwargs.pop("metadata", {})}, **kwargs)
 
 
-def present_with(anchor: str):
+def present_with(anchor: str) -> Any:
     """A field whose key is written exactly when field ``anchor`` is not None (its own value may be None)."""
     return field(default=None, metadata={"present_with": anchor})
 
 
-def nested(record, many: bool = False, is_optional: bool = False):
+def nested(record: type, many: bool = False, is_optional: bool = False) -> Any:
     """A field holding a record (``many``: a list of records) written as its own dict."""
     meta = {"record": record, "many": many}
     if is_optional:
@@ -51,7 +55,7 @@ def _plain(value):
     return value
 
 
-def record_dict(record) -> dict:
+def record_dict(record: object) -> dict[str, Any]:
     """The JSON document of a report record: its fields in order, absent optional keys left out.
 
     Lists and dicts are copied (changing the document does not change the
@@ -70,7 +74,7 @@ def record_dict(record) -> dict:
     return {f.name: _plain(getattr(record, f.name)) for f in dataclasses.fields(record) if _written(record, f)}
 
 
-def record_from_dict(cls, data: dict, what: str | None = None):
+def record_from_dict(cls: type[_R], data: dict, what: str | None = None) -> _R:
     """The record of class ``cls`` from its JSON document (the inverse of :func:`record_dict`).
 
     Raises

@@ -35,11 +35,14 @@ import io
 import os
 import re
 from dataclasses import dataclass, field
-from typing import Callable, Sequence
+from typing import TYPE_CHECKING, Callable, Sequence
 
 import numpy as np
 
 from seqdist.core.errors import InputError
+
+if TYPE_CHECKING:  # only for the annotations
+    from numpy.typing import ArrayLike
 
 __all__ = ["AlignmentFormat", "REGISTRY", "alignment_formats", "sniffed_format_names", "alignment_format_help",
            "format_table", "Alignment", "read_alignment", "guess_alphabet", "guess_path_format"]
@@ -290,7 +293,7 @@ class Alignment:
         """Boolean (L,): columns unambiguous in every sequence."""
         return self.residue_mask().all(axis=0)
 
-    def take_columns(self, columns) -> "Alignment":
+    def take_columns(self, columns: ArrayLike) -> "Alignment":
         """A new alignment of the given columns (indices, repeats allowed, or a boolean mask).
 
         Bootstrap resampling is ``aln.take_columns(rng.integers(0, aln.length, aln.length))``.

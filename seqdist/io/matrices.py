@@ -32,7 +32,7 @@ import re
 import sys
 import tempfile
 from dataclasses import dataclass, field
-from typing import Callable, Iterator
+from typing import Any, Callable, Iterator
 
 import numpy as np
 
@@ -1293,7 +1293,7 @@ class OutputSet:
         """Stage a matrix file (format by option, else extension, else tsv, said at commit)."""
         self.add_text(path, format_matrix(dm, matrix_format(path, fmt)))
 
-    def add_json(self, path: str, obj) -> None:
+    def add_json(self, path: str, obj: object) -> None:
         """Stage a JSON document (keys in insertion order, two-space indent)."""
         self.add_text(path, json.dumps(to_jsonable(obj), indent=2, allow_nan=False) + "\n")
 
@@ -1444,7 +1444,7 @@ def _umask() -> int:
     return mask
 
 
-def to_jsonable(obj):
+def to_jsonable(obj: object) -> Any:
     """Convert numpy scalars/arrays (and NaN/inf, as None) for JSON output."""
     if isinstance(obj, dict):
         return {str(k): to_jsonable(v) for k, v in obj.items()}
