@@ -138,7 +138,7 @@ def _ultra_worst(d, row_ub):
 
 
 # ------------------------------------------------------------- collection
-def collect_triangles(d: np.ndarray, hard: float, pair_hard: np.ndarray, cap: int):
+def collect_triangles(d: np.ndarray, hard: float, pair_hard: np.ndarray, cap: int) -> tuple[np.ndarray, np.ndarray]:
     """Violated triangles with excess above ``hard``: all of them when there
     are at most ``cap``, else up to ``cap`` spread evenly over the first
     index (each row ``i`` gives at most ``cap / rows`` triangles, in order).

@@ -23,9 +23,14 @@ references are in tests/test_repair_taxa.py.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 
 from seqdist.kernels import _kept_graph
+
+if TYPE_CHECKING:  # only for the annotations
+    from numpy.typing import ArrayLike
 
 __all__ = ["dijkstra_kernel", "shortest_tree", "path_from_tree", "path_between", "insert_ok", "insert_edge",
            "sweep_nearest", "violated_triangles", "triangle_sides", "greedy_hitting", "packing_bound"]
@@ -105,7 +110,7 @@ def path_between(W: np.ndarray, s: int, t: int) -> list[int] | None:
 
 
 # ------------------------------------------------- growing the kept set
-def insert_ok(A, D, check, i, j, w, tol) -> bool:
+def insert_ok(A: np.ndarray, D: np.ndarray, check: np.ndarray, i: int, j: int, w: float, tol: float) -> bool:
     """True when adding edge (i, j) of length ``w`` keeps ``D <= A' + tol`` on ``check``.
 
     ``A`` holds the shortest paths of the graph, ``D`` the entries to keep
@@ -120,7 +125,7 @@ def insert_ok(A, D, check, i, j, w, tol) -> bool:
     return _kept_graph.insert_ok(_f64(A), _f64(D), _u8(check), int(i), int(j), float(w), float(tol))
 
 
-def insert_edge(A, i, j, w) -> np.ndarray:
+def insert_edge(A: np.ndarray, i: int, j: int, w: float) -> np.ndarray:
     """Update shortest paths ``A`` in place for a new edge (i, j) of length ``w``; returns ``A``.
 
     Examples
@@ -139,7 +144,8 @@ def insert_edge(A, i, j, w) -> np.ndarray:
 
 
 # ------------------------------------------------------ nearest values
-def sweep_nearest(X: np.ndarray, ei, ej, target, lower, tol: float, max_sweeps: int = 50) -> int:
+def sweep_nearest(X: np.ndarray, ei: ArrayLike, ej: ArrayLike, target: ArrayLike, lower: ArrayLike, tol: float,
+                  max_sweeps: int = 50) -> int:
     """Move entries ``(ei, ej)`` of the metric ``X`` towards ``target`` (in place).
 
     Each entry in turn takes the value nearest its target inside the interval
@@ -205,7 +211,8 @@ def triangle_sides(tri: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]
 
 
 # ------------------------------------------------------ greedy hitting
-def greedy_hitting(n: int, tri: np.ndarray, cand: np.ndarray, w: np.ndarray, alive=None, bias=None):
+def greedy_hitting(n: int, tri: np.ndarray, cand: np.ndarray, w: np.ndarray, alive: np.ndarray | None = None,
+                   bias: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Greedy weighted hitting set over triangles; returns (edge ids i*n+j, counts at pick time).
 
     ``cand[t, s]`` (s = 0, 1, 2 for the sides (i, j), (i, k), (j, k) of

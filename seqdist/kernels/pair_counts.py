@@ -24,9 +24,12 @@ column against one byte compare).
 
 from __future__ import annotations
 
-from typing import Sequence
+from typing import TYPE_CHECKING, Callable, Sequence
 
 import numpy as np
+
+if TYPE_CHECKING:  # only for the annotations
+    from numpy.typing import DTypeLike
 
 __all__ = ["tile_plan", "column_chunks", "feature_products", "onehot_cross", "equal_counts", "recode"]
 
@@ -57,15 +60,16 @@ def tile_plan(n: int, bytes_per_pair: int, budget: int) -> list[tuple[int, int]]
     return plan
 
 
-def column_chunks(length: int, rows: int, features: int, itemsize: int, budget: int = 64 << 20):
+def column_chunks(length: int, rows: int, features: int, itemsize: int,
+                  budget: int = 64 << 20) -> list[tuple[int, int]]:
     """Column ranges so that ``rows x chunk x features`` feature values fit ``budget`` bytes."""
     step = max(64, budget // max(1, rows * features * itemsize))
     return [(c0, min(length, c0 + step)) for c0 in range(0, length, step)]
 
 
 def feature_products(codes: np.ndarray, i0: int, i1: int, tables: np.ndarray,
-                     specs: Sequence[Sequence[int]], dtype=np.float32, chunk_budget: int = 64 << 20,
-                     on_chunk=None) -> list[np.ndarray]:
+                     specs: Sequence[Sequence[int]], dtype: DTypeLike = np.float32, chunk_budget: int = 64 << 20,
+                     on_chunk: Callable[[], object] | None = None) -> list[np.ndarray]:
     """Symmetric feature products for the tile rows ``[i0, i1)`` x columns ``[i0, n)``.
 
     Parameters
@@ -116,8 +120,8 @@ def feature_products(codes: np.ndarray, i0: int, i1: int, tables: np.ndarray,
     return acc  # type: ignore[return-value]
 
 
-def onehot_cross(codes: np.ndarray, i0: int, i1: int, table: np.ndarray, dtype=np.float32,
-                 chunk_budget: int = 64 << 20, on_chunk=None) -> np.ndarray:
+def onehot_cross(codes: np.ndarray, i0: int, i1: int, table: np.ndarray, dtype: DTypeLike = np.float32,
+                 chunk_budget: int = 64 << 20, on_chunk: Callable[[], object] | None = None) -> np.ndarray:
     """Per-pair K x K count matrices for the tile rows ``[i0, i1)`` x columns ``[i0, n)``.
 
     ``table`` is (K, 256): the weight of each code on each of K residues

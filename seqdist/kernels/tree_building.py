@@ -27,7 +27,8 @@ def _work_array(a: np.ndarray, name: str) -> np.ndarray:
     return a
 
 
-def nj_kernel(D: np.ndarray, V: np.ndarray, bionj: bool, sorted_rows: bool):
+def nj_kernel(D: np.ndarray, V: np.ndarray, bionj: bool,
+              sorted_rows: bool) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Neighbor joining / BIONJ on the (n, n) array D (overwritten).
 
     sorted_rows=False: every step scans the lower triangle (with a cheap
@@ -80,7 +81,7 @@ def nj_kernel(D: np.ndarray, V: np.ndarray, bionj: bool, sorted_rows: bool):
     return _nj(D, V, bool(bionj), bool(sorted_rows))
 
 
-def upgma_kernel(D: np.ndarray):
+def upgma_kernel(D: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """UPGMA (average linkage) on the (n, n) array D (overwritten).
 
     Each row caches its nearest active neighbour (smallest distance, ties by
