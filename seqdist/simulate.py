@@ -446,8 +446,8 @@ class TrueTree:
                         self.children.copy())
 
 
-def random_tree(n: int, rng, branch_mean: float = 0.05, ultrametric: bool = False, label_prefix: str = "t",
-                **renamed: Any) -> TrueTree:
+def random_tree(n: int, rng: int | np.random.Generator | None, branch_mean: float = 0.05, ultrametric: bool = False,
+                label_prefix: str = "t", **renamed: Any) -> TrueTree:
     """A random rooted binary tree with ``n`` leaves labelled ``{label_prefix}01..``.
 
     The topology is coalescent-like: lineages are joined two at a time,
@@ -605,7 +605,7 @@ class Simulation:
     def sequence(self, label: str) -> str:
         return self.records[self.index(label)][1]
 
-    def replace(self, **changes) -> "Simulation":
+    def replace(self, **changes: Any) -> "Simulation":
         return dataclasses.replace(self, **changes)
 
 
@@ -614,10 +614,10 @@ _SIMULATE_DEFAULTS = {"model": None, "kappa": 2.0, "frequencies": None, "gamma":
                       "label_prefix": "t"}
 
 
-def simulate(taxa: int, columns: int, alphabet: str = "dna", seed=0, *, model: str | None = None,
-             kappa: float = 2.0, frequencies: Sequence[float] | str | None = None, gamma: float | None = None,
-             gamma_categories: int = 4, branch_mean: float = 0.05, ultrametric: bool = False,
-             indel_rate: float = 0.0, indel_length: float = 3.0, label_prefix: str = "t",
+def simulate(taxa: int, columns: int, alphabet: str = "dna", seed: int | np.random.Generator = 0, *,
+             model: str | None = None, kappa: float = 2.0, frequencies: Sequence[float] | str | None = None,
+             gamma: float | None = None, gamma_categories: int = 4, branch_mean: float = 0.05,
+             ultrametric: bool = False, indel_rate: float = 0.0, indel_length: float = 3.0, label_prefix: str = "t",
              **renamed: Any) -> Simulation:
     """Simulate an alignment of ``taxa`` sequences with exactly ``columns`` columns.
 
@@ -842,7 +842,7 @@ def _set_sequence(sim: Simulation, label: str, seq: str) -> list:
 
 
 def plant_gappy(sim: Simulation, label: str | None = None, fraction: float = 0.7, runs: int = 5,
-                rng=None) -> Simulation:
+                rng: int | np.random.Generator | None = None) -> Simulation:
     """Turn residues of one sequence into gaps, in ``runs`` blocks, until ``fraction`` of its columns are gaps.
 
     Parameters
@@ -889,7 +889,7 @@ def plant_gappy(sim: Simulation, label: str | None = None, fraction: float = 0.7
 
 
 def plant_chimera(sim: Simulation, label: str | None = None, donor: str | None = None, split: float = 0.5,
-                  rng=None) -> Simulation:
+                  rng: int | np.random.Generator | None = None) -> Simulation:
     """Replace the columns from ``split * L`` on of ``label`` with those of a distant ``donor``.
 
     The row then carries its own history in the first part and the donor's in
@@ -936,7 +936,7 @@ def plant_chimera(sim: Simulation, label: str | None = None, donor: str | None =
 
 
 def plant_saturated_pair(sim: Simulation, pair: Sequence[str] | None = None, extra: float = 50.0,
-                         rng=None) -> Simulation:
+                         rng: int | np.random.Generator | None = None) -> Simulation:
     """Put two taxa at the end of very long branches, so their pair is past saturation.
 
     Each residue of both taxa evolves ``extra`` more expected substitutions
@@ -1001,7 +1001,7 @@ MISREAD_HOWS = ("random", "shift")
 
 
 def plant_misread(sim: Simulation, label: str | None = None, stretches: int = 3, stretch_length: int = 50,
-                  how: str = "random", shift: int = 1, rng=None) -> Simulation:
+                  how: str = "random", shift: int = 1, rng: int | np.random.Generator | None = None) -> Simulation:
     """Replace a few stretches of one row by misread residues.
 
     ``stretches`` non-overlapping stretches of ``stretch_length`` columns are
@@ -1084,7 +1084,7 @@ def plant_misread(sim: Simulation, label: str | None = None, stretches: int = 3,
     return sim.replace(records=_set_sequence(sim, label, new), planted=sim.planted + [note])
 
 
-def consensus(records: Sequence[tuple[str, str]], letters: str, rng=None) -> str:
+def consensus(records: Sequence[tuple[str, str]], letters: str, rng: int | np.random.Generator | None = None) -> str:
     """The column-wise majority residue of an alignment (gaps ignored).
 
     Ties are broken at random (seeded), so no letter is favoured; a column
@@ -1105,7 +1105,7 @@ def consensus(records: Sequence[tuple[str, str]], letters: str, rng=None) -> str
 
 
 def plant_contaminant(sim: Simulation, label: str | None = None, distance: float = 0.5,
-                      rng=None) -> Simulation:
+                      rng: int | np.random.Generator | None = None) -> Simulation:
     """Replace one row by a contaminant: the alignment's consensus mutated along a long branch.
 
     The column-wise consensus (:func:`consensus`) sits near the centre of the

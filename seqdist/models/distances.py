@@ -31,6 +31,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 from fractions import Fraction
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -38,6 +39,9 @@ from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix
 from seqdist.io.alignment import Alignment
 from seqdist.models import registry
+
+if TYPE_CHECKING:  # only for the annotations
+    from numpy.typing import ArrayLike
 
 __all__ = ["DistanceResult", "check_options", "pairwise_distances", "undefined_message", "distances_from_counts",
            "inverse_variance_weights"]
@@ -336,8 +340,9 @@ def undefined_message(result: DistanceResult, limit: int = 25, hint: str = "", w
             + (f" {hint}" if hint and k > len(parts) else ""))
 
 
-def distances_from_counts(N, model: str, *, gamma: float | None = None, base_frequencies=None,
-                          variance: bool = True):
+def distances_from_counts(N: ArrayLike, model: str, *, gamma: float | None = None,
+                          base_frequencies: ArrayLike | None = None,
+                          variance: bool = True) -> tuple[np.ndarray, np.ndarray | None, np.ndarray]:
     """Evaluate a model on per-pair count (or frequency) matrices.
 
     Parameters
@@ -1038,7 +1043,7 @@ def _logdet(st, Sd, ctx):
     return d, var, sat, und
 
 
-def inverse_variance_weights(variance, matrix):
+def inverse_variance_weights(variance: DistanceMatrix, matrix: DistanceMatrix) -> DistanceMatrix:
     """Repair weights 1/variance, scaled to mean 1 over the observed entries.
 
     Poorly supported entries (large variance: few compared columns, near

@@ -23,11 +23,17 @@ import csv
 import math
 import os
 from dataclasses import dataclass, field
-from typing import Callable, Sequence
+from typing import TYPE_CHECKING, Callable, Sequence
 
 import numpy as np
 
 from seqdist.core.errors import InputError
+
+if TYPE_CHECKING:  # only for the annotations: Biopython and the matrix type are imported where they are used
+    from Bio.Align.substitution_matrices import Array
+    from numpy.typing import ArrayLike
+
+    from seqdist.core.matrix import DistanceMatrix
 
 # The 20 standard amino acids in the order of the BLOSUM and PAM files.
 AMINO20 = "ARNDCQEGHILKMFPSTWYV"
@@ -71,7 +77,7 @@ class ScoreMatrix:
     origin: str = "file"
 
     @classmethod
-    def from_array(cls, values, letters: Sequence[str], *, name: str = "matrix",
+    def from_array(cls, values: ArrayLike, letters: Sequence[str], *, name: str = "matrix",
                    origin: str = "array") -> "ScoreMatrix":
         """Validate an array and letters (square, unique letters, finite values).
 
@@ -125,7 +131,7 @@ class ScoreMatrix:
         """(S + S^T) / 2 as a new writable array."""
         return 0.5 * (self.values + self.values.T)
 
-    def to_biopython(self):
+    def to_biopython(self) -> Array:
         """The matrix as a ``Bio.Align.substitution_matrices.Array`` (one-character letters)."""
         from Bio.Align import substitution_matrices
 
@@ -778,7 +784,8 @@ def transform_table() -> str:
 
 
 def transform_scores(sm: ScoreMatrix, transform: str = DEFAULT_TRANSFORM, *, lam: float | None = None,
-                     freqs: np.ndarray | None = None):
+                     freqs: np.ndarray | None = None
+                     ) -> tuple[DistanceMatrix, list[tuple[str, str, float]], list[tuple[str, str]]]:
     """Turn a score matrix into a dissimilarity (see :data:`TRANSFORMS`).
 
     An asymmetric matrix is replaced by its symmetric part first. Negative

@@ -46,12 +46,15 @@ from __future__ import annotations
 import math
 import os
 from dataclasses import dataclass
-from typing import Sequence
+from typing import TYPE_CHECKING, Sequence
 
 import numpy as np
 
 from seqdist.core.errors import InputError
 from seqdist.core.params import POSITIVE_INT
+
+if TYPE_CHECKING:  # only for the annotations: the score matrices are imported where they are used
+    from seqdist.scores.matrices import ScoreMatrix
 
 
 @dataclass(frozen=True)
@@ -309,7 +312,8 @@ def formula_table() -> str:
 
 
 def distances_from_scores(scores: np.ndarray, random_scores: np.ndarray | None, formula: str,
-                          identical: np.ndarray | None = None):
+                          identical: np.ndarray | None = None
+                          ) -> tuple[np.ndarray, dict[tuple[int, int], str], dict[tuple[int, int], float]]:
     """Turn a square array of alignment scores into distances.
 
     Parameters
@@ -394,8 +398,8 @@ def _matrix_kind(letters) -> str | None:
     return None
 
 
-def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix=None, *, mode: str = "global",
-                    gap_open: float = 11.0, gap_extend: float = 1.0, formula: str = "fd",
+def score_distances(ids: Sequence[str], seqs: Sequence[str], matrix: str | ScoreMatrix | None = None, *,
+                    mode: str = "global", gap_open: float = 11.0, gap_extend: float = 1.0, formula: str = "fd",
                     free_end_gaps: bool = False, alphabet: str = "auto",
                     processes: int | None = 1, chunk_size: int | None = None, progress: bool = True,
                     source: str | None = None, record_lines: Sequence[int] | None = None) -> ScoreDistances:

@@ -29,12 +29,15 @@ by objective methods", Taxon 11:33-40)
 from __future__ import annotations
 
 import math
-from typing import Sequence
+from typing import TYPE_CHECKING, Iterable, Sequence
 
 import numpy as np
 
 from seqdist.core.errors import InputError
 from seqdist.core.tree import Tree
+
+if TYPE_CHECKING:  # only for the annotations
+    from seqdist.core.matrix import DistanceMatrix
 
 __all__ = ["common_taxa", "splits", "nontrivial", "split_labels", "sorted_splits", "robinson_foulds", "branch_score",
            "branch_score_splits", "cophenetic_correlation", "compare_trees"]
@@ -121,7 +124,7 @@ def split_labels(mask: int, taxa: Sequence[str]) -> list[str]:
     return sorted(taxa[k] for k, c in enumerate(bits) if c == "1")
 
 
-def sorted_splits(masks, taxa: Sequence[str]) -> list[list[str]]:
+def sorted_splits(masks: Iterable[int], taxa: Sequence[str]) -> list[list[str]]:
     """Splits as label lists, sorted by size then labels (deterministic)."""
     return sorted((split_labels(m, taxa) for m in masks), key=lambda s: (len(s), s))
 
@@ -160,7 +163,7 @@ def branch_score_splits(s1: dict[int, float], s2: dict[int, float]) -> float:
     return float(math.sqrt(float(np.dot(diffs, diffs)))) if keys else 0.0
 
 
-def cophenetic_correlation(tree: Tree, dm) -> float | None:
+def cophenetic_correlation(tree: Tree, dm: DistanceMatrix) -> float | None:
     """Pearson correlation between the tree's path lengths and the matrix
     (over all pairs; Sokal & Rohlf 1962). ``None`` when either is constant.
 
