@@ -14,7 +14,7 @@ import os
 import platform
 import time
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Callable
+from typing import TYPE_CHECKING, Callable, Iterable, Sequence, TypeVar
 
 from seqdist import __version__
 from seqdist.audit.suspects import REASON_PREFIX
@@ -25,6 +25,8 @@ from seqdist.repair.registry import WEIGHTED_OBJECTIVES
 
 if TYPE_CHECKING:  # the types of JobResult's fields, without importing them for `seqdist --help`
     from seqdist.audit.report import AuditReport
+    from seqdist.audit.suspects import SuspectReport
+    from seqdist.core.matrix import DistanceMatrix
     from seqdist.impact.compare import ImpactResult
     from seqdist.impact.result import ImpactReport
     from seqdist.models.distances import DistanceResult
@@ -35,6 +37,9 @@ __all__ = ["JobResult", "split_times", "check_outdir", "unmeasured_reasons", "rr
            "suspects_to_leave_out", "command_line", "find_truth", "OPTION_DEFAULTS", "resolve_weighted", "Step",
            "STEPS", "STEP_NAMES", "job_options", "step_arguments", "step_files", "run_step", "run_job",
            "find_alignments", "alignment_name", "left_out_section", "suspects_section", "job_section"]
+
+#: a report (or part of one) that split_times gives back cleaned, as the same type
+_Doc = TypeVar("_Doc")
 
 #: The default remedy of ``seqdist run``, chosen by the simulation study in
 #: docs/remedies.md: leave the suspect sequences out, then the shortest-path
@@ -113,7 +118,7 @@ class JobResult:
     seconds: dict = field(default_factory=dict)
 
 
-def split_times(obj, path: str = ""):
+def split_times(obj: _Doc, path: str = "") -> tuple[_Doc, dict[str, object]]:
     """Split wall-clock times (keys ``seconds`` or ``*_seconds``) out of a report.
 
     Returns the report without them and a flat dict of the times, so that
@@ -183,7 +188,7 @@ def check_outdir(outdir: str) -> None:
         raise InputError(f"{outdir}: {what}")
 
 
-def unmeasured_reasons(undefined, labels) -> dict:
+def unmeasured_reasons(undefined: Iterable[tuple[str, str, str]], labels: Sequence[str]) -> dict:
     """Why each taxon lacks distances: ``{label: "saturated against all 29 others"}``.
 
     ``undefined`` is the distances step's list of ``(label, label, reason)``.
@@ -214,14 +219,14 @@ def unmeasured_reasons(undefined, labels) -> dict:
     return out
 
 
-def rres_unmeasured(dm, keep_unmeasured: bool) -> list:
+def rres_unmeasured(dm: DistanceMatrix, keep_unmeasured: bool) -> list:
     """Taxa the repair leaves out as unmeasured (none when they are kept)."""
     from seqdist.repair import unmeasured_taxa
 
     return [] if keep_unmeasured else list(unmeasured_taxa(dm))
 
 
-def suspects_to_leave_out(dm, suspect_report, keep_unmeasured: bool = False) -> dict:
+def suspects_to_leave_out(dm: DistanceMatrix, suspect_report: SuspectReport, keep_unmeasured: bool = False) -> dict:
     """The suspects ``run`` leaves out by default: ``{label: reason}``.
 
     Suspects the repair leaves out anyway (no measured distance to the others)

@@ -24,12 +24,6 @@ from conftest import ROOT, open_text
 #: "module.name" or "module.Class.method" -> parameters (and "return") without an annotation
 #: at the time of writing. Delete an entry once it is annotated; never add one.
 KNOWN: dict[str, set[str]] = {
-    "seqdist.audit.report.audit": {"dm"},
-    "seqdist.audit.suspects.group_counts": {"aln"},
-    "seqdist.audit.suspects.find_suspects": {"dm", "audit_report", "alignment", "model", "gamma", "gaps"},
-    "seqdist.impact.compare.align": {"names"},
-    "seqdist.impact.compare.shared_labels": {"names"},
-    "seqdist.impact.compare.summary_lines": {"names"},
     "seqdist.kernels.convex.encode": {"i", "j", "k", "s", "return"},
     "seqdist.kernels.convex.decode": {"keys", "return"},
     "seqdist.kernels.convex.merge_active": {"ka", "la", "kb", "return"},
@@ -44,10 +38,6 @@ KNOWN: dict[str, set[str]] = {
     "seqdist.kernels.convex.denominators_tri": {"keys", "winv"},
     "seqdist.kernels.convex.violated_cycles": {"W", "src", "dst", "min_edges", "return"},
     "seqdist.kernels.convex.clamp_free": {"Y", "fi", "fj", "target"},
-    "seqdist.pipeline.split_times": {"obj", "return"},
-    "seqdist.pipeline.unmeasured_reasons": {"undefined", "labels"},
-    "seqdist.pipeline.rres_unmeasured": {"dm"},
-    "seqdist.pipeline.suspects_to_leave_out": {"dm", "suspect_report"},
     "seqdist.repair.repair": {"dm", "weights", "lock", "tol", "time_limit", "leave_out", "options"},
     "seqdist.repair.convex.rescale_solution": {"sol", "return"},
     "seqdist.repair.convex.setup": {"problem"},
@@ -92,7 +82,6 @@ KNOWN: dict[str, set[str]] = {
     "seqdist.repair.taxa.packing": {"order"},
     "seqdist.repair.taxa.fewest_taxa": {"labels"},
     "seqdist.repair.taxa.reference_fewest_taxa": {"labels"},
-    "seqdist.report.html.render_html": {"made_up_pairs", "extra_trees"},
 }
 
 #: methods checked besides the public ones

@@ -23,12 +23,16 @@ from __future__ import annotations
 import math
 import time
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix, default_tol
 from seqdist.core.params import Number
+
+if TYPE_CHECKING:  # only for the annotations
+    from numpy.typing import ArrayLike
 
 __all__ = ["AuditReport", "sample_quartets", "audit"]
 
@@ -618,7 +622,7 @@ def _lower_bound(d, n, hard, scan, collect_max, lp_max, lp_max_iter) -> dict:
 
 
 # ------------------------------------------------------------------ the API
-def audit(dm, tol: float | None = None, top: int = 10, seed: int = 0, *,
+def audit(dm: DistanceMatrix | ArrayLike, tol: float | None = None, top: int = 10, seed: int = 0, *,
           exact_quartets_max: int = 2_000_000, quartet_samples: int = 200_000,
           collect_max: int = 300_000, lp_max: int = 20_000, lp_max_iter: int | None = None,
           bounds: bool = True, suspects: bool = True) -> AuditReport:

@@ -53,11 +53,18 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from seqdist.core.errors import InputError
 from seqdist.core.matrix import DistanceMatrix
+
+if TYPE_CHECKING:  # only for the annotations: the audit and the alignment are imported where they are used
+    from numpy.typing import ArrayLike
+
+    from seqdist.audit.report import AuditReport
+    from seqdist.io.alignment import Alignment
 
 __all__ = ["REASON_PREFIX", "combine", "Suspect", "SuspectReport", "robust_z", "spearman_rows", "complete_core",
            "group_counts", "nearest_shift", "find_suspects"]
@@ -327,7 +334,7 @@ def _terminal_branches(dm: DistanceMatrix) -> np.ndarray:
     return out
 
 
-def group_counts(aln, groups: np.ndarray, n_groups: int) -> tuple[np.ndarray, np.ndarray]:
+def group_counts(aln: Alignment, groups: np.ndarray, n_groups: int) -> tuple[np.ndarray, np.ndarray]:
     """Per group of columns: shared columns and identical residues of every pair.
 
     Parameters
@@ -573,8 +580,9 @@ def _r(x) -> float | None:
 
 
 # ------------------------------------------------------------------ the API
-def find_suspects(dm, *, audit_report=None, alignment=None, model=None, gamma=None, gaps="pairwise",
-                  replicates: int = 0, seed: int = 0, threshold: float | None = None,
+def find_suspects(dm: DistanceMatrix | ArrayLike, *, audit_report: AuditReport | None = None,
+                  alignment: Alignment | None = None, model: str | None = None, gamma: float | None = None,
+                  gaps: str = "pairwise", replicates: int = 0, seed: int = 0, threshold: float | None = None,
                   blocks: int = BLOCKS) -> SuspectReport:
     """Rank the taxa by how bad they look, and name those above the threshold.
 

@@ -58,7 +58,8 @@ class ImpactResult:
     splits_after: set = field(default_factory=set)
 
 
-def align(before: DistanceMatrix, after: DistanceMatrix, names=("BEFORE", "AFTER")) -> DistanceMatrix:
+def align(before: DistanceMatrix, after: DistanceMatrix,
+          names: tuple[str, str] = ("BEFORE", "AFTER")) -> DistanceMatrix:
     """``after`` in ``before``'s label order; :class:`InputError` naming any
     label found in only one of them.
 
@@ -87,7 +88,8 @@ def _label_mismatch(before, after, names) -> str:
     return f"{names[0]} and {names[1]} must have the same labels (" + "; ".join(parts) + ")"
 
 
-def shared_labels(before: DistanceMatrix, after: DistanceMatrix, names=("BEFORE", "AFTER")) -> tuple[list, dict]:
+def shared_labels(before: DistanceMatrix, after: DistanceMatrix,
+                  names: tuple[str, str] = ("BEFORE", "AFTER")) -> tuple[list, dict]:
     """The labels of both matrices (in ``before``'s order) and the ones left out, with why.
 
     One matrix may lack taxa of the other (a repair leaves out taxa with no
@@ -377,7 +379,7 @@ def prune(tree: Tree, keep: set) -> Tree:
     return t
 
 
-def summary_lines(report: ImpactReport, names=("before", "after")) -> list[str]:
+def summary_lines(report: ImpactReport, names: tuple[str, str] = ("before", "after")) -> list[str]:
     """A short plain-language summary (for standard output and the html page).
 
     Every figure is on the ``n_compared`` taxa both trees hold; taxa left

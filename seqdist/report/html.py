@@ -27,6 +27,7 @@ import re
 import struct
 import zlib
 from dataclasses import dataclass
+from typing import Collection, Iterable
 
 import numpy as np
 
@@ -607,8 +608,8 @@ def _split_rows(split_list, support, taxa, limit=60) -> str:
 
 def render_html(res: ImpactResult, names: tuple[str, str] = ("before", "after"), title: str | None = None,
                 outgroup: str | None = None, preamble: str | None = None, reference: str | None = None,
-                command: str | None = None, made_up_pairs=None, lead: str | None = None,
-                extra_trees=None) -> str:
+                command: str | None = None, made_up_pairs: Collection[tuple[str, str]] | None = None,
+                lead: str | None = None, extra_trees: Iterable[tuple[str, Tree]] | None = None) -> str:
     """The whole page as text (see module docs).
 
     ``preamble`` is trusted html placed after the summary and caution (the
