@@ -21,14 +21,24 @@ changed entries with any result you publish.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING, Any, Iterable, Sequence
+
 from seqdist.repair.engine import ALTERED_NOTE, RepairResult, format_changes, load_objective, unmeasured_taxa
 from seqdist.repair.registry import OBJECTIVE_GUIDE, OBJECTIVES, REGISTRY, WEIGHTED_OBJECTIVES
 from seqdist.repair.result import RepairReport
 
+if TYPE_CHECKING:  # only for the annotations
+    import numpy as np
+    from numpy.typing import ArrayLike
 
-def repair(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, seed: int = 0,
-           keep_unmeasured: bool = False, unmeasured_reasons: dict | None = None, source: str | None = None,
-           weights_source: str | None = None, leave_out=None, **options) -> RepairResult:
+    from seqdist.core.matrix import DistanceMatrix
+
+
+def repair(dm: DistanceMatrix | ArrayLike, objective: str, weights: DistanceMatrix | ArrayLike | None = None,
+           lock: np.ndarray | Sequence[tuple[str | int, str | int]] | None = None, tol: float | None = None,
+           time_limit: float | None = None, seed: int = 0, keep_unmeasured: bool = False,
+           unmeasured_reasons: dict | None = None, source: str | None = None, weights_source: str | None = None,
+           leave_out: str | Iterable[str] | dict[str, str] | None = None, **options: Any) -> RepairResult:
     """Return a metric close to ``dm`` under ``objective``.
 
     Parameters

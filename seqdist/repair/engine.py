@@ -34,6 +34,7 @@ give the objective and the list of changes with any result they publish.
 from __future__ import annotations
 
 import time
+from typing import TYPE_CHECKING, Any, Callable, Iterable, Mapping, Sequence
 
 import numpy as np
 
@@ -46,6 +47,12 @@ from seqdist.repair.problem import RepairProblem, Solution
 # the objective registry's names, re-exported for the engine's callers
 from seqdist.repair.registry import OBJECTIVE_GUIDE, OBJECTIVES, WEIGHTED_OBJECTIVES  # noqa: F401
 from seqdist.repair.result import RepairReport
+
+if TYPE_CHECKING:  # only for the annotations: pandas and the work budget are imported where they are used
+    import pandas as pd
+    from numpy.typing import ArrayLike
+
+    from seqdist.repair.problem import Budget
 
 __all__ = ["RepairResult", "load_objective", "check_options", "as_matrix", "weights_array",
            "lock_mask", "build_problem", "describe_path", "check_locks", "fill_missing", "measured_groups",
@@ -96,7 +103,7 @@ class RepairResult:
                                         self._tol, self._no_evidence)
         return self._changes
 
-    def changes_frame(self):
+    def changes_frame(self) -> pd.DataFrame:
         """The changes as a pandas DataFrame (columns ``label_a, label_b, before, after, change, how``).
 
         Examples
@@ -122,7 +129,7 @@ class RepairResult:
 
 
 # ------------------------------------------------------------- dispatch
-def load_objective(name: str):
+def load_objective(name: str) -> Callable[[RepairProblem], Solution]:
     """The ``solve`` function of objective ``name`` (see :mod:`seqdist.repair.registry`).
 
     Raises
@@ -154,14 +161,15 @@ def check_options(name: str, options: dict | None) -> dict:
 
 
 # ---------------------------------------------------------------- input
-def as_matrix(dm) -> DistanceMatrix:
+def as_matrix(dm: DistanceMatrix | ArrayLike) -> DistanceMatrix:
     """A :class:`DistanceMatrix` from a matrix or anything array-like (validated)."""
     if isinstance(dm, DistanceMatrix):
         return dm
     return DistanceMatrix.from_array(dm)
 
 
-def weights_array(weights, dm: DistanceMatrix, observed: np.ndarray, source: str = "weights") -> np.ndarray:
+def weights_array(weights: DistanceMatrix | ArrayLike | None, dm: DistanceMatrix, observed: np.ndarray,
+                  source: str = "weights") -> np.ndarray:
     """Validated per-entry weights (1 by default; 0 on missing entries and the diagonal).
 
     ``weights`` may be None, a :class:`DistanceMatrix` with the same labels
@@ -204,7 +212,8 @@ def weights_array(weights, dm: DistanceMatrix, observed: np.ndarray, source: str
     return w
 
 
-def lock_mask(lock, dm: DistanceMatrix, observed: np.ndarray) -> np.ndarray:
+def lock_mask(lock: np.ndarray | Sequence[tuple[str | int, str | int]] | None, dm: DistanceMatrix,
+              observed: np.ndarray) -> np.ndarray:
     """Symmetric boolean mask of locked entries.
 
     ``lock`` may be None, an (n, n) boolean array, or a sequence of pairs of
@@ -238,8 +247,11 @@ def lock_mask(lock, dm: DistanceMatrix, observed: np.ndarray) -> np.ndarray:
     return mask
 
 
-def build_problem(dm: DistanceMatrix, weights=None, lock=None, tol=None, time_limit=None, seed=0,
-                  options=None, progress=None, weights_source: str = "weights") -> RepairProblem:
+def build_problem(dm: DistanceMatrix, weights: DistanceMatrix | ArrayLike | None = None,
+                  lock: np.ndarray | Sequence[tuple[str | int, str | int]] | None = None, tol: float | None = None,
+                  time_limit: float | None = None, seed: int = 0, options: Mapping[str, Any] | None = None,
+                  progress: Callable[[float | None, str | None], object] | None = None,
+                  weights_source: str = "weights") -> RepairProblem:
     """Turn user input into a :class:`RepairProblem` (validated)."""
     D = np.array(dm.values, dtype=np.float64)
     observed = ~np.isnan(D)
@@ -531,7 +543,7 @@ def _change_arrays(D, X, observed, tol, no_evidence):
     return iu, ju, before, after, obs, how
 
 
-def change_rows(labels, D: np.ndarray, X: np.ndarray, observed: np.ndarray, tol: float,
+def change_rows(labels: Sequence[str], D: np.ndarray, X: np.ndarray, observed: np.ndarray, tol: float,
                 no_evidence: np.ndarray | None = None) -> list[tuple]:
     """``(label, label, before, after, change, how)`` for changed and filled entries (upper triangle).
 
@@ -591,7 +603,7 @@ def format_changes(rows: list[tuple]) -> str:
 
 def build_report(problem: RepairProblem, objective: str, X: np.ndarray, solution: Solution, fill: dict,
                  seconds: float, violated_before: tuple[int, float], objective_value: float,
-                 **taxa) -> RepairReport:
+                 **taxa: Any) -> RepairReport:
     """The :class:`RepairReport` of a finished repair.
 
     ``taxa`` holds the fields on the taxa left out or kept (``n_input``,
@@ -733,7 +745,8 @@ REASON_FEWEST = "in the fewest taxa whose removal leaves a metric"
 LEAVE_OUT_BUDGET = 30.0
 
 
-def leave_out_request(leave_out, dm: DistanceMatrix, source: str | None = None):
+def leave_out_request(leave_out: str | Iterable[str] | dict[str, str] | None, dm: DistanceMatrix,
+                      source: str | None = None) -> tuple[str | None, dict[str, str] | None, str | list[str] | None]:
     """Check a ``leave_out`` request; returns ``(kind, {label: reason} or None, what to report)``.
 
     ``kind`` is None, ``"labels"``, ``"suspects"`` or ``"fewest"``. Labels
@@ -782,7 +795,7 @@ def suspect_reasons(dm: DistanceMatrix) -> dict:
     return find_suspects(dm).reasons()
 
 
-def fewest_left_out(problem: RepairProblem, budget) -> tuple[dict, object]:
+def fewest_left_out(problem: RepairProblem, budget: Budget) -> tuple[dict, object]:
     """``({label: reason}, TaxaCover)``: the fewest taxa whose removal leaves no violated checked triangle."""
     from seqdist.repair.taxa import fewest_taxa
 
@@ -818,9 +831,11 @@ def check_magnitude(D: np.ndarray, weights: np.ndarray, source: str | None = Non
                          f"rescale the matrix, e.g. divide every entry by 1e{power}")
 
 
-def run(dm, objective: str, weights=None, lock=None, tol=None, time_limit=None, seed=0,
-        progress: bool = True, keep_unmeasured: bool = False, unmeasured_reasons: dict | None = None,
-        source: str | None = None, weights_source: str | None = None, leave_out=None, **options) -> RepairResult:
+def run(dm: DistanceMatrix | ArrayLike, objective: str, weights: DistanceMatrix | ArrayLike | None = None,
+        lock: np.ndarray | Sequence[tuple[str | int, str | int]] | None = None, tol: float | None = None,
+        time_limit: float | None = None, seed: int = 0, progress: bool = True, keep_unmeasured: bool = False,
+        unmeasured_reasons: dict | None = None, source: str | None = None, weights_source: str | None = None,
+        leave_out: str | Iterable[str] | dict[str, str] | None = None, **options: Any) -> RepairResult:
     """Repair ``dm`` under ``objective``; see :func:`seqdist.repair.repair`."""
     from seqdist.core.console import warn
     from seqdist.kernels.triangles import count_violations

@@ -53,7 +53,7 @@ import numpy as np
 
 from seqdist.kernels import kept_graph
 from seqdist.repair import hitting_set, kept_sets
-from seqdist.repair.problem import RepairProblem, Solution, validate_options
+from seqdist.repair.problem import Budget, RepairProblem, Solution, validate_options
 
 __all__ = ["make_feasible", "cut_locked", "values", "solve"]
 
@@ -61,7 +61,8 @@ __all__ = ["make_feasible", "cut_locked", "values", "solve"]
 OPTIONS = dict(hitting_set.OPTIONS)
 
 
-def make_feasible(problem: RepairProblem, S, F, budget=None):
+def make_feasible(problem: RepairProblem, S: np.ndarray, F: np.ndarray,
+                  budget: Budget | None = None) -> tuple[np.ndarray, np.ndarray, int]:
     """Grow ``S`` until ``F`` has no broken cycle (on copies). Returns (S, F, entries added).
 
     Each round computes shortest paths over ``F``; every unlocked kept entry
@@ -95,7 +96,8 @@ def make_feasible(problem: RepairProblem, S, F, budget=None):
         added += len(free) + cut
 
 
-def cut_locked(problem: RepairProblem, S, F, pairs, budget=None) -> int:
+def cut_locked(problem: RepairProblem, S: np.ndarray, F: np.ndarray, pairs: np.ndarray,
+               budget: Budget | None = None) -> int:
     """Remove unlocked entries from ``F`` (into ``S``, in place) until no locked
     entry of ``pairs`` is longer than its shortest kept path. Returns how many.
 
@@ -139,7 +141,7 @@ def cut_locked(problem: RepairProblem, S, F, pairs, budget=None) -> int:
     return removed
 
 
-def values(problem: RepairProblem, F, S_edges):
+def values(problem: RepairProblem, F: np.ndarray, S_edges: np.ndarray) -> tuple[np.ndarray, dict[str, int]]:
     """The second stage: values for the kept set ``F``; returns ``(X, report entries)``.
 
     Shortest paths over ``F``, then each changed entry moved to the value

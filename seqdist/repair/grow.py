@@ -49,7 +49,7 @@ from dataclasses import replace
 import numpy as np
 
 from seqdist.repair import hitting_set, kept_sets
-from seqdist.repair.problem import RepairProblem, Solution, validate_options
+from seqdist.repair.problem import Budget, RepairProblem, Solution, validate_options
 
 __all__ = ["make_feasible", "values", "solve"]
 
@@ -59,7 +59,8 @@ OPTIONS = dict(hitting_set.OPTIONS)
 OPTIONS["exact_max_n"] = replace(hitting_set.OPTIONS["exact_max_n"], default=60)
 
 
-def make_feasible(problem: RepairProblem, S, F, budget=None):
+def make_feasible(problem: RepairProblem, S: np.ndarray, F: np.ndarray,
+                  budget: Budget | None = None) -> tuple[np.ndarray, np.ndarray, int]:
     """Grow ``S`` until every observed entry is at most its shortest kept path.
 
     Each round: shortest paths over ``F``; one shortest kept path for every
@@ -104,7 +105,7 @@ def make_feasible(problem: RepairProblem, S, F, budget=None):
             alive = [q for q in alive if best not in sets[q]]
 
 
-def values(problem: RepairProblem, F, S_edges):
+def values(problem: RepairProblem, F: np.ndarray, S_edges: np.ndarray) -> tuple[np.ndarray, dict[str, float]]:
     """The second stage: least total increase for the kept set ``F``; returns ``(X, report entries)``.
 
     From the shortest paths over ``F`` (the largest admissible values), each

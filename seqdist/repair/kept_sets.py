@@ -26,12 +26,17 @@ from __future__ import annotations
 
 import contextlib
 import os
+from typing import TYPE_CHECKING, Callable, Collection, Iterable, Iterator, Sequence
 
 import numpy as np
 
 from seqdist.kernels import kept_graph
 from seqdist.kernels.shortest_paths import apsp
 from seqdist.repair.problem import Budget
+
+if TYPE_CHECKING:  # only for the annotations: scipy is imported where it is used
+    from scipy.optimize import OptimizeResult
+    from scipy.sparse import spmatrix
 
 __all__ = ["mip_cost", "mip_nodes", "cost_apsp", "cost_dijkstra", "kept_paths", "broken_edges", "sym", "prune",
            "complete", "paths_for", "path_edges", "quiet_stdout", "milp", "lazy_hitting_set", "lp_bound",
@@ -105,7 +110,8 @@ def sym(mask: np.ndarray) -> np.ndarray:
     return m | m.T
 
 
-def prune(D, F, S_edges, keys, check_all: bool, tol: float, budget: Budget | None = None):
+def prune(D: np.ndarray, F: np.ndarray, S_edges: np.ndarray, keys: np.ndarray, check_all: bool, tol: float,
+          budget: Budget | None = None) -> np.ndarray:
     """Return entries of ``S_edges`` to the kept set ``F`` where possible (in place on F).
 
     Parameters
@@ -158,7 +164,8 @@ def prune(D, F, S_edges, keys, check_all: bool, tol: float, budget: Budget | Non
     return np.array(stay, dtype=np.int64).reshape(-1, 2)
 
 
-def complete(D, F, S_edges, tol, lower=None, sweeps: int = 50):
+def complete(D: np.ndarray, F: np.ndarray, S_edges: np.ndarray, tol: float, lower: np.ndarray | None = None,
+             sweeps: int = 50) -> tuple[np.ndarray, int]:
     """Values for a feasible kept set ``F``: a metric equal to ``D`` on ``F``.
 
     Start from the shortest paths over ``F`` (the largest such metric;
@@ -208,7 +215,7 @@ def path_edges(path: list[int], n: int) -> list[int]:
 
 
 @contextlib.contextmanager
-def quiet_stdout():
+def quiet_stdout() -> Iterator[None]:
     """Send file descriptor 1 to /dev/null while a solver runs.
 
     HiGHS (inside scipy) can print diagnostics from C straight to standard
@@ -233,7 +240,7 @@ def quiet_stdout():
         os.close(devnull)
 
 
-def milp(c, A, options: dict):
+def milp(c: np.ndarray, A: np.ndarray | spmatrix, options: dict) -> OptimizeResult:
     """scipy's ``milp`` (HiGHS) on ``min c z, A z >= 1, z binary``.
 
     Only work limits go in ``options`` (``node_limit``), never ``time_limit``:
@@ -248,8 +255,11 @@ def milp(c, A, options: dict):
                     bounds=(0, 1), options=dict(options))
 
 
-def lazy_hitting_set(n, w, cuts, separate, incumbent, budget: Budget, progress=None,
-                     max_rounds: int = 500, log=None, mip_scale: float = 1.0):
+def lazy_hitting_set(n: int, w: np.ndarray, cuts: Iterable[Collection[int]],
+                     separate: Callable[[list[int]], tuple[Sequence[Collection[int]], Collection[int] | None]],
+                     incumbent: tuple[Iterable[int], float], budget: Budget,
+                     progress: Callable[[float | None, str | None], object] | None = None, max_rounds: int = 500,
+                     log: list[dict] | None = None, mip_scale: float = 1.0) -> dict:
     """Exact weighted hitting set of broken cycles with lazy cuts.
 
     Parameters
@@ -380,7 +390,8 @@ def lazy_hitting_set(n, w, cuts, separate, incumbent, budget: Budget, progress=N
 
 
 def lp_bound(n: int, cuts_tri: np.ndarray, cand: np.ndarray, w: np.ndarray, budget: Budget,
-             max_rows: int = 300000, return_x: bool = False):
+             max_rows: int = 300000,
+             return_x: bool = False) -> float | None | tuple[float | None, np.ndarray | None]:
     """LP relaxation of the hitting set over the triangle rows (a lower bound), or None.
 
     ``cuts_tri`` holds (i, j, k) triangles and ``cand`` which of the sides
@@ -458,12 +469,12 @@ def unscale_weights(details: dict, value: float, lb: float, wexp: int) -> tuple[
     return float(np.ldexp(value, -wexp)), float(np.ldexp(lb, -wexp))
 
 
-def edges_to_ids(edges, n: int) -> list:
+def edges_to_ids(edges: np.ndarray | Iterable[tuple[int, int]], n: int) -> list:
     """Edge ids ``i * n + j`` of ``(i, j)`` pairs."""
     return [int(a) * n + int(b) for a, b in edges]
 
 
-def ids_to_mask(ids, n: int) -> np.ndarray:
+def ids_to_mask(ids: Iterable[int], n: int) -> np.ndarray:
     """The symmetric (n, n) mask of a set of edge ids."""
     S = np.zeros((n, n), dtype=bool)
     S.flat[np.asarray(list(ids), dtype=np.int64)] = True

@@ -13,8 +13,12 @@ from __future__ import annotations
 
 import importlib
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, Callable
 
 from seqdist.core.errors import InputError
+
+if TYPE_CHECKING:  # only for the annotations: the objectives' modules are imported by name
+    from seqdist.repair.problem import RepairProblem, Solution
 
 __all__ = ["Objective", "REGISTRY", "OBJECTIVES", "WEIGHTED_OBJECTIVES", "OBJECTIVE_GUIDE", "get", "objective_guide"]
 
@@ -44,7 +48,7 @@ class Objective:
     hurts: str
     uses_weights: bool = True
 
-    def solver(self):
+    def solver(self) -> Callable[[RepairProblem], Solution]:
         """The objective's ``solve(problem) -> Solution``."""
         return importlib.import_module(self.module).solve
 

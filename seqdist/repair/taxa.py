@@ -55,6 +55,7 @@ from __future__ import annotations
 import itertools
 import math
 from dataclasses import dataclass, field
+from typing import Sequence
 
 import numpy as np
 
@@ -145,7 +146,7 @@ def _counts(D: np.ndarray, tol: float, alive: np.ndarray) -> np.ndarray:
     return buf.sum(axis=0)
 
 
-def taxon_counts(D: np.ndarray, tol: float, alive=None) -> np.ndarray:
+def taxon_counts(D: np.ndarray, tol: float, alive: np.ndarray | None = None) -> np.ndarray:
     """Violated checked triangles through each taxon (among ``alive`` taxa only).
 
     Parameters
@@ -167,7 +168,7 @@ def taxon_counts(D: np.ndarray, tol: float, alive=None) -> np.ndarray:
     return _counts(D, float(tol), _mask(alive, D.shape[0]))
 
 
-def violated_taxon_triangles(D: np.ndarray, tol: float, alive=None) -> np.ndarray:
+def violated_taxon_triangles(D: np.ndarray, tol: float, alive: np.ndarray | None = None) -> np.ndarray:
     """(m, 3) array of the violated checked triangles ``(i, j, k)``, i < j < k, among ``alive`` taxa.
 
     Examples
@@ -187,7 +188,7 @@ def violated_taxon_triangles(D: np.ndarray, tol: float, alive=None) -> np.ndarra
     return out
 
 
-def preference_positions(counts: np.ndarray, labels=None) -> np.ndarray:
+def preference_positions(counts: np.ndarray, labels: Sequence[str] | None = None) -> np.ndarray:
     """Position of each taxon in the preference order: more violated triangles first, then by label.
 
     Examples
@@ -206,7 +207,8 @@ def preference_positions(counts: np.ndarray, labels=None) -> np.ndarray:
     return pos
 
 
-def greedy_cover(D: np.ndarray, tol: float, pos: np.ndarray, alive=None) -> tuple[np.ndarray, int]:
+def greedy_cover(D: np.ndarray, tol: float, pos: np.ndarray,
+                 alive: np.ndarray | None = None) -> tuple[np.ndarray, int]:
     """A cover of the violated triangles among ``alive`` taxa: greedy, then pruned.
 
     Returns the taxa (ascending) and the number of triples examined after the
@@ -234,7 +236,8 @@ def greedy_cover(D: np.ndarray, tol: float, pos: np.ndarray, alive=None) -> tupl
     return cover, int(w1 + w2)
 
 
-def link_matchings(D: np.ndarray, tol: float, alive, cand, cap: int) -> tuple[np.ndarray, int]:
+def link_matchings(D: np.ndarray, tol: float, alive: np.ndarray | None, cand: np.ndarray | Sequence[int],
+                   cap: int) -> tuple[np.ndarray, int]:
     """For each taxon of ``cand``, disjoint pairs in its violated triangles (greedy, up to ``cap + 1``).
 
     Returns the sizes and the number of triples examined. A size above the
@@ -247,7 +250,7 @@ def link_matchings(D: np.ndarray, tol: float, alive, cand, cap: int) -> tuple[np
     return out, int(work)
 
 
-def packing(D: np.ndarray, tol: float, order) -> tuple[np.ndarray, int]:
+def packing(D: np.ndarray, tol: float, order: np.ndarray | Sequence[int]) -> tuple[np.ndarray, int]:
     """Taxon-disjoint violated triangles among the taxa of ``order``, scanned in that order.
 
     Each needs its own taxon in any cover, so their number is a lower bound.
@@ -342,8 +345,8 @@ def exact_cover(tri: np.ndarray, cost: np.ndarray, budget: Budget) -> dict:
 
 
 # ------------------------------------------------------------------ the whole search
-def fewest_taxa(D: np.ndarray, tol: float, labels=None, method: str = "auto", budget: Budget | None = None,
-                exact_max_rows: int = 100000, lp_max_rows: int = 300000) -> TaxaCover:
+def fewest_taxa(D: np.ndarray, tol: float, labels: Sequence[str] | None = None, method: str = "auto",
+                budget: Budget | None = None, exact_max_rows: int = 100000, lp_max_rows: int = 300000) -> TaxaCover:
     """The fewest taxa whose removal leaves no violated checked triangle (see the module docs).
 
     Parameters
@@ -490,7 +493,8 @@ def reference_violated(D: np.ndarray, tol: float) -> list[tuple[int, int, int]]:
     return out
 
 
-def reference_fewest_taxa(D: np.ndarray, tol: float, labels=None) -> tuple[int, int, list[tuple[int, ...]]]:
+def reference_fewest_taxa(D: np.ndarray, tol: float,
+                          labels: Sequence[str] | None = None) -> tuple[int, int, list[tuple[int, ...]]]:
     """Brute force over all subsets, smallest first (for tests; tiny n only).
 
     Returns the least size, the least sum of preference positions among sets
