@@ -374,3 +374,35 @@ def test_subnormal_weights_raise_no_numpy_warning(kind):
         r = repair(D, kind, weights=W, progress=False)
     assert is_metric(r.matrix.values, r.report.tol) and np.isfinite(r.report.objective_value)
     assert r.report.lower_bound <= r.report.objective_value
+
+
+@pytest.mark.parametrize("kind", ["l1", "l2"])
+def test_a_scan_hands_the_pool_at_most_its_cap(kind, monkeypatch):
+    # issue 19: far from a metric (a random matrix: half of all triangles violated) a scan
+    # used to store every violated triangle (665 million keys at n = 2000); now at most the cap,
+    # the most violated first, and the answer is the same (reference: CLARABEL / HiGHS, above)
+    from seqdist.repair import convex as C
+
+    n = 10
+    rng = np.random.default_rng(5)
+    D = np.triu(rng.uniform(0, 1, (n, n)), 1)
+    D = D + D.T
+    cap = 12
+    monkeypatch.setattr(C, "SCAN_CAP_MIN", cap)
+    monkeypatch.setattr(C, "SCAN_CAP_PER_N2", 0.0)
+    sizes = []
+    real = C.find_violations
+
+    def spy(*a, **k):
+        keys, cyc = real(*a, **k)
+        sizes.append(keys.size)
+        return keys, cyc
+
+    monkeypatch.setattr(C, "find_violations", spy)
+    opts = {"method": "projection"} if kind == "l1" else {}
+    s = SOLVERS[kind](problem(D, **opts))
+    L = np.zeros((n, n), bool)
+    ref = cvx_solve(D, np.ones((n, n)), L, kind)
+    assert sizes and max(sizes) <= cap
+    assert s.optimal and abs(s.objective_value - ref) <= 2e-6 * ref
+    assert is_metric(s.X, 1e-9 * D.max())

@@ -439,3 +439,55 @@ def test_clamp_free_matches_the_plain_loop_bit_for_bit(seed):
     ref_clamp_free(want, fi, fj, target)
     K.clamp_free(got, fi, fj, target)
     assert np.array_equal(want.view(np.int64), got.view(np.int64))
+
+
+def ref_violations(x):
+    # every (key, violation) of the upper triangle of x, plain loops
+    n = x.shape[0]
+    out = {}
+    for i, j, k in itertools.combinations(range(n), 3):
+        a, b, c = x[i, j], x[i, k], x[j, k]
+        for s, v in enumerate((a - b - c, b - a - c, c - a - b)):
+            out[(i << 42) | (j << 22) | (k << 2) | s] = v
+    return out
+
+
+@pytest.mark.parametrize("seed,cap", [(0, 40), (1, 300), (2, 5000), (3, 1)])
+def test_capped_scan_takes_the_most_violated_within_the_cap(seed, cap):
+    # a random matrix: about half of all triangles violated, so a small cap must bind
+    rng = np.random.default_rng(seed)
+    n = 25
+    x = np.triu(rand_sym(rng, n), 1)
+    full = np.ones((n, n), dtype=bool)
+    viol = ref_violations(x)
+    keys, t, counts = K.violated_triangles_capped(x, full, True, 0.0, cap)
+    every = ref_violated(x, full, 0.0)
+    assert K.count_violated(x, full, True, 0.0) == every.size
+    if every.size <= cap:  # nothing to leave out: the plain scan
+        assert np.array_equal(keys, every) and t == 0.0 and counts == 0
+        return
+    assert 0 < keys.size <= cap and t > 0.0 and counts >= 1
+    assert np.all(np.diff(keys) > 0)  # sorted, no repeats
+    # exactly the constraints violated by more than t (ties: a subset of those above t)
+    above = ref_violated(x, full, t)
+    if above.size <= cap:
+        assert np.array_equal(keys, above)
+    else:
+        assert np.isin(keys, above).all()
+    # no constraint left out is more violated than one taken
+    taken = set(keys.tolist())
+    worst_left = max((v for k_, v in viol.items() if k_ not in taken), default=-np.inf)
+    assert worst_left <= min(viol[k_] for k_ in taken)
+
+
+def test_capped_scan_breaks_ties_within_the_cap():
+    # 20 taxa 3 apart, each 1 from taxon 0: every (0, j, k) triangle is violated by exactly 1,
+    # so no threshold separates them; the cap still holds (the first in key order)
+    n = 21
+    x = np.full((n, n), 3.0)
+    x[0, :] = 1.0
+    x = np.triu(x, 1)
+    full = np.ones((n, n), dtype=bool)
+    keys, t, _ = K.violated_triangles_capped(x, full, True, 0.0, 50)
+    assert keys.size == 50 and np.all(np.diff(keys) > 0)
+    assert np.array_equal(keys, ref_violated(x, full, 0.0)[:50])

@@ -117,13 +117,34 @@ L1_PER_CONSTRAINT = 9e-8       # one exact line maximisation (sweep_l1_tri), per
 PER_CYCLE_EDGE = 5e-9          # cycle constraints, per edge of the cycle (either sweep)
 CERTIFICATE_PER_N3 = 8e-10     # feasible point + bound (a shortest-path closure), per n^3
 CG_PER_CONSTRAINT = 2e-8       # one conjugate-gradient product (polish), per constraint
+COUNT_PER_TRIANGLE = 5e-9     # a count-only pass of the scan (no keys written), per triangle
 ROUND = 2e-3                   # fixed part of one round (Python, small arrays)
 SCAN_CALL = 5e-3               # fixed part of one scan (starting the threads, merging the pool)
 # the l1 LP's HiGHS calls are counted as those of fewest and grow
 
-__all__ = ["Setup", "rescale_solution", "setup", "scan_cost", "certificate_cost", "sweep_cost", "sweeps_per_round",
+# most new constraints one scan adds, per n^2 (the most violated first; the
+# pool's positive duals settle near 0.36 n^2 on the benchmark's matrices)
+SCAN_CAP_PER_N2 = 1.0
+SCAN_CAP_MIN = 100_000
+
+__all__ = ["Setup", "rescale_solution", "setup", "scan_cap", "count_cost", "scan_cost", "certificate_cost", "sweep_cost", "sweeps_per_round",
            "run_context", "Pool", "find_violations", "feasible_point", "objective_l2", "objective_l1", "bound_l2",
            "bound_l1", "relative_gap", "output_matrix"]
+
+
+def scan_cap(n: int) -> int:
+    """Most new triangle constraints one scan hands to the pool.
+
+    >>> scan_cap(100), scan_cap(2000)
+    (100000, 4000000)
+    """
+    return int(max(SCAN_CAP_MIN, SCAN_CAP_PER_N2 * n * n))
+
+
+def count_cost(S) -> float:
+    """Counted work of one count-only pass over the triangles (see :func:`find_violations`)."""
+    n = float(S.n)
+    return COUNT_PER_TRIANGLE * n * (n - 1) * (n - 2) / 6.0
 
 
 def scan_cost(S) -> float:
@@ -282,15 +303,26 @@ class Pool:
         return r1, r2
 
 
-def find_violations(x: np.ndarray, S: Setup, pool: Pool | None = None, max_cycles: int | None = None):
+def find_violations(x: np.ndarray, S: Setup, pool: Pool | None = None, max_cycles: int | None = None,
+                    info: dict | None = None):
     """Violated constraints of the iterate ``x``: triangle keys and cycles (or None).
+
+    At most :func:`scan_cap` triangle keys, the most violated first
+    (:func:`seqdist.kernels.convex.violated_triangles_capped`): far from a
+    metric, storing every violated triangle would cost memory and sweeps
+    for constraints that the worst ones' projections satisfy anyway. When
+    ``info`` is a dict it receives ``capped`` (whether the cap applied),
+    ``threshold`` (the violation above which keys were taken) and
+    ``counts`` (extra count-only passes, for the work budget).
 
     Cycles are searched only when ``G`` is not complete: shortest paths over
     ``G`` (:func:`seqdist.kernels.shortest_paths.apsp`) find every entry longer than a path
     between its ends; a Dijkstra per source reads the paths, and those with
     three or more edges (through left-out entries) become cycle constraints.
     """
-    keys = K.violated_triangles(x, S.G, S.full, S.thr)
+    keys, t, counts = K.violated_triangles_capped(x, S.G, S.full, S.thr, scan_cap(S.n))
+    if info is not None:
+        info.update(capped=bool(t > S.thr), threshold=float(t), counts=int(counts))
     if S.full:
         return keys, None
     from seqdist.kernels.shortest_paths import apsp

@@ -239,8 +239,9 @@ def _solve_projection(problem, S, budget, gap_tol, max_rounds, log, opts):
         if since_scan + 1 >= scan_every or rounds == 0:
             x = _x_prox(c, Adiff, S, iw, h)
             ta = time.perf_counter()
-            newk, newc = C.find_violations(x, S, pool)
-            budget.charge(C.scan_cost(S))
+            sinfo = {}
+            newk, newc = C.find_violations(x, S, pool, info=sinfo)
+            budget.charge(C.scan_cost(S) + sinfo["counts"] * C.count_cost(S))
             t_scan += time.perf_counter() - ta
             scans += 1
             since_scan = 0
@@ -251,7 +252,9 @@ def _solve_projection(problem, S, budget, gap_tol, max_rounds, log, opts):
                 break
             added = pool.add(newk, newc)
             # scan less often while scans find (almost) nothing new
-            if added <= max(50, 0.002 * pool.size):
+            if sinfo["capped"]:
+                scan_every = 1  # more violated constraints wait than one scan took
+            elif added <= max(50, 0.002 * pool.size):
                 scan_every = min(2 * scan_every, 16)
             else:
                 scan_every = max(1, scan_every // 2)

@@ -262,8 +262,9 @@ def _solve(problem: RepairProblem) -> Solution:
         # separation: a full scan, less often once scans stop finding new constraints
         if since_scan + 1 >= scan_every or rounds == 0:
             ta = time.perf_counter()
-            newk, newc = C.find_violations(np.ascontiguousarray(x), S, pool)
-            budget.charge(C.scan_cost(S))
+            sinfo = {}
+            newk, newc = C.find_violations(np.ascontiguousarray(x), S, pool, info=sinfo)
+            budget.charge(C.scan_cost(S) + sinfo["counts"] * C.count_cost(S))
             t_scan += time.perf_counter() - ta
             scans += 1
             since_scan = 0
@@ -273,7 +274,9 @@ def _solve(problem: RepairProblem) -> Solution:
                 best_p, best_g = C.objective_l2(best_Y, S), 0.0
                 break
             added = pool.add(newk, newc)
-            if added <= max(50, 0.002 * pool.size):
+            if sinfo["capped"]:
+                scan_every = 1  # more violated constraints wait than one scan took
+            elif added <= max(50, 0.002 * pool.size):
                 scan_every = min(2 * scan_every, 16)
             else:
                 scan_every = max(1, scan_every // 2)
