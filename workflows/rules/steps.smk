@@ -3,6 +3,8 @@
 # only the options its step uses, so changing one reruns only the steps that use it.
 import re
 
+include: "resources.py"
+
 wildcard_constraints:
     name="|".join(re.escape(name) for name in ALIGNMENTS),
 
@@ -21,6 +23,15 @@ def _writes(step):
             if p.endswith(FILES["report"]) else p for p in paths]
 
 
+def _resource(step, key):
+    # from the alignment itself (always there, unlike the step's other inputs), so that a dry run
+    # and a cluster scheduler know every job's request before anything runs
+    def value(wildcards, attempt):
+        shape = alignment_shape(ALIGNMENTS[wildcards.name], config["alphabet"])
+        return step_resources(step, shape, attempt, config)[key]
+    return value
+
+
 for _step in pipeline.STEPS:
     rule:
         name: _step.name
@@ -35,7 +46,8 @@ for _step in pipeline.STEPS:
         benchmark: os.path.join(literal(OUT), "benchmarks", "{name}", f"{_step.name}.tsv")
         threads: config["threads"][_step.name]
         resources:
-            mem_mb=config["mem_mb"][_step.name],
+            mem_mb=_resource(_step.name, "mem_mb"),
+            runtime=_resource(_step.name, "runtime"),
         conda: "../envs/seqdist.yaml"
         shell:
             "OMP_NUM_THREADS={threads} seqdist run {params.alignment:q} --outdir {params.outdir:q} "
