@@ -162,7 +162,8 @@ def test_unknown_names_list_the_registry():
     with pytest.raises(InputError, match=r"unknown model 'nope' \(DNA: p, jc69, k80, f81, tn84, t92, tn93, "
                                          r"logdet; protein: p, poisson, kimura\)"):
         check_options("dna", "nope", None, "pairwise", "alignment", "skip")
-    with pytest.raises(InputError, match=r"unknown matrix format 'xml' \(choose from tsv, csv, square, lower, nexus, npz\)"):
+    with pytest.raises(InputError,
+                       match=r"unknown matrix format 'xml' \(choose from tsv, csv, square, lower, nexus, npz\)"):
         mat_io.format_matrix(_small(), "xml")
     with pytest.raises(InputError, match="unknown alignment format 'xml' .choose from clustal, emboss, fasta,"):
         aln_io.read_alignment(os.path.join(EXAMPLES, "protein_small.sto"), "xml")
@@ -369,7 +370,7 @@ def _toy_matrix_format():
 
 
 def test_a_new_matrix_format_is_one_entry(monkeypatch, tmp_path, capsys):
-    # The shape issue 18 needs (NEXUS and npz were added this way): registering an entry is all it takes for the readers,
+    # NEXUS and npz were added this way: registering an entry is all it takes for the readers,
     # the writers, the guessing by extension and by content, and the command line's choices.
     from seqdist.cli import main
 
