@@ -226,7 +226,8 @@ def rres_unmeasured(dm: DistanceMatrix, keep_unmeasured: bool) -> list:
     return [] if keep_unmeasured else list(unmeasured_taxa(dm))
 
 
-def suspects_to_leave_out(dm: DistanceMatrix, suspect_report: SuspectReport, keep_unmeasured: bool = False) -> dict:
+def suspects_to_leave_out(dm: DistanceMatrix, suspect_report: SuspectReport | None,
+                          keep_unmeasured: bool = False) -> dict:
     """The suspects ``run`` leaves out by default: ``{label: reason}``.
 
     Suspects the repair leaves out anyway (no measured distance to the others)
@@ -243,6 +244,8 @@ def suspects_to_leave_out(dm: DistanceMatrix, suspect_report: SuspectReport, kee
     ...     DistanceMatrix.from_array(D, list("abcde"))))
     {}
     """
+    if suspect_report is None:  # an audit.json without the suspects block: none were searched
+        return {}
     already = set(rres_unmeasured(dm, keep_unmeasured))
     out = {lab: why for lab, why in suspect_report.reasons().items() if lab not in already}
     if dm.n - len(already) - len(out) < 4:
