@@ -406,3 +406,31 @@ def test_a_scan_hands_the_pool_at_most_its_cap(kind, monkeypatch):
     assert sizes and max(sizes) <= cap
     assert s.optimal and abs(s.objective_value - ref) <= 2e-6 * ref
     assert is_metric(s.X, 1e-9 * D.max())
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_descent_pass_keeps_a_metric_and_never_raises_the_cost(seed):
+    # issue 19: the feasible point's coordinate-descent pass (each entry to the point of
+    # [max_k |Y_ik - Y_jk|, min_k Y_ik + Y_kj] nearest its input; common practice: a convex
+    # function of one variable over an interval is least at the clipped unconstrained minimiser)
+    from seqdist.kernels.shortest_paths import apsp
+    from seqdist.repair import convex as C
+
+    n = 14
+    D = noisy(n, seed)
+    L = np.zeros((n, n), bool)
+    L[0, 1] = L[1, 0] = True
+    W = np.where(L, np.inf, rand_weights(n, seed))
+    S = C.setup(problem(D, np.where(L, 1.0, W), L))
+    # a metric below D: the closure of D with a third of its entries lowered (as an iterate's are)
+    rng = np.random.default_rng(seed)
+    low = np.triu(rng.uniform(size=(n, n)) < 0.3, 1)
+    X = np.where(low | low.T, 0.7 * D, D)
+    Y = apsp(X)
+    assert is_metric(Y, 1e-12)
+    Y2 = C.descend(Y, S)
+    assert is_metric(Y2, 1e-9 * D.max())
+    assert np.array_equal(Y2[L], Y[L])
+    assert C.objective_l2(Y2, S) <= C.objective_l2(Y, S) and C.objective_l1(Y2, S) <= C.objective_l1(Y, S)
+    # entries below their input that no path holds down go back up
+    assert C.objective_l1(Y2, S) < C.objective_l1(Y, S)

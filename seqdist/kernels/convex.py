@@ -119,17 +119,27 @@ def violated_triangles(x: np.ndarray, gm: np.ndarray, full: bool, thr: float) ->
     """
     x = _f64(x)
     g = np.ascontiguousarray(gm, dtype=np.bool_).view(np.uint8)
-    n = x.shape[0]
-    if n < 3:
+    if x.shape[0] < 3:
         return np.empty(0, np.int64)
-    nb = min(n, 64)
+    return _fill(x, g, full, thr, _row_counts(x, g, full, thr))
+
+
+def _row_counts(x, g, full, thr) -> np.ndarray:
+    # violated (triangle, long side) pairs per row (x float64, g uint8, both C-contiguous)
+    n = x.shape[0]
     cnt = np.zeros(n, np.int64)
-    scan_count_c(x, g, bool(full), float(thr), nb, cnt)
+    scan_count_c(x, g, bool(full), float(thr), min(n, 64), cnt)
+    return cnt
+
+
+def _fill(x, g, full, thr, cnt) -> np.ndarray:
+    # the keys counted in cnt (the second pass of violated_triangles)
+    n = x.shape[0]
     offs = np.zeros(n + 1, np.int64)
     np.cumsum(cnt, out=offs[1:])
     out = np.empty(int(offs[-1]), np.int64)
     if out.size:
-        scan_fill_c(x, g, bool(full), float(thr), nb, offs, out)
+        scan_fill_c(x, g, bool(full), float(thr), min(n, 64), offs, out)
     return out
 
 
@@ -145,12 +155,9 @@ def count_violated(x: np.ndarray, gm: np.ndarray, full: bool, thr: float) -> int
     """
     x = _f64(x)
     g = np.ascontiguousarray(gm, dtype=np.bool_).view(np.uint8)
-    n = x.shape[0]
-    if n < 3:
+    if x.shape[0] < 3:
         return 0
-    cnt = np.zeros(n, np.int64)
-    scan_count_c(x, g, bool(full), float(thr), min(n, 64), cnt)
-    return int(cnt.sum())
+    return int(_row_counts(x, g, full, thr).sum())
 
 
 def violated_triangles_capped(x: np.ndarray, gm: np.ndarray, full: bool, thr: float, cap: int):
@@ -183,9 +190,10 @@ def violated_triangles_capped(x: np.ndarray, gm: np.ndarray, full: bool, thr: fl
     n = x.shape[0]
     if n < 3:
         return np.empty(0, np.int64), float(thr), 0
-    total = count_violated(x, gm, full, thr)
-    if total <= cap:
-        return violated_triangles(x, gm, full, thr), float(thr), 0
+    g = np.ascontiguousarray(gm, dtype=np.bool_).view(np.uint8)
+    cnt = _row_counts(x, g, full, thr)
+    if int(cnt.sum()) <= cap:  # the plain scan, its count reused
+        return _fill(x, g, full, thr, cnt), float(thr), 0
     up = x[np.triu_indices(n, 1)]
     # a violation x_long - x_a - x_b is at most max(x) - 2 min(0, min(x)): none above span
     span = float(up.max()) - 2.0 * min(0.0, float(up.min()))
