@@ -1,0 +1,146 @@
+#!/usr/bin/env python
+"""Large matrices as a user meets them: whole commands, time and peak memory, in one run.
+
+For each size n, a noisy tree-like matrix (distances along a random tree of
+n leaves plus multiplicative noise, so neighbor joining has real work to do)
+is written once as ``.npz`` (the binary format) and, up to ``--text-max``, as
+``.tsv``. Then each command runs as its own process, and the table gives the
+wall time and the process's peak resident memory (``ru_maxrss`` from
+``os.wait4``), beside two references measured in the same run:
+
+* reading the matrix alone (``python -c "read_matrix(...)"``), so the share
+  of the command spent reading is visible;
+* for the tree, the same join with the full scan (``search="full"``, every
+  pair examined at every step): the ratio sorted / full is what the sorted-row
+  search bound saves (Simonsen, Mailund & Pedersen 2008, "Rapid
+  neighbour-joining", WABI 2008), and the two trees are compared (they must
+  be identical: same topology, same lengths, bit for bit, as written).
+
+Usage::
+
+    python tests/benchmarks/bench_scale.py [--sizes 2000,5000,8000] [--methods nj,bionj]
+        [--text-max 8000] [--full-max 8000] [--seed 1]
+
+Targets (issue 19): NJ on 8,000 taxa from the binary format at most 45 s as a
+whole process; 20,000 taxa under 5 minutes; the same tree as the plain join.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import subprocess
+import sys
+import tempfile
+import time
+
+import numpy as np
+
+NEUTRAL = tempfile.mkdtemp(prefix="seqdist-scale-cwd-")
+
+
+def tree_matrix(n: int, seed: int) -> np.ndarray:
+    """Path lengths on a random binary tree with n leaves (random joins, exponential branch
+    lengths), times log-normal noise (sd 0.05), symmetric, zero diagonal."""
+    rng = np.random.default_rng(seed)
+    # leaves' depths and the lowest common ancestors' depths via random sequential joins:
+    # keep each cluster's members; joining two clusters at a new node gives every cross pair
+    # the path through it.
+    D = np.zeros((n, n))
+    depth_to_top = np.zeros(n)  # each leaf's distance to the top of its current cluster
+    clusters = [[i] for i in range(n)]
+    while len(clusters) > 1:
+        a, b = rng.choice(len(clusters), 2, replace=False)
+        ca, cb = clusters[a], clusters[b]
+        la, lb = rng.exponential(0.05, 2)
+        ia, ib = np.array(ca), np.array(cb)
+        depth_to_top[ia] += la
+        depth_to_top[ib] += lb
+        D[np.ix_(ia, ib)] = depth_to_top[ia][:, None] + depth_to_top[ib][None, :]
+        D[np.ix_(ib, ia)] = D[np.ix_(ia, ib)].T
+        clusters[a] = ca + cb
+        clusters.pop(b)
+    noise = np.exp(rng.normal(0, 0.05, (n, n)))
+    noise = np.sqrt(noise * noise.T)
+    D *= noise
+    np.fill_diagonal(D, 0)
+    return D
+
+
+def write_inputs(n: int, seed: int, folder: str, text: bool) -> dict:
+    from seqdist.core.matrix import DistanceMatrix
+    from seqdist.io.matrices import write_matrix
+
+    dm = DistanceMatrix.from_array(tree_matrix(n, seed), [f"s{i}" for i in range(n)])
+    paths = {"npz": os.path.join(folder, f"m{n}.npz")}
+    write_matrix(paths["npz"], dm)
+    if text:
+        paths["tsv"] = os.path.join(folder, f"m{n}.tsv")
+        write_matrix(paths["tsv"], dm)
+    return paths
+
+
+def run(cmd: list[str]) -> tuple[float, float]:
+    """Wall seconds and peak resident memory (GB) of one child process."""
+    t = time.perf_counter()
+    p = subprocess.Popen(cmd, cwd=NEUTRAL, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(p.pid, 0)
+    took = time.perf_counter() - t
+    err = p.stderr.read().decode()
+    p.stderr.close()
+    if os.waitstatus_to_exitcode(status) != 0:
+        raise SystemExit(f"failed: {' '.join(cmd)}\n{err[-2000:]}")
+    return took, usage.ru_maxrss / 1e6  # ru_maxrss is in kB on Linux
+
+
+READ = "import sys; from seqdist.io.matrices import read_matrix; read_matrix(sys.argv[1])"
+FULL = ("import sys; from seqdist.io.matrices import read_matrix; from seqdist.trees.build import neighbor_joining;"
+        "t = neighbor_joining(read_matrix(sys.argv[1]), bionj=sys.argv[2] == 'bionj', search='full');"
+        "open(sys.argv[3], 'w').write(t.to_newick())")
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("--sizes", default="2000,5000,8000")
+    ap.add_argument("--methods", default="nj,bionj")
+    ap.add_argument("--text-max", type=int, default=8000, help="largest n also written and read as tsv")
+    ap.add_argument("--full-max", type=int, default=8000, help="largest n also joined with the full scan")
+    ap.add_argument("--seed", type=int, default=1)
+    args = ap.parse_args()
+    py = sys.executable
+    print(f"load average at start: {os.getloadavg()[0]:.1f}; {os.cpu_count()} cores")
+    print("| n | input | step | seconds | peak GB | note |")
+    print("| --- | --- | --- | --- | --- | --- |")
+    with tempfile.TemporaryDirectory() as tmp:
+        for n in [int(x) for x in args.sizes.split(",")]:
+            t = time.perf_counter()
+            paths = write_inputs(n, args.seed, tmp, n <= args.text_max)
+            print(f"| {n} | - | make the matrix | {time.perf_counter() - t:.1f} | - | "
+                  f"npz {os.path.getsize(paths['npz']) / 1e9:.2f} GB"
+                  + (f", tsv {os.path.getsize(paths['tsv']) / 1e9:.2f} GB |" if "tsv" in paths else " |"))
+            for kind, path in paths.items():
+                s, gb = run([py, "-c", READ, path])
+                print(f"| {n} | {kind} | read only | {s:.1f} | {gb:.2f} | |")
+            for method in args.methods.split(","):
+                outs = {}
+                for kind, path in paths.items():
+                    out = os.path.join(tmp, f"{method}_{n}_{kind}.nwk")
+                    s, gb = run([py, "-m", "seqdist", "tree", path, "-o", out, "--method", method, "--quiet"])
+                    outs[kind] = out
+                    print(f"| {n} | {kind} | `seqdist tree --method {method}` | {s:.1f} | {gb:.2f} | |")
+                if n <= args.full_max:
+                    out = os.path.join(tmp, f"{method}_{n}_full.nwk")
+                    s, gb = run([py, "-c", FULL, paths["npz"], method, out])
+                    same = open(out).read() == open(outs["npz"]).read()
+                    print(f"| {n} | npz | {method}, full scan (reference) | {s:.1f} | {gb:.2f} | "
+                          f"same tree as the sorted search: {'yes' if same else 'NO'} |")
+                    if not same:
+                        raise SystemExit("the sorted search gave another tree")
+                for kind in outs:
+                    os.remove(outs[kind])
+            for f in paths.values():
+                os.remove(f)
+
+
+if __name__ == "__main__":
+    main()
