@@ -280,3 +280,36 @@ def test_one_output_set_refuses_one_path_twice(tmp_path):
         with pytest.raises(InputError, match="two outputs of this command would write to this file"):
             out.add_text(str(tmp_path / "." / "a.txt"), "2\n")
     assert (tmp_path / "a.txt").read_text() == "1\n"
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.integers(2, 7), st.integers(0, 2**32 - 1), st.sampled_from(["ok", "tiny", "asym", "neg", "diag"]))
+def test_complete_matrices_checked_as_the_definition_says(n, seed, kind):
+    """A matrix without missing entries (the fast path of from_array): symmetric within the
+    contract's tolerance (1e-9 times the largest entry; common practice for the default) is
+    averaged to exact symmetry with a zero diagonal; beyond it, or negative, it is refused."""
+    rng = np.random.default_rng(seed)
+    a = rng.uniform(0.1, 10, (n, n))
+    a = (a + a.T) / 2
+    np.fill_diagonal(a, 0)
+    top = a.max()
+    i, j = 0, n - 1
+    if kind == "tiny":
+        a[i, j] += 0.1e-9 * top
+    elif kind == "asym":
+        a[i, j] += 1e-6 * top
+    elif kind == "neg":
+        a[i, j] = a[j, i] = -1.0
+    elif kind == "diag":
+        a[i, i] = 1e-3 * top
+    labels = [f"t{k}" for k in range(n)]
+    if kind in ("ok", "tiny"):
+        dm = DistanceMatrix.from_array(a, labels)
+        want = 0.5 * (a + a.T)
+        np.fill_diagonal(want, 0)
+        assert np.array_equal(dm.values, want if kind == "tiny" else a)
+        assert np.array_equal(dm.values, dm.values.T)
+    else:
+        word = {"asym": "asymmetric", "neg": "negative entry", "diag": "non-zero diagonal"}[kind]
+        with pytest.raises(InputError, match=word):
+            DistanceMatrix.from_array(a, labels)

@@ -30,7 +30,12 @@ def default_tol(values: np.ndarray) -> float:
     >>> default_tol(np.array([[0.0, 2.0], [2.0, 0.0]]))
     2e-09
     """
-    finite = values[np.isfinite(values)]
+    if values.size:
+        # fmax skips NaN; one pass and no copy of the finite entries (large matrices)
+        top = float(np.fmax.reduce(np.abs(values), axis=None))
+        if np.isfinite(top):
+            return 1e-9 * top
+    finite = values[np.isfinite(values)]  # an infinite entry (or nothing but NaN): the careful way
     top = float(np.max(np.abs(finite))) if finite.size else 0.0
     return 1e-9 * top
 
@@ -176,6 +181,8 @@ class DistanceMatrix:
             if lab in seen:
                 raise InputError(f"{where}duplicate label '{lab}' (positions {seen[lab] + 1} and {i + 1})")
             seen[lab] = i
+        if np.isfinite(arr).all():
+            return cls._checked_complete(arr, labels, where, sym_tol)
         if np.isinf(arr).any():
             i, j = np.argwhere(np.isinf(arr))[0]
             raise InputError(f"{where}entry ({labels[i]}, {labels[j]}) is infinite; "
@@ -207,6 +214,37 @@ class DistanceMatrix:
             raise InputError(f"{where}asymmetric: ({labels[i]}, {labels[j]}) = {float(arr[i, j])!r} but "
                              f"({labels[j]}, {labels[i]}) = {float(arr[j, i])!r}")
         if diff.any():
+            arr = 0.5 * (arr + arr.T)
+        np.fill_diagonal(arr, 0.0)
+        return cls._trusted(arr, labels)
+
+    @classmethod
+    def _checked_complete(cls, arr: np.ndarray, labels: tuple, where: str, sym_tol: float | None
+                          ) -> "DistanceMatrix":
+        """The checks of :meth:`from_array` for a matrix without missing or infinite entries.
+
+        The same checks, messages and result in fewer passes over the data and with one
+        temporary array, which matters at tens of thousands of taxa.
+        """
+        if (arr < 0).any():
+            i, j = np.argwhere(arr < 0)[0]
+            raise InputError(f"{where}negative entry {float(arr[i, j])!r} at ({labels[i]}, {labels[j]})")
+        if sym_tol is None:
+            sym_tol = 1e-9 * float(arr.max()) + 1e-12  # default_tol of a finite non-negative matrix
+        diag = np.diagonal(arr)
+        bad = np.abs(diag) > sym_tol
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            raise InputError(f"{where}non-zero diagonal entry {float(diag[i])!r} for '{labels[i]}'")
+        diff = arr - arr.T
+        np.abs(diff, out=diff)
+        largest = float(diff.max())
+        if largest > sym_tol:
+            i, j = np.unravel_index(int(np.argmax(diff)), diff.shape)
+            raise InputError(f"{where}asymmetric: ({labels[i]}, {labels[j]}) = {float(arr[i, j])!r} but "
+                             f"({labels[j]}, {labels[i]}) = {float(arr[j, i])!r}")
+        del diff
+        if largest > 0:
             arr = 0.5 * (arr + arr.T)
         np.fill_diagonal(arr, 0.0)
         return cls._trusted(arr, labels)

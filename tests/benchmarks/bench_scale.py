@@ -6,7 +6,8 @@ n leaves plus multiplicative noise, so neighbor joining has real work to do)
 is written once as ``.npz`` (the binary format) and, up to ``--text-max``, as
 ``.tsv``. Then each command runs as its own process, and the table gives the
 wall time and the process's peak resident memory (``ru_maxrss`` from
-``os.wait4``), beside two references measured in the same run:
+``os.wait4``; the matrices are made in a child process so that this script
+stays small: Linux counts a parent's peak into a forked child's), beside two references measured in the same run:
 
 * reading the matrix alone (``python -c "read_matrix(...)"``), so the share
   of the command spent reading is visible;
@@ -67,16 +68,27 @@ def tree_matrix(n: int, seed: int) -> np.ndarray:
     return D
 
 
-def write_inputs(n: int, seed: int, folder: str, text: bool) -> dict:
-    from seqdist.core.matrix import DistanceMatrix
-    from seqdist.io.matrices import write_matrix
+MAKE = r"""
+import sys
+sys.path.insert(0, sys.argv[1])
+from bench_scale import tree_matrix
+from seqdist.core.matrix import DistanceMatrix
+from seqdist.io.matrices import write_matrix
+n, seed = int(sys.argv[2]), int(sys.argv[3])
+dm = DistanceMatrix.from_array(tree_matrix(n, seed), [f"s{i}" for i in range(n)])
+for path in sys.argv[4:]:
+    write_matrix(path, dm)
+"""
 
-    dm = DistanceMatrix.from_array(tree_matrix(n, seed), [f"s{i}" for i in range(n)])
+
+def write_inputs(n: int, seed: int, folder: str, text: bool) -> dict:
+    # In a child process: Linux carries a parent's peak resident memory over fork and exec into
+    # the child's ru_maxrss, so the parent stays small (numpy only) and never holds a matrix.
     paths = {"npz": os.path.join(folder, f"m{n}.npz")}
-    write_matrix(paths["npz"], dm)
     if text:
         paths["tsv"] = os.path.join(folder, f"m{n}.tsv")
-        write_matrix(paths["tsv"], dm)
+    subprocess.run([sys.executable, "-c", MAKE, os.path.dirname(os.path.abspath(__file__)), str(n), str(seed),
+                    *paths.values()], check=True, cwd=NEUTRAL)
     return paths
 
 
