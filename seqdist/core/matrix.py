@@ -111,7 +111,8 @@ class DistanceMatrix:
     # -- construction ----------------------------------------------------
     @classmethod
     def from_array(cls, values: ArrayLike, labels: Sequence[str] | None = None, *, source: str | None = None,
-                   col_labels: Sequence[str] | None = None, sym_tol: float | None = None) -> "DistanceMatrix":
+                   col_labels: Sequence[str] | None = None, sym_tol: float | None = None,
+                   copy: bool = True) -> "DistanceMatrix":
         """Validate outside data and build a matrix.
 
         Parameters
@@ -130,6 +131,11 @@ class DistanceMatrix:
             Tolerance for symmetry and the zero diagonal (default: 1e-9 times
             the largest entry, plus a tiny absolute floor). Entries within it
             are averaged to exact symmetry.
+        copy : bool, optional
+            False: a float64 ``values`` array may be used as it is, not
+            copied (its diagonal is set to exactly 0 and the matrix keeps it:
+            do not write to it afterwards); for an array made only to build
+            this matrix, which saves a copy of a large matrix. Default True.
 
         Raises
         ------
@@ -147,7 +153,7 @@ class DistanceMatrix:
         if labels is None and isinstance(values, DistanceMatrix):
             labels = values.labels  # an array-like that knows its labels keeps them
         try:
-            arr = np.array(values, dtype=np.float64)
+            arr = np.array(values, dtype=np.float64, copy=True if copy else None)
         except (TypeError, ValueError) as exc:
             raise InputError(f"{where}values are not numeric ({exc})") from None
         if arr.ndim != 2 or arr.shape[0] != arr.shape[1]:
@@ -236,14 +242,19 @@ class DistanceMatrix:
         if bad.any():
             i = int(np.flatnonzero(bad)[0])
             raise InputError(f"{where}non-zero diagonal entry {float(diag[i])!r} for '{labels[i]}'")
-        diff = arr - arr.T
-        np.abs(diff, out=diff)
-        largest = float(diff.max())
+        # |a - a^T| in blocks of rows: its largest entry and where (the first, in row order)
+        n = arr.shape[0]
+        step = max(1, min(n, (1 << 22) // n))
+        largest, at = 0.0, (0, 0)
+        for r0 in range(0, n, step):
+            block = np.abs(arr[r0:r0 + step] - arr[:, r0:r0 + step].T)
+            k = int(np.argmax(block))
+            if block.flat[k] > largest:
+                largest, at = float(block.flat[k]), (r0 + k // n, k % n)
         if largest > sym_tol:
-            i, j = np.unravel_index(int(np.argmax(diff)), diff.shape)
+            i, j = at
             raise InputError(f"{where}asymmetric: ({labels[i]}, {labels[j]}) = {float(arr[i, j])!r} but "
                              f"({labels[j]}, {labels[i]}) = {float(arr[j, i])!r}")
-        del diff
         if largest > 0:
             arr = 0.5 * (arr + arr.T)
         np.fill_diagonal(arr, 0.0)
