@@ -126,7 +126,7 @@ SCAN_CALL = 5e-3               # fixed part of one scan (starting the threads, m
 # most new constraints one scan adds, per n^2 (the most violated first; the
 # pool's positive duals settle near 0.36 n^2 on the benchmark's matrices)
 SCAN_CAP_PER_N2 = 1.0
-SCAN_CAP_MIN = 100_000
+SCAN_CAP_MIN = 1_000_000
 
 __all__ = ["Setup", "rescale_solution", "setup", "scan_cap", "count_cost", "scan_cost", "certificate_cost", "sweep_cost", "sweeps_per_round",
            "run_context", "Pool", "find_violations", "feasible_point", "descend", "descend_cost", "Descent", "objective_l2", "objective_l1", "bound_l2",
@@ -137,7 +137,7 @@ def scan_cap(n: int) -> int:
     """Most new triangle constraints one scan hands to the pool.
 
     >>> scan_cap(100), scan_cap(2000)
-    (100000, 4000000)
+    (1000000, 4000000)
     """
     return int(max(SCAN_CAP_MIN, SCAN_CAP_PER_N2 * n * n))
 

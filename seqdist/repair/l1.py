@@ -66,7 +66,7 @@ OPTIONS = {
     "lp_max_n": Option(_LP_MAX_N, "largest number of taxa for the LP under method auto", low=0),
     "max_rounds": Option(100000, "stop after this many rounds (status 'round limit')", low=1),
     "prox_step": Option(0.05, "first proximal step, times the median entry", low=0.0, low_open=True),
-    "prox_step_max": Option(1.0, "largest proximal step, times the largest entry", low=0.0, low_open=True),
+    "prox_step_max": Option(0.1, "largest proximal step, times the largest entry", low=0.0, low_open=True),
     "prox_growth": Option(2.0, "factor by which the proximal step grows each centre", low=1.0),
     "prox_inner": Option(1, "rounds per proximal centre", low=1),
     "verbose": Option(False, "a log line per round on standard error"),
