@@ -43,3 +43,18 @@ def open_text(path, encoding=None) -> str:
     """A file's text, closing the file at once (a bare ``open(p).read()`` leaves that to the collector)."""
     with open(path, encoding=encoding) as f:
         return f.read()
+
+
+def small_alignment(path, rows=10, cols=400):
+    """The first rows/columns of the simulated clean demo alignment (invented data)."""
+    recs, name = [], None
+    with open(os.path.join(EXAMPLES, "dna_clean.fasta")) as fh:
+        for line in fh:
+            if line.startswith(">"):
+                name = line[1:].strip()
+                recs.append([name, ""])
+            elif name:
+                recs[-1][1] += line.strip()
+    with open(path, "w") as fh:
+        for name, seq in recs[:rows]:
+            fh.write(f">{name}\n{seq[:cols]}\n")

@@ -3,27 +3,11 @@
 from __future__ import annotations
 
 import json
-import os
 
 import numpy as np
 import pytest
 
-from conftest import EXAMPLES
-
-
-def small_alignment(path, rows=10, cols=400):
-    """The first rows/columns of the simulated clean demo alignment (invented data)."""
-    recs, name = [], None
-    with open(os.path.join(EXAMPLES, "dna_clean.fasta")) as fh:
-        for line in fh:
-            if line.startswith(">"):
-                name = line[1:].strip()
-                recs.append([name, ""])
-            elif name:
-                recs[-1][1] += line.strip()
-    with open(path, "w") as fh:
-        for name, seq in recs[:rows]:
-            fh.write(f">{name}\n{seq[:cols]}\n")
+from conftest import small_alignment
 
 
 @pytest.fixture(scope="module")

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import io
 import json
-import os
 
 import numpy as np
 import pytest
@@ -19,7 +18,7 @@ from seqdist.io.newick import read_newick, read_newick_file
 from seqdist.io.nexus_trees import read_nexus_trees, tree_format_for, write_nexus_trees
 from seqdist.trees import build_tree
 
-from conftest import EXAMPLES, write_tsv
+from conftest import write_tsv
 
 LABELS = ["human", "chimp_1", "gor-illa", "it's", "o.rang", "gibbon 2", "macaque"]
 
@@ -267,19 +266,11 @@ def test_newick_support_read_and_written():
 def matrices(tmp_path_factory):
     """A small alignment (the first 8 records, 300 columns of the simulated demo data), its
     distances with one planted error, and the repaired matrix."""
-    from conftest import run_cli
+    from conftest import run_cli, small_alignment
 
     t = tmp_path_factory.mktemp("treefmt")
-    recs, name = [], None
-    with open(os.path.join(EXAMPLES, "dna_clean.fasta")) as fh:
-        for line in fh:
-            if line.startswith(">"):
-                name = line[1:].strip()
-                recs.append([name, ""])
-            elif name:
-                recs[-1][1] += line.strip()
     aln = t / "aln.fasta"
-    aln.write_text("".join(f">{n}\n{s[:300]}\n" for n, s in recs[:8]))
+    small_alignment(aln, rows=8, cols=300)
     before = t / "before.tsv"
     assert run_cli("distances", aln, "-o", before, "--model", "jc69").returncode == 0
     from seqdist.io.matrices import read_matrix

@@ -512,6 +512,12 @@ def _read_square_fixed(text: str, name: str, lower: bool) -> DistanceMatrix | No
         rows.append([_parse_cell(t, name, tl, label, f"position {j + 1}") for j, (t, tl) in enumerate(toks)])
     if k != len(lines):
         return None
+    return _square_matrix(rows, labels, name, lower)
+
+
+def _square_matrix(rows: list, labels: list, name: str, lower: bool) -> DistanceMatrix:
+    # the rows read (full, or the entries below the diagonal) as the checked matrix
+    n = len(labels)
     values = np.full((n, n), np.nan)
     for i, row in enumerate(rows):
         values[i, :len(row)] = row
@@ -519,7 +525,7 @@ def _read_square_fixed(text: str, name: str, lower: bool) -> DistanceMatrix | No
         iu = np.triu_indices(n, 1)
         values[iu] = values.T[iu]
         np.fill_diagonal(values, 0.0)
-    return DistanceMatrix.from_array(values, labels, source=name)
+    return DistanceMatrix.from_array(values, labels, source=name, copy=False)
 
 
 def _read_square_tokens(text: str, name: str, lower: bool) -> DistanceMatrix:
@@ -567,14 +573,7 @@ def _read_square_tokens(text: str, name: str, lower: bool) -> DistanceMatrix:
     if pos != len(toks):
         tok, tl = toks[pos]
         raise InputError(f"{name}: line {tl}: unexpected '{tok}' after {n} rows (ragged rows?)")
-    values = np.full((n, n), np.nan)
-    for i, row in enumerate(rows):
-        values[i, :len(row)] = row
-    if lower:
-        iu = np.triu_indices(n, 1)
-        values[iu] = values.T[iu]
-        np.fill_diagonal(values, 0.0)
-    return DistanceMatrix.from_array(values, labels, source=name)
+    return _square_matrix(rows, labels, name, lower)
 
 
 def _is_number(tok: str) -> bool:
