@@ -491,3 +491,44 @@ def test_capped_scan_breaks_ties_within_the_cap():
     keys, t, _ = K.violated_triangles_capped(x, full, True, 0.0, 50)
     assert keys.size == 50 and np.all(np.diff(keys) > 0)
     assert np.array_equal(keys, ref_violated(x, full, 0.0)[:50])
+
+
+def phi_l1(c, w, d, M):
+    # min over x in [0, M] of w |x - d| + c x, by its three candidates (the ends and d; common practice)
+    xs = (0.0, d, M)
+    return min((w * abs(x - d) if np.isfinite(w) else (0.0 if x == d else np.inf)) + c * x for x in xs)
+
+
+def bound_plain(keys, lam, d, w, M, n):
+    c = np.zeros((n, n))
+    K.accumulate_tri(keys, lam, c)
+    iu = np.triu_indices(n, 1)
+    return sum(phi_l1(c[a, b], w[a, b], d[a, b], M) for a, b in zip(*iu)), c
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_l1_bound_ascent_never_lowers_the_bound_and_steps_to_a_maximiser(seed):
+    rng = np.random.default_rng(seed)
+    n = 9
+    d = np.triu(rand_sym(rng, n), 1)
+    w = np.triu(rng.uniform(0.2, 2.0, (n, n)), 1)
+    if seed % 2:
+        w[0, 1] = np.inf  # a locked entry: phi is linear there
+    M = float(d.max())
+    keys = K.violated_triangles(d, np.ones((n, n), bool), True, 0.0)
+    lam = rng.uniform(0, 0.5, keys.size) * (rng.uniform(size=keys.size) < 0.6)
+    g0, c = bound_plain(keys, lam, d, w, M, n)
+    lam1, c1 = lam.copy(), c.copy()
+    K.ascend_l1_bound(keys, lam1, c1, d, w, M)
+    g1, cref = bound_plain(keys, lam1, d, w, M, n)
+    assert np.all(lam1 >= 0)
+    assert np.allclose(c1, cref)  # c follows lam
+    assert g1 >= g0 - 1e-12
+    # the last constraint's dual is a maximiser of the bound along it (others fixed): a dense grid
+    t = keys.size - 1
+    best = g1
+    for s in np.linspace(-lam1[t], lam1[t] + 3.0, 601):
+        trial = lam1.copy()
+        trial[t] = lam1[t] + s
+        best = max(best, bound_plain(keys, trial, d, w, M, n)[0])
+    assert g1 >= best - 1e-9

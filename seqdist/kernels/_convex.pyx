@@ -676,3 +676,136 @@ def clamp_free_c(double[:, ::1] Y, const int64_t[::1] fi, const int64_t[::1] fj,
     with nogil:
         for q in range(fi.shape[0]):
             sd_cvx_clamp_one(py, n, fi[q], fj[q], target[q])
+
+
+# ------------------------------------------------------------ the l1 bound's own dual ascent
+cdef inline double lp_slope(double c, double w, double d, double M) noexcept nogil:
+    # right derivative of phi(c) = min_{0 <= x <= M} w |x - d| + c x: M below -w, d on [-w, w), 0 from w
+    if c < -w:
+        return M
+    if c < w:
+        return d
+    return 0.0
+
+
+def ascend_l1_bound_c(const int64_t[::1] keys, double[::1] lam, double[:, ::1] c, const double[:, ::1] d,
+                      const double[:, ::1] w, double M):
+    """One sweep of exact coordinate ascent on the l1 Lagrangian bound itself
+    (see :func:`seqdist.kernels.convex.ascend_l1_bound`). Returns how many duals moved."""
+    cdef Py_ssize_t m = keys.shape[0], t, a, b
+    cdef int64_t n = c.shape[0], e0, e1, e2
+    cdef double bp[6]
+    cdef double cs[3]
+    cdef double ws[3]
+    cdef double ds[3]
+    cdef double sg[3]
+    cdef double lt, step, tmp, left
+    cdef int moved = 0, q, r
+    cdef double* pc
+    cdef const double* pd
+    cdef const double* pw
+    need(c.shape[1] == n and d.shape[0] == n and d.shape[1] == n and w.shape[0] == n and w.shape[1] == n,
+         "ascend_l1_bound: c, d and w must be (n, n)")
+    need(lam.shape[0] >= keys.shape[0], "ascend_l1_bound: lam shorter than keys")
+    if m == 0:
+        return 0
+    pc = &c[0, 0]
+    pd = &d[0, 0]
+    pw = &w[0, 0]
+    sg[0] = 1.0
+    sg[1] = -1.0
+    sg[2] = -1.0
+    with nogil:
+        for t in range(m):
+            sides(keys[t], n, &e0, &e1, &e2)
+            cs[0] = pc[e0]
+            cs[1] = pc[e1]
+            cs[2] = pc[e2]
+            ws[0] = pw[e0]
+            ws[1] = pw[e1]
+            ws[2] = pw[e2]
+            ds[0] = pd[e0]
+            ds[1] = pd[e1]
+            ds[2] = pd[e2]
+            lt = lam[t]
+            # breakpoints in the step s (entry q sees c_q + sg_q s): where c_q + sg_q s = +-w_q
+            r = 0
+            for q in range(3):
+                if ws[q] < INFINITY:
+                    bp[r] = sg[q] * (ws[q] - cs[q])
+                    bp[r + 1] = sg[q] * (-ws[q] - cs[q])
+                    r += 2
+            # insertion sort (at most 6)
+            for a in range(1, r):
+                tmp = bp[a]
+                b = a - 1
+                while b >= 0 and bp[b] > tmp:
+                    bp[b + 1] = bp[b]
+                    b -= 1
+                bp[b + 1] = tmp
+            # h(s) = sum_q phi_q(c_q + sg_q s) is concave and piecewise linear: the one-sided slopes at
+            # 0 give the direction, then the breakpoints are walked to where the slope changes sign
+            step = 0.0
+            if right_slope(cs, ws, ds, sg, M, 0.0) > 0.0:
+                # move up: the first breakpoint > 0 after which the right slope is <= 0
+                step = INFINITY
+                for a in range(r):
+                    if bp[a] > 0.0 and right_slope(cs, ws, ds, sg, M, bp[a]) <= 0.0:
+                        step = bp[a]
+                        break
+                if step == INFINITY:
+                    continue  # unbounded direction (cannot happen with finite weights); leave it
+            elif lt > 0.0 and left_slope(cs, ws, ds, sg, M, 0.0) < 0.0:
+                # move down, at most to lam = 0: the last breakpoint < 0 before which the left slope is >= 0
+                left = -lt
+                step = left
+                for a in range(r - 1, -1, -1):
+                    if bp[a] < 0.0 and bp[a] > left and left_slope(cs, ws, ds, sg, M, bp[a]) >= 0.0:
+                        step = bp[a]
+                        break
+            if step != 0.0:
+                lam[t] = lt + step
+                if lam[t] < 0.0:
+                    lam[t] = 0.0
+                step = lam[t] - lt
+                pc[e0] += step
+                pc[e1] -= step
+                pc[e2] -= step
+                moved += 1
+    return moved
+
+
+cdef double right_slope(const double* cs, const double* ws, const double* ds, const double* sg, double M,
+                        double s) noexcept nogil:
+    cdef double v = 0.0, cq
+    cdef int q
+    for q in range(3):
+        cq = cs[q] + sg[q] * s
+        if sg[q] > 0:
+            v += lp_slope(cq, ws[q], ds[q], M)
+        else:
+            # d/ds phi(c - s) from the right = -(left derivative of phi at c - s)
+            v -= lp_left(cq, ws[q], ds[q], M)
+    return v
+
+
+cdef double left_slope(const double* cs, const double* ws, const double* ds, const double* sg, double M,
+                       double s) noexcept nogil:
+    cdef double v = 0.0, cq
+    cdef int q
+    for q in range(3):
+        cq = cs[q] + sg[q] * s
+        if sg[q] > 0:
+            v += lp_left(cq, ws[q], ds[q], M)
+        else:
+            v -= lp_slope(cq, ws[q], ds[q], M)
+    return v
+
+
+cdef inline double lp_left(double c, double w, double d, double M) noexcept nogil:
+    # left derivative of phi: M up to -w, d on (-w, w], 0 beyond w
+    if c <= -w:
+        return M
+    if c <= w:
+        return d
+    return 0.0

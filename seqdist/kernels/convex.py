@@ -36,6 +36,7 @@ from seqdist.kernels._convex import (
     accumulate_tri_c,
     apply_cyc_c,
     apply_tri_c,
+    ascend_l1_bound_c,
     blend_step_c,
     clamp_free_c,
     denominators_tri_c,
@@ -50,7 +51,7 @@ from seqdist.kernels._convex import (
 )
 
 __all__ = ["encode", "decode", "violated_triangles", "count_violated", "violated_triangles_capped", "merge_active", "sweep_l2_tri", "sweep_l2_cyc", "sweep_l1_tri",
-           "sweep_l1_cyc", "accumulate_tri", "accumulate_cyc", "apply_tri", "apply_cyc", "denominators_tri",
+           "sweep_l1_cyc", "ascend_l1_bound", "accumulate_tri", "accumulate_cyc", "apply_tri", "apply_cyc", "denominators_tri",
            "violated_cycles", "blend_step", "clamp_free"]
 
 _SI = 42
@@ -329,6 +330,32 @@ def sweep_l1_cyc(ptr, edges, lam, cf, Af, df, iwf, h) -> float:
         return sweep_l1_cyc_c(ptr, edges, lam, cf, Af, df, iwf, h)
     except _REFUSED:
         return sweep_l1_cyc_c(_i64(ptr), _i64(edges), lam, cf, _f64(Af), _f64(df), _f64(iwf), float(h))
+
+
+def ascend_l1_bound(keys, lam, c, d, w, M) -> int:
+    """One sweep of exact coordinate ascent on the l1 Lagrangian bound itself (in place).
+
+    The bound at duals ``lam >= 0`` (``c = A^T lam``) is
+    ``sum_e phi_e(c_e)`` with ``phi_e(c) = min_{0 <= x <= M} w_e |x - d_e| + c x``
+    (:func:`seqdist.repair.convex.bound_l1`), concave and piecewise linear in
+    ``c`` (slope ``M`` below ``-w``, ``d`` between, 0 above ``w``; a locked
+    entry, ``w = inf``, has slope ``d``). Along one dual it is concave and
+    piecewise linear with at most 6 breakpoints; each step moves the dual to
+    a maximiser (the nearest one to where it is), so the bound never falls.
+    ``c`` (upper triangle) follows ``lam``. Returns how many duals moved.
+
+    Examples
+    --------
+    >>> d = np.triu(np.array([[0, 4, 1], [0, 0, 1], [0, 0, 0.]]))
+    >>> w = np.triu(np.ones((3, 3)), 1)
+    >>> lam, c = np.zeros(1), np.zeros((3, 3))
+    >>> ascend_l1_bound(encode([0], [1], [2], [0]), lam, c, d, w, 4.0), lam.tolist()  # dual 1 = weight
+    (1, [1.0])
+    """
+    try:
+        return ascend_l1_bound_c(keys, lam, c, d, w, float(M))
+    except _REFUSED:
+        return ascend_l1_bound_c(_i64(keys), lam, c, _f64(d), _f64(w), float(M))
 
 
 # ------------------------------------------------------------ A^T lam and A y

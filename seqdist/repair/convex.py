@@ -114,6 +114,7 @@ SCAN_PER_SWEEP = 0.5
 SCAN_PER_TRIANGLE = 1.5e-8     # full triangle scan (two threads), per triangle C(n, 3)
 L2_PER_CONSTRAINT = 1e-8       # one Hildreth update (sweep_l2_tri), per triangle constraint
 L1_PER_CONSTRAINT = 9e-8       # one exact line maximisation (sweep_l1_tri), per triangle constraint
+ASCENT_PER_CONSTRAINT = 2e-8   # one coordinate step on the l1 bound (ascend_l1_bound), per constraint
 PER_CYCLE_EDGE = 5e-9          # cycle constraints, per edge of the cycle (either sweep)
 CERTIFICATE_PER_N3 = 8e-10     # feasible point + bound (a shortest-path closure), per n^3
 CLAMP_PER_N3 = 5e-10           # the feasible point's pass of coordinate descent, per n^3

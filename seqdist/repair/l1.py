@@ -56,6 +56,7 @@ __all__ = ["solve"]
 
 _DEFAULT_GAP = 1e-6
 _LP_MAX_N = 100
+_ASCENT_SWEEPS = 2  # more changed nothing measured (8 sweeps: the same rounds at n = 200)
 
 #: The options l1 reads (checked by :func:`~seqdist.repair.problem.validate_options`).
 OPTIONS = {
@@ -281,6 +282,15 @@ def _solve_projection(problem, S, budget, gap_tol, max_rounds, log, opts):
         Y, _ = C.feasible_point(x, S, descent=False)
         p = C.objective_l1(Y, S)
         g = C.bound_l1(c, S)
+        if not pool.clam.size:
+            # the proximal duals, moved by exact coordinate ascent on the bound itself (on a copy:
+            # the proximal iteration keeps its own); measured: the bound a round gives rises by
+            # about the gap, and noisy n = 200 closes in 1,770 rounds where it did not in 3,000
+            lam2, c2 = pool.lam.copy(), c.copy()
+            for _ in range(_ASCENT_SWEEPS):
+                K.ascend_l1_bound(pool.keys, lam2, c2, S.d, S.w, S.M)
+            g = max(g, C.bound_l1(pool.accumulate(lam2), S))  # c from the duals afresh: a proof
+            budget.charge(_ASCENT_SWEEPS * C.sweep_cost(pool, C.ASCENT_PER_CONSTRAINT))
         budget.charge(C.certificate_cost(S))
         best_g = max(best_g, g)
         Y, p = descent(Y, p, best_g, S, rounds, budget)

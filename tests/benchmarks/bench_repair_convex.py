@@ -20,8 +20,17 @@ it the general solvers that finish on that size:
   method is the lazy-row route (only violated rows, re-check, add), and its
   ``projection`` method the route beyond n = 100.
 
+Each row also gives the load average (1 minute) when the case finished: on
+a shared machine the seconds mean little without it.
+
+To compare with another version of the package in the same run, run the
+script twice, interleaved, with ``SEQDIST_BENCH_ROOT`` naming the folder
+that holds the other ``seqdist`` (e.g. a ``git worktree`` of an older
+commit, built in place).
+
 Usage: python tests/benchmarks/bench_repair_convex.py [--sizes 10,50,100,200,500,1000]
        [--kinds random,noisy] [--objectives l1,l2] [--ref-max-l2 100] [--ref-max-l1 50]
+       [--limit-l2 600] [--limit-l1 180]
 """
 
 from __future__ import annotations
@@ -34,7 +43,8 @@ import time
 
 import numpy as np
 
-ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+ROOT = os.environ.get("SEQDIST_BENCH_ROOT") or \
+    os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 sys.path.insert(0, ROOT)
 
 from seqdist.repair import l1, l2  # noqa: E402
@@ -140,17 +150,20 @@ def main() -> int:
         blas = ", ".join(f"{i['internal_api']} {i.get('architecture', '')}" for i in threadpool_info())
     except Exception:  # pragma: no cover
         blas = "unknown"
-    print(f"# BLAS: {blas}; OpenMP threads: {os.environ.get('OMP_NUM_THREADS', 'default')}")
+    import seqdist
+
+    print(f"# seqdist from {os.path.dirname(seqdist.__file__)}; BLAS: {blas}; "
+          f"OpenMP threads: {os.environ.get('OMP_NUM_THREADS', 'default')}; cores: {os.cpu_count()}")
     for obj in a.objectives.split(","):
         print(f"\n## {obj}")
         if obj == "l2":
             print("| matrix | n | objective | rel. gap | seqdist s | cvxpy CLARABEL value | CLARABEL s | "
-                  "rel. diff | CLARABEL / seqdist |")
-            print("|---|---|---|---|---|---|---|---|---|")
+                  "rel. diff | CLARABEL / seqdist | load |")
+            print("|---|---|---|---|---|---|---|---|---|---|")
         else:
             print("| matrix | n | method | objective | rel. gap | seqdist s | linprog all rows value | "
-                  "linprog s | rel. diff | linprog / seqdist |")
-            print("|---|---|---|---|---|---|---|---|---|---|")
+                  "linprog s | rel. diff | linprog / seqdist | load |")
+            print("|---|---|---|---|---|---|---|---|---|---|---|")
         for kind in a.kinds.split(","):
             for n in sizes:
                 D = matrix(kind, n, a.seed + n)
@@ -163,7 +176,7 @@ def main() -> int:
                                  f"{rt / ts:.1f}"]
                     limit = "" if s.optimal else " (limit)"
                     print(f"| {kind} | {n} | {s.objective_value:.10g} | {s.details['relative_gap']:.1e}{limit} | "
-                          f"{ts:.2f} | " + " | ".join(cells) + " |", flush=True)
+                          f"{ts:.2f} | " + " | ".join(cells) + f" | {os.getloadavg()[0]:.1f} |", flush=True)
                 else:
                     method = "lp" if n <= a.lp_max else "projection"
                     s, ts = run_ours("l1", D, a.limit_l1, method=method)
@@ -174,8 +187,8 @@ def main() -> int:
                                  f"{rt / ts:.1f}"]
                     limit = "" if s.optimal else " (limit)"
                     print(f"| {kind} | {n} | {method} | {s.objective_value:.10g} | "
-                          f"{s.details['relative_gap']:.1e}{limit} | {ts:.2f} | " + " | ".join(cells) + " |",
-                          flush=True)
+                          f"{s.details['relative_gap']:.1e}{limit} | {ts:.2f} | " + " | ".join(cells) +
+                          f" | {os.getloadavg()[0]:.1f} |", flush=True)
     return 0
 
 
