@@ -50,9 +50,10 @@ from seqdist.kernels._convex import (
     violated_cycles_c,
 )
 
-__all__ = ["encode", "decode", "violated_triangles", "count_violated", "violated_triangles_capped", "merge_active", "sweep_l2_tri", "sweep_l2_cyc", "sweep_l1_tri",
-           "sweep_l1_cyc", "ascend_l1_bound", "accumulate_tri", "accumulate_cyc", "apply_tri", "apply_cyc", "denominators_tri",
-           "violated_cycles", "blend_step", "clamp_free"]
+__all__ = ["encode", "decode", "violated_triangles", "count_violated", "violated_triangles_capped", "merge_active",
+           "sweep_l2_tri", "sweep_l2_cyc", "sweep_l1_tri", "sweep_l1_cyc", "ascend_l1_bound", "accumulate_tri",
+           "accumulate_cyc", "apply_tri", "apply_cyc", "denominators_tri", "violated_cycles", "blend_step",
+           "clamp_free"]
 
 _SI = 42
 _SJ = 22
@@ -161,7 +162,8 @@ def count_violated(x: np.ndarray, gm: np.ndarray, full: bool, thr: float) -> int
     return int(_row_counts(x, g, full, thr).sum())
 
 
-def violated_triangles_capped(x: np.ndarray, gm: np.ndarray, full: bool, thr: float, cap: int):
+def violated_triangles_capped(x: np.ndarray, gm: np.ndarray, full: bool, thr: float,
+                              cap: int) -> tuple[np.ndarray, float, int]:
     """The most violated constraints of ``x``, at most ``cap`` of them: ``(keys, threshold, counts)``.
 
     When more than ``cap`` constraints are violated by more than ``thr`` (far
@@ -332,7 +334,8 @@ def sweep_l1_cyc(ptr, edges, lam, cf, Af, df, iwf, h) -> float:
         return sweep_l1_cyc_c(_i64(ptr), _i64(edges), lam, cf, _f64(Af), _f64(df), _f64(iwf), float(h))
 
 
-def ascend_l1_bound(keys, lam, c, d, w, M) -> int:
+def ascend_l1_bound(keys: np.ndarray, lam: np.ndarray, c: np.ndarray, d: np.ndarray, w: np.ndarray,
+                    M: float) -> int:
     """One sweep of exact coordinate ascent on the l1 Lagrangian bound itself (in place).
 
     The bound at duals ``lam >= 0`` (``c = A^T lam``) is

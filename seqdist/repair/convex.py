@@ -7,12 +7,15 @@
   cycle constraints (only needed when ``G`` is not complete), with
   "forgetting" of constraints whose dual is 0 and which are satisfied.
 * :func:`find_violations` - the separation oracle: a full scan of the
-  triangles of ``G``, plus shortest paths over ``G`` for violated cycles
-  through left-out entries.
+  triangles of ``G`` (at most :func:`scan_cap` new keys, the most violated
+  first), plus shortest paths over ``G`` for violated cycles through
+  left-out entries.
 * :func:`feasible_point` - turns any iterate into a complete metric that
   keeps the locks (shortest-path closure over ``G``, then a blend with a
   lock-keeping metric if a locked entry ended up too long, then entries of
-  weight 0 moved as close to their input as the rest allows).
+  weight 0 moved as close to their input as the rest allows); :func:`descend`
+  - one pass of coordinate descent over the metrics on it, and
+  :class:`Descent`, when the solvers make that pass.
 * :func:`bound_l2` / :func:`bound_l1` - Lagrangian lower bounds at any
   non-negative duals (derivations in docs/repair_convex.md).
 
@@ -26,11 +29,16 @@ inequalities reduce to the triangle inequalities.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from seqdist.kernels import convex as K
+
+if TYPE_CHECKING:  # annotations only
+    from seqdist.repair.problem import Budget
 
 
 @dataclass
@@ -129,9 +137,10 @@ SCAN_CALL = 5e-3               # fixed part of one scan (starting the threads, m
 SCAN_CAP_PER_N2 = 1.0
 SCAN_CAP_MIN = 1_000_000
 
-__all__ = ["Setup", "rescale_solution", "setup", "scan_cap", "count_cost", "scan_cost", "certificate_cost", "sweep_cost", "sweeps_per_round",
-           "run_context", "Pool", "find_violations", "feasible_point", "descend", "descend_cost", "Descent", "objective_l2", "objective_l1", "bound_l2",
-           "bound_l1", "relative_gap", "output_matrix"]
+__all__ = ["Setup", "rescale_solution", "setup", "scan_cap", "count_cost", "scan_cost", "certificate_cost",
+           "sweep_cost", "sweeps_per_round", "run_context", "Pool", "find_violations", "feasible_point", "descend",
+           "descend_cost", "Descent", "objective_l2", "objective_l1", "bound_l2", "bound_l1", "relative_gap",
+           "output_matrix"]
 
 
 def scan_cap(n: int) -> int:
@@ -143,7 +152,7 @@ def scan_cap(n: int) -> int:
     return int(max(SCAN_CAP_MIN, SCAN_CAP_PER_N2 * n * n))
 
 
-def count_cost(S) -> float:
+def count_cost(S: Setup) -> float:
     """Counted work of one count-only pass over the triangles (see :func:`find_violations`)."""
     n = float(S.n)
     return COUNT_PER_TRIANGLE * n * (n - 1) * (n - 2) / 6.0
@@ -163,7 +172,7 @@ def certificate_cost(S) -> float:
     return ROUND + CERTIFICATE_PER_N3 * float(S.n) ** 3
 
 
-def descend_cost(S) -> float:
+def descend_cost(S: Setup) -> float:
     """Counted work of one pass of :func:`descend`."""
     return CLAMP_PER_N3 * float(S.n) ** 3
 
@@ -456,7 +465,7 @@ class Descent:
     decision reads computed values only, so runs are reproducible.
     """
 
-    def __init__(self, objective, gap_tol: float, every: int = 8):
+    def __init__(self, objective: Callable[[np.ndarray, Setup], float], gap_tol: float, every: int = 8):
         self.objective = objective
         self.gap_tol = gap_tol
         self.every = every
@@ -464,7 +473,8 @@ class Descent:
         self.last = None
         self.passes = 0
 
-    def __call__(self, Y, p, g, S, rounds, budget):
+    def __call__(self, Y: np.ndarray, p: float, g: float, S: Setup, rounds: int,
+                 budget: Budget) -> tuple[np.ndarray, float]:
         """``(Y, p)``: the feasible point after a pass when one is due, else as given."""
         if not p > g:
             return Y, p

@@ -17,7 +17,9 @@ Two methods (details and derivations in docs/repair_convex.md):
   of triangle constraints as :mod:`.l2` (the same scan, merge and forget),
   each step an exact line maximisation of the piecewise-quadratic dual;
   ``eps`` shrinks by stages (for small enough ``eps`` the regularised
-  solution solves the LP: exact regularisation).
+  solution solves the LP: exact regularisation). The bound is taken after
+  two sweeps of exact coordinate ascent on the Lagrangian bound itself from
+  a copy of the proximal duals (:func:`seqdist.kernels.convex.ascend_l1_bound`).
 
 Both report a certified gap: any non-negative duals give the Lagrangian
 bound :func:`seqdist.repair.convex.bound_l1`, and the shortest-path closure of the primal

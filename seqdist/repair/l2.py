@@ -11,12 +11,16 @@ Algorithm (details and the bound's derivation in docs/repair_convex.md):
    constraints that are violated or have a positive dual. Each round scans
    every triangle for new violations (a compiled, two-thread scan), merges
    them in, forgets satisfied constraints with dual 0, then sweeps the pool
-   several times. When some entries are missing or have weight 0, a
+   several times. A scan adds at most ``max(10^6, n^2)`` constraints, the
+   most violated first (far from a metric half of all triangles are
+   violated). When some entries are missing or have weight 0, a
    shortest-path oracle adds cycle constraints through them.
 2. **Certificate.** Any duals ``lam >= 0`` give a Lagrangian lower bound
    (:func:`seqdist.repair.convex.bound_l2`); the shortest-path closure of the iterate is
-   a feasible metric whose objective is an upper bound. The reported gap is
-   the difference.
+   a feasible metric whose objective is an upper bound, lowered further by a
+   pass of coordinate descent over the metrics when that may close the gap
+   (:func:`seqdist.repair.convex.descend`). The reported gap is the
+   difference.
 3. **Schedule.** Sweeps per round and scan frequency follow work counts
    (triangles per scan against constraints per sweep), never the clock, so
    the same input and options give the same iterates on any machine; and
