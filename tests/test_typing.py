@@ -24,29 +24,6 @@ from conftest import ROOT, open_text
 #: "module.name" or "module.Class.method" -> parameters (and "return") without an annotation
 #: at the time of writing. Delete an entry once it is annotated; never add one.
 KNOWN: dict[str, set[str]] = {
-    "seqdist.kernels.convex.encode": {"i", "j", "k", "s", "return"},
-    "seqdist.kernels.convex.decode": {"keys", "return"},
-    "seqdist.kernels.convex.merge_active": {"ka", "la", "kb", "return"},
-    "seqdist.kernels.convex.sweep_l2_tri": {"keys", "lam", "xw", "forward", "omega"},
-    "seqdist.kernels.convex.sweep_l2_cyc": {"ptr", "edges", "lam", "xwf", "omega"},
-    "seqdist.kernels.convex.sweep_l1_tri": {"keys", "lam", "c", "A", "d", "iw", "h"},
-    "seqdist.kernels.convex.sweep_l1_cyc": {"ptr", "edges", "lam", "cf", "Af", "df", "iwf", "h"},
-    "seqdist.kernels.convex.accumulate_tri": {"keys", "lam", "c"},
-    "seqdist.kernels.convex.accumulate_cyc": {"ptr", "edges", "lam", "cf"},
-    "seqdist.kernels.convex.apply_tri": {"keys", "y"},
-    "seqdist.kernels.convex.apply_cyc": {"ptr", "edges", "yf"},
-    "seqdist.kernels.convex.denominators_tri": {"keys", "winv"},
-    "seqdist.kernels.convex.violated_cycles": {"W", "src", "dst", "min_edges", "return"},
-    "seqdist.kernels.convex.clamp_free": {"Y", "fi", "fj", "target"},
-    "seqdist.repair.convex.rescale_solution": {"sol", "return"},
-    "seqdist.repair.convex.setup": {"problem"},
-    "seqdist.repair.convex.scan_cost": {"S"},
-    "seqdist.repair.convex.certificate_cost": {"S"},
-    "seqdist.repair.convex.sweep_cost": {"pool"},
-    "seqdist.repair.convex.run_context": {"problem", "return"},
-    "seqdist.repair.convex.find_violations": {"return"},
-    "seqdist.repair.convex.Pool.add": {"new_cycles"},
-    "seqdist.repair.convex.Pool.accumulate": {"lam", "clam"},
 }
 
 #: methods checked besides the public ones

@@ -29,6 +29,8 @@ Every kernel has a plain-Python reference in tests/test_repair_convex_kernels.py
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 
 from seqdist.kernels._convex import (
@@ -49,6 +51,9 @@ from seqdist.kernels._convex import (
     sweep_l2_tri_c,
     violated_cycles_c,
 )
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
 
 __all__ = ["encode", "decode", "violated_triangles", "count_violated", "violated_triangles_capped", "merge_active",
            "sweep_l2_tri", "sweep_l2_cyc", "sweep_l1_tri", "sweep_l1_cyc", "ascend_l1_bound", "accumulate_tri",
@@ -78,7 +83,7 @@ _REFUSED = (TypeError, ValueError)
 
 
 # ------------------------------------------------------------ key helpers
-def encode(i, j, k, s):
+def encode(i: ArrayLike, j: ArrayLike, k: ArrayLike, s: ArrayLike) -> np.ndarray:
     """Keys of triangle constraints (vectorised; ``i < j < k``, ``s`` the long side).
 
     Examples
@@ -90,7 +95,7 @@ def encode(i, j, k, s):
         (np.asarray(k, np.int64) << _SK) | np.asarray(s, np.int64)
 
 
-def decode(keys):
+def decode(keys: ArrayLike) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """``(i, j, k, s)`` arrays from triangle keys.
 
     Examples
@@ -234,7 +239,7 @@ def violated_triangles_capped(x: np.ndarray, gm: np.ndarray, full: bool, thr: fl
 
 
 # ------------------------------------------------------------ active-set bookkeeping
-def merge_active(ka, la, kb):
+def merge_active(ka: np.ndarray, la: np.ndarray, kb: np.ndarray) -> tuple[np.ndarray, np.ndarray, int]:
     """Union of sorted key arrays ``ka`` (with duals ``la``) and ``kb`` (new, dual 0).
 
     Constraints of ``ka`` whose dual is 0 and that are not in ``kb`` (no
@@ -254,7 +259,7 @@ def merge_active(ka, la, kb):
 
 
 # ------------------------------------------------------------ weighted least squares (l2)
-def sweep_l2_tri(keys, lam, xw, forward, omega) -> float:
+def sweep_l2_tri(keys: np.ndarray, lam: np.ndarray, xw: np.ndarray, forward: bool, omega: float) -> float:
     """One Hildreth sweep over triangle constraints (in place).
 
     ``xw[a, b, 0]`` is the iterate and ``xw[a, b, 1]`` the inverse weight of
@@ -276,7 +281,7 @@ def sweep_l2_tri(keys, lam, xw, forward, omega) -> float:
         return sweep_l2_tri_c(_i64(keys), lam, xw, bool(forward), float(omega))
 
 
-def sweep_l2_cyc(ptr, edges, lam, xwf, omega) -> float:
+def sweep_l2_cyc(ptr: np.ndarray, edges: np.ndarray, lam: np.ndarray, xwf: np.ndarray, omega: float) -> float:
     """One Hildreth sweep over cycle constraints; ``xwf`` is the interleaved
     array of :func:`sweep_l2_tri` viewed as (n * n, 2).
 
@@ -293,7 +298,8 @@ def sweep_l2_cyc(ptr, edges, lam, xwf, omega) -> float:
 
 
 # ------------------------------------------------------------ proximal LP (l1)
-def sweep_l1_tri(keys, lam, c, A, d, iw, h) -> float:
+def sweep_l1_tri(keys: np.ndarray, lam: np.ndarray, c: np.ndarray, A: np.ndarray, d: np.ndarray, iw: np.ndarray,
+                 h: float) -> float:
     """One exact dual coordinate-ascent sweep of the proximal LP step
     ``min sum w |x - d| + (1 / 2h) sum w (x - z)^2`` over triangle
     constraints, with ``A = z - d`` and ``iw = h / w`` (0 on locked entries).
@@ -317,7 +323,8 @@ def sweep_l1_tri(keys, lam, c, A, d, iw, h) -> float:
         return sweep_l1_tri_c(_i64(keys), lam, c, _f64(A), _f64(d), _f64(iw), float(h))
 
 
-def sweep_l1_cyc(ptr, edges, lam, cf, Af, df, iwf, h) -> float:
+def sweep_l1_cyc(ptr: np.ndarray, edges: np.ndarray, lam: np.ndarray, cf: np.ndarray, Af: np.ndarray,
+                 df: np.ndarray, iwf: np.ndarray, h: float) -> float:
     """:func:`sweep_l1_tri` over cycle constraints (flat views; ``cf`` updated in place).
 
     Examples
@@ -362,7 +369,7 @@ def ascend_l1_bound(keys: np.ndarray, lam: np.ndarray, c: np.ndarray, d: np.ndar
 
 
 # ------------------------------------------------------------ A^T lam and A y
-def accumulate_tri(keys, lam, c) -> None:
+def accumulate_tri(keys: np.ndarray, lam: np.ndarray, c: np.ndarray) -> None:
     """``c += A^T lam`` over triangle constraints (upper triangle of ``c``, in place).
 
     Examples
@@ -378,7 +385,7 @@ def accumulate_tri(keys, lam, c) -> None:
         accumulate_tri_c(_i64(keys), _f64(lam), c)
 
 
-def accumulate_cyc(ptr, edges, lam, cf) -> None:
+def accumulate_cyc(ptr: np.ndarray, edges: np.ndarray, lam: np.ndarray, cf: np.ndarray) -> None:
     """``c += A^T lam`` over cycle constraints (flat view of ``c``, in place).
 
     Examples
@@ -394,7 +401,7 @@ def accumulate_cyc(ptr, edges, lam, cf) -> None:
         accumulate_cyc_c(_i64(ptr), _i64(edges), _f64(lam), cf)
 
 
-def apply_tri(keys, y) -> np.ndarray:
+def apply_tri(keys: np.ndarray, y: np.ndarray) -> np.ndarray:
     """``A y`` for triangle constraints: ``y[long] - y[short] - y[short]``.
 
     Examples
@@ -411,7 +418,7 @@ def apply_tri(keys, y) -> np.ndarray:
     return r
 
 
-def apply_cyc(ptr, edges, yf) -> np.ndarray:
+def apply_cyc(ptr: np.ndarray, edges: np.ndarray, yf: np.ndarray) -> np.ndarray:
     """``A y`` for cycle constraints (flat view of ``y``).
 
     Examples
@@ -427,7 +434,7 @@ def apply_cyc(ptr, edges, yf) -> np.ndarray:
     return r
 
 
-def denominators_tri(keys, winv) -> np.ndarray:
+def denominators_tri(keys: np.ndarray, winv: np.ndarray) -> np.ndarray:
     """``a^T W^-1 a`` per triangle constraint (the diagonal of ``A W^-1 A^T``).
 
     Examples
@@ -444,7 +451,8 @@ def denominators_tri(keys, winv) -> np.ndarray:
 
 
 # ------------------------------------------------------------ cycles through absent entries
-def violated_cycles(W, src, dst, min_edges):
+def violated_cycles(W: np.ndarray, src: np.ndarray, dst: np.ndarray, min_edges: int
+                    ) -> tuple[np.ndarray, np.ndarray]:
     """Cycle constraints for the violated entries ``(src[q], dst[q])`` of the graph ``W``.
 
     ``W`` holds the current lengths (inf off the graph), ``src`` is sorted so
@@ -493,7 +501,7 @@ def blend_step(Y: np.ndarray, Z: np.ndarray) -> float:
     return float(tb.max())
 
 
-def clamp_free(Y, fi, fj, target) -> None:
+def clamp_free(Y: np.ndarray, fi: np.ndarray, fj: np.ndarray, target: np.ndarray) -> None:
     """Move entries ``(fi, fj)`` of the metric ``Y`` one at a time towards ``target``.
 
     Each entry goes to the point of ``[max_k |Y_ik - Y_jk|, min_k Y_ik + Y_kj]``

@@ -38,7 +38,7 @@ import numpy as np
 from seqdist.kernels import convex as K
 
 if TYPE_CHECKING:  # annotations only
-    from seqdist.repair.problem import Budget
+    from seqdist.repair.problem import Budget, RepairProblem, Solution
 
 
 @dataclass
@@ -60,7 +60,7 @@ class Setup:
     thr: float             # violations below this are numerical noise
 
 
-def rescale_solution(sol, a: int, b: int, power: int):
+def rescale_solution(sol: Solution, a: int, b: int, power: int) -> Solution:
     """The :class:`~.problem.Solution` of a problem rescaled by :func:`.problem.rescaled`, scaled back.
 
     Distances were multiplied by ``2**a`` and weights by ``2**b``; the
@@ -80,7 +80,7 @@ def rescale_solution(sol, a: int, b: int, power: int):
     return sol
 
 
-def setup(problem) -> Setup:
+def setup(problem: RepairProblem) -> Setup:
     """Build the optimisation graph and arrays from a :class:`RepairProblem`."""
     D = np.asarray(problem.D, dtype=np.float64)
     n = D.shape[0]
@@ -158,7 +158,7 @@ def count_cost(S: Setup) -> float:
     return COUNT_PER_TRIANGLE * n * (n - 1) * (n - 2) / 6.0
 
 
-def scan_cost(S) -> float:
+def scan_cost(S: Setup) -> float:
     """Counted work of one separation: the triangle scan, plus shortest paths when G is not complete."""
     n = float(S.n)
     c = SCAN_CALL + SCAN_PER_TRIANGLE * n * (n - 1) * (n - 2) / 6.0
@@ -167,7 +167,7 @@ def scan_cost(S) -> float:
     return c
 
 
-def certificate_cost(S) -> float:
+def certificate_cost(S: Setup) -> float:
     """Counted work of one certificate (feasible point and bound) and the round around it."""
     return ROUND + CERTIFICATE_PER_N3 * float(S.n) ** 3
 
@@ -177,7 +177,7 @@ def descend_cost(S: Setup) -> float:
     return CLAMP_PER_N3 * float(S.n) ** 3
 
 
-def sweep_cost(pool, per_constraint: float) -> float:
+def sweep_cost(pool: Pool, per_constraint: float) -> float:
     """Counted work of one sweep over the pool."""
     return per_constraint * pool.keys.size + PER_CYCLE_EDGE * pool.edges.size
 
@@ -194,7 +194,8 @@ def sweeps_per_round(n: int, pool_size: int, max_sweeps: int = 256) -> int:
     return int(min(max_sweeps, max(2, round(SCAN_PER_SWEEP * triangles / max(pool_size, 1)))))
 
 
-def run_context(problem, name: str, declared: dict):
+def run_context(problem: RepairProblem, name: str, declared: dict
+                ) -> tuple[float, dict, Budget, Callable[[str], None]]:
     """Start-up shared by the convex solvers: ``(t0, options, budget, log)``.
 
     ``options`` are the validated options (:func:`.problem.validate_options`
@@ -249,7 +250,7 @@ class Pool:
         return Pool(self.n, self.keys.copy(), self.lam.copy(), self.ptr.copy(), self.edges.copy(),
                     self.clam.copy(), set(self._seen))
 
-    def add(self, new_keys: np.ndarray, new_cycles=None) -> int:
+    def add(self, new_keys: np.ndarray, new_cycles: tuple[np.ndarray, np.ndarray] | None = None) -> int:
         """Merge new violated constraints in; forget satisfied ones with dual 0.
 
         Returns how many constraints were not in the pool before."""
@@ -294,7 +295,7 @@ class Pool:
             out._merge_cycles(None)
         return out
 
-    def accumulate(self, lam=None, clam=None) -> np.ndarray:
+    def accumulate(self, lam: np.ndarray | None = None, clam: np.ndarray | None = None) -> np.ndarray:
         """``A^T lam`` as an upper-triangular (n, n) array."""
         c = np.zeros((self.n, self.n))
         K.accumulate_tri(self.keys, self.lam if lam is None else lam, c)
@@ -320,7 +321,7 @@ class Pool:
 
 
 def find_violations(x: np.ndarray, S: Setup, pool: Pool | None = None, max_cycles: int | None = None,
-                    info: dict | None = None):
+                    info: dict | None = None) -> tuple[np.ndarray, tuple[np.ndarray, np.ndarray] | None]:
     """Violated constraints of the iterate ``x``: triangle keys and cycles (or None).
 
     At most :func:`scan_cap` triangle keys, the most violated first
