@@ -121,3 +121,9 @@ def test_help_examples_run_as_written(tmp_path):
             assert p.returncode == want, f"{cmd}\nexit {p.returncode}, expected {want}\n{p.stderr[-2000:]}"
             ran += 1
     assert ran >= len(HELP_ORDER)
+    # the outputs the examples name were written (not just a zero exit)
+    for name in ("aln.fasta", "true.nwk", "dist.tsv", "dist_square.txt", "blosum62-dist.tsv", "protein-dist.tsv",
+                 "fixed.tsv"):
+        assert (box / name).stat().st_size > 0, name
+    square = open_text(box / "dist_square.txt").splitlines()
+    assert square[0].strip() == "10" and len(square) == 11  # the square layout: count, then one row per taxon
