@@ -111,6 +111,48 @@ FULL = ("import sys; from seqdist.io.matrices import read_matrix; from seqdist.t
         "open(sys.argv[3], 'w').write(t.to_newick())")
 
 
+KERNEL = r"""
+import sys, time, json
+import numpy as np
+from seqdist.io.matrices import read_matrix
+from seqdist.kernels.triangles import count_violations
+from seqdist.kernels.shortest_paths import apsp
+dm = read_matrix(sys.argv[1])
+n = dm.n
+D = np.ascontiguousarray(dm.values)
+out = {}
+t = time.perf_counter(); v, m = count_violations(D); out["count"] = time.perf_counter() - t
+out["violated"] = int(v)
+t = time.perf_counter(); X = apsp(D, threads=int(sys.argv[2])); out["closure"] = time.perf_counter() - t
+print(json.dumps(out))
+"""
+
+
+def kernels(sizes: list[int], seed: int, threads: int) -> None:
+    """The audit's triangle count and the shrink closure at each size: time per triple (count:
+    C(n,3) triangles; closure: n^3 relaxations) and peak memory of the process."""
+    import json
+    import math
+
+    print(f"load average at start: {os.getloadavg()[0]:.1f}; closure threads {threads or 'all'}")
+    print("| n | matrix GB | count s | ns per triangle | closure s | ns per n^3 | peak GB |")
+    print("| --- | --- | --- | --- | --- | --- | --- |")
+    with tempfile.TemporaryDirectory() as tmp:
+        for n in sizes:
+            paths = write_inputs(n, seed, tmp, False)
+            p = subprocess.Popen([sys.executable, "-c", KERNEL, paths["npz"], str(threads)], cwd=NEUTRAL,
+                                 stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+            _, status, usage = os.wait4(p.pid, 0)
+            res = json.loads(p.stdout.read().decode())
+            p.stdout.close()
+            p.stderr.close()
+            tri = math.comb(n, 3)
+            print(f"| {n} | {n * n * 8 / 1e9:.2f} | {res['count']:.1f} | {res['count'] / tri * 1e9:.3f} | "
+                  f"{res['closure']:.1f} | {res['closure'] / n ** 3 * 1e9:.3f} | {usage.ru_maxrss / 1e6:.2f} |",
+                  flush=True)
+            os.remove(paths["npz"])
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--sizes", default="2000,5000,8000")
@@ -118,7 +160,13 @@ def main() -> None:
     ap.add_argument("--text-max", type=int, default=8000, help="largest n also written and read as tsv")
     ap.add_argument("--full-max", type=int, default=8000, help="largest n also joined with the full scan")
     ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--kernels", action="store_true",
+                    help="instead: the audit's triangle count and the shrink closure, time per triple")
+    ap.add_argument("--threads", type=int, default=0, help="closure threads with --kernels (0: all)")
     args = ap.parse_args()
+    if args.kernels:
+        kernels([int(x) for x in args.sizes.split(",")], args.seed, args.threads)
+        return
     py = sys.executable
     print(f"load average at start: {os.getloadavg()[0]:.1f}; {os.cpu_count()} cores")
     print("| n | input | step | seconds | peak GB | note |")
