@@ -17,7 +17,8 @@ import numpy as np
 
 from seqdist.core.errors import InputError
 
-__all__ = ["Node", "Tree", "rooted_for_drawing", "quote_label", "format_length", "format_support", "write_newick"]
+__all__ = ["Node", "Tree", "rooted_for_drawing", "order_children", "quote_label", "format_length", "format_support",
+           "write_newick"]
 
 
 class Node:
@@ -315,20 +316,44 @@ def rooted_for_drawing(tree: Tree, outgroup: str | None = None) -> Tree:
 # doubled; underscores are quoted too (strict readers turn a bare underscore into a blank); lengths
 # are written with repr (the shortest text that reads back to the same float), -0.0 as 0.0.
 
+def order_children(tree: Tree, rank: dict[str, int]) -> None:
+    """Sort every node's children by the smallest rank of a leaf below them (in place).
+
+    Gives a deterministic text and drawing whatever order the children were made in.
+
+    Examples
+    --------
+    >>> a, b, c = Node("a"), Node("b"), Node("c")
+    >>> t = Tree(Node(children=[c, Node(children=[b, a])]))
+    >>> order_children(t, {"a": 0, "b": 1, "c": 2}); t.to_newick(lengths=False)
+    '((a,b),c);\\n'
+    """
+    first: dict[int, int] = {}
+    for node in tree.postorder():
+        if node.is_leaf:
+            first[id(node)] = rank[node.name]
+        else:
+            node.children.sort(key=lambda c: first[id(c)])
+            first[id(node)] = first[id(node.children[0])]
+
+
 # Characters that force quoting: Newick punctuation, the quote itself,
 # white space, and the underscore (see module docs).
 _SPECIAL = set("()[]':;,_")
 
 
-def quote_label(label: str) -> str:
+def quote_label(label: str, special: set[str] | frozenset[str] = _SPECIAL) -> str:
     """A label as Newick text: bare when safe, else single-quoted.
+
+    ``special`` are the characters that force quotes besides white space (NEXUS
+    files use a longer list: :func:`seqdist.io.nexus_trees.quote_nexus`).
 
     Examples
     --------
     >>> quote_label("human"), quote_label("it's"), quote_label("a b"), quote_label("x_1")
     ('human', "'it''s'", "'a b'", "'x_1'")
     """
-    if label and not any(c in _SPECIAL or c.isspace() for c in label):
+    if label and not any(c in special or c.isspace() for c in label):
         return label
     return "'" + label.replace("'", "''") + "'"
 

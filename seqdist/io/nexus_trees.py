@@ -41,7 +41,7 @@ import re
 from typing import Iterator, Sequence
 
 from seqdist.core.errors import InputError
-from seqdist.core.tree import Tree, write_newick
+from seqdist.core.tree import Tree, quote_label, write_newick
 
 __all__ = ["read_nexus_trees", "read_tree_file", "write_nexus_trees", "quote_nexus", "TREE_FORMATS",
            "NEXUS_EXTENSIONS", "tree_format_for", "format_tree"]
@@ -65,9 +65,7 @@ def quote_nexus(label: str) -> str:
     >>> quote_nexus("human"), quote_nexus("seq-1"), quote_nexus("it's"), quote_nexus("a_b")
     ('human', "'seq-1'", "'it''s'", "'a_b'")
     """
-    if label and not any(c in _NEXUS_SPECIAL or c.isspace() for c in label):
-        return label
-    return "'" + label.replace("'", "''") + "'"
+    return quote_label(label, _NEXUS_SPECIAL)
 
 
 class _Text:

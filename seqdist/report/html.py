@@ -31,7 +31,7 @@ from typing import Collection, Iterable
 
 import numpy as np
 
-from seqdist.core.tree import Tree, rooted_for_drawing
+from seqdist.core.tree import Tree, order_children, rooted_for_drawing
 from seqdist.impact.compare import CAUTION, ImpactResult, summary_lines
 from seqdist.trees.compare import nontrivial, splits
 
@@ -195,23 +195,13 @@ class TreeLayout:
         return out
 
 
-def _ladderised(tree: Tree, rank: dict) -> None:
-    first: dict[int, int] = {}
-    for node in tree.postorder():
-        if node.is_leaf:
-            first[id(node)] = rank[node.name]
-        else:
-            node.children.sort(key=lambda c: first[id(c)])
-            first[id(node)] = first[id(node.children[0])]
-
-
 def _layout(t: Tree, taxa: list, cap: float) -> TreeLayout:
     """Lay out ``t`` (already rooted for drawing; ladderised in place)."""
     # taxa left out of the comparison sort after the compared ones
     rank = {lab: k for k, lab in enumerate(taxa)}
     for k, lab in enumerate(sorted(x for x in t.labels() if x not in rank)):
         rank[lab] = len(taxa) + k
-    _ladderised(t, rank)
+    order_children(t, rank)
     nodes = list(t.preorder())
     index = {id(nd): k for k, nd in enumerate(nodes)}
     full = (1 << len(taxa)) - 1

@@ -26,7 +26,7 @@ from __future__ import annotations
 from typing import Sequence
 
 from seqdist.core.errors import InputError
-from seqdist.core.tree import Node, Tree
+from seqdist.core.tree import Node, Tree, order_children
 from seqdist.trees.compare import splits
 
 __all__ = ["split_counts", "majority_consensus", "consensus_from_counts", "compatible", "set_support"]
@@ -190,16 +190,8 @@ def consensus_from_counts(counts: dict[int, int], n_trees: int, taxa: Sequence[s
             where[k] = node
     for k in range(n):
         where[k].add_child(leaf_nodes[k])
-    # children in order of their first taxon (deterministic text)
-    first: dict[int, int] = {}
-    index = {lab: k for k, lab in enumerate(taxa)}
     tree = Tree(root, rooted=False, method="majority-rule consensus")
-    for node in tree.postorder():
-        if node.is_leaf:
-            first[id(node)] = index[node.name]
-        else:
-            node.children.sort(key=lambda c: first[id(c)])
-            first[id(node)] = first[id(node.children[0])]
+    order_children(tree, {lab: k for k, lab in enumerate(taxa)})  # deterministic text
     return tree
 
 
