@@ -58,3 +58,31 @@ def small_alignment(path, rows=10, cols=400):
     with open(path, "w") as fh:
         for name, seq in recs[:rows]:
             fh.write(f">{name}\n{seq[:cols]}\n")
+
+
+def shell_commands(block: str) -> list[str]:
+    """The commands of a code block: continuation lines joined, comments kept out."""
+    lines, cur = [], ""
+    for raw in block.splitlines():
+        line = raw.rstrip()
+        if cur:
+            cur += " " + line.strip()
+        else:
+            cur = line.strip()
+        if cur.endswith("\\"):
+            cur = cur[:-1].rstrip()
+            continue
+        if cur and not cur.startswith("#"):
+            lines.append(cur)
+        cur = ""
+    return lines
+
+
+def help_example_commands(text: str) -> list[str] | None:
+    """The commands of a ``--help`` text's ``example(s):`` block (None: it has none)."""
+    import re
+
+    m = re.search(r"\nexamples?:\n(.*?)(?:\n\S|\n\n(?!  )|\Z)", text, flags=re.S)
+    if m is None:
+        return None
+    return shell_commands("\n".join(ln for ln in m.group(1).splitlines() if ln.startswith("  ")))

@@ -16,7 +16,7 @@ import shutil
 import subprocess
 import sys
 
-from conftest import ROOT, open_text
+from conftest import ROOT, help_example_commands, open_text, shell_commands
 
 HELP_ORDER = ["simulate", "distances", "scores", "pairscores", "audit", "repair", "tree", "impact", "convert", "run"]
 
@@ -25,24 +25,6 @@ def sandbox(tmp_path):
     for name in ("example_sequences", "workflows"):
         shutil.copytree(os.path.join(ROOT, name), tmp_path / name)
     return tmp_path
-
-
-def shell_commands(block: str) -> list[str]:
-    """The commands of a code block: continuation lines joined, comments kept out."""
-    lines, cur = [], ""
-    for raw in block.splitlines():
-        line = raw.rstrip()
-        if cur:
-            cur += " " + line.strip()
-        else:
-            cur = line.strip()
-        if cur.endswith("\\"):
-            cur = cur[:-1].rstrip()
-            continue
-        if cur and not cur.startswith("#"):
-            lines.append(cur)
-        cur = ""
-    return lines
 
 
 def readme_blocks():
@@ -101,11 +83,9 @@ def help_examples(command: str) -> list[str]:
     p = subprocess.run([sys.executable, "-m", "seqdist.cli", command, "--help"], capture_output=True, text=True,
                        cwd=ROOT, env=env())
     assert p.returncode == 0, p.stderr
-    text = p.stdout
-    m = re.search(r"\nexamples?:\n(.*?)(?:\n\S|\n\n(?!  )|\Z)", text, flags=re.S)
-    assert m, f"'seqdist {command} --help' has no example"
-    block = "\n".join(ln for ln in m.group(1).splitlines() if ln.startswith("  "))
-    return [c for c in shell_commands(block)]
+    cmds = help_example_commands(p.stdout)
+    assert cmds is not None, f"'seqdist {command} --help' has no example"
+    return cmds
 
 
 def test_help_examples_run_as_written(tmp_path):

@@ -24,7 +24,7 @@ from seqdist.scores.matrices import ScoreMatrix
 from seqdist.scores.pairwise import GAP_COST_CONVENTION, gap_cost, score_distances
 from seqdist.simulate import RENAMED, RenamedWarning, format_fasta, make_model, random_tree, simulate
 
-from conftest import ROOT, open_text, run_cli
+from conftest import ROOT, help_example_commands, open_text, run_cli
 
 #: The commands this part owns, in an order where each example finds the files
 #: the earlier ones wrote (audit and repair read the dist.tsv that distances writes).
@@ -37,24 +37,6 @@ def _help(command: str) -> str:
     p = run_cli(command, "--help")
     assert p.returncode == 0, p.stderr
     return p.stdout
-
-
-def _examples(text: str) -> list[str]:
-    """The commands of the help's ``example(s):`` block, continuation lines joined."""
-    m = re.search(r"\nexamples?:\n(.*?)(?:\n\S|\n\n(?!  )|\Z)", text, flags=re.S)
-    assert m, "no example block"
-    cmds, cur = [], ""
-    for raw in m.group(1).splitlines():
-        if not raw.startswith("  "):
-            continue
-        cur = f"{cur} {raw.strip()}" if cur else raw.strip()
-        if cur.endswith("\\"):
-            cur = cur[:-1].rstrip()
-            continue
-        if cur and not cur.startswith("#"):
-            cmds.append(cur)
-        cur = ""
-    return cmds
 
 
 # ------------------------------------------------------------- simulate: old names
@@ -98,7 +80,9 @@ def test_old_names_are_hidden_from_help_and_new_ones_shown():
             "--indels", "--kappa", "--model"} <= shown
     assert not shown & {"--length", "--alpha", "--rate-categories", "--gap-rate", "--gap-length", "--scale",
                         "--clock", "--prefix", "--freqs"}
-    for cmd in _examples(text):
+    cmds = help_example_commands(text)
+    assert cmds, "no example block"
+    for cmd in cmds:
         assert not re.search(r"--(length|alpha|rate-categories|gap-rate|gap-length|scale|clock|prefix|freqs)\b", cmd)
 
 
