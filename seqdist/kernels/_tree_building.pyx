@@ -31,8 +31,8 @@ values are read and written:
 
 import numpy as np
 
-from libc.math cimport INFINITY
-from libc.stdint cimport int32_t, int64_t, uint64_t
+from libc.math cimport INFINITY, nextafterf
+from libc.stdint cimport int32_t, int64_t, uint32_t, uint64_t
 from libc.string cimport memcpy, memmove, memset
 
 
@@ -43,121 +43,101 @@ cdef extern from "src/tree_building.h" nogil:
     void sd_upgma_merge_row(double* di, const double* dj, int64_t p, double si, double sj)
     int64_t sd_upgma_nearest(const double* row, const double* pen, int64_t a, int64_t p, const int64_t* key,
                              double* out)
-    void sd_row_sums(const double* d, int64_t stride, int64_t m, double* R)
-    void sd_nj_write_columns(double* d, int64_t n, int64_t m, int64_t i, int64_t j, int64_t last,
-                             const double* newd)
     void sd_upgma_write_column(double* d, int64_t n, const int64_t* live, int64_t m, int64_t i, int64_t j,
                                const double* di, const int64_t* nbs, unsigned char* stale)
+    void sd_nj_packed_row_sums(const double* P, int64_t m, double* R)
+    void sd_nj_gather(const double* P, const double* V, int64_t m, int64_t i, int64_t j,
+                      double* di, double* dj, double* vi, double* vj)
+    void sd_nj_scatter(double* P, double* V, int64_t m, int64_t i, int64_t j, const double* newd,
+                       const double* newv)
+
+
+# one entry of a sorted row: a lower bound of the distance (float32) and the cluster it leads to
+cdef struct Entry:
+    float v
+    int32_t id
 
 
 # ------------------------------------------------------------------ sorting a row
-cdef inline uint64_t _order_bits(double v) noexcept nogil:
-    # an unsigned integer in the order of the doubles (negatives reversed, sign flipped)
-    cdef uint64_t u
-    memcpy(&u, &v, 8)
-    if u >> 63:
+cdef inline float _lower32(double d) noexcept nogil:
+    # the largest float32 not above d (rounding to nearest may go up one step)
+    cdef float f = <float>d
+    if <double>f > d:
+        f = nextafterf(f, -INFINITY)
+    return f
+
+
+cdef inline uint32_t _order32(float v) noexcept nogil:
+    # an unsigned integer in the order of the floats (negatives reversed, sign flipped)
+    cdef uint32_t u
+    memcpy(&u, &v, 4)
+    if u >> 31:
         return ~u
-    return u | (<uint64_t>1 << 63)
+    return u | (<uint32_t>1 << 31)
 
 
-cdef inline double _from_order_bits(uint64_t u) noexcept nogil:
-    cdef double v
-    if u >> 63:
-        u = u ^ (<uint64_t>1 << 63)
+cdef inline float _from_order32(uint32_t u) noexcept nogil:
+    cdef float v
+    if u >> 31:
+        u = u ^ (<uint32_t>1 << 31)
     else:
         u = ~u
-    memcpy(&v, &u, 8)
+    memcpy(&v, &u, 4)
     return v
 
 
-cdef void _radix(uint64_t** ka, uint64_t** kb, int32_t** ia, int32_t** ib, Py_ssize_t t, int64_t* hist,
-                 int p0) noexcept nogil:
-    # stable least-significant-digit radix passes over bytes p0 .. 7 of the keys in ka[0]
-    # (ids in ia[0]), a pass skipped when every key has the same byte there; the result
-    # ends in ka[0] / ia[0] (the buffers are swapped as the passes go)
-    cdef Py_ssize_t x, s, tot, c
+cdef void _sort_row(const double* vals, const int64_t* ids, Py_ssize_t t, Entry* out,
+                    uint64_t* ka, uint64_t* kb, int64_t* hist) noexcept nogil:
+    """Write ``t`` entries (lower bound of ``vals[x]``, ``ids[x]``) to ``out`` in increasing order.
+
+    Each item is one 64-bit integer: the bound's order bits above, the id below; a
+    stable sort on the upper half (insertion sort for short rows, else least-significant
+    digit radix passes over its four bytes, a pass skipped when every item has the same
+    byte there). The order of equal bounds does not matter (the search is exact whatever
+    it is, see build.py), but it is fixed by the input order, so runs repeat.
+    ``ka``, ``kb`` hold ``t`` items each, ``hist`` 4 * 256 counts.
+    """
+    cdef Py_ssize_t x, y, s, tot, c
     cdef int p
     cdef uint64_t u
     cdef uint64_t* kt
-    cdef int32_t* it
     cdef int64_t* h
-    memset(hist, 0, 8 * 256 * sizeof(int64_t))
     for x in range(t):
-        u = ka[0][x]
-        for p in range(p0, 8):
-            hist[p * 256 + <Py_ssize_t>((u >> (8 * p)) & 255)] += 1
-    for p in range(p0, 8):
-        h = hist + p * 256
-        if h[<Py_ssize_t>((ka[0][0] >> (8 * p)) & 255)] == t:
-            continue  # every key has this byte
-        tot = 0
-        for s in range(256):
-            c = h[s]
-            h[s] = tot
-            tot += c
-        for x in range(t):
-            u = ka[0][x]
-            s = <Py_ssize_t>((u >> (8 * p)) & 255)
-            kb[0][h[s]] = u
-            ib[0][h[s]] = ia[0][x]
-            h[s] += 1
-        kt = ka[0]
-        ka[0] = kb[0]
-        kb[0] = kt
-        it = ia[0]
-        ia[0] = ib[0]
-        ib[0] = it
-
-
-cdef bint _insertion(uint64_t* ka, int32_t* ia, Py_ssize_t t, Py_ssize_t budget) noexcept nogil:
-    # stable insertion sort of the keys (with their ids); gives up (False) after
-    # `budget` moves, leaving a permutation of the items
-    cdef Py_ssize_t x, y, moves = 0
-    cdef uint64_t u
-    cdef int32_t idx
-    for x in range(1, t):
-        u = ka[x]
-        if ka[x - 1] <= u:
-            continue
-        idx = ia[x]
-        y = x - 1
-        while y >= 0 and ka[y] > u:
-            ka[y + 1] = ka[y]
-            ia[y + 1] = ia[y]
-            y -= 1
-            moves += 1
-        ka[y + 1] = u
-        ia[y + 1] = idx
-        if moves > budget:
-            return False
-    return True
-
-
-cdef void _sort_row(const double* vals, const int64_t* ids, Py_ssize_t t, double* out_v, int32_t* out_i,
-                    uint64_t* ka, uint64_t* kb, int32_t* ia, int32_t* ib, int64_t* hist) noexcept nogil:
-    """Sort ``vals`` (with their ``ids``) increasingly into ``out_v`` / ``out_i``.
-
-    The doubles are mapped to integers in the same order, then: short rows by
-    insertion sort; longer ones by a radix sort on the top four bytes (sign,
-    exponent, 20 bits of mantissa), which leaves only runs of keys that agree
-    there, put in order by an insertion sort; should that need many moves (values
-    that agree in their first 32 bits but not in the rest), by a full radix sort.
-    Every route gives the same result: a stable sort on the whole key.
-    ``ka``, ``kb``, ``ia``, ``ib`` hold ``t`` items each, ``hist`` 8 * 256 counts.
-    """
-    cdef Py_ssize_t x
-    for x in range(t):
-        ka[x] = _order_bits(vals[x])
-        ia[x] = <int32_t>ids[x]
+        ka[x] = (<uint64_t>_order32(_lower32(vals[x])) << 32) | <uint64_t><uint32_t>ids[x]
     if t < 48:
-        _insertion(ka, ia, t, t * t)
-    else:
-        _radix(&ka, &kb, &ia, &ib, t, hist, 4)
-        if not _insertion(ka, ia, t, 2 * t + 64):
-            _radix(&ka, &kb, &ia, &ib, t, hist, 0)
+        for x in range(1, t):
+            u = ka[x]
+            y = x - 1
+            while y >= 0 and (ka[y] >> 32) > (u >> 32):
+                ka[y + 1] = ka[y]
+                y -= 1
+            ka[y + 1] = u
+    elif t > 0:
+        memset(hist, 0, 4 * 256 * sizeof(int64_t))
+        for x in range(t):
+            u = ka[x] >> 32
+            for p in range(4):
+                hist[p * 256 + <Py_ssize_t>((u >> (8 * p)) & 255)] += 1
+        for p in range(4):
+            h = hist + p * 256
+            if h[<Py_ssize_t>((ka[0] >> (32 + 8 * p)) & 255)] == t:
+                continue  # every item has this byte
+            tot = 0
+            for s in range(256):
+                c = h[s]
+                h[s] = tot
+                tot += c
+            for x in range(t):
+                u = ka[x]
+                s = <Py_ssize_t>((u >> (32 + 8 * p)) & 255)
+                kb[h[s]] = u
+                h[s] += 1
+            kt = ka
+            ka = kb
+            kb = kt
     for x in range(t):
-        out_v[x] = _from_order_bits(ka[x])
-        out_i[x] = ia[x]
+        out[x].v = _from_order32(<uint32_t>(ka[x] >> 32))
+        out[x].id = <int32_t><uint32_t>ka[x]  # the lower half
 
 
 cdef inline bint _better(double q, double best, int64_t lo, int64_t hi, int64_t k0, int64_t k1) noexcept nogil:
@@ -165,79 +145,106 @@ cdef inline bint _better(double q, double best, int64_t lo, int64_t hi, int64_t 
     return q < best or (q == best and (lo < k0 or (lo == k0 and hi < k1)))
 
 
+cdef inline double _cell(const double* P, int64_t a, int64_t b) noexcept nogil:
+    # the packed cell of slots a != b
+    if a > b:
+        return P[a * (a - 1) // 2 + b]
+    return P[b * (b - 1) // 2 + a]
+
+
+cdef int64_t _compact(Entry* E, int64_t* beg, int64_t* end, const int64_t* slot_of, int64_t n_ids) noexcept nogil:
+    # the rows of live clusters moved down in cluster-id order (the order they lie in:
+    # leaves first, then the clusters as they were made), without the entries of joined
+    # clusters; returns the new top of the arena
+    cdef int64_t w = 0, h, cid
+    for cid in range(n_ids):
+        if slot_of[cid] < 0:
+            continue
+        h = beg[cid]
+        beg[cid] = w
+        while h < end[cid]:
+            if slot_of[E[h].id] >= 0:
+                E[w] = E[h]
+                w += 1
+            h += 1
+        end[cid] = w
+    return w
+
+
 # ------------------------------------------------------------------ neighbor joining
-def nj_kernel(double[:, ::1] D, double[:, ::1] V, bint bionj, bint sorted_rows):
-    """Neighbor joining / BIONJ on the (n, n) array D (overwritten); V is BIONJ's
-    variance matrix (a copy of D, overwritten; unused otherwise).
+def nj_arena_size(Py_ssize_t n):
+    """Entries of the sorted rows' arena for ``n`` taxa (each pair once, plus room to grow)."""
+    cdef int64_t pairs = <int64_t>n * (n - 1) // 2
+    return pairs + pairs // 16 + 2 * n + 64
+
+
+def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
+    """Neighbor joining / BIONJ on the packed strictly lower triangle ``P`` of a
+    symmetric (n, n) matrix (overwritten): the distance of taxa a > b is
+    ``P[a (a - 1) / 2 + b]``.
 
     Returns ``(kids, lens, last3, len3)``: the two ids joined at each step (new
     clusters take ids n, n + 1, ...) and their branch lengths, then the three ids
     left and their lengths. ``sorted_rows`` chooses the search (see build.py); both
     pick the same pair at every step.
     """
-    cdef Py_ssize_t n = D.shape[0]
-    if D.shape[1] != n:
-        raise ValueError(f"expected a square matrix, got shape ({n}, {D.shape[1]})")
-    if bionj and (V.shape[0] != n or V.shape[1] != n):
-        raise ValueError("bionj needs a variance matrix of the shape of D")
+    cdef int64_t npairs = <int64_t>n * (n - 1) // 2 if n > 1 else 0
+    if P.shape[0] != npairs:
+        raise ValueError(f"expected {npairs} packed distances for {n} taxa, got {P.shape[0]}")
     cdef Py_ssize_t steps = n - 3 if n > 3 else 0
-    cdef Py_ssize_t ns = n if sorted_rows else 1
     kids_a = np.empty((steps, 2), dtype=np.int64)
     lens_a = np.empty((steps, 2))
     last3_a = np.zeros(3, dtype=np.int64)
     len3_a = np.zeros(3)
-    if n == 0:
+    if n < 3:
         return kids_a, lens_a, last3_a, len3_a
+    # BIONJ's variances start as the distances
+    V_a = np.array(P, copy=True) if bionj else np.zeros(1)
+    # the sorted rows: one arena of entries, each cluster's row a range of it
+    cdef int64_t cap = nj_arena_size(n) if sorted_rows else 1
+    E_a = np.empty(2 * cap, dtype=np.int32)
     # work arrays carved out of three blocks (a numpy allocation costs a few microseconds)
-    iw_a = np.empty(9 * n + 3 * ns + 2048, dtype=np.int64)
-    dw_a = np.empty(8 * n)
-    i32_a = np.empty(2 * n, dtype=np.int32)
-    SV_a = np.empty((ns, ns))  # each row's distances, increasing (sorted search)
-    SI_a = np.empty((ns, ns), dtype=np.int32)  # and the ids they lead to
+    iw_a = np.empty(10 * n + 1024, dtype=np.int64)
+    dw_a = np.empty(12 * n)
+    kw_a = np.empty(2 * n + 2, dtype=np.uint64)
     cdef int64_t[:, ::1] kids_v = kids_a
     cdef double[:, ::1] lens_v = lens_a
     cdef int64_t[::1] last3_v = last3_a
     cdef double[::1] len3_v = len3_a
     cdef int64_t[::1] iw_v = iw_a
     cdef double[::1] dw_v = dw_a
-    cdef int32_t[::1] i32_v = i32_a
-    cdef double[:, ::1] SV_v = SV_a
-    cdef int32_t[:, ::1] SI_v = SI_a
+    cdef uint64_t[::1] kw_v = kw_a
+    cdef double[::1] V_v = V_a
+    cdef int32_t[::1] E_v = E_a
     # raw pointers in the loops (a memoryview's data pointer is reloaded at every use)
     cdef int64_t* kids = &kids_v[0, 0] if steps > 0 else NULL
     cdef double* lens = &lens_v[0, 0] if steps > 0 else NULL
     cdef int64_t* ids = &iw_v[0]  # cluster id per slot
     cdef int64_t* key = ids + n  # smallest leaf position per slot (tie-breaks)
     cdef int64_t* slot_of = key + n  # slot per cluster id (2n), -1 once joined
-    cdef int64_t* tmpi = slot_of + 2 * n
-    cdef uint64_t* ka = <uint64_t*>(tmpi + n)  # radix-sort buffers
-    cdef uint64_t* kb = ka + n
-    cdef int64_t* hist = <int64_t*>(kb + n)
-    cdef int64_t* length = hist + 2048  # per storage row (sorted search)
-    cdef int64_t* head = length + ns
-    cdef int64_t* store = head + ns  # storage row per slot
+    cdef int64_t* beg = slot_of + 2 * n  # per cluster id: its sorted row is E[beg:end]
+    cdef int64_t* end = beg + 2 * n
+    cdef int64_t* tmpi = end + 2 * n
+    cdef int64_t* hist = tmpi + n  # radix-sort counts (1024)
     cdef double* R = &dw_v[0]  # row sums per slot
     cdef double* newd = R + n
     cdef double* newv = newd + n
     cdef double* Rid = newv + n  # row sum per cluster id (2n), -inf once joined
     cdef double* tmpv = Rid + 2 * n
-    cdef int32_t* ia = &i32_v[0]
-    cdef int32_t* ib = ia + n
-    cdef double* SV = &SV_v[0, 0]
-    cdef int32_t* SI = &SI_v[0, 0]
-    cdef double* D0 = &D[0, 0]
-    cdef double* V0 = &V[0, 0] if bionj else NULL
+    cdef double* xi = tmpv + n  # the full rows of the two slots joined
+    cdef double* xj = xi + n
+    cdef double* yi = xj + n  # and their variances
+    cdef double* yj = yi + n
+    cdef uint64_t* ka = &kw_v[0]
+    cdef uint64_t* kb = ka + n + 1
+    cdef Entry* E = <Entry*>&E_v[0]
+    cdef double* P0 = &P[0]
+    cdef double* V0 = &V_v[0] if bionj else NULL
 
-    cdef Py_ssize_t m = n, a, b, k, t, h, hend, st, step, i, j, bi, bj, last, o0, o1, compact_at
-    cdef int64_t k0, k1, ka_, kb_, lo, hi
-    cdef double s, c, best, ra, rmax, base, d, q, dij, li, lj, lam, vij, dk, ru
-    cdef double* row
-    cdef double* Di
-    cdef double* Dj
-    cdef double* Vi = NULL
-    cdef double* Vj = NULL
-    cdef double* sv
-    cdef int32_t* si
+    cdef Py_ssize_t m = n, a, b, k, t = 0, step, i, j, bi, bj, last, o0, o1, compact_at
+    cdef int64_t k0, k1, ka_, kb_, lo, hi, h, hend, top = 0, cid
+    cdef double s, c, best, bestl, ra, rmax, base, d, dl, q, ql, dij, li, lj, lam, vij, dk, ru
+    cdef Entry* row
     with nogil:
         for a in range(n):
             ids[a] = a
@@ -246,26 +253,25 @@ def nj_kernel(double[:, ::1] D, double[:, ::1] V, bint bionj, bint sorted_rows):
             slot_of[n + a] = -1
             Rid[a] = -INFINITY
             Rid[n + a] = -INFINITY
-        for a in range(ns):
-            length[a] = 0
-            head[a] = 0
-            store[a] = a
-        sd_row_sums(D0, n, n, R)
+            beg[a] = 0
+            end[a] = 0
+            beg[n + a] = 0
+            end[n + a] = 0
+        sd_nj_packed_row_sums(P0, n, R)
         if sorted_rows:
+            # each pair once, in the row of its larger position (the leaves' rows are the
+            # packed rows themselves, so they lie in the arena as in P)
             for a in range(n):
-                t = 0
-                row = D0 + a * n
-                for b in range(n):
-                    if b != a:
-                        tmpv[t] = row[b]
-                        tmpi[t] = b
-                        t += 1
-                _sort_row(tmpv, tmpi, t, SV + a * ns, SI + a * ns, ka, kb, ia, ib, hist)
-                length[a] = t
+                for b in range(a):
+                    tmpi[b] = b
+                _sort_row(P0 + a * (a - 1) // 2, tmpi, a, E + top, ka, kb, hist)
+                beg[a] = top
+                end[a] = top + a
+                top += a
         compact_at = n // 2
         for step in range(steps):
             if step > 0 and step % 64 == 0:
-                sd_row_sums(D0, n, m, R)
+                sd_nj_packed_row_sums(P0, m, R)
             c = m - 2.0
             best = INFINITY
             bi = -1
@@ -274,15 +280,14 @@ def nj_kernel(double[:, ::1] D, double[:, ::1] V, bint bionj, bint sorted_rows):
             k1 = n
             if not sorted_rows:
                 for a in range(1, m):
-                    row = D0 + a * n
                     ra = R[a]
                     # the vectorised row minimum first; the exact scan with index
                     # and tie-break only runs for rows that can win
-                    if sd_nj_row_qmin(row, R, a, c, ra) > best:
+                    if sd_nj_row_qmin(P0 + a * (a - 1) // 2, R, a, c, ra) > best:
                         continue
                     ka_ = key[a]
                     for b in range(a):
-                        q = c * row[b] - (ra + R[b])
+                        q = c * P0[a * (a - 1) // 2 + b] - (ra + R[b])
                         if q <= best:
                             kb_ = key[b]
                             lo = ka_ if ka_ < kb_ else kb_
@@ -296,77 +301,71 @@ def nj_kernel(double[:, ::1] D, double[:, ::1] V, bint bionj, bint sorted_rows):
             else:
                 if m <= compact_at:
                     # drop the entries of joined clusters (order is kept)
-                    for a in range(m):
-                        st = store[a]
-                        sv = SV + st * ns
-                        si = SI + st * ns
-                        t = 0
-                        for h in range(head[st], length[st]):
-                            if slot_of[si[h]] >= 0:
-                                sv[t] = sv[h]
-                                si[t] = si[h]
-                                t += 1
-                        length[st] = t
-                        head[st] = 0
+                    top = _compact(E, beg, end, slot_of, n + step)
                     compact_at = m // 2
                 rmax = -INFINITY
                 for a in range(m):
                     if R[a] > rmax:
                         rmax = R[a]
                     Rid[ids[a]] = R[a]
-                # a first best from each row's nearest live entry (rows lie far
-                # apart: the heads of the rows a few steps ahead are asked for early)
+                # A first best: the row whose nearest live entry has the smallest bound of
+                # Q, and that pair's exact Q (rows lie far apart: the heads of the rows a
+                # few steps ahead are asked for early).
+                bestl = INFINITY
+                o0 = -1
                 for a in range(m):
                     if a + 8 < m:
-                        st = store[a + 8]
-                        sd_prefetch(SI + st * ns + head[st])
-                        sd_prefetch(SV + st * ns + head[st])
-                    st = store[a]
-                    si = SI + st * ns
-                    h = head[st]
-                    hend = length[st]
-                    while h < hend and slot_of[si[h]] < 0:
+                        sd_prefetch(E + beg[ids[a + 8]])
+                    cid = ids[a]
+                    h = beg[cid]
+                    hend = end[cid]
+                    while h < hend and slot_of[E[h].id] < 0:
                         h += 1
-                    head[st] = h
+                    beg[cid] = h
                     if h < hend:
-                        b = slot_of[si[h]]
-                        q = c * SV[st * ns + h] - (R[a] + R[b])
-                        lo = key[a] if key[a] < key[b] else key[b]
-                        hi = key[a] if key[a] > key[b] else key[b]
-                        if _better(q, best, lo, hi, k0, k1):
-                            best = q
-                            bi = a
-                            bj = b
-                            k0 = lo
-                            k1 = hi
+                        ql = c * <double>E[h].v - (R[a] + Rid[E[h].id])
+                        if ql < bestl:
+                            bestl = ql
+                            o0 = a
+                if o0 >= 0:
+                    a = o0
+                    b = slot_of[E[beg[ids[a]]].id]
+                    best = c * _cell(P0, a, b) - (R[a] + R[b])
+                    bi = a
+                    bj = b
+                    k0 = key[a] if key[a] < key[b] else key[b]
+                    k1 = key[a] if key[a] > key[b] else key[b]
                 for a in range(m):
-                    st = store[a]
-                    sv = SV + st * ns
-                    si = SI + st * ns
+                    cid = ids[a]
+                    row = E + beg[cid]
+                    hend = end[cid] - beg[cid]
                     ra = R[a]
                     base = ra + rmax
                     ka_ = key[a]
-                    hend = length[st]
-                    for h in range(head[st], hend):
-                        d = sv[h]
-                        # rounding is monotone: this bound never exceeds a computed Q
-                        if c * d - base > best:
+                    for h in range(hend):
+                        dl = <double>row[h].v
+                        # the entries are bounds in increasing order, and rounding is
+                        # monotone: no later entry of this row has a Q below this
+                        if c * dl - base > best:
                             break
-                        # a joined cluster's row sum is -inf here, so its Q is +inf
-                        q = c * d - (ra + Rid[si[h]])
-                        if q <= best:
-                            b = slot_of[si[h]]
+                        # a bound of this entry's Q; a joined cluster's row sum is -inf
+                        # here, so its bound is +inf
+                        ql = c * dl - (ra + Rid[row[h].id])
+                        if ql <= best:
+                            b = slot_of[row[h].id]
                             if b < 0:
                                 continue
-                            kb_ = key[b]
-                            lo = ka_ if ka_ < kb_ else kb_
-                            hi = ka_ if ka_ > kb_ else kb_
-                            if _better(q, best, lo, hi, k0, k1):
-                                best = q
-                                bi = a
-                                bj = b
-                                k0 = lo
-                                k1 = hi
+                            q = c * _cell(P0, a, b) - (ra + R[b])
+                            if q <= best:
+                                kb_ = key[b]
+                                lo = ka_ if ka_ < kb_ else kb_
+                                hi = ka_ if ka_ > kb_ else kb_
+                                if _better(q, best, lo, hi, k0, k1):
+                                    best = q
+                                    bi = a
+                                    bj = b
+                                    k0 = lo
+                                    k1 = hi
                 if bi > bj:
                     bi, bj = bj, bi
             if bi < 0:  # every Q is NaN: cannot happen on a valid matrix
@@ -391,22 +390,20 @@ def nj_kernel(double[:, ::1] D, double[:, ::1] V, bint bionj, bint sorted_rows):
                     bj = o1
             i = bi
             j = bj  # i < j
-            Di = D0 + i * n
-            Dj = D0 + j * n
-            dij = Di[j]
+            # the two rows in full (and their variances), from the packed triangles
+            sd_nj_gather(P0, V0, m, i, j, xi, xj, yi, yj)
+            dij = xi[j]
             li = 0.5 * dij + (R[i] - R[j]) / (2.0 * c)
             lj = dij - li
             lam = 0.5
             vij = 0.0
             if bionj:
-                Vi = V0 + i * n
-                Vj = V0 + j * n
-                vij = Vi[j]
+                vij = yi[j]
                 if vij > 0.0:
                     s = 0.0
                     for k in range(m):
                         if k != i and k != j:
-                            s += Vj[k] - Vi[k]
+                            s += yj[k] - yi[k]
                     lam = 0.5 + s / (2.0 * c * vij)
                     if lam < 0.0:
                         lam = 0.0
@@ -417,42 +414,29 @@ def nj_kernel(double[:, ::1] D, double[:, ::1] V, bint bionj, bint sorted_rows):
                 if k == i or k == j:
                     continue
                 if bionj:
-                    dk = lam * (Di[k] - li) + (1.0 - lam) * (Dj[k] - lj)
-                    newv[k] = lam * Vi[k] + (1.0 - lam) * Vj[k] - lam * (1.0 - lam) * vij
+                    dk = lam * (xi[k] - li) + (1.0 - lam) * (xj[k] - lj)
+                    newv[k] = lam * yi[k] + (1.0 - lam) * yj[k] - lam * (1.0 - lam) * vij
                 else:
-                    dk = 0.5 * (Di[k] + Dj[k] - dij)
+                    dk = 0.5 * (xi[k] + xj[k] - dij)
                 newd[k] = dk
-                R[k] += dk - Di[k] - Dj[k]
+                R[k] += dk - xi[k] - xj[k]
                 ru += dk
             kids[2 * step] = ids[i]
             kids[2 * step + 1] = ids[j]
             lens[2 * step] = li
             lens[2 * step + 1] = lj
-            # the new cluster takes slot i, the last active slot moves into slot j:
-            # rows i and j first, then both columns in one pass over the rows
-            last = m - 1
-            for k in range(m):
-                if k != i and k != j:
-                    Di[k] = newd[k]
-            Di[j] = 0.0
-            if j != last:
-                memcpy(Dj, D0 + last * n, m * sizeof(double))
-                Dj[i] = newd[last]
-                Dj[j] = 0.0
-                Di[j] = newd[last]
-            if bionj:
+            if sorted_rows:
+                # the new cluster's row: every other live cluster (by id, so the slot move
+                # below does not matter)
+                t = 0
                 for k in range(m):
                     if k != i and k != j:
-                        Vi[k] = newv[k]
-                Vi[j] = 0.0
-                if j != last:
-                    memcpy(Vj, V0 + last * n, m * sizeof(double))
-                    Vj[i] = newv[last]
-                    Vj[j] = 0.0
-                    Vi[j] = newv[last]
-            sd_nj_write_columns(D0, n, m, i, j, last, newd)
-            if bionj:
-                sd_nj_write_columns(V0, n, m, i, j, last, newv)
+                        tmpv[t] = newd[k]
+                        tmpi[t] = ids[k]
+                        t += 1
+            # the new cluster takes slot i, the last active slot moves into slot j
+            last = m - 1
+            sd_nj_scatter(P0, V0, m, i, j, newd, newv)
             R[i] = ru
             if sorted_rows:
                 slot_of[ids[i]] = -1
@@ -468,31 +452,25 @@ def nj_kernel(double[:, ::1] D, double[:, ::1] V, bint bionj, bint sorted_rows):
                 ids[j] = ids[last]
                 key[j] = key[last]
                 if sorted_rows:
-                    store[j] = store[last]
                     slot_of[ids[j]] = j
             m -= 1
             if sorted_rows:
-                # the new cluster's row: every other live cluster, sorted
-                t = 0
-                for k in range(m):
-                    if k != i:
-                        tmpv[t] = Di[k]
-                        tmpi[t] = ids[k]
-                        t += 1
-                st = store[i]
-                _sort_row(tmpv, tmpi, t, SV + st * ns, SI + st * ns, ka, kb, ia, ib, hist)
-                length[st] = t
-                head[st] = 0
+                if top + t > cap:
+                    # room for the new row: drop the rows and entries of joined clusters
+                    top = _compact(E, beg, end, slot_of, n + step)
+                _sort_row(tmpv, tmpi, t, E + top, ka, kb, hist)
+                beg[n + step] = top
+                end[n + step] = top + t
+                top += t
         # the three that remain meet at one node (three-point formula)
-        if n >= 3:
-            d = D0[1]
-            dk = D0[2]
-            dij = D0[n + 2]
-            len3_v[0] = 0.5 * (d + dk - dij)
-            len3_v[1] = 0.5 * (d + dij - dk)
-            len3_v[2] = 0.5 * (dk + dij - d)
-            for a in range(3):
-                last3_v[a] = ids[a]
+        d = P0[0]  # slots 0 and 1
+        dk = P0[1]  # 0 and 2
+        dij = P0[2]  # 1 and 2
+        len3_v[0] = 0.5 * (d + dk - dij)
+        len3_v[1] = 0.5 * (d + dij - dk)
+        len3_v[2] = 0.5 * (dk + dij - d)
+        for a in range(3):
+            last3_v[a] = ids[a]
     return kids_a, lens_a, last3_a, len3_a
 
 

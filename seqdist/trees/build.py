@@ -165,9 +165,8 @@ def neighbor_joining(dm: DistanceMatrix, *, bionj: bool = False, clamp_negative:
         raise InputError(f"unknown search '{search}' (choose sorted or full)")
     from seqdist.kernels.tree_building import nj_kernel
 
-    D = np.array(dm.values, dtype=np.float64, order="C")
-    V = D.copy() if bionj else np.zeros((1, 1))
-    kids, lens, last3, len3 = nj_kernel(D, V, bool(bionj), search == "sorted")
+    # the kernel reads the values (float64 or float32) without writing to them or copying them whole
+    kids, lens, last3, len3 = nj_kernel(dm.values, bool(bionj), search == "sorted")
     method = "bionj" if bionj else "nj"
     t = _assemble(dm, kids, lens, [int(x) for x in last3], [float(x) for x in len3], False, method)
     if clamp_negative:

@@ -9,7 +9,7 @@
  * the one a plain loop computes. Sums keep their left-to-right order. Other compilers
  * get the plain loops.
  *
- * The column writes touch one cache line per row, rows n doubles apart: no hardware
+ * Column reads and writes touch one cache line per row, the rows far apart: no hardware
  * prefetcher follows that stride, so the rows a few steps ahead are asked for early. */
 #ifndef SEQDIST_TREE_BUILDING_H
 #define SEQDIST_TREE_BUILDING_H
@@ -69,42 +69,6 @@ SEQDIST_SIMD static double sd_nj_row_qmin(const double *restrict row, const doub
         m = q < m ? q : m;
     }
     return m;
-}
-
-/* R[a] = sum of row a over columns 0 .. m-1 of the row-major d (row stride `stride`), for
- * a < m, each sum taken left to right from 0.0 as a plain loop does. The sums of eight rows
- * run side by side: one running sum waits for each addition to finish (its order must not
- * change), eight independent ones keep the adders busy. */
-static void sd_row_sums(const double *restrict d, int64_t stride, int64_t m, double *restrict R) {
-    int64_t a = 0;
-    for (; a + 8 <= m; a += 8) {
-        const double *r = d + a * stride;
-        double s0 = 0.0, s1 = 0.0, s2 = 0.0, s3 = 0.0, s4 = 0.0, s5 = 0.0, s6 = 0.0, s7 = 0.0;
-        for (int64_t b = 0; b < m; b++) {
-            s0 += r[b];
-            s1 += r[stride + b];
-            s2 += r[2 * stride + b];
-            s3 += r[3 * stride + b];
-            s4 += r[4 * stride + b];
-            s5 += r[5 * stride + b];
-            s6 += r[6 * stride + b];
-            s7 += r[7 * stride + b];
-        }
-        R[a] = s0;
-        R[a + 1] = s1;
-        R[a + 2] = s2;
-        R[a + 3] = s3;
-        R[a + 4] = s4;
-        R[a + 5] = s5;
-        R[a + 6] = s6;
-        R[a + 7] = s7;
-    }
-    for (; a < m; a++) {
-        const double *r = d + a * stride;
-        double s = 0.0;
-        for (int64_t b = 0; b < m; b++) s += r[b];
-        R[a] = s;
-    }
 }
 
 /* min of x[b] + pen[b] over b in [0, len): pen is 0.0 for a live column, +inf for a dead one
@@ -243,28 +207,142 @@ static void sd_upgma_write_column(double *restrict d, int64_t n, const int64_t *
     }
 }
 
-/* Neighbor joining: the columns of rows k < m other than i and j, in one pass over the rows
- * (d row-major with row stride n): column i gets the new cluster's values newd[k]; when the
- * last slot moves into the freed slot j (j != last), column j gets column last. Each row is
- * a different cache line far from the last one, so rows a few steps ahead are asked for early. */
-static void sd_nj_write_columns(double *restrict d, int64_t n, int64_t m, int64_t i, int64_t j, int64_t last,
-                                const double *restrict newd) {
-    const int move = j != last;
-    for (int64_t k = 0; k < m; k++) {
+/* ---------------------------------------------------------------- neighbor joining, packed
+ * Neighbor joining and BIONJ keep only the strictly lower triangle of their working matrices,
+ * row after row: the cell of slots a > b is P[a (a - 1) / 2 + b], so row a's cells left of the
+ * diagonal are contiguous and its cells right of the diagonal are column a of the rows below
+ * (one cell per row, rows further apart each time). */
+
+/* offset of packed row a */
+SD_TB_INLINE int64_t sd_tri(int64_t a) { return a * (a - 1) / 2; }
+
+/* R[a] for a < m: the sum of slot a's distances to slots 0 .. m-1, in the order a plain loop over
+ * the full row takes them (left to right from 0.0; the diagonal's 0.0 changes no sum, so it is
+ * left out): first row a's own cells, then column a of rows a+1, a+2, ... That order is kept by
+ * going down the rows once: row b first completes its own sum, then adds its cells to the sums
+ * of the slots left of it (one independent sum per lane: SIMD code, no reordering). Eight rows
+ * go side by side, as one running sum waits for each addition to finish. */
+SEQDIST_SIMD static void sd_nj_packed_row_sums(const double *restrict P, int64_t m, double *restrict R) {
+    int64_t b0 = 0;
+    for (; b0 + 8 <= m; b0 += 8) {
+        const double *r0 = P + sd_tri(b0), *r1 = P + sd_tri(b0 + 1), *r2 = P + sd_tri(b0 + 2),
+                     *r3 = P + sd_tri(b0 + 3), *r4 = P + sd_tri(b0 + 4), *r5 = P + sd_tri(b0 + 5),
+                     *r6 = P + sd_tri(b0 + 6), *r7 = P + sd_tri(b0 + 7);
+        double s[8] = {0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0};
+        double s0 = 0.0, s1 = 0.0, s2 = 0.0, s3 = 0.0, s4 = 0.0, s5 = 0.0, s6 = 0.0, s7 = 0.0;
+        for (int64_t a = 0; a < b0; a++) {
+            s0 += r0[a];
+            s1 += r1[a];
+            s2 += r2[a];
+            s3 += r3[a];
+            s4 += r4[a];
+            s5 += r5[a];
+            s6 += r6[a];
+            s7 += r7[a];
+        }
+        for (int64_t a = 0; a < b0; a++) {
+            double x = R[a];
+            x += r0[a];
+            x += r1[a];
+            x += r2[a];
+            x += r3[a];
+            x += r4[a];
+            x += r5[a];
+            x += r6[a];
+            x += r7[a];
+            R[a] = x;
+        }
+        const double *rows[8] = {r0, r1, r2, r3, r4, r5, r6, r7};
+        s[0] = s0; s[1] = s1; s[2] = s2; s[3] = s3; s[4] = s4; s[5] = s5; s[6] = s6; s[7] = s7;
+        for (int q = 1; q < 8; q++)
+            for (int p = 0; p < q; p++) s[q] += rows[q][b0 + p];
+        for (int p = 0; p < 8; p++) {
+            double x = s[p];
+            for (int q = p + 1; q < 8; q++) x += rows[q][b0 + p];
+            R[b0 + p] = x;
+        }
+    }
+    for (int64_t b = b0; b < m; b++) {
+        const double *row = P + sd_tri(b);
+        double x = 0.0;
+        for (int64_t a = 0; a < b; a++) x += row[a];
+        for (int64_t a = 0; a < b; a++) R[a] += row[a];
+        R[b] = x;
+    }
+}
+
+/* The full rows of slots i < j (k < m; 0.0 on the diagonal) from the packed P into di and dj,
+ * and from V into vi and vj when V is not NULL (BIONJ's variances): the cells left of the
+ * diagonal are copied, the cells below it are read one row at a time, rows ahead asked for early. */
+static void sd_nj_gather(const double *restrict P, const double *restrict V, int64_t m, int64_t i, int64_t j,
+                         double *restrict di, double *restrict dj, double *restrict vi, double *restrict vj) {
+    const int64_t ti = sd_tri(i), tj = sd_tri(j);
+    memcpy(di, P + ti, (size_t)i * sizeof(double));
+    memcpy(dj, P + tj, (size_t)j * sizeof(double));
+    di[i] = 0.0;
+    dj[j] = 0.0;
+    if (V) {
+        memcpy(vi, V + ti, (size_t)i * sizeof(double));
+        memcpy(vj, V + tj, (size_t)j * sizeof(double));
+        vi[i] = 0.0;
+        vj[j] = 0.0;
+    }
+    int64_t t = sd_tri(i + 1);
+    for (int64_t k = i + 1; k < m; t += k, k++) {
 #if defined(__GNUC__)
         if (k + 16 < m) {
-            double *ahead = d + (k + 16) * n;
-            __builtin_prefetch(ahead + i, 1, 0);
-            if (move) {
-                __builtin_prefetch(ahead + j, 1, 0);
-                __builtin_prefetch(ahead + last, 0, 0);
+            const int64_t ta = sd_tri(k + 16);
+            __builtin_prefetch(P + ta + i, 0, 0);
+            if (k + 16 > j) __builtin_prefetch(P + ta + j, 0, 0);
+            if (V) {
+                __builtin_prefetch(V + ta + i, 0, 0);
+                if (k + 16 > j) __builtin_prefetch(V + ta + j, 0, 0);
             }
         }
 #endif
-        if (k == i || k == j) continue;
-        double *dk = d + k * n;
-        dk[i] = newd[k];
-        if (move) dk[j] = dk[last];
+        di[k] = P[t + i];
+        if (k > j) dj[k] = P[t + j];
+        if (V) {
+            vi[k] = V[t + i];
+            if (k > j) vj[k] = V[t + j];
+        }
+    }
+}
+
+/* After joining slots i < j of m: the new cluster's distances newd[k] (k != i, j) become slot i's
+ * cells; when the last slot moves into the freed slot j (j != m - 1), its cells become slot j's.
+ * The same in V with newv when V is not NULL. One pass over the rows below slot i. */
+static void sd_nj_scatter(double *restrict P, double *restrict V, int64_t m, int64_t i, int64_t j,
+                          const double *restrict newd, const double *restrict newv) {
+    const int64_t last = m - 1, ti = sd_tri(i), tj = sd_tri(j), tl = sd_tri(last);
+    const int move = j != last;
+    memcpy(P + ti, newd, (size_t)i * sizeof(double));
+    if (V) memcpy(V + ti, newv, (size_t)i * sizeof(double));
+    int64_t t = sd_tri(i + 1);
+    for (int64_t k = i + 1; k < m; t += k, k++) {
+#if defined(__GNUC__)
+        if (k + 16 < m) {
+            const int64_t ta = sd_tri(k + 16);
+            __builtin_prefetch(P + ta + i, 1, 0);
+            if (move && k + 16 > j) __builtin_prefetch(P + ta + j, 1, 0);
+            if (V) {
+                __builtin_prefetch(V + ta + i, 1, 0);
+                if (move && k + 16 > j) __builtin_prefetch(V + ta + j, 1, 0);
+            }
+        }
+#endif
+        if (k == j) continue;
+        /* at k = last this writes the moved slot's distance to the new cluster, copied below */
+        P[t + i] = newd[k];
+        if (V) V[t + i] = newv[k];
+        if (move && k > j && k < last) {
+            P[t + j] = P[tl + k];
+            if (V) V[t + j] = V[tl + k];
+        }
+    }
+    if (move) {
+        memcpy(P + tj, P + tl, (size_t)j * sizeof(double));
+        if (V) memcpy(V + tj, V + tl, (size_t)j * sizeof(double));
     }
 }
 #endif
