@@ -45,7 +45,9 @@ built for AVX2 and for the baseline and chosen at load time, one source for
 both element types). The min-plus update takes four rows at a time, so each
 value of the panel is loaded once for four rows; where the CPU has AVX-512
 (checked at run time) a block of 8 rows by 2 vectors of columns stays in
-registers over the pivots of a round instead, about 2.8x faster. For every
+registers over the pivots of a round instead, about 2.8x faster, and the
+columns go in tiles so that the panel stays in the core's cache at large n
+(in float64 at n = 6,000 it halved the time per n^3). For every
 entry the candidate sums are formed and compared in the same order of pivots,
 so the result does not depend on the vector width, the form of the update,
 the tiling or the number of threads (bitwise; tested).
@@ -120,8 +122,9 @@ def apsp(values: np.ndarray, *, block: int = _BLOCK, tile: int = _TILE, threads:
         included) is closed in float32; anything else in float64. The input
         is not modified unless it is also ``out``.
     block, tile : int
-        Pivot block size, and column tile width of the portable update (the
-        AVX-512 form works on blocks of 2 vectors of columns). ``tile`` never
+        Pivot block size, and column tile width of the update (the AVX-512
+        form rounds it up to 2 vectors; its row groups share each tile of
+        the panel from the core's own cache). ``tile`` never
         changes the result; in float64 ``block`` may, by an ulp or so (it sets
         the order in which path sums are formed); in float32 it does not.
     threads : int, optional
