@@ -31,7 +31,7 @@ values are read and written:
 
 import numpy as np
 
-from libc.math cimport INFINITY, nextafterf
+from libc.math cimport INFINITY
 from libc.stdint cimport int32_t, int64_t, uint32_t, uint64_t
 from libc.string cimport memcpy, memmove, memset
 
@@ -60,10 +60,19 @@ cdef struct Entry:
 
 # ------------------------------------------------------------------ sorting a row
 cdef inline float _lower32(double d) noexcept nogil:
-    # the largest float32 not above d (rounding to nearest may go up one step)
+    # the largest float32 not above d (rounding to nearest may go up one step: then
+    # one step down, on the bits: +inf -> the largest float, 0 -> the smallest negative)
     cdef float f = <float>d
+    cdef uint32_t u
     if <double>f > d:
-        f = nextafterf(f, -INFINITY)
+        memcpy(&u, &f, 4)
+        if f > 0:
+            u -= 1
+        elif f == 0:
+            u = 0x80000001
+        else:
+            u += 1
+        memcpy(&f, &u, 4)
     return f
 
 
@@ -173,9 +182,9 @@ cdef int64_t _compact(Entry* E, int64_t* beg, int64_t* end, const int64_t* slot_
 
 # ------------------------------------------------------------------ neighbor joining
 def nj_arena_size(Py_ssize_t n):
-    """Entries of the sorted rows' arena for ``n`` taxa (each pair once, plus room to grow)."""
+    """Entries of the sorted rows' arena for ``n`` taxa (each pair once, plus 1/32 room to grow)."""
     cdef int64_t pairs = <int64_t>n * (n - 1) // 2
-    return pairs + pairs // 16 + 2 * n + 64
+    return pairs + pairs // 32 + 2 * n + 64
 
 
 def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
