@@ -2,31 +2,40 @@
 """Compiled part of :mod:`seqdist.kernels.tree_building` (the methods are described in
 :mod:`seqdist.trees.build`).
 
-Both kernels work in place on the C-contiguous float64 array they are given and run
-without the GIL on one thread: each join depends on the one before, and a barrier per
-join loses on a shared machine.
+Both kernels run without the GIL on one thread: each join depends on the one before,
+and a barrier per join loses on a shared machine.
 
 Every floating-point value is computed by the same operations in the same order as the
 numba kernels they replace (the build does not contract ``a*b+c``), and every choice
 follows the same rule, so the joins and lengths are the same to the last bit (the
 tests compare both with plain references; the port was checked against the numba
-kernels on integer, few-valued, tied and tree-like matrices). What changed is where
-values are read and written:
+kernels on integer, few-valued, tied and tree-like matrices, and the packed kernel
+below against the full-matrix one it replaced). What changed is where values are read
+and written:
 
-* neighbor joining keeps the active clusters in the first ``m`` slots (the merged
-  cluster takes the lower slot, the last active slot moves into the freed one); the
-  new cluster's column and the moved column are written in one pass over the rows;
-* UPGMA moves no slot (see :func:`upgma_kernel`): only the new column is written;
-* those column writes touch one far-apart cache line per row, which no hardware
-  prefetcher foresees: the rows a few steps ahead are asked for early (the same for
-  the heads of the sorted rows); at n = 5000 this halves UPGMA's time;
-* the sorted-row search reads the row sums by cluster id (joined clusters hold -inf,
-  which makes their Q +inf) instead of id -> slot -> row sum, so the common path has
-  one indirect load and no branch on whether an entry is still live;
-* rows are sorted by a radix sort of the values' bit patterns (the order of equal
-  values does not matter: the search is exact whatever that order, see build.py);
-* the row minima, the row sums (eight rows side by side, each summed in order), the
-  column writes and UPGMA's merged row are C in ``src/tree_building.h``.
+* neighbor joining keeps its working matrix as a packed strictly lower triangle (half
+  the memory of the full matrix; BIONJ's variances the same) and the active clusters
+  in the first ``m`` slots (the merged cluster takes the lower slot, the last active
+  slot moves into the freed one); a slot's full row is its packed row (contiguous)
+  and its column in the rows below (one cell per row), read into a buffer before the
+  join and written back after it; the row sums keep the order of a plain loop over
+  the full row (``sd_nj_packed_row_sums``);
+* the sorted-row search keeps each pair once, as a float32 lower bound of its distance
+  and the cluster id it leads to (8 bytes a pair, where a float64 value and a 32-bit
+  index per ordered pair took 24), all rows in one arena that is compacted when it is
+  full or the clusters have halved; an entry whose bound of Q can win has its exact Q
+  computed from the packed cell, so the choice is the full scan's;
+* each row's head entry (its bound and cluster) is kept beside the cluster, so most
+  rows are dismissed at every step without reading them; the row sums are read by
+  cluster id (joined clusters hold -inf, which makes their Q +inf);
+* rows are sorted by a radix sort of the bounds' bit patterns (the order of equal
+  bounds does not matter: the search is exact whatever that order, see build.py);
+* UPGMA moves no slot (see :func:`upgma_kernel`): only the new column is written; its
+  column writes touch one far-apart cache line per row, which no hardware prefetcher
+  foresees: the rows a few steps ahead are asked for early (at n = 5000 this halves
+  UPGMA's time);
+* the row minima, the row sums, the strided row reads and writes and UPGMA's merged
+  row are C in ``src/tree_building.h``.
 """
 
 import numpy as np
@@ -161,10 +170,11 @@ cdef inline double _cell(const double* P, int64_t a, int64_t b) noexcept nogil:
     return P[b * (b - 1) // 2 + a]
 
 
-cdef int64_t _compact(Entry* E, int64_t* beg, int64_t* end, const int64_t* slot_of, int64_t n_ids) noexcept nogil:
+cdef int64_t _compact(Entry* E, int64_t* beg, int64_t* end, double* headv, int64_t* headid, const int64_t* slot_of,
+                      int64_t n_ids) noexcept nogil:
     # the rows of live clusters moved down in cluster-id order (the order they lie in:
     # leaves first, then the clusters as they were made), without the entries of joined
-    # clusters; returns the new top of the arena
+    # clusters, their heads noted; returns the new top of the arena
     cdef int64_t w = 0, h, cid
     for cid in range(n_ids):
         if slot_of[cid] < 0:
@@ -177,6 +187,11 @@ cdef int64_t _compact(Entry* E, int64_t* beg, int64_t* end, const int64_t* slot_
                 w += 1
             h += 1
         end[cid] = w
+        if beg[cid] < w:
+            headv[cid] = <double>E[beg[cid]].v
+            headid[cid] = E[beg[cid]].id
+        else:
+            headv[cid] = INFINITY
     return w
 
 
@@ -213,8 +228,8 @@ def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
     cdef int64_t cap = nj_arena_size(n) if sorted_rows else 1
     E_a = np.empty(2 * cap, dtype=np.int32)
     # work arrays carved out of three blocks (a numpy allocation costs a few microseconds)
-    iw_a = np.empty(10 * n + 1024, dtype=np.int64)
-    dw_a = np.empty(12 * n)
+    iw_a = np.empty(12 * n + 1024, dtype=np.int64)
+    dw_a = np.empty(14 * n)
     kw_a = np.empty(2 * n + 2, dtype=np.uint64)
     cdef int64_t[:, ::1] kids_v = kids_a
     cdef double[:, ::1] lens_v = lens_a
@@ -234,12 +249,14 @@ def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
     cdef int64_t* beg = slot_of + 2 * n  # per cluster id: its sorted row is E[beg:end]
     cdef int64_t* end = beg + 2 * n
     cdef int64_t* tmpi = end + 2 * n
-    cdef int64_t* hist = tmpi + n  # radix-sort counts (1024)
+    cdef int64_t* headid = tmpi + n  # per cluster id: the id its row's head entry leads to
+    cdef int64_t* hist = headid + 2 * n  # radix-sort counts (1024)
     cdef double* R = &dw_v[0]  # row sums per slot
     cdef double* newd = R + n
     cdef double* newv = newd + n
     cdef double* Rid = newv + n  # row sum per cluster id (2n), -inf once joined
-    cdef double* tmpv = Rid + 2 * n
+    cdef double* headv = Rid + 2 * n  # per cluster id: its row's head entry's bound
+    cdef double* tmpv = headv + 2 * n
     cdef double* xi = tmpv + n  # the full rows of the two slots joined
     cdef double* xj = xi + n
     cdef double* yi = xj + n  # and their variances
@@ -266,6 +283,10 @@ def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
             end[a] = 0
             beg[n + a] = 0
             end[n + a] = 0
+            headv[a] = INFINITY
+            headv[n + a] = INFINITY
+            headid[a] = 0
+            headid[n + a] = 0
         sd_nj_packed_row_sums(P0, n, R)
         if sorted_rows:
             # each pair once, in the row of its larger position (the leaves' rows are the
@@ -276,6 +297,9 @@ def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
                 _sort_row(P0 + a * (a - 1) // 2, tmpi, a, E + top, ka, kb, hist)
                 beg[a] = top
                 end[a] = top + a
+                if a > 0:
+                    headv[a] = <double>E[top].v
+                    headid[a] = E[top].id
                 top += a
         compact_at = n // 2
         for step in range(steps):
@@ -310,7 +334,7 @@ def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
             else:
                 if m <= compact_at:
                     # drop the entries of joined clusters (order is kept)
-                    top = _compact(E, beg, end, slot_of, n + step)
+                    top = _compact(E, beg, end, headv, headid, slot_of, n + step)
                     compact_at = m // 2
                 rmax = -INFINITY
                 for a in range(m):
@@ -318,27 +342,34 @@ def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
                         rmax = R[a]
                     Rid[ids[a]] = R[a]
                 # A first best: the row whose nearest live entry has the smallest bound of
-                # Q, and that pair's exact Q (rows lie far apart: the heads of the rows a
-                # few steps ahead are asked for early).
+                # Q, and that pair's exact Q. Each row's head entry (its bound and where it
+                # leads) is kept beside the cluster, so only a row whose head has just been
+                # joined is read here, to find its next live entry.
                 bestl = INFINITY
                 o0 = -1
                 for a in range(m):
-                    if a + 8 < m:
-                        sd_prefetch(E + beg[ids[a + 8]])
                     cid = ids[a]
                     h = beg[cid]
                     hend = end[cid]
-                    while h < hend and slot_of[E[h].id] < 0:
+                    if h >= hend:
+                        continue
+                    if slot_of[headid[cid]] < 0:
                         h += 1
-                    beg[cid] = h
-                    if h < hend:
-                        ql = c * <double>E[h].v - (R[a] + Rid[E[h].id])
-                        if ql < bestl:
-                            bestl = ql
-                            o0 = a
+                        while h < hend and slot_of[E[h].id] < 0:
+                            h += 1
+                        beg[cid] = h
+                        if h >= hend:
+                            headv[cid] = INFINITY
+                            continue
+                        headv[cid] = <double>E[h].v
+                        headid[cid] = E[h].id
+                    ql = c * headv[cid] - (R[a] + Rid[headid[cid]])
+                    if ql < bestl:
+                        bestl = ql
+                        o0 = a
                 if o0 >= 0:
                     a = o0
-                    b = slot_of[E[beg[ids[a]]].id]
+                    b = slot_of[headid[ids[a]]]
                     best = c * _cell(P0, a, b) - (R[a] + R[b])
                     bi = a
                     bj = b
@@ -346,10 +377,13 @@ def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
                     k1 = key[a] if key[a] > key[b] else key[b]
                 for a in range(m):
                     cid = ids[a]
-                    row = E + beg[cid]
-                    hend = end[cid] - beg[cid]
                     ra = R[a]
                     base = ra + rmax
+                    # the head's bound first: most rows stop here without being read
+                    if c * headv[cid] - base > best:
+                        continue
+                    row = E + beg[cid]
+                    hend = end[cid] - beg[cid]
                     ka_ = key[a]
                     for h in range(hend):
                         dl = <double>row[h].v
@@ -466,10 +500,13 @@ def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
             if sorted_rows:
                 if top + t > cap:
                     # room for the new row: drop the rows and entries of joined clusters
-                    top = _compact(E, beg, end, slot_of, n + step)
+                    top = _compact(E, beg, end, headv, headid, slot_of, n + step)
                 _sort_row(tmpv, tmpi, t, E + top, ka, kb, hist)
                 beg[n + step] = top
                 end[n + step] = top + t
+                if t > 0:
+                    headv[n + step] = <double>E[top].v
+                    headid[n + step] = E[top].id
                 top += t
         # the three that remain meet at one node (three-point formula)
         d = P0[0]  # slots 0 and 1

@@ -31,27 +31,33 @@ both choices give the same split; the pair with the smaller keys is joined,
 so rounding noise never decides (this matters for BIONJ, whose lengths
 depend on which pair is joined first).
 
-Implementation: one compiled kernel per method works in place on a copy of the
-matrix. Neighbor joining and BIONJ keep the active clusters in the first
-``r`` rows (the merged cluster takes the lower slot, the last active slot
-moves into the freed one); UPGMA leaves clusters in their slots (a joined
-cluster's slot is marked dead and the live ones are packed together when half
-are dead), so each join writes one column instead of three; the joins are the
-same. Neighbor joining keeps the row sums up to date incrementally (``O(r)``
-per join, refreshed exactly every 64 joins against rounding drift). To find
-the best pair it keeps, for each row, its distances in increasing order
-(a pair is stored in the row of the younger cluster; distances between
+Implementation: one compiled kernel per method. Neighbor joining and BIONJ
+read the matrix (float64 or float32, never written to) into a working copy
+of its lower triangle, packed row after row in float64, and keep the active
+clusters in the first ``r`` slots (the merged cluster takes the lower slot,
+the last active slot moves into the freed one); UPGMA works in place on a
+full copy and leaves clusters in their slots (a joined cluster's slot is
+marked dead and the live ones are packed together when half are dead), so
+each join writes one column instead of three; the joins are the same.
+Neighbor joining keeps the row sums up to date incrementally (``O(r)`` per
+join, refreshed exactly every 64 joins against rounding drift). To find the
+best pair it keeps, for each row, lower bounds of its distances (float32,
+rounded down) in increasing order (each pair once: two leaves in the row of
+the later one, else in the row of the younger cluster; distances between
 surviving clusters never change, so the order stays valid) and stops
 scanning a row as soon as the bound ``c d - (R_a + max R)``, which never
-exceeds ``Q`` for any later entry, passes the best value found so far; this
-row-sorting idea is the one of Simonsen, Mailund & Pedersen 2008 ("Rapid
-neighbour-joining", WABI 2008, LNCS 5251:113-122). Entries of joined
-clusters are skipped, and dropped whenever the number of clusters has
-halved. The bound is exact (IEEE rounding is monotone), so the choice is
-the same as a scan of every pair (``search="full"``, kept as a reference
-and tested to agree step for step). Worst case ``O(n^3)`` time (a matrix
-where no row can be cut short); memory three ``n x n`` arrays (the matrix,
-the sorted values, their 32-bit indices) plus one for BIONJ's variances.
+exceeds ``Q`` for any later entry, passes the best value found so far; an
+entry whose bound of ``Q`` does not pass it has its ``Q`` computed from the
+exact distance. This row-sorting idea is the one of Simonsen, Mailund &
+Pedersen 2008 ("Rapid neighbour-joining", WABI 2008, LNCS 5251:113-122).
+Entries of joined clusters are skipped, and dropped whenever the number of
+clusters has halved or their arena is full. The bounds are exact (IEEE
+rounding is monotone), so the choice is the same as a scan of every pair
+(``search="full"``, kept as a reference and tested to agree step for step).
+Worst case ``O(n^3)`` time (a matrix where no row can be cut short); memory
+beside the input: half a float64 ``n x n`` matrix for the packed distances,
+half for the sorted rows (a float32 bound and a 32-bit id per pair, plus
+1/32 room) and half more for BIONJ's variances.
 UPGMA caches each row's nearest neighbour (a cached minimum only needs a
 rescan when its partner was just merged), close to ``O(n^2)`` in practice.
 """

@@ -1,0 +1,138 @@
+#!/usr/bin/env python
+"""Neighbor joining and BIONJ on large matrices: wall time and peak memory of the join.
+
+For each size n a child process writes a noisy tree-like matrix (``tree_matrix`` of
+bench_scale.py, its values rounded to float32 so that both inputs below hold the same
+numbers) as ``.npz`` (float64, the binary format) and as a float32 ``.npy``. Then each
+step runs as its own process, and the table gives its wall time, its peak resident
+memory (``ru_maxrss`` from ``os.wait4``; the parent never holds a matrix: Linux counts
+a parent's peak into a forked child's), that peak over the size of the float64 matrix
+(8 n^2 bytes), and the load average when the step started (the machine is shared):
+
+* ``read``: reading the npz alone (what every command pays first);
+* ``nj`` / ``bionj`` on npz: the read, then ``neighbor_joining`` (sorted-row search),
+  Newick text out;
+* ``nj`` / ``bionj`` on float32: the float32 ``.npy`` memory-mapped read-only, wrapped
+  as a matrix of float32 values (as a float32 binary matrix is read), then the same join;
+  its tree must be the npz one (same values, float64 arithmetic): the script checks it;
+* with ``--cli``: the whole ``seqdist tree`` command, which also computes the cophenetic
+  correlation of the tree for its summary.
+
+Usage::
+
+    python tests/benchmarks/bench_nj_memory.py [--sizes 8000,20000] [--methods nj,bionj] [--cli] [--seed 1]
+"""
+
+from __future__ import annotations
+
+import argparse
+import hashlib
+import os
+import subprocess
+import sys
+import tempfile
+import time
+
+NEUTRAL = tempfile.mkdtemp(prefix="seqdist-njmem-cwd-")
+HERE = os.path.dirname(os.path.abspath(__file__))
+
+MAKE = r"""
+import sys
+import numpy as np
+sys.path.insert(0, sys.argv[1])
+from bench_scale import tree_matrix
+from seqdist.core.matrix import DistanceMatrix
+from seqdist.io.matrices import write_matrix
+n, seed, npz, npy = int(sys.argv[2]), int(sys.argv[3]), sys.argv[4], sys.argv[5]
+D = tree_matrix(n, seed).astype(np.float32)
+np.save(npy, D)
+D = D.astype(np.float64)
+write_matrix(npz, DistanceMatrix.from_array(D, [f"s{i}" for i in range(n)], copy=False))
+"""
+
+READ = "import sys; from seqdist.io.matrices import read_matrix; read_matrix(sys.argv[1])"
+
+JOIN = r"""
+import sys
+import numpy as np
+from seqdist.trees.build import neighbor_joining
+path, method, out = sys.argv[1], sys.argv[2], sys.argv[3]
+if path.endswith(".npy"):
+    from seqdist.core.matrix import DistanceMatrix
+    values = np.load(path, mmap_mode="r")
+    dm = DistanceMatrix(tuple(f"s{i}" for i in range(values.shape[0])), values)
+else:
+    from seqdist.io.matrices import read_matrix
+    dm = read_matrix(path)
+t = neighbor_joining(dm, bionj=method == "bionj")
+open(out, "w").write(t.to_newick())
+"""
+
+
+def run(cmd: list[str]) -> tuple[float, float, float]:
+    """Wall seconds, peak resident memory (GB) and the load average at the start of one child."""
+    load = os.getloadavg()[0]
+    t = time.perf_counter()
+    p = subprocess.Popen(cmd, cwd=NEUTRAL, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(p.pid, 0)
+    took = time.perf_counter() - t
+    err = p.stderr.read().decode()
+    p.stderr.close()
+    if os.waitstatus_to_exitcode(status) != 0:
+        raise SystemExit(f"failed: {' '.join(cmd)}\n{err[-2000:]}")
+    return took, usage.ru_maxrss / 1e6, load  # ru_maxrss is in kB on Linux
+
+
+def digest(path: str) -> str:
+    with open(path, "rb") as f:
+        return hashlib.sha256(f.read()).hexdigest()[:12]
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("--sizes", default="8000,20000")
+    ap.add_argument("--methods", default="nj,bionj")
+    ap.add_argument("--inputs", default="npz,float32", help="npz (float64), float32 (memory-mapped .npy)")
+    ap.add_argument("--cli", action="store_true", help="also the whole seqdist tree command on the npz")
+    ap.add_argument("--seed", type=int, default=1)
+    args = ap.parse_args()
+    py = sys.executable
+    print(f"{os.cpu_count()} cores; peak = ru_maxrss of the step's process; x = peak / (8 n^2 bytes)")
+    print("| n | input | step | seconds | peak GB | x float64 matrix | load | note |")
+    print("| --- | --- | --- | --- | --- | --- | --- | --- |")
+    with tempfile.TemporaryDirectory() as tmp:
+        for n in [int(x) for x in args.sizes.split(",")]:
+            full = 8.0 * n * n / 1e9
+            paths = {"npz": os.path.join(tmp, f"m{n}.npz"), "float32": os.path.join(tmp, f"m{n}.npy")}
+            s, gb, load = run([py, "-c", MAKE, HERE, str(n), str(args.seed), paths["npz"], paths["float32"]])
+            print(f"| {n} | - | make the matrix | {s:.1f} | {gb:.2f} | - | {load:.1f} | float64 matrix "
+                  f"{full:.2f} GB, npz {os.path.getsize(paths['npz']) / 1e9:.2f} GB |", flush=True)
+            s, gb, load = run([py, "-c", READ, paths["npz"]])
+            print(f"| {n} | npz | read only | {s:.1f} | {gb:.2f} | {gb / full:.2f} | {load:.1f} | |", flush=True)
+            for method in args.methods.split(","):
+                trees = {}
+                for kind in args.inputs.split(","):
+                    out = os.path.join(tmp, f"{method}_{kind}.nwk")
+                    s, gb, load = run([py, "-c", JOIN, paths[kind], method, out])
+                    trees[kind] = digest(out)
+                    note = f"tree {trees[kind]}"
+                    if kind != "npz" and "npz" in trees:
+                        note += ", same as npz: " + ("yes" if trees[kind] == trees["npz"] else "NO")
+                    print(f"| {n} | {kind} | {method} | {s:.1f} | {gb:.2f} | {gb / full:.2f} | {load:.1f} | "
+                          f"{note} |", flush=True)
+                    os.remove(out)
+                if args.cli:
+                    out = os.path.join(tmp, f"{method}_cli.nwk")
+                    s, gb, load = run([py, "-m", "seqdist", "tree", paths["npz"], "-o", out, "--method", method,
+                                       "--quiet"])
+                    print(f"| {n} | npz | `seqdist tree --method {method}` | {s:.1f} | {gb:.2f} | {gb / full:.2f} | "
+                          f"{load:.1f} | tree {digest(out)} |", flush=True)
+                    os.remove(out)
+                if len(set(trees.values())) > 1:
+                    raise SystemExit("the float32 input gave another tree than the same values in float64")
+            for f in paths.values():
+                os.remove(f)
+
+
+if __name__ == "__main__":
+    main()
