@@ -228,7 +228,7 @@ def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
     cdef int64_t cap = nj_arena_size(n) if sorted_rows else 1
     E_a = np.empty(2 * cap, dtype=np.int32)
     # work arrays carved out of three blocks (a numpy allocation costs a few microseconds)
-    iw_a = np.empty(12 * n + 1024, dtype=np.int64)
+    iw_a = np.empty(13 * n + 1024, dtype=np.int64)
     dw_a = np.empty(14 * n)
     kw_a = np.empty(2 * n + 2, dtype=np.uint64)
     cdef int64_t[:, ::1] kids_v = kids_a
@@ -250,7 +250,8 @@ def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
     cdef int64_t* end = beg + 2 * n
     cdef int64_t* tmpi = end + 2 * n
     cdef int64_t* headid = tmpi + n  # per cluster id: the id its row's head entry leads to
-    cdef int64_t* hist = headid + 2 * n  # radix-sort counts (1024)
+    cdef int64_t* cand = headid + 2 * n  # the slots whose rows may hold the best pair
+    cdef int64_t* hist = cand + n  # radix-sort counts (1024)
     cdef double* R = &dw_v[0]  # row sums per slot
     cdef double* newd = R + n
     cdef double* newv = newd + n
@@ -267,7 +268,7 @@ def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
     cdef double* P0 = &P[0]
     cdef double* V0 = &V_v[0] if bionj else NULL
 
-    cdef Py_ssize_t m = n, a, b, k, t = 0, step, i, j, bi, bj, last, o0, o1, compact_at
+    cdef Py_ssize_t m = n, a, b, k, t = 0, step, i, j, bi, bj, last, o0, o1, compact_at, nc, x
     cdef int64_t k0, k1, ka_, kb_, lo, hi, h, hend, top = 0, cid
     cdef double s, c, best, bestl, ra, rmax, base, d, dl, q, ql, dij, li, lj, lam, vij, dk, ru
     cdef Entry* row
@@ -375,11 +376,21 @@ def nj_kernel(double[::1] P, Py_ssize_t n, bint bionj, bint sorted_rows):
                     bj = b
                     k0 = key[a] if key[a] < key[b] else key[b]
                     k1 = key[a] if key[a] > key[b] else key[b]
+                # the heads' bounds first: most rows stop there without being read (a row
+                # dismissed now stays dismissed, as the best only gets better); the others
+                # lie far apart in the arena and are asked for a few rows ahead
+                nc = 0
                 for a in range(m):
+                    if c * headv[ids[a]] - (R[a] + rmax) <= best:
+                        cand[nc] = a
+                        nc += 1
+                for x in range(nc):
+                    if x + 4 < nc:
+                        sd_prefetch(E + beg[ids[cand[x + 4]]])
+                    a = cand[x]
                     cid = ids[a]
                     ra = R[a]
                     base = ra + rmax
-                    # the head's bound first: most rows stop here without being read
                     if c * headv[cid] - base > best:
                         continue
                     row = E + beg[cid]
