@@ -144,3 +144,44 @@ def test_apsp_same_bits_for_any_tiling_rows_and_threads():
         assert np.array_equal(np.isinf(base), np.isinf(ref))
         fin = np.isfinite(ref)
         assert np.allclose(base[fin], ref[fin], rtol=1e-13, atol=1e-13)
+
+
+@settings(max_examples=25, deadline=None)
+@given(st.integers(3, 75), st.integers(0, 10_000), st.sampled_from([0.0, 0.1]),
+       st.sampled_from([0, 1, 3, 17, 4096]))
+def test_count_column_chunks_and_float32(n, seed, frac_nan, chunk):
+    """Column chunks of any width give the plain loop's count and largest excess, and a
+    float32 matrix is counted exactly: the same answer as its values widened to float64
+    (the brute-force loop here runs in float64 on the widened values)."""
+    from seqdist.kernels._triangles import count_tiles, count_tiles_f32
+    from seqdist.kernels.triangles import tile_starts
+
+    rng = np.random.default_rng(seed)
+    D = np.triu(rng.uniform(0, 10, (n, n)), 1)
+    D[np.triu(rng.random((n, n)) < frac_nan, 1)] = np.nan
+    D = D + D.T
+    np.fill_diagonal(D, 0)
+    F = D.astype(np.float32)
+    wide = F.astype(np.float64)
+    ref = brute_count(wide, 1e-12)
+    for rows in (1, 7, 32):
+        starts = tile_starts(n, rows)
+        for kernel, M in ((count_tiles, wide), (count_tiles_f32, F)):
+            c, w = np.zeros(len(starts), np.int64), np.zeros(len(starts))
+            kernel(M, 1e-12, starts, rows, c, w, chunk)
+            assert (int(c.sum()), float(w.max())) == (ref[0], ref[1])
+    assert count_violations(F, 1e-12) == ref
+
+
+def test_count_float32_memmap_not_widened(tmp_path):
+    """A read-only float32 memory map is counted where it lies (no float64 copy of it)."""
+    D = euclidean(40, seed=2)
+    D[1, 5] = D[5, 1] = 30.0
+    mm = np.lib.format.open_memmap(tmp_path / "d.npy", mode="w+", dtype=np.float32, shape=D.shape)
+    mm[:] = D
+    mm.flush()
+    ro = np.load(tmp_path / "d.npy", mmap_mode="r")
+    from seqdist.kernels.triangles import _as_c
+
+    assert _as_c(ro).dtype == np.float32 and np.shares_memory(_as_c(ro), ro)
+    assert count_violations(ro, 1e-9 * 30) == count_violations(ro.astype(np.float64), 1e-9 * 30)
