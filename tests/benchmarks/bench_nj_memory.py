@@ -16,11 +16,15 @@ a parent's peak into a forked child's), that peak over the size of the float64 m
   as a matrix of float32 values (as a float32 binary matrix is read), then the same join;
   its tree must be the npz one (same values, float64 arithmetic): the script checks it;
 * with ``--cli``: the whole ``seqdist tree`` command, which also computes the cophenetic
-  correlation of the tree for its summary.
+  correlation of the tree for its summary;
+* with ``--before DIR``: each join also run from another copy of the package (``DIR``
+  holds its ``seqdist`` folder, built), interleaved, so old and new meet the same load;
+  the trees must agree.
 
 Usage::
 
-    python tests/benchmarks/bench_nj_memory.py [--sizes 8000,20000] [--methods nj,bionj] [--cli] [--seed 1]
+    python tests/benchmarks/bench_nj_memory.py [--sizes 8000,20000] [--methods nj,bionj] [--cli]
+        [--before DIR] [--seed 1]
 """
 
 from __future__ import annotations
@@ -69,11 +73,15 @@ open(out, "w").write(t.to_newick())
 """
 
 
-def run(cmd: list[str]) -> tuple[float, float, float]:
-    """Wall seconds, peak resident memory (GB) and the load average at the start of one child."""
+def run(cmd: list[str], root: str | None = None) -> tuple[float, float, float]:
+    """Wall seconds, peak resident memory (GB) and the load average at the start of one child
+    (with ``root`` first on its module path: another copy of the package)."""
+    env = dict(os.environ)
+    if root:
+        env["PYTHONPATH"] = root + os.pathsep + env.get("PYTHONPATH", "")
     load = os.getloadavg()[0]
     t = time.perf_counter()
-    p = subprocess.Popen(cmd, cwd=NEUTRAL, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    p = subprocess.Popen(cmd, cwd=NEUTRAL, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=env)
     _, status, usage = os.wait4(p.pid, 0)
     took = time.perf_counter() - t
     err = p.stderr.read().decode()
@@ -94,6 +102,8 @@ def main() -> None:
     ap.add_argument("--methods", default="nj,bionj")
     ap.add_argument("--inputs", default="npz,float32", help="npz (float64), float32 (memory-mapped .npy)")
     ap.add_argument("--cli", action="store_true", help="also the whole seqdist tree command on the npz")
+    ap.add_argument("--before", default=None, metavar="DIR",
+                    help="also run each join from the package copy in DIR (its seqdist folder, built)")
     ap.add_argument("--seed", type=int, default=1)
     args = ap.parse_args()
     py = sys.executable
@@ -112,15 +122,19 @@ def main() -> None:
             for method in args.methods.split(","):
                 trees = {}
                 for kind in args.inputs.split(","):
-                    out = os.path.join(tmp, f"{method}_{kind}.nwk")
-                    s, gb, load = run([py, "-c", JOIN, paths[kind], method, out])
-                    trees[kind] = digest(out)
-                    note = f"tree {trees[kind]}"
-                    if kind != "npz" and "npz" in trees:
-                        note += ", same as npz: " + ("yes" if trees[kind] == trees["npz"] else "NO")
-                    print(f"| {n} | {kind} | {method} | {s:.1f} | {gb:.2f} | {gb / full:.2f} | {load:.1f} | "
-                          f"{note} |", flush=True)
-                    os.remove(out)
+                    for version in ["this"] + (["before"] if args.before else []):
+                        out = os.path.join(tmp, f"{method}_{kind}_{version}.nwk")
+                        s, gb, load = run([py, "-c", JOIN, paths[kind], method, out],
+                                          args.before if version == "before" else None)
+                        trees[kind, version] = digest(out)
+                        note = f"tree {trees[kind, version]}"
+                        if (kind, version) != ("npz", "this") and ("npz", "this") in trees:
+                            note += ", same as npz: " + ("yes" if trees[kind, version] == trees["npz", "this"]
+                                                         else "NO")
+                        step = method + (" (before)" if version == "before" else "")
+                        print(f"| {n} | {kind} | {step} | {s:.1f} | {gb:.2f} | {gb / full:.2f} | {load:.1f} | "
+                              f"{note} |", flush=True)
+                        os.remove(out)
                 if args.cli:
                     out = os.path.join(tmp, f"{method}_cli.nwk")
                     s, gb, load = run([py, "-m", "seqdist", "tree", paths["npz"], "-o", out, "--method", method,
@@ -129,7 +143,7 @@ def main() -> None:
                           f"{load:.1f} | tree {digest(out)} |", flush=True)
                     os.remove(out)
                 if len(set(trees.values())) > 1:
-                    raise SystemExit("the float32 input gave another tree than the same values in float64")
+                    raise SystemExit("the trees differ (float32 input or the other version)")
             for f in paths.values():
                 os.remove(f)
 
