@@ -52,13 +52,13 @@ def test_npz_is_numpys_own_layout_read_by_numpy_alone(tmp_path):
 
 
 @pytest.mark.parametrize("saver", [np.savez, np.savez_compressed])
-def test_npz_written_by_numpy_is_read_float32_upcast(saver, tmp_path):
+def test_npz_written_by_numpy_is_read_float32_kept(saver, tmp_path):
     D = euclidean(5, seed=2)
     path = tmp_path / "user.npz"
     saver(path, values=D.astype(np.float32), labels=np.array(["p", "q", "r", "s", "t"]))
     dm = read_matrix(str(path))
-    assert dm.values.dtype == np.float64
-    assert np.array_equal(dm.values, D.astype(np.float32).astype(np.float64))
+    assert dm.values.dtype == np.float32  # single precision stays single (half the memory)
+    assert np.array_equal(dm.values, D.astype(np.float32))
     path64 = tmp_path / "user64.npz"
     saver(path64, values=D, labels=np.array([b"p", b"q", b"r", b"s", b"t"]))  # byte-string labels too
     assert np.array_equal(read_matrix(str(path64)).values, D) and read_matrix(str(path64)).labels[0] == "p"
@@ -198,3 +198,88 @@ def test_write_then_read_is_the_identity_for_every_format(tmp_path, case):
         assert back.labels == dm.labels
         assert np.array_equal(back.values, dm.values, equal_nan=True)
     assert format_matrix(dm, fmt) == format_matrix(dm, fmt)  # deterministic
+
+
+def test_float32_npz_memory_mapped_copy_on_write(tmp_path, monkeypatch):
+    """A large stored 'values' member is memory-mapped copy-on-write: the matrix holds the file's
+    float32 values, and the file is not written even where the reader sets the diagonal."""
+    import seqdist.io.matrices as matrices
+    from seqdist.core.matrix import DistanceMatrix
+
+    D = euclidean(30, seed=5).astype(np.float32)
+    D[np.diag_indices(30)] = 1e-12  # within the symmetry tolerance: the reader writes exact zeros
+    path = tmp_path / "big.npz"
+    np.savez(path, values=D, labels=np.array([f"t{i}" for i in range(30)]))
+    before = path.read_bytes()
+    monkeypatch.setattr(matrices, "MMAP_MIN_BYTES", 0)
+    dm = read_matrix(str(path))
+    base = dm.values
+    while getattr(base, "base", None) is not None:
+        base = base.base
+    import mmap
+
+    assert isinstance(base, mmap.mmap)  # mapped, not read
+    assert dm.values.dtype == np.float32 and float(np.abs(np.diagonal(dm.values)).max()) == 0.0
+    off = ~np.eye(30, dtype=bool)
+    assert np.array_equal(dm.values[off], D[off])
+    assert path.read_bytes() == before
+    # the same matrix read without mapping
+    monkeypatch.setattr(matrices, "MMAP_MIN_BYTES", 1 << 60)
+    assert read_matrix(str(path)).equals(dm)
+    assert isinstance(dm.with_values(np.array(dm.values)), DistanceMatrix)
+    assert dm.with_values(np.array(dm.values)).values.dtype == np.float32
+
+
+def test_convert_dtype_float32_and_back(tmp_path, capsys):
+    D = euclidean(12, seed=3)
+    src = tmp_path / "d.npz"
+    np.savez(src, values=D, labels=np.array([f"s{i}" for i in range(12)]))
+    assert main(["convert", str(src), "-o", str(tmp_path / "d32.npz"), "--dtype", "float32"]) == 0
+    err = capsys.readouterr().err
+    assert "warning" in err and "float32" in err and "rounded" in err
+    d32 = read_matrix(str(tmp_path / "d32.npz"))
+    assert d32.values.dtype == np.float32 and np.array_equal(d32.values, D.astype(np.float32))
+    assert main(["convert", str(tmp_path / "d32.npz"), "-o", str(tmp_path / "d64.npz"), "--dtype", "float64"]) == 0
+    d64 = read_matrix(str(tmp_path / "d64.npz"))
+    assert d64.values.dtype == np.float64 and np.array_equal(d64.values, D.astype(np.float32).astype(np.float64))
+    # a text output cannot hold a precision: refused in one line, nothing written
+    assert main(["convert", str(src), "-o", str(tmp_path / "d.tsv"), "--dtype", "float32"]) == 2
+    assert "--dtype needs the npz format" in capsys.readouterr().err
+    assert not (tmp_path / "d.tsv").exists()
+
+
+def test_float32_default_tolerance_keeps_a_rounded_metric_a_metric():
+    """A tree metric stored in float32 breaks triangles by float32 rounding (about 6e-8 of the
+    largest entry) at the float64 tolerance 1e-9, and by none at the float32 default, 2**-22."""
+    from seqdist.core.matrix import FLOAT32_REL_TOL, default_tol
+    from seqdist.kernels.triangles import count_violations
+
+    rng = np.random.default_rng(0)
+    n = 60  # taxa along one path of a tree (ancestors and descendants): every triangle is tight
+    pos = np.cumsum(rng.uniform(0.1, 1.0, n))
+    D = np.abs(pos[:, None] - pos[None, :])
+    np.fill_diagonal(D, 0)
+    F = D.astype(np.float32)
+    assert default_tol(F) == FLOAT32_REL_TOL * float(F.max())
+    assert count_violations(F, 1e-9 * float(F.max()))[0] > 0
+    assert count_violations(F)[0] == 0 == count_violations(D)[0]
+
+
+def test_float32_npz_through_the_commands(tmp_path, capsys):
+    """A float32 npz goes through audit, tree and repair; the tree is the one built from the same
+    values widened to float64 (the joins compute in float64)."""
+    D = euclidean(25, seed=8)
+    rng = np.random.default_rng(8)
+    D = D * np.sqrt(np.outer(*(2 * [rng.uniform(0.8, 1.2, 25)])))  # break some triangles
+    np.fill_diagonal(D, 0)
+    labels = np.array([f"s{i}" for i in range(25)])
+    np.savez(tmp_path / "d32.npz", values=D.astype(np.float32), labels=labels)
+    np.savez(tmp_path / "d64.npz", values=D.astype(np.float32).astype(np.float64), labels=labels)
+    for name in ("d32", "d64"):
+        assert main(["tree", str(tmp_path / f"{name}.npz"), "-o", str(tmp_path / f"{name}.nwk"), "--quiet"]) == 0
+        assert main(["audit", str(tmp_path / f"{name}.npz"), "--json", str(tmp_path / f"{name}.json"),
+                     "--quiet"]) == 0
+    assert (tmp_path / "d32.nwk").read_text() == (tmp_path / "d64.nwk").read_text()
+    assert main(["repair", str(tmp_path / "d32.npz"), "-o", str(tmp_path / "r.npz"), "--objective", "shrink",
+                 "--quiet"]) == 0
+    assert read_matrix(str(tmp_path / "r.npz")).values.dtype == np.float64  # repairs compute in float64

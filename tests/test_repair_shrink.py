@@ -196,3 +196,29 @@ def test_changes_text_matches_rows():
     r = repair(D, "shrink", progress=False)
     assert r.changes_text() == format_changes(r.changes)
     assert len(r.changes_text().splitlines()) == 1 + r.report.changed_entries + r.report.filled_entries
+
+
+def test_closure_float32_in_float32_and_a_metric_within_its_tolerance():
+    """closure on float32 values stays float32, equals the float32 Floyd-Warshall paths where it
+    changed an entry (Floyd 1962, "Algorithm 97: Shortest path", CACM 5(6)), keeps NaN, and is a
+    metric within the float32 default tolerance (2**-22 of the largest entry)."""
+    from seqdist.core.matrix import default_tol
+    from seqdist.kernels.shortest_paths import apsp_reference
+    from seqdist.kernels.triangles import count_violations
+    from seqdist.repair.shrink import closure
+
+    rng = np.random.default_rng(11)
+    n = 70
+    D = rng.uniform(0.1, 5.0, (n, n)).astype(np.float32)
+    D = np.triu(D, 1)
+    D = D + D.T
+    D[3, 9] = D[9, 3] = np.nan
+    X = closure(D)
+    assert X.dtype == np.float32
+    A = apsp_reference(D)
+    assert A.dtype == np.float32
+    moved = ~np.isnan(D) & (X != D)
+    assert moved.any() and np.array_equal(X[moved], A[moved])
+    assert np.isnan(X[3, 9]) and np.isnan(X[9, 3])
+    assert count_violations(X, default_tol(X))[0] == 0
+    assert np.all((X <= D) | np.isnan(D))

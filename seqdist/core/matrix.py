@@ -1,6 +1,7 @@
 """The labelled distance matrix at the bottom of the package.
 
-A :class:`DistanceMatrix` is a tuple of labels plus a square float64 array.
+A :class:`DistanceMatrix` is a tuple of labels plus a square float64 array
+(or float32, asked for explicitly: large matrices stored in single precision).
 Missing entries are NaN; a distance of 0 is a real value (identical
 sequences). All validation of outside data happens in one place,
 :meth:`DistanceMatrix.from_array`, and every failure names the label or pair.
@@ -19,25 +20,35 @@ if TYPE_CHECKING:  # only for the annotations: pandas is imported where a frame 
     import pandas as pd
     from numpy.typing import ArrayLike, DTypeLike
 
-__all__ = ["default_tol", "bad_label_char", "DistanceMatrix"]
+__all__ = ["default_tol", "bad_label_char", "DistanceMatrix", "FLOAT32_REL_TOL"]
+
+#: The default tolerance of a float32 matrix, relative to its largest entry: 2**-22, four
+#: units of float32 rounding (2**-24 relative). The float64 default, 1e-9, is below what
+#: float32 can hold: a triangle that is tight in the real numbers is off by a rounding
+#: of about 6e-8 once stored in float32, and would count as violated.
+FLOAT32_REL_TOL = 2.0 ** -22
 
 
 def default_tol(values: np.ndarray) -> float:
-    """The contract's default tolerance: 1e-9 times the largest finite entry.
+    """The contract's default tolerance: 1e-9 times the largest finite entry
+    (:data:`FLOAT32_REL_TOL`, 2**-22, times it for a float32 array).
 
     Examples
     --------
     >>> default_tol(np.array([[0.0, 2.0], [2.0, 0.0]]))
     2e-09
+    >>> default_tol(np.array([[0.0, 2.0], [2.0, 0.0]], dtype=np.float32)) == 2 * 2.0 ** -22
+    True
     """
+    rel = FLOAT32_REL_TOL if getattr(values, "dtype", None) == np.float32 else 1e-9
     if values.size:
         # fmax skips NaN; one pass and no copy of the finite entries (large matrices)
         top = float(np.fmax.reduce(np.abs(values), axis=None))
         if np.isfinite(top):
-            return 1e-9 * top
+            return rel * top
     finite = values[np.isfinite(values)]  # an infinite entry (or nothing but NaN): the careful way
     top = float(np.max(np.abs(finite))) if finite.size else 0.0
-    return 1e-9 * top
+    return rel * top
 
 
 def bad_label_char(label: str) -> str | None:
@@ -71,6 +82,13 @@ def _where(source: str | None) -> str:
 @dataclass(frozen=True, eq=False)
 class DistanceMatrix:
     """Labels plus a symmetric, zero-diagonal, non-negative float64 array.
+
+    A matrix may hold float32 values instead, when asked for (``dtype`` of
+    :meth:`from_array`; a float32 npz file is read that way): half the memory
+    for tens of thousands of taxa, about seven significant digits, and a
+    default tolerance of 2**-22 times the largest entry
+    (:func:`default_tol`). Kernels that can work on float32 do so in place;
+    the others widen a copy to float64.
 
     Build one from outside data with :meth:`from_array`,
     :meth:`from_frame` (alias :meth:`from_pandas`) or :meth:`from_condensed`,
@@ -112,7 +130,7 @@ class DistanceMatrix:
     @classmethod
     def from_array(cls, values: ArrayLike, labels: Sequence[str] | None = None, *, source: str | None = None,
                    col_labels: Sequence[str] | None = None, sym_tol: float | None = None,
-                   copy: bool = True) -> "DistanceMatrix":
+                   copy: bool = True, dtype: DTypeLike | None = None) -> "DistanceMatrix":
         """Validate outside data and build a matrix.
 
         Parameters
@@ -136,6 +154,9 @@ class DistanceMatrix:
             copied (its diagonal is set to exactly 0 and the matrix keeps it:
             do not write to it afterwards); for an array made only to build
             this matrix, which saves a copy of a large matrix. Default True.
+        dtype : float64 or float32, optional
+            The type the values are held in (default float64). float32 halves
+            the memory of a large matrix at about seven significant digits.
 
         Raises
         ------
@@ -152,8 +173,11 @@ class DistanceMatrix:
         where = _where(source)
         if labels is None and isinstance(values, DistanceMatrix):
             labels = values.labels  # an array-like that knows its labels keeps them
+        kind = np.dtype(np.float64 if dtype is None else dtype)
+        if kind not in (np.float64, np.float32):
+            raise ValueError(f"a DistanceMatrix holds float64 or float32 values, not {kind}")
         try:
-            arr = np.array(values, dtype=np.float64, copy=True if copy else None)
+            arr = np.array(values, dtype=kind, copy=True if copy else None)
         except (TypeError, ValueError) as exc:
             raise InputError(f"{where}values are not numeric ({exc})") from None
         if arr.ndim != 2 or arr.shape[0] != arr.shape[1]:
@@ -236,7 +260,8 @@ class DistanceMatrix:
             i, j = np.argwhere(arr < 0)[0]
             raise InputError(f"{where}negative entry {float(arr[i, j])!r} at ({labels[i]}, {labels[j]})")
         if sym_tol is None:
-            sym_tol = 1e-9 * float(arr.max()) + 1e-12  # default_tol of a finite non-negative matrix
+            rel = FLOAT32_REL_TOL if arr.dtype == np.float32 else 1e-9
+            sym_tol = rel * float(arr.max()) + 1e-12  # default_tol of a finite non-negative matrix
         diag = np.diagonal(arr)
         bad = np.abs(diag) > sym_tol
         if bad.any():
@@ -264,7 +289,8 @@ class DistanceMatrix:
     def _trusted(cls, arr: np.ndarray, labels: Iterable[str]) -> "DistanceMatrix":
         """Wrap an array already known to be valid (no checks; internal)."""
         # A read-only view: callers hand over the array and must not keep writing to it.
-        arr = np.ascontiguousarray(arr, dtype=np.float64).view()
+        kind = np.float32 if getattr(arr, "dtype", None) == np.float32 else np.float64
+        arr = np.ascontiguousarray(arr, dtype=kind).view(np.ndarray)
         arr.setflags(write=False)
         return cls(tuple(labels), arr)
 
@@ -406,7 +432,8 @@ class DistanceMatrix:
         """
         if dtype is not None and np.dtype(dtype) != self.values.dtype:
             if copy is False:
-                raise ValueError(f"a DistanceMatrix holds float64 values; {np.dtype(dtype)} needs a copy, "
+                raise ValueError(f"this DistanceMatrix holds {self.values.dtype} values; {np.dtype(dtype)} needs a "
+                                 "copy, "
                                  "and copy=False was asked")
             return self.values.astype(dtype)
         if copy:
@@ -452,8 +479,10 @@ class DistanceMatrix:
         return self.to_frame()
 
     def with_values(self, values: np.ndarray) -> "DistanceMatrix":
-        """Same labels, new values (validated like outside data)."""
-        return DistanceMatrix.from_array(values, self.labels)
+        """Same labels, new values (validated like outside data; float32 values of a
+        float32 matrix stay float32)."""
+        keep = self.values.dtype == np.float32 and getattr(values, "dtype", None) == np.float32
+        return DistanceMatrix.from_array(values, self.labels, dtype=np.float32 if keep else None)
 
     def subset(self, labels: Sequence[str]) -> "DistanceMatrix":
         """The sub-matrix over the given labels, in that order."""

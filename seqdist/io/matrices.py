@@ -962,7 +962,11 @@ def _is_nexus_distances(text: str) -> bool:
 
 # ----------------------------------------------------------------- npz
 # numpy's .npz: a zip archive of .npy files (numpy's documented array format, NEP 1), here
-# "values" (n x n, float64 as written; float32 read too) and "labels" (a 1-d unicode array).
+# "values" (n x n, float64, or float32 for a single-precision matrix) and "labels" (a 1-d
+# unicode array). A large stored (not deflated) "values" member of a file is memory-mapped
+# copy-on-write instead of read: the pages come from the file as the kernels touch them.
+#: Smallest "values" member that is memory-mapped rather than read (bytes).
+MMAP_MIN_BYTES = 1 << 28
 _NPZ_MAGIC = (b"PK\x03\x04", b"PK\x05\x06")
 
 
@@ -985,7 +989,8 @@ def _write_npz(dm: DistanceMatrix) -> bytes:
     import zipfile
 
     width = max(1, max(len(lab) for lab in dm.labels))
-    members = (("values.npy", np.ascontiguousarray(dm.values, dtype=np.float64)),
+    kind = np.float32 if dm.values.dtype == np.float32 else np.float64  # a float32 matrix stays float32
+    members = (("values.npy", np.ascontiguousarray(dm.values, dtype=kind)),
                ("labels.npy", np.array(dm.labels, dtype=f"<U{width}")))
     out = io.BytesIO()
     with zipfile.ZipFile(out, "w", compression=zipfile.ZIP_STORED, allowZip64=True) as zf:
@@ -1025,6 +1030,10 @@ def _read_npz(data: bytes | str, name: str) -> DistanceMatrix:
                 raise InputError(f"{name}: the '{key}' array would take {_size(info.file_size)}, more than the "
                                  f"{_size(limit)} limit (raise SEQDIST_MAX_DECOMPRESSED)")
             try:
+                mapped = _map_member(data, info) if key == "values" else None
+                if mapped is not None:
+                    arrays[key] = mapped
+                    continue
                 with zf.open(info) as fh:
                     arrays[key] = np.lib.format.read_array(fh, allow_pickle=False)
             except ValueError as exc:
@@ -1051,8 +1060,40 @@ def _read_npz(data: bytes | str, name: str) -> DistanceMatrix:
     if values.shape != (n, n):
         raise InputError(f"{name}: 'values' has shape {values.shape}, but 'labels' names {n} taxa "
                          f"(expected ({n}, {n}))")
-    # the array was made here: the checks may use it in place instead of copying it
-    return DistanceMatrix.from_array(values, labels.tolist(), source=name, copy=False)
+    # the array was made here (or mapped copy-on-write): the checks may use it in place
+    return DistanceMatrix.from_array(values, labels.tolist(), source=name, copy=False,
+                                     dtype=np.float32 if values.dtype == np.float32 else None)
+
+
+def _map_member(path: bytes | str, info) -> np.ndarray | None:
+    """The stored npy member ``info`` of the zip file ``path`` memory-mapped copy-on-write, or
+    None (not a file path, deflated, small, not a float array, or a layout numpy cannot map)."""
+    import struct
+    import zipfile
+
+    if not isinstance(path, str) or info.compress_type != zipfile.ZIP_STORED or info.file_size < MMAP_MIN_BYTES:
+        return None
+    with open(path, "rb") as fh:
+        fh.seek(info.header_offset)
+        local = fh.read(30)  # the zip local file header (PKWARE APPNOTE 4.3.7)
+        if len(local) < 30 or local[:4] != b"PK\x03\x04":
+            return None
+        name_len, extra_len = struct.unpack("<HH", local[26:30])
+        start = info.header_offset + 30 + name_len + extra_len
+        fh.seek(start)
+        version = np.lib.format.read_magic(fh)
+        if version == (1, 0):
+            shape, fortran, dtype = np.lib.format.read_array_header_1_0(fh)
+        elif version in ((2, 0), (3, 0)):
+            shape, fortran, dtype = np.lib.format.read_array_header_2_0(fh)
+        else:
+            return None
+        offset = fh.tell()
+    if fortran or dtype.hasobject or dtype.kind != "f" or not dtype.isnative or len(shape) != 2:
+        return None
+    if offset - start + dtype.itemsize * shape[0] * shape[1] > info.file_size:
+        return None  # a truncated member: the reader gives the error in its words
+    return np.memmap(path, dtype=dtype, mode="c", offset=offset, shape=shape)
 
 
 # ----------------------------------------------------------------- writing
@@ -1193,9 +1234,9 @@ REGISTRY = {f.name: f for f in (
                  "INTERLEAVE; taxa from a TAXA block or the rows; written as a TAXA block and the lower triangle "
                  "with its diagonal",
                  _read_nexus, _write_nexus, _is_nexus_distances),
-    MatrixFormat("npz", (".npz",), "binary: numpy's .npz archive holding 'values' (n x n float64; float32 is read "
-                 "too) and 'labels' (n unicode strings); exact, and fast to read for large matrices; never "
-                 "unpickled",
+    MatrixFormat("npz", (".npz",), "binary: numpy's .npz archive holding 'values' (n x n float64, or float32 "
+                 "for a single-precision matrix, kept in float32) and 'labels' (n unicode strings); exact, and "
+                 "fast to read for large matrices (a large one is memory-mapped); never unpickled",
                  _read_npz, _write_npz, _is_npz, binary=True),
 )}
 #: The format names, in the order help texts list them (the functions here read REGISTRY itself).

@@ -22,9 +22,10 @@ tile of whole rows 5 MB); chunking never changes the count.
 A float32 matrix (for instance a memory-mapped one read from a float32 npz)
 is counted where it lies, without a float64 copy: each chunk is widened to
 float64 in a small scratch buffer and every excess is computed in float64,
-so the count is exact for the stored float32 values. The loops are Cython (``_triangles.pyx``), compiled when the package is
-installed. The
-excess of a triangle is computed as ``2 * longest - (sum of the three sides)``;
+so the count is exact for the stored float32 values.
+
+The loops are Cython (``_triangles.pyx``), compiled when the package is
+installed. The excess of a triangle is computed as ``2 * longest - (sum of the three sides)``;
 a triangle with a missing (NaN) side gives NaN, which never compares greater
 than the tolerance, so missing sides cost nothing. Only pairs ``(i, j)`` whose
 vector count is non-zero are scanned a second time, with branches, to find the

@@ -39,17 +39,32 @@ OPTIONS: dict = {}
 def closure(D: np.ndarray, tol: float = 0.0) -> np.ndarray:
     """The decrease-only repair of ``D``: entries above their shortest path by more than ``tol`` set to it.
 
-    Missing entries (NaN) stay NaN.
+    Missing entries (NaN) stay NaN. A float32 ``D`` (for instance a
+    memory-mapped one) gives a float32 result computed in float32, in one
+    new matrix and a few rows of work space (the shortest paths are formed
+    in the result's memory, then the entries within ``tol`` of them are put
+    back, a block of rows at a time); float32 path sums round to 2**-24 of
+    their size, so check the result with a tolerance of at least 2**-22
+    times the largest entry (:data:`seqdist.core.matrix.FLOAT32_REL_TOL`).
 
     Examples
     --------
     >>> float(closure(np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]]))[0, 1])
     2.0
+    >>> closure(np.array([[0, 5, 1], [5, 0, 1], [1, 1, 0.]], dtype=np.float32)).dtype
+    dtype('float32')
     """
     from seqdist.kernels.shortest_paths import apsp
 
-    A = apsp(D)
-    X = np.where(D > A + tol, A, D)
+    D = np.asarray(D)
+    if D.dtype != np.float32:
+        D = np.asarray(D, dtype=np.float64)
+    X = apsp(D, out=np.empty(D.shape, dtype=D.dtype))
+    step = max(1, (1 << 22) // max(1, D.shape[0]))
+    for r0 in range(0, D.shape[0], step):
+        d, x = D[r0:r0 + step], X[r0:r0 + step]
+        # keep d where it is not above its path by more than tol (NaN stays NaN: NaN > ... is False)
+        np.copyto(x, d, where=~(d > x + tol))
     np.fill_diagonal(X, 0.0)
     return X
 

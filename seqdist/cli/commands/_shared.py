@@ -58,7 +58,8 @@ def add_matrix_out(p: argparse.ArgumentParser, required: bool = True) -> None:
 
 def add_tol(p: argparse.ArgumentParser) -> None:
     p.add_argument("--tol", type=nonneg_float, default=None, metavar="T",
-                   help="tolerance (default: 1e-9 times the largest entry)")
+                   help="tolerance (default: 1e-9 times the largest entry; 2**-22 times it for a "
+                        "float32 matrix)")
 
 
 # ------------------------------------------------------------ option types
