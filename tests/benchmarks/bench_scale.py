@@ -20,7 +20,9 @@ stays small: Linux counts a parent's peak into a forked child's), beside two ref
 Usage::
 
     python tests/benchmarks/bench_scale.py [--sizes 2000,5000,8000] [--methods nj,bionj]
-        [--text-max 8000] [--full-max 8000] [--seed 1]
+        [--text-max 8000] [--full-max 8000] [--seed 1] [--dtype float64|float32]
+    python tests/benchmarks/bench_scale.py --kernels --sizes 20000 --dtype float32 [--reference 2000]
+        [--threads 0]
 
 Targets (issue 19): NJ on 8,000 taxa from the binary format at most 45 s as a
 whole process; 20,000 taxa under 5 minutes; the same tree as the plain join.
@@ -74,21 +76,24 @@ sys.path.insert(0, sys.argv[1])
 from bench_scale import tree_matrix
 from seqdist.core.matrix import DistanceMatrix
 from seqdist.io.matrices import write_matrix
-n, seed = int(sys.argv[2]), int(sys.argv[3])
+import numpy as np
+n, seed, dtype = int(sys.argv[2]), int(sys.argv[3]), sys.argv[4]
 dm = DistanceMatrix.from_array(tree_matrix(n, seed), [f"s{i}" for i in range(n)])
-for path in sys.argv[4:]:
+if dtype == "float32":
+    dm = DistanceMatrix.from_array(dm.values.astype(np.float32), dm.labels, dtype=np.float32, copy=False)
+for path in sys.argv[5:]:
     write_matrix(path, dm)
 """
 
 
-def write_inputs(n: int, seed: int, folder: str, text: bool) -> dict:
+def write_inputs(n: int, seed: int, folder: str, text: bool, dtype: str = "float64") -> dict:
     # In a child process: Linux carries a parent's peak resident memory over fork and exec into
     # the child's ru_maxrss, so the parent stays small (numpy only) and never holds a matrix.
     paths = {"npz": os.path.join(folder, f"m{n}.npz")}
     if text:
         paths["tsv"] = os.path.join(folder, f"m{n}.tsv")
     subprocess.run([sys.executable, "-c", MAKE, os.path.dirname(os.path.abspath(__file__)), str(n), str(seed),
-                    *paths.values()], check=True, cwd=NEUTRAL)
+                    dtype, *paths.values()], check=True, cwd=NEUTRAL)
     return paths
 
 
@@ -116,30 +121,39 @@ import sys, time, json
 import numpy as np
 from seqdist.io.matrices import read_matrix
 from seqdist.kernels.triangles import count_violations
-from seqdist.kernels.shortest_paths import apsp
-dm = read_matrix(sys.argv[1])
+from seqdist.repair import shrink
+from seqdist.kernels import shortest_paths
+dm = read_matrix(sys.argv[1])  # a large npz is memory-mapped; a float32 one stays float32
 n = dm.n
-D = np.ascontiguousarray(dm.values)
-out = {}
+D = dm.values
+out = {"dtype": str(D.dtype)}
 t = time.perf_counter(); v, m = count_violations(D); out["count"] = time.perf_counter() - t
 out["violated"] = int(v)
-t = time.perf_counter(); X = apsp(D, threads=int(sys.argv[2])); out["closure"] = time.perf_counter() - t
+threads = int(sys.argv[2])
+if threads != 1:  # the closure's threads (apsp's default is one)
+    _apsp = shortest_paths.apsp
+    shortest_paths.apsp = lambda *a, **k: _apsp(*a, threads=threads, **k)
+t = time.perf_counter(); X = shrink.closure(D); out["closure"] = time.perf_counter() - t
+out["closure_dtype"] = str(X.dtype)
 print(json.dumps(out))
 """
 
 
-def kernels(sizes: list[int], seed: int, threads: int) -> None:
-    """The audit's triangle count and the shrink closure at each size: time per triple (count:
-    C(n,3) triangles; closure: n^3 relaxations) and peak memory of the process."""
+def kernels(sizes: list[int], seed: int, threads: int, dtype: str, reference: int) -> None:
+    """The triangle count and the shrink closure at each size: time per triple (count: C(n,3)
+    triangles; closure: n^3 relaxations) and peak memory of the process, for matrices stored in
+    ``dtype`` (float32: the npz is read as float32, memory-mapped when large, and both kernels
+    work on it without a float64 copy), after a float64 reference at ``reference`` taxa."""
     import json
     import math
 
     print(f"load average at start: {os.getloadavg()[0]:.1f}; closure threads {threads or 'all'}")
-    print("| n | matrix GB | count s | ns per triangle | closure s | ns per n^3 | peak GB |")
-    print("| --- | --- | --- | --- | --- | --- | --- |")
+    print("| n | stored | matrix GB | count s | ns per triangle | closure s | ns per n^3 | peak GB | load |")
+    print("| --- | --- | --- | --- | --- | --- | --- | --- | --- |")
+    runs = ([(reference, "float64")] if reference else []) + [(n, dtype) for n in sizes]
     with tempfile.TemporaryDirectory() as tmp:
-        for n in sizes:
-            paths = write_inputs(n, seed, tmp, False)
+        for n, kind in runs:
+            paths = write_inputs(n, seed, tmp, False, kind)
             p = subprocess.Popen([sys.executable, "-c", KERNEL, paths["npz"], str(threads)], cwd=NEUTRAL,
                                  stdout=subprocess.PIPE, stderr=subprocess.PIPE)
             _, status, usage = os.wait4(p.pid, 0)
@@ -147,9 +161,12 @@ def kernels(sizes: list[int], seed: int, threads: int) -> None:
             p.stdout.close()
             p.stderr.close()
             tri = math.comb(n, 3)
-            print(f"| {n} | {n * n * 8 / 1e9:.2f} | {res['count']:.1f} | {res['count'] / tri * 1e9:.3f} | "
-                  f"{res['closure']:.1f} | {res['closure'] / n ** 3 * 1e9:.3f} | {usage.ru_maxrss / 1e6:.2f} |",
-                  flush=True)
+            if os.waitstatus_to_exitcode(status) != 0:
+                raise SystemExit(f"the kernels failed at n = {n}")
+            size = n * n * (4 if kind == "float32" else 8) / 1e9
+            print(f"| {n} | {res['dtype']} | {size:.2f} | {res['count']:.1f} | {res['count'] / tri * 1e9:.3f} | "
+                  f"{res['closure']:.1f} | {res['closure'] / n ** 3 * 1e9:.4f} | {usage.ru_maxrss / 1e6:.2f} | "
+                  f"{os.getloadavg()[0]:.1f} |", flush=True)
             os.remove(paths["npz"])
 
 
@@ -163,9 +180,13 @@ def main() -> None:
     ap.add_argument("--kernels", action="store_true",
                     help="instead: the audit's triangle count and the shrink closure, time per triple")
     ap.add_argument("--threads", type=int, default=0, help="closure threads with --kernels (0: all)")
+    ap.add_argument("--dtype", choices=("float64", "float32"), default="float64",
+                    help="precision the npz matrices are stored in")
+    ap.add_argument("--reference", type=int, default=2000,
+                    help="with --kernels: first a float64 run at this n, the yardstick of time per triple (0: none)")
     args = ap.parse_args()
     if args.kernels:
-        kernels([int(x) for x in args.sizes.split(",")], args.seed, args.threads)
+        kernels([int(x) for x in args.sizes.split(",")], args.seed, args.threads, args.dtype, args.reference)
         return
     py = sys.executable
     print(f"load average at start: {os.getloadavg()[0]:.1f}; {os.cpu_count()} cores")
@@ -174,7 +195,7 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         for n in [int(x) for x in args.sizes.split(",")]:
             t = time.perf_counter()
-            paths = write_inputs(n, args.seed, tmp, n <= args.text_max)
+            paths = write_inputs(n, args.seed, tmp, n <= args.text_max, args.dtype)
             print(f"| {n} | - | make the matrix | {time.perf_counter() - t:.1f} | - | "
                   f"npz {os.path.getsize(paths['npz']) / 1e9:.2f} GB"
                   + (f", tsv {os.path.getsize(paths['tsv']) / 1e9:.2f} GB |" if "tsv" in paths else " |"))
