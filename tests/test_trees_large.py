@@ -93,22 +93,34 @@ def test_sorted_search_equals_full_scan_newick(n, seed, levels, bionj):
 
 @pytest.mark.parametrize("bionj", [False, True])
 def test_float32_matrix_through_neighbor_joining(bionj):
-    # A DistanceMatrix holding float32 values (read-only, as a float32 npz read gives it)
-    # builds the tree of the same values in float64, as Newick text.
+    # A DistanceMatrix holding float32 values builds the tree of the same values in
+    # float64, as Newick text, with either search.
     n = 150
     D32 = tree_like(n, 11).astype(np.float32)
     labels = labels_for(n)
     dm64 = DistanceMatrix.from_array(D32.astype(np.float64), labels)
-    dm32 = DistanceMatrix.from_array(D32, labels, copy=False)
-    if dm32.values.dtype != np.float32:
-        # from_array converts to float64 until matrices may hold float32: stand in with
-        # the plain constructor on the validated float32 array
-        view = D32.view()
-        view.setflags(write=False)
-        dm32 = DistanceMatrix(tuple(labels), view)
+    dm32 = DistanceMatrix.from_array(D32, labels, dtype=np.float32)
+    assert dm32.values.dtype == np.float32
+    want = neighbor_joining(dm64, bionj=bionj, search="full").to_newick()
     for search in ("sorted", "full"):
-        want = neighbor_joining(dm64, bionj=bionj, search="full").to_newick()
         assert neighbor_joining(dm32, bionj=bionj, search=search).to_newick() == want
+
+
+def test_float32_npz_file_tree(tmp_path):
+    # the binary format in float32, read back (memory-mapped when large) and joined: the
+    # tree of the float64 values, for NJ and BIONJ
+    from seqdist.io.matrices import read_matrix, write_matrix
+
+    n = 120
+    D32 = tree_like(n, 12).astype(np.float32)
+    labels = labels_for(n)
+    path = str(tmp_path / "m.npz")
+    write_matrix(path, DistanceMatrix.from_array(D32, labels, dtype=np.float32))
+    dm = read_matrix(path)
+    assert dm.values.dtype == np.float32
+    dm64 = DistanceMatrix.from_array(D32.astype(np.float64), labels)
+    for bionj in (False, True):
+        assert neighbor_joining(dm, bionj=bionj).to_newick() == neighbor_joining(dm64, bionj=bionj).to_newick()
 
 
 def test_memory_mapped_read_only_float32(tmp_path):

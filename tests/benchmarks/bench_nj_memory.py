@@ -3,18 +3,17 @@
 
 For each size n a child process writes a noisy tree-like matrix (``tree_matrix`` of
 bench_scale.py, its values rounded to float32 so that both inputs below hold the same
-numbers) as ``.npz`` (float64, the binary format) and as a float32 ``.npy``. Then each
+numbers) in the binary format twice: as float64 (``npz``) and as float32 (``npz32``). Then each
 step runs as its own process, and the table gives its wall time, its peak resident
 memory (``ru_maxrss`` from ``os.wait4``; the parent never holds a matrix: Linux counts
 a parent's peak into a forked child's), that peak over the size of the float64 matrix
 (8 n^2 bytes), and the load average when the step started (the machine is shared):
 
-* ``read``: reading the npz alone (what every command pays first);
-* ``nj`` / ``bionj`` on npz: the read, then ``neighbor_joining`` (sorted-row search),
-  Newick text out;
-* ``nj`` / ``bionj`` on float32: the float32 ``.npy`` memory-mapped read-only, wrapped
-  as a matrix of float32 values (as a float32 binary matrix is read), then the same join;
-  its tree must be the npz one (same values, float64 arithmetic): the script checks it;
+* ``read``: reading the matrix alone (what every command pays first; a large npz is
+  memory-mapped, its pages counted as they are touched);
+* ``nj`` / ``bionj``: the read, then ``neighbor_joining`` (sorted-row search), Newick
+  text out; the float32 matrix must give the float64 one's tree (same values, float64
+  arithmetic in the join): the script checks it;
 * with ``--cli``: the whole ``seqdist tree`` command, which also computes the cophenetic
   correlation of the tree for its summary;
 * with ``--before DIR``: each join also run from another copy of the package (``DIR``
@@ -47,28 +46,22 @@ sys.path.insert(0, sys.argv[1])
 from bench_scale import tree_matrix
 from seqdist.core.matrix import DistanceMatrix
 from seqdist.io.matrices import write_matrix
-n, seed, npz, npy = int(sys.argv[2]), int(sys.argv[3]), sys.argv[4], sys.argv[5]
+n, seed, npz, npz32 = int(sys.argv[2]), int(sys.argv[3]), sys.argv[4], sys.argv[5]
+labels = [f"s{i}" for i in range(n)]
 D = tree_matrix(n, seed).astype(np.float32)
-np.save(npy, D)
+write_matrix(npz32, DistanceMatrix.from_array(D, labels, copy=False, dtype=np.float32))
 D = D.astype(np.float64)
-write_matrix(npz, DistanceMatrix.from_array(D, [f"s{i}" for i in range(n)], copy=False))
+write_matrix(npz, DistanceMatrix.from_array(D, labels, copy=False))
 """
 
 READ = "import sys; from seqdist.io.matrices import read_matrix; read_matrix(sys.argv[1])"
 
 JOIN = r"""
 import sys
-import numpy as np
+from seqdist.io.matrices import read_matrix
 from seqdist.trees.build import neighbor_joining
 path, method, out = sys.argv[1], sys.argv[2], sys.argv[3]
-if path.endswith(".npy"):
-    from seqdist.core.matrix import DistanceMatrix
-    values = np.load(path, mmap_mode="r")
-    dm = DistanceMatrix(tuple(f"s{i}" for i in range(values.shape[0])), values)
-else:
-    from seqdist.io.matrices import read_matrix
-    dm = read_matrix(path)
-t = neighbor_joining(dm, bionj=method == "bionj")
+t = neighbor_joining(read_matrix(path), bionj=method == "bionj")
 open(out, "w").write(t.to_newick())
 """
 
@@ -100,8 +93,8 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--sizes", default="8000,20000")
     ap.add_argument("--methods", default="nj,bionj")
-    ap.add_argument("--inputs", default="npz,float32", help="npz (float64), float32 (memory-mapped .npy)")
-    ap.add_argument("--cli", action="store_true", help="also the whole seqdist tree command on the npz")
+    ap.add_argument("--inputs", default="npz,npz32", help="npz (float64), npz32 (float32)")
+    ap.add_argument("--cli", action="store_true", help="also the whole seqdist tree command on each input")
     ap.add_argument("--before", default=None, metavar="DIR",
                     help="also run each join from the package copy in DIR (its seqdist folder, built)")
     ap.add_argument("--seed", type=int, default=1)
@@ -113,12 +106,14 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         for n in [int(x) for x in args.sizes.split(",")]:
             full = 8.0 * n * n / 1e9
-            paths = {"npz": os.path.join(tmp, f"m{n}.npz"), "float32": os.path.join(tmp, f"m{n}.npy")}
-            s, gb, load = run([py, "-c", MAKE, HERE, str(n), str(args.seed), paths["npz"], paths["float32"]])
+            paths = {"npz": os.path.join(tmp, f"m{n}.npz"), "npz32": os.path.join(tmp, f"m{n}_32.npz")}
+            s, gb, load = run([py, "-c", MAKE, HERE, str(n), str(args.seed), paths["npz"], paths["npz32"]])
             print(f"| {n} | - | make the matrix | {s:.1f} | {gb:.2f} | - | {load:.1f} | float64 matrix "
                   f"{full:.2f} GB, npz {os.path.getsize(paths['npz']) / 1e9:.2f} GB |", flush=True)
-            s, gb, load = run([py, "-c", READ, paths["npz"]])
-            print(f"| {n} | npz | read only | {s:.1f} | {gb:.2f} | {gb / full:.2f} | {load:.1f} | |", flush=True)
+            for kind in args.inputs.split(","):
+                s, gb, load = run([py, "-c", READ, paths[kind]])
+                print(f"| {n} | {kind} | read only | {s:.1f} | {gb:.2f} | {gb / full:.2f} | {load:.1f} | |",
+                      flush=True)
             for method in args.methods.split(","):
                 trees = {}
                 for kind in args.inputs.split(","):
@@ -135,12 +130,12 @@ def main() -> None:
                         print(f"| {n} | {kind} | {step} | {s:.1f} | {gb:.2f} | {gb / full:.2f} | {load:.1f} | "
                               f"{note} |", flush=True)
                         os.remove(out)
-                if args.cli:
+                for kind in args.inputs.split(",") if args.cli else []:
                     out = os.path.join(tmp, f"{method}_cli.nwk")
-                    s, gb, load = run([py, "-m", "seqdist", "tree", paths["npz"], "-o", out, "--method", method,
+                    s, gb, load = run([py, "-m", "seqdist", "tree", paths[kind], "-o", out, "--method", method,
                                        "--quiet"])
-                    print(f"| {n} | npz | `seqdist tree --method {method}` | {s:.1f} | {gb:.2f} | {gb / full:.2f} | "
-                          f"{load:.1f} | tree {digest(out)} |", flush=True)
+                    print(f"| {n} | {kind} | `seqdist tree --method {method}` | {s:.1f} | {gb:.2f} | "
+                          f"{gb / full:.2f} | {load:.1f} | tree {digest(out)} |", flush=True)
                     os.remove(out)
                 if len(set(trees.values())) > 1:
                     raise SystemExit("the trees differ (float32 input or the other version)")
