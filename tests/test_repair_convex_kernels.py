@@ -532,3 +532,122 @@ def test_l1_bound_ascent_never_lowers_the_bound_and_steps_to_a_maximiser(seed):
         trial[t] = lam1[t] + s
         best = max(best, bound_plain(keys, trial, d, w, M, n)[0])
     assert g1 >= best - 1e-9
+
+
+# ------------------------------------------------------------ the primal-dual kernels (issue 19)
+def ref_pdhg_step(rows, y, x, c, d, tau, tw, sigma, M, quad, a=None, rho=0.0, x0=None, y0=None):
+    """One step of the primal-dual hybrid gradient method by plain loops (Chambolle and Pock 2011,
+    "A first-order primal-dual algorithm for convex problems...", J. Math. Imaging Vis. 40, Algorithm 1
+    with theta = 1); with ``a`` the reflected Halpern form (Lu and Yang 2024, arXiv:2407.16144)."""
+    x, y, c = x.copy(), y.copy(), c.copy()
+    xbar = np.empty_like(x)
+    for e in range(x.size):
+        xo = x[e]
+        v = xo - tau[e] * c[e]
+        if quad:
+            xn = (v + tw[e] * d[e]) / (1.0 + tw[e])
+        else:
+            z = v - d[e]
+            xn = d[e] + max(z - tw[e], 0.0) + min(z + tw[e], 0.0)
+        xn = min(max(xn, 0.0), M)
+        xbar[e] = 2.0 * xn - xo
+        x[e] = xn if a is None else a * ((1.0 + rho) * xn - rho * xo) + (1.0 - a) * x0[e]
+    for t in range(rows.shape[0]):
+        e0, e1, e2 = rows[t]
+        yt = max(y[t] + sigma * (xbar[e0] - xbar[e1] - xbar[e2]), 0.0)
+        yn = yt if a is None else a * ((1.0 + rho) * yt - rho * y[t]) + (1.0 - a) * y0[t]
+        dy = yn - y[t]
+        y[t] = yn
+        c[e0] += dy
+        c[e1] -= dy
+        c[e2] -= dy
+    return x, y, c
+
+
+def _pd_case(seed, n=9, locked=True):
+    rng = np.random.default_rng(seed)
+    D = rand_sym(rng, n)
+    iu = np.triu_indices(n, 1)
+    keys = K.violated_triangles(np.triu(D, 1), np.ones((n, n), bool), True, 0.0)
+    rows = K.entry_rows(keys, n)
+    d = D[iu].copy()
+    ne = d.size
+    tau = rng.uniform(0.05, 0.5, ne)
+    if locked:
+        tau[:2] = 0.0  # locked entries: tau = 0, they never move
+    tw = tau * rng.uniform(0.5, 2.0, ne)
+    x = np.clip(d + rng.normal(0, 0.1, ne), 0, None)
+    x[:2] = d[:2]
+    y = rng.uniform(0, 0.3, rows.shape[0]) * (rng.uniform(size=rows.shape[0]) < 0.6)
+    c = np.zeros(ne)
+    K.accumulate_rows(rows, y, c)
+    return keys, rows, d, tau, tw, x, y, c, float(D.max())
+
+
+def test_entry_rows_are_the_slots_of_the_three_sides():
+    rng = np.random.default_rng(3)
+    n = 8
+    keys = K.violated_triangles(np.triu(rand_sym(rng, n), 1), np.ones((n, n), bool), True, 0.0)
+    slot = {p: q for q, p in enumerate(itertools.combinations(range(n), 2))}  # np.triu_indices order
+    rows = K.entry_rows(keys, n)
+    i, j, k, s = K.decode(keys)
+    for t in range(keys.size):
+        sides = [(i[t], j[t]), (i[t], k[t]), (j[t], k[t])]
+        long_ = sides.pop(int(s[t]))
+        assert rows[t].tolist() == [slot[long_], slot[sides[0]], slot[sides[1]]]
+    # A^T y over slots is accumulate_tri's matrix read in the same order
+    y = rng.uniform(size=keys.size)
+    c1 = np.zeros(n * (n - 1) // 2)
+    K.accumulate_rows(rows, y, c1)
+    c2 = np.zeros((n, n))
+    K.accumulate_tri(keys, y, c2)
+    assert np.allclose(c1, c2[np.triu_indices(n, 1)], rtol=0, atol=1e-12)
+
+
+@pytest.mark.parametrize("seed", range(4))
+@pytest.mark.parametrize("quad", [False, True])
+def test_pdhg_step_matches_the_plain_loop_bit_for_bit(seed, quad):
+    keys, rows, d, tau, tw, x, y, c, M = _pd_case(seed)
+    xr, yr, cr = x, y, c
+    for _ in range(5):
+        xr, yr, cr = ref_pdhg_step(rows, yr, xr, cr, d, tau, tw, 0.4, M, quad)
+    K.pdhg_tri(rows, y, x, np.empty_like(x), c, d, tau, tw, 0.4, M, 5, quad)
+    assert np.array_equal(x, xr) and np.array_equal(y, yr) and np.array_equal(c, cr)
+    assert (y >= 0).all() and (x >= 0).all() and (x <= M).all()
+    assert np.array_equal(x[:2], d[:2])  # locked entries stay
+
+
+@pytest.mark.parametrize("seed", range(4))
+@pytest.mark.parametrize("quad", [False, True])
+def test_pdhg_halpern_matches_the_plain_loop_bit_for_bit(seed, quad):
+    keys, rows, d, tau, tw, x, y, c, M = _pd_case(seed)
+    x0, y0 = x.copy(), y.copy()
+    xr, yr, cr = x, y, c
+    for k in range(3, 8):
+        xr, yr, cr = ref_pdhg_step(rows, yr, xr, cr, d, tau, tw, 0.4, M, quad, a=(k + 1.0) / (k + 2.0), rho=1.0,
+                                   x0=x0, y0=y0)
+    K.pdhg_halpern(rows, y, y0, x, x0, np.empty_like(x), c, d, tau, tw, 0.4, M, 3, 5, 1.0, quad)
+    assert np.array_equal(x, xr) and np.array_equal(y, yr) and np.array_equal(c, cr)
+
+
+def test_pdhg_converges_to_the_lp_optimum_on_a_small_pool():
+    # many iterations on a fixed set of rows reach the LP's optimum (scipy HiGHS on the same rows)
+    from scipy.optimize import linprog
+    from scipy.sparse import csr_matrix
+
+    keys, rows, d, tau, tw, x, y, c, M = _pd_case(5, n=7, locked=False)
+    ne, m = d.size, rows.shape[0]
+    tau = np.full(ne, 0.2)
+    tw = tau.copy()  # unit weights
+    x0, y0 = x.copy(), y.copy()
+    for _ in range(200):  # restarts every 500 iterations, at the plain step's point
+        K.pdhg_halpern(rows, y, y0, x, x0, np.empty(ne), c, d, tau, tw, 0.2, M, 0, 500, 1.0, False)
+        K.pdhg_tri(rows, y, x, np.empty(ne), c, d, tau, tw, 0.2, M, 1, False)
+        x0, y0 = x.copy(), y.copy()
+    A = csr_matrix((np.tile([1.0, -1.0, -1.0], m), (np.repeat(np.arange(m), 3), rows.reshape(-1))), shape=(m, ne))
+    # x = d + p - q, p, q >= 0, cost p + q, A x <= 0 (the l1 LP on these rows)
+    res = linprog(np.ones(2 * ne), A_ub=np.hstack([A.toarray(), -A.toarray()]), b_ub=-(A @ d),
+                  bounds=[(0, M - v) for v in d] + [(0, v) for v in d], method="highs")  # 0 <= x <= M
+    assert res.status == 0
+    assert abs(np.abs(x - d).sum() - res.fun) <= 1e-6 * res.fun
+    assert (A @ x).max() <= 1e-6

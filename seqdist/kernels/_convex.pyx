@@ -21,7 +21,7 @@ Each ``name_c`` here is the loop of ``name`` in convex.py.
 from cython.parallel cimport prange
 from openmp cimport omp_get_max_threads, omp_get_thread_num
 from libc.math cimport INFINITY, fabs
-from libc.stdint cimport int64_t
+from libc.stdint cimport int32_t, int64_t
 from libc.stdlib cimport free, malloc, realloc
 from libc.string cimport memcpy
 
@@ -35,6 +35,13 @@ cdef extern from "src/convex.h" nogil:
     double sd_cvx_blend_row(const double* Y, const double* Z, int64_t n, int64_t i, double best)
     void sd_cvx_dijkstra(const double* W, int64_t n, int64_t s, int64_t* pred, double* dist)
     void sd_cvx_clamp_one(double* Y, int64_t n, int64_t i, int64_t j, double target)
+    void sd_cvx_pdhg_primal(int64_t ne, double* x, double* xbar, const double* c, const double* d,
+                            const double* tau, const double* tw, double M, int quad)
+    void sd_cvx_pdhg_dual(int64_t m, const int32_t* rows, double* y, const double* xbar, double* c, double sigma)
+    void sd_cvx_pdhg_primal_h(int64_t ne, double* x, double* xbar, const double* x0, const double* c, const double* d,
+                              const double* tau, const double* tw, double M, int quad, double a, double rho)
+    void sd_cvx_pdhg_dual_h(int64_t m, const int32_t* rows, double* y, const double* y0, const double* xbar,
+                            double* c, double sigma, double a, double rho)
 
 
 # ------------------------------------------------------------ argument checks
@@ -809,3 +816,70 @@ cdef inline double lp_left(double c, double w, double d, double M) noexcept nogi
     if c <= w:
         return d
     return 0.0
+
+
+
+# ------------------------------------------------------------ primal-dual hybrid gradient (l1, l2)
+def pdhg_tri_c(const int32_t[:, ::1] rows, double[::1] y, double[::1] x, double[::1] xbar, double[::1] c,
+               const double[::1] d, const double[::1] tau, const double[::1] tw, double sigma, double M,
+               Py_ssize_t iters, bint quad):
+    """``iters`` iterations of the primal-dual hybrid gradient method over triangle rows
+    (see :func:`seqdist.kernels.convex.pdhg_tri`). Entry arrays are compact (one slot per entry)."""
+    cdef Py_ssize_t m = rows.shape[0], ne = x.shape[0], it, t
+    need(rows.shape[1] == 3, "pdhg_tri: rows must be (m, 3)")
+    need(xbar.shape[0] == ne and c.shape[0] == ne and d.shape[0] == ne and tau.shape[0] == ne and tw.shape[0] == ne,
+         "pdhg_tri: the entry arrays must have one length")
+    need(y.shape[0] >= m, "pdhg_tri: y shorter than rows")
+    if ne == 0:
+        return
+    if m and (np.min(rows) < 0 or np.max(rows) >= ne):
+        raise ValueError("pdhg_tri: an entry index is outside the entry arrays")
+    with nogil:
+        for it in range(iters):
+            # primal step: x+ = prox_{tau f}(x - tau c) and the extrapolation 2 x+ - x (vectorised, C)
+            sd_cvx_pdhg_primal(ne, &x[0], &xbar[0], &c[0], &d[0], &tau[0], &tw[0], M, quad)
+            # dual step: y+ = max(0, y + sigma A xbar); c = A^T y follows incrementally
+            if m:
+                sd_cvx_pdhg_dual(m, &rows[0, 0], &y[0], &xbar[0], &c[0], sigma)
+
+
+def accumulate_rows_c(const int32_t[:, ::1] rows, const double[::1] y, double[::1] c):
+    """``c += A^T y`` over triangle rows of entry slots (see :func:`seqdist.kernels.convex.accumulate_rows`)."""
+    cdef Py_ssize_t m = rows.shape[0], ne = c.shape[0], t
+    cdef double yt
+    need(rows.shape[1] == 3, "accumulate_rows: rows must be (m, 3)")
+    need(y.shape[0] >= m, "accumulate_rows: y shorter than rows")
+    if m == 0:
+        return
+    if np.min(rows) < 0 or np.max(rows) >= ne:
+        raise ValueError("accumulate_rows: an entry index is outside c")
+    with nogil:
+        for t in range(m):
+            yt = y[t]
+            c[rows[t, 0]] += yt
+            c[rows[t, 1]] -= yt
+            c[rows[t, 2]] -= yt
+
+
+def pdhg_halpern_c(const int32_t[:, ::1] rows, double[::1] y, const double[::1] y0, double[::1] x,
+                   const double[::1] x0, double[::1] xbar, double[::1] c, const double[::1] d, const double[::1] tau,
+                   const double[::1] tw, double sigma, double M, Py_ssize_t k0, Py_ssize_t iters, double rho,
+                   bint quad):
+    """``iters`` reflected Halpern iterations from iteration ``k0`` after the anchor ``(x0, y0)``
+    (see :func:`seqdist.kernels.convex.pdhg_halpern`)."""
+    cdef Py_ssize_t m = rows.shape[0], ne = x.shape[0], it
+    cdef double a
+    need(rows.shape[1] == 3, "pdhg_halpern: rows must be (m, 3)")
+    need(xbar.shape[0] == ne and x0.shape[0] == ne and c.shape[0] == ne and d.shape[0] == ne
+         and tau.shape[0] == ne and tw.shape[0] == ne, "pdhg_halpern: the entry arrays must have one length")
+    need(y.shape[0] >= m and y0.shape[0] >= m, "pdhg_halpern: y or y0 shorter than rows")
+    if ne == 0:
+        return
+    if m and (np.min(rows) < 0 or np.max(rows) >= ne):
+        raise ValueError("pdhg_halpern: an entry index is outside the entry arrays")
+    with nogil:
+        for it in range(iters):
+            a = (k0 + it + 1.0) / (k0 + it + 2.0)
+            sd_cvx_pdhg_primal_h(ne, &x[0], &xbar[0], &x0[0], &c[0], &d[0], &tau[0], &tw[0], M, quad, a, rho)
+            if m:
+                sd_cvx_pdhg_dual_h(m, &rows[0, 0], &y[0], &y0[0], &xbar[0], &c[0], sigma, a, rho)

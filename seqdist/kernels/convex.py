@@ -35,6 +35,7 @@ import numpy as np
 
 from seqdist.kernels._convex import (
     accumulate_cyc_c,
+    accumulate_rows_c,
     accumulate_tri_c,
     apply_cyc_c,
     apply_tri_c,
@@ -43,6 +44,8 @@ from seqdist.kernels._convex import (
     clamp_free_c,
     denominators_tri_c,
     merge_active_c,
+    pdhg_halpern_c,
+    pdhg_tri_c,
     scan_count_c,
     scan_fill_c,
     sweep_l1_cyc_c,
@@ -58,7 +61,8 @@ if TYPE_CHECKING:
 __all__ = ["encode", "decode", "violated_triangles", "count_violated", "violated_triangles_capped", "merge_active",
            "sweep_l2_tri", "sweep_l2_cyc", "sweep_l1_tri", "sweep_l1_cyc", "ascend_l1_bound", "accumulate_tri",
            "accumulate_cyc", "apply_tri", "apply_cyc", "denominators_tri", "violated_cycles", "blend_step",
-           "clamp_free"]
+           "clamp_free", "entry_rows", "pdhg_tri", "pdhg_halpern",
+           "accumulate_rows"]
 
 _SI = 42
 _SJ = 22
@@ -519,3 +523,100 @@ def clamp_free(Y: np.ndarray, fi: np.ndarray, fj: np.ndarray, target: np.ndarray
     if fi.size and (min(fi.min(), fj.min()) < 0 or max(fi.max(), fj.max()) >= Y.shape[0]):
         raise ValueError("clamp_free: an entry index is outside the matrix")
     clamp_free_c(Y, fi, fj, target)
+
+
+# ------------------------------------------------------------ primal-dual hybrid gradient (compact entries)
+def entry_rows(keys: np.ndarray, n: int) -> np.ndarray:
+    """Triangle keys as rows of entry slots ``(long, short, short)``, int32 of shape (m, 3).
+
+    The slot of entry ``(i, j)``, ``i < j``, is its place in the row-major
+    order of the upper triangle, ``i n - i (i + 1) / 2 + j - i - 1`` (the
+    order of ``np.triu_indices(n, 1)``). Needs ``n (n - 1) / 2 < 2**31``.
+
+    Examples
+    --------
+    >>> entry_rows(encode([0, 1], [1, 2], [2, 3], [0, 2]), 4).tolist()  # (0,1) (0,2) (0,3) (1,2) (1,3) (2,3)
+    [[0, 1, 3], [5, 3, 4]]
+    """
+    if n * (n - 1) // 2 >= 2 ** 31:
+        raise ValueError("entry_rows: too many entries for int32 slots")
+    i, j, k, s = decode(keys)
+
+    def pos(a, b):
+        return a * n - a * (a + 1) // 2 + (b - a - 1)
+
+    eij, eik, ejk = pos(i, j), pos(i, k), pos(j, k)
+    out = np.empty((i.size, 3), np.int32)
+    out[:, 0] = np.select([s == 0, s == 1], [eij, eik], ejk)
+    out[:, 1] = np.where(s == 0, eik, eij)
+    out[:, 2] = np.where(s == 2, eik, ejk)
+    return out
+
+
+def pdhg_tri(rows: np.ndarray, y: np.ndarray, x: np.ndarray, xbar: np.ndarray, c: np.ndarray, d: np.ndarray,
+             tau: np.ndarray, tw: np.ndarray, sigma: float, M: float, iters: int, quad: bool) -> None:
+    """``iters`` iterations of the primal-dual hybrid gradient method (in place).
+
+    The saddle problem is ``min_{0 <= x <= M} max_{y >= 0} sum_e f_e(x_e) + y^T A x``
+    with ``A`` the triangle rows (``rows``: entry slots, long side first, as
+    :func:`entry_rows` gives) and ``f_e = w_e |x_e - d_e|`` (``quad`` false)
+    or ``w_e (x_e - d_e)^2`` (``quad`` true). One iteration (Chambolle and
+    Pock 2011, with per-entry steps ``tau`` and one dual step ``sigma``)::
+
+        x+ = prox_{tau f}(x - tau c)      (soft thresholding, or a weighted mean; clipped to [0, M])
+        xbar = 2 x+ - x
+        y+ = max(0, y + sigma A xbar);    c = A^T y+ (kept by the change of y)
+
+    ``tw`` is ``tau w`` (l1) or ``2 tau w`` (l2); an entry with ``tau = 0``
+    (locked) never moves. Entry arrays are compact (one slot per entry,
+    float64); ``c`` must hold ``A^T y`` on entry (:func:`accumulate_rows`).
+    Rows are taken in order on one thread, so the result is the same on every
+    machine.
+
+    Examples
+    --------
+    >>> rows = np.array([[0, 1, 2]], np.int32)       # x0 <= x1 + x2
+    >>> d = np.array([4.0, 1.0, 1.0]); x = d.copy(); y = np.zeros(1); c = np.zeros(3)
+    >>> pdhg_tri(rows, y, x, np.zeros(3), c, d, np.full(3, 0.5), np.full(3, 0.5), 0.3, 4.0, 200, False)
+    >>> bool(x[0] - x[1] - x[2] < 1e-6), round(float(np.abs(x - d).sum()), 4)
+    (True, 2.0)
+    """
+    pdhg_tri_c(rows, y, x, xbar, c, d, tau, tw, float(sigma), float(M), int(iters), bool(quad))
+
+
+def pdhg_halpern(rows: np.ndarray, y: np.ndarray, y0: np.ndarray, x: np.ndarray, x0: np.ndarray, xbar: np.ndarray,
+                 c: np.ndarray, d: np.ndarray, tau: np.ndarray, tw: np.ndarray, sigma: float, M: float, k0: int,
+                 iters: int, rho: float, quad: bool) -> None:
+    """``iters`` iterations of the reflected Halpern form of :func:`pdhg_tri` (in place).
+
+    With ``T`` one step of :func:`pdhg_tri` and ``z0 = (x0, y0)`` the anchor
+    (the last restart point), iteration ``k`` (counted from the anchor,
+    ``k0`` first) is ``z+ = a ((1 + rho) T(z) - rho z) + (1 - a) z0`` with
+    ``a = (k + 1) / (k + 2)`` (Lu and Yang 2024, "Restarted Halpern PDHG for
+    linear programming"). The iterate's duals may be negative: read them
+    through ``max(y, 0)``. ``c`` holds ``A^T y`` and follows ``y``.
+
+    Examples
+    --------
+    >>> rows = np.array([[0, 1, 2]], np.int32)
+    >>> d = np.array([4.0, 1.0, 1.0]); x = d.copy(); y = np.zeros(1); c = np.zeros(3)
+    >>> pdhg_halpern(rows, y, y.copy(), x, d.copy(), np.zeros(3), c, d, np.full(3, 0.5), np.full(3, 0.5), 0.3, 4.0,
+    ...              0, 500, 1.0, False)
+    >>> bool(x[0] - x[1] - x[2] < 1e-2), round(float(np.abs(x - d).sum()), 2)
+    (True, 2.0)
+    """
+    pdhg_halpern_c(rows, y, y0, x, x0, xbar, c, d, tau, tw, float(sigma), float(M), int(k0), int(iters), float(rho),
+                   bool(quad))
+
+
+def accumulate_rows(rows: np.ndarray, y: np.ndarray, c: np.ndarray) -> None:
+    """``c += A^T y`` over triangle rows of entry slots (:func:`entry_rows`), in place.
+
+    Examples
+    --------
+    >>> c = np.zeros(3)
+    >>> accumulate_rows(np.array([[1, 0, 2]], np.int32), np.array([2.0]), c)
+    >>> c.tolist()
+    [-2.0, 2.0, -2.0]
+    """
+    accumulate_rows_c(rows, _f64(y), c)

@@ -266,4 +266,104 @@ static void sd_cvx_clamp_one(double *restrict Y, int64_t n, int64_t i, int64_t j
     Y[i * n + j] = v;
     Y[j * n + i] = v;
 }
+/* The primal step of the primal-dual hybrid gradient method (seqdist.kernels.convex.pdhg_tri) over
+ * ne entries: x+ = prox(x - tau c), clipped to [0, M]; xbar = 2 x+ - x. With quad the
+ * entry's cost is w (x - d)^2 (tw = 2 tau w: x+ = (v + tw d) / (1 + tw)), else w |x - d| (tw = tau w:
+ * soft thresholding around d). An entry with tau = 0 (locked) stays where it is. Entries are
+ * independent, so the loop vectorises without changing any result. */
+SEQDIST_SIMD static void sd_cvx_pdhg_primal(int64_t ne, double *restrict x, double *restrict xbar,
+                                            const double *restrict c,
+                                            const double *restrict d, const double *restrict tau,
+                                            const double *restrict tw, double M, int quad) {
+    if (quad) {
+        for (int64_t e = 0; e < ne; e++) {
+            double xo = x[e];
+            double v = xo - tau[e] * c[e];
+            double xn = (v + tw[e] * d[e]) / (1.0 + tw[e]);
+            xn = xn > 0.0 ? xn : 0.0;
+            xn = xn < M ? xn : M;
+            xbar[e] = 2.0 * xn - xo;
+            x[e] = xn;
+        }
+    } else {
+        for (int64_t e = 0; e < ne; e++) {
+            double xo = x[e];
+            double z = xo - tau[e] * c[e] - d[e];
+            double up = z - tw[e], dn = z + tw[e];
+            up = up > 0.0 ? up : 0.0;
+            dn = dn < 0.0 ? dn : 0.0;
+            double xn = d[e] + up + dn;  /* one of up, dn is 0: d exactly inside the threshold */
+            xn = xn > 0.0 ? xn : 0.0;
+            xn = xn < M ? xn : M;
+            xbar[e] = 2.0 * xn - xo;
+            x[e] = xn;
+        }
+    }
+}
+
+/* The dual step of the primal-dual hybrid gradient method over m triangle rows (long side, short,
+ * short: entry slots): y+ = max(0, y + sigma (xbar_long - xbar_a - xbar_b)); c = A^T y follows by
+ * the change. Without branches (signs change often: a branch would be mispredicted); a
+ * row whose dual does not move adds 0 to c, which changes no value. Rows in order: c is exact to
+ * the same rounding on every machine. */
+static void sd_cvx_pdhg_dual(int64_t m, const int32_t *restrict rows, double *restrict y,
+                             const double *restrict xbar, double *restrict c, double sigma) {
+    for (int64_t t = 0; t < m; t++) {
+        const int32_t e0 = rows[3 * t], e1 = rows[3 * t + 1], e2 = rows[3 * t + 2];
+        const double yo = y[t];
+        double yn = yo + sigma * (xbar[e0] - xbar[e1] - xbar[e2]);
+        yn = yn > 0.0 ? yn : 0.0;
+        const double dy = yn - yo;
+        y[t] = yn;
+        c[e0] += dy;
+        c[e1] -= dy;
+        c[e2] -= dy;
+    }
+}
+
+/* Halpern's anchored, reflected form of the two steps above (Lu and Yang 2024): with z_T the plain
+ * step from z, z+ = a ((1 + rho) z_T - rho z) + (1 - a) z0, z0 the anchor (the last restart point).
+ * xbar is still 2 x_T - x (the plain step's extrapolation); y+ may be negative (only y_T is
+ * projected): the solver reads duals through max(y, 0). */
+SEQDIST_SIMD static void sd_cvx_pdhg_primal_h(int64_t ne, double *restrict x, double *restrict xbar,
+                                              const double *restrict x0, const double *restrict c,
+                                              const double *restrict d, const double *restrict tau,
+                                              const double *restrict tw, double M, int quad, double a,
+                                              double rho) {
+    for (int64_t e = 0; e < ne; e++) {
+        double xo = x[e], xn;
+        double v = xo - tau[e] * c[e];
+        if (quad) {
+            xn = (v + tw[e] * d[e]) / (1.0 + tw[e]);
+        } else {
+            double z = v - d[e];
+            double up = z - tw[e], dn = z + tw[e];
+            up = up > 0.0 ? up : 0.0;
+            dn = dn < 0.0 ? dn : 0.0;
+            xn = d[e] + up + dn;
+        }
+        xn = xn > 0.0 ? xn : 0.0;
+        xn = xn < M ? xn : M;
+        xbar[e] = 2.0 * xn - xo;
+        x[e] = a * ((1.0 + rho) * xn - rho * xo) + (1.0 - a) * x0[e];
+    }
+}
+
+static void sd_cvx_pdhg_dual_h(int64_t m, const int32_t *restrict rows, double *restrict y,
+                               const double *restrict y0, const double *restrict xbar, double *restrict c,
+                               double sigma, double a, double rho) {
+    for (int64_t t = 0; t < m; t++) {
+        const int32_t e0 = rows[3 * t], e1 = rows[3 * t + 1], e2 = rows[3 * t + 2];
+        const double yo = y[t];
+        double yt = yo + sigma * (xbar[e0] - xbar[e1] - xbar[e2]);
+        yt = yt > 0.0 ? yt : 0.0;
+        const double yn = a * ((1.0 + rho) * yt - rho * yo) + (1.0 - a) * y0[t];
+        const double dy = yn - yo;
+        y[t] = yn;
+        c[e0] += dy;
+        c[e1] -= dy;
+        c[e2] -= dy;
+    }
+}
+
 #endif
