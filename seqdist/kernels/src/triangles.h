@@ -3,7 +3,6 @@
 #ifndef SEQDIST_TRIANGLES_H
 #define SEQDIST_TRIANGLES_H
 #include <stdint.h>
-#include <stdlib.h>
 #include <string.h>
 #include "simd_wide.h"
 
@@ -73,15 +72,14 @@ SEQDIST_SIMD_WIDE static void sd_tri_count_tile(const double *restrict d, int64_
  * count is exact for them (three float32 values sum without rounding in double unless their
  * exponents differ by more than 29). The chunk of the tile's rows is widened to double once per
  * chunk, and the chunk of row b once per b: the inner loop is then the float64 one, on half the
- * memory traffic. Returns -1 when the scratch cannot be allocated, else 0. */
-SEQDIST_SIMD_WIDE static int sd_tri_count_tile_f32(const float *restrict d, int64_t n, double tol, int64_t a0,
-                                                   int64_t a1, int64_t cw, int64_t *count_out, double *worst_out) {
+ * memory traffic. X is the calling thread's scratch of (a1 - a0 + 1) * cw doubles (cw >= 1; one
+ * buffer per thread, made once: allocating it per tile made the threads queue on page faults). */
+SEQDIST_SIMD_WIDE static void sd_tri_count_tile_f32(const float *restrict d, int64_t n, double tol, int64_t a0,
+                                                    int64_t a1, int64_t cw, double *restrict X, int64_t *count_out,
+                                                    double *worst_out) {
     int64_t tot = 0;
     double worst = 0.0;
-    if (cw < 1) cw = n;
     int64_t rows = a1 - a0;
-    double *X = (double *)malloc(sizeof(double) * (size_t)(rows * cw + cw));
-    if (X == NULL) return -1;
     double *Y = X + rows * cw;
     for (int64_t c0 = a0 + 2; c0 < n; c0 += cw) {
         int64_t c1 = c0 + cw < n ? c0 + cw : n;
@@ -98,10 +96,8 @@ SEQDIST_SIMD_WIDE static int sd_tri_count_tile_f32(const float *restrict d, int6
             }
         }
     }
-    free(X);
     *count_out = tot;
     *worst_out = worst;
-    return 0;
 }
 
 #endif
