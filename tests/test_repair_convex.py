@@ -495,3 +495,72 @@ def test_l1_auto_uses_pdhg_beyond_the_lp_and_falls_back_without_a_complete_graph
     s = l1.solve(problem(D, lp_max_n=10, pdhg_from_gap=1.0))
     assert s.details["method"].startswith("proximal point with exact") and "primal-dual" not in s.details["method"]
     assert s.optimal
+
+
+def clarabel_all_rows(D, W):
+    """min sum w (x - d)^2 over all pairs with all 3 C(n, 3) triangle rows as one sparse matrix (cvxpy, CLARABEL)."""
+    from scipy.sparse import coo_matrix
+
+    n = len(D)
+    pairs = list(itertools.combinations(range(n), 2))
+    idx = {p: q for q, p in enumerate(pairs)}
+    rows, cols, vals = [], [], []
+    r = 0
+    for i, j, k in itertools.combinations(range(n), 3):
+        e = [idx[(i, j)], idx[(i, k)], idx[(j, k)]]
+        for s in range(3):
+            others = [e[t] for t in range(3) if t != s]
+            rows += [r, r, r]
+            cols += [e[s], others[0], others[1]]
+            vals += [1.0, -1.0, -1.0]
+            r += 1
+    A = coo_matrix((vals, (rows, cols)), shape=(r, len(pairs))).tocsr()
+    d = np.array([D[p] for p in pairs])
+    w = np.array([W[p] for p in pairs])
+    x = cp.Variable(len(pairs))
+    prob = cp.Problem(cp.Minimize(cp.sum(cp.multiply(w, cp.square(x - d)))), [A @ x <= 0])
+    prob.solve(solver="CLARABEL")
+    return prob.value
+
+
+@pytest.mark.parametrize("n,seed,use_w,use_lock", CASES)
+def test_l2_pdhg_matches_clarabel(n, seed, use_w, use_lock):
+    # issue 19: l2's primal-dual finish closes 1e-6 and its bound is below CLARABEL's optimum
+    D = noisy(n, seed)
+    W = rand_weights(n, seed) if use_w else np.ones((n, n))
+    L = np.zeros((n, n), bool)
+    if use_lock:
+        L[0, 1] = L[1, 0] = L[2, 3] = L[3, 2] = True
+    s = l2.solve(problem(D, W, L, pdhg_from_gap=1.0))
+    ref = cvx_solve(D, np.where(L, np.inf, W), L, "l2")
+    assert "primal-dual" in s.details["method"] and s.details["iterations"] > 0
+    assert s.optimal and s.details["relative_gap"] <= 1e-6
+    assert abs(s.objective_value - ref) <= 2e-6 * ref
+    assert s.lower_bound <= ref * (1 + 1e-7)  # CLARABEL's own tolerance is about 1e-8
+    assert is_metric(s.X, 1e-9 * D.max())
+    assert np.array_equal(s.X[L], D[L])
+
+
+@pytest.mark.parametrize("n,seed,use_w", [(40, 15, False), (50, 16, True)])
+def test_l2_pdhg_closes_on_noisy_matrices(n, seed, use_w):
+    D = noisy(n, seed)
+    W = rand_weights(n, seed) if use_w else np.ones((n, n))
+    ref = clarabel_all_rows(D, W)
+    s = l2.solve(problem(D, W, pdhg_from_gap=1.0))
+    assert s.optimal and "primal-dual" in s.details["method"]
+    assert s.lower_bound <= ref * (1 + 1e-7) and abs(s.objective_value - ref) <= 2e-6 * ref
+    # the same without the primal-dual finish (Hildreth's method alone) agrees
+    h = l2.solve(problem(D, W, pdhg=False))
+    assert "primal-dual" not in h.details["method"] and abs(h.objective_value - s.objective_value) <= 2e-6 * ref
+
+
+def test_l2_pdhg_is_reproducible_to_the_byte():
+    D = noisy(45, 17)
+    outs = []
+    for limit in (None, None, 0.3, 0.3):
+        p = problem(D, pdhg_from_gap=1.0, gap_tol=1e-13 if limit else 1e-6)
+        p.time_limit = limit
+        s = l2.solve(p)
+        outs.append((s.X.tobytes(), s.objective_value, s.lower_bound, s.details["iterations"], s.details["status"]))
+    assert outs[0] == outs[1] and outs[2] == outs[3]
+    assert outs[2][4] == "time limit" and outs[0][4] == "gap closed" and outs[2][3] > 0

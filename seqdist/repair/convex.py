@@ -131,6 +131,13 @@ COUNT_PER_TRIANGLE = 5e-9     # a count-only pass of the scan (no keys written),
 PDHG_PER_ROW = 5e-9            # one primal-dual iteration (pdhg_tri), per triangle row
 PDHG_PER_ENTRY = 2e-9          # one primal-dual iteration, per entry of G
 OMEGA_RANGE = (1e-2, 1e4)      # the primal-dual method's primal weight, times its start
+# The primal-dual method takes over only while the pool holds at most this many rows per entry.
+# An iteration touches every row (about 5 ns each); l1 needed 50,000 iterations at n = 500 on
+# noisy matrices (pool 1.7 rows per entry), where it beat the projection method 3-5x; on random
+# matrices the pool holds 7-14 rows per entry, each iteration costs that much more, and the
+# projection method (which closes those in a tenth of the rounds) is faster.
+PDHG_MAX_ROWS = 4.0
+KEEP_MARGIN = 1e-3             # primal-dual: rows within this share of the mean entry of their bound stay pooled
 ROUND = 2e-3                   # fixed part of one round (Python, small arrays)
 SCAN_CALL = 5e-3               # fixed part of one scan (starting the threads, merging the pool)
 # the l1 LP's HiGHS calls are counted as those of fewest and grow
@@ -142,8 +149,8 @@ SCAN_CAP_MIN = 1_000_000
 
 __all__ = ["Setup", "rescale_solution", "setup", "scan_cap", "count_cost", "scan_cost", "certificate_cost",
            "sweep_cost", "sweeps_per_round", "run_context", "Pool", "find_violations", "feasible_point", "descend",
-           "descend_cost", "Descent", "PrimalDual", "objective_l2", "objective_l1", "bound_l2", "bound_l1",
-           "relative_gap", "output_matrix"]
+           "descend_cost", "Descent", "PrimalDual", "primal_dual_phase", "objective_l2", "objective_l1", "bound_l2",
+           "bound_l1", "relative_gap", "output_matrix"]
 
 
 def scan_cap(n: int) -> int:
@@ -652,6 +659,102 @@ class PrimalDual:
         X = np.zeros((self.n, self.n))
         X[self.S.gi, self.S.gj] = self.xT
         return X
+
+
+def primal_dual_phase(problem: RepairProblem, S: Setup, pd: PrimalDual, best: tuple, budget: Budget,
+                      gap_tol: float, max_rounds: int, log: Callable[[str], None],
+                      objective: Callable[[np.ndarray, Setup], float], bound: Callable[[np.ndarray], float],
+                      descent: Descent, rounds: int, scans: int) -> dict:
+    """Rounds of :class:`PrimalDual` with scans and certificates, until the gap closes or the budget ends.
+
+    ``best`` is ``(value, metric, bound)`` so far; ``bound(y)`` is the
+    objective's certified bound at non-negative duals ``y`` of ``pd``'s rows.
+    A round: a scan when due (new violated rows join with dual 0; rows with
+    dual 0 that are satisfied by more than :data:`KEEP_MARGIN` times the mean
+    entry are forgotten), iterations worth about a scan (work counts, never
+    the clock), then a certificate: the shortest-path closure of the primal
+    point (and the descent pass when due) and the bound at the duals.
+    Returns the fields the solvers report.
+    """
+    import time
+
+    pool = pd.pool
+    best_p, best_Y, best_g = best
+    t_scan = t_iter = t_cert = 0.0
+    status = "running"
+    gap0 = None
+    scan_every, since_scan = 1, 0
+    margin = KEEP_MARGIN * (float(np.mean(S.d[S.gi, S.gj])) if S.gi.size else 0.0)
+    while True:
+        if since_scan + 1 >= scan_every:
+            x = pd.x_matrix()
+            ta = time.perf_counter()
+            sinfo = {}
+            newk, _ = find_violations(x, S, pool, info=sinfo)
+            budget.charge(scan_cost(S) + sinfo["counts"] * count_cost(S))
+            t_scan += time.perf_counter() - ta
+            scans += 1
+            since_scan = 0
+            before = pool.keys
+            if pool.keys.size:
+                # rows near their bound are kept even with dual 0: the iterates move around the boundary,
+                # and rows dropped and added again at every scan stalled the method (measured)
+                near = pool.keys[(K.apply_tri(pool.keys, x) > -margin) | (pool.lam != 0)]
+                newk = np.union1d(newk, near)
+            added = pool.add(newk)
+            if np.array_equal(pool.keys, before):
+                pd.relink()  # the same rows (the merge made new arrays)
+            else:
+                pd.set_rows(before)  # new rows (dual 0), forgotten ones (dual 0): the method goes on
+            if sinfo["capped"]:
+                scan_every = 1
+            elif added <= max(50, 0.002 * pool.size):
+                scan_every = min(2 * scan_every, 16)
+            else:
+                scan_every = max(1, scan_every // 2)
+        else:
+            since_scan += 1
+        # iterations per round: about a scan's work, and at least four certificates' (work counts: reproducible)
+        tb = time.perf_counter()
+        per = max(scan_cost(S), 4.0 * certificate_cost(S)) / pd.iteration_cost()
+        pd.run(int(min(max(per, 2 * pd.CHECK), 64 * pd.CHECK)), budget)
+        t_iter += time.perf_counter() - tb
+        rounds += 1
+        tc = time.perf_counter()
+        Y, _ = feasible_point(pd.x_matrix(), S, descent=False)
+        p = objective(Y, S)
+        g = bound(pd.duals())
+        budget.charge(certificate_cost(S))
+        best_g = max(best_g, g)
+        Y, p = descent(Y, p, best_g, S, rounds, budget)
+        t_cert += time.perf_counter() - tc
+        if p < best_p:
+            best_p, best_Y = p, Y
+        rel = relative_gap(best_p, best_g)
+        gap0 = rel if gap0 is None else gap0
+        log(f"round {rounds}: {pd.iterations} iterations, {pd.restarts} restarts, omega {pd.omega:.3g}, pool "
+            f"{pool.size} ({pool.nonzero} positive), feasible {best_p:.12g}, bound {best_g:.12g}, gap {rel:.3e}")
+        if problem.progress is not None and rel > 0 and gap0 and gap0 > gap_tol:
+            frac = np.log(gap0 / rel) / np.log(gap0 / gap_tol)
+            problem.report(float(np.clip(frac, 0.0, 0.99)), f"gap {rel:.1e}")
+        if rel <= gap_tol:
+            status = "gap closed"
+            break
+        if budget.exhausted():
+            status = "time limit"
+            break
+        if rounds >= max_rounds:
+            status = "round limit"
+            break
+    if status != "gap closed":
+        Y2 = descend(best_Y, S)  # a last descent pass on the best point (it never raises the cost)
+        p2 = objective(Y2, S)
+        if p2 < best_p:
+            best_p, best_Y = p2, Y2
+    return {"p": best_p, "Y": best_Y, "g": best_g, "rounds": rounds, "scans": scans, "status": status,
+            "active": pool.nonzero, "pool": pool.size, "iterations": pd.iterations, "restarts": pd.restarts,
+            "descent_passes": descent.passes,
+            "seconds": {"scan": round(t_scan, 3), "iterations": round(t_iter, 3), "certificate": round(t_cert, 3)}}
 
 
 # ------------------------------------------------------------ objectives and bounds

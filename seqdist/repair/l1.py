@@ -67,13 +67,6 @@ __all__ = ["solve"]
 
 _DEFAULT_GAP = 1e-6
 _LP_MAX_N = 100
-# pdhg: the projection method hands over only while the pool holds at most this many rows per entry.
-# An iteration of the primal-dual method touches every row (about 5 ns each) and it needed
-# 50,000 iterations at n = 500 on noisy matrices (pool 1.7 rows per entry), where it beats the
-# projection method 3-5x; on random matrices the pool holds 7-14 rows per entry, each iteration costs
-# that much more, and the projection method (which closes those in a tenth of the rounds) is faster.
-_PDHG_MAX_ROWS = 4.0
-_KEEP_MARGIN = 1e-3  # pdhg: rows within this share of the mean entry of their bound stay in the pool
 _PROJECTION = "proximal point with exact dual coordinate ascent"
 _ASCENT_SWEEPS = 2  # more changed nothing measured (8 sweeps: the same rounds at n = 200)
 
@@ -329,7 +322,7 @@ def _solve_projection(problem, S, budget, gap_tol, max_rounds, log, opts, stop_g
         if rel <= gap_tol:
             status = "gap closed"
             break
-        if stop_gap is not None and rel <= stop_gap and pool.size <= _PDHG_MAX_ROWS * S.gi.size:
+        if stop_gap is not None and rel <= stop_gap and pool.size <= C.PDHG_MAX_ROWS * S.gi.size:
             status = "warm"  # the primal-dual method goes on from here
             break
         if since_centre >= inner:
@@ -387,86 +380,12 @@ def _solve_pdhg(problem, S, budget, gap_tol, max_rounds, log, opts):
     if warm["status"] != "warm":
         return dict(warm, method=_PROJECTION)
     pool = warm["pool"]
-    best_p, best_Y, best_g = warm["p"], warm["Y"], warm["g"]
-    rounds, scans = warm["rounds"], warm["scans"]
-    t_scan = t_iter = t_cert = 0.0
-    status = "running"
-    gap0 = None
-    scan_every, since_scan = 1, 0
-    descent = warm["descent"]
     pd = C.PrimalDual(S, pool, quad=False, x=np.ascontiguousarray(warm["x"][S.gi, S.gj]))
-    margin = _KEEP_MARGIN * (float(np.mean(S.d[S.gi, S.gj])) if S.gi.size else 0.0)
-    while True:
-        if since_scan + 1 >= scan_every:
-            x = pd.x_matrix()
-            ta = time.perf_counter()
-            sinfo = {}
-            newk, _ = C.find_violations(x, S, pool, info=sinfo)
-            budget.charge(C.scan_cost(S) + sinfo["counts"] * C.count_cost(S))
-            t_scan += time.perf_counter() - ta
-            scans += 1
-            since_scan = 0
-            before = pool.keys
-            if pool.keys.size:
-                # rows near their bound are kept even with dual 0: the iterates move around the
-                # boundary, and dropping and re-adding rows every scan restarts the method each time
-                near = pool.keys[(K.apply_tri(pool.keys, x) > -margin) | (pool.lam != 0)]
-                newk = np.union1d(newk, near)
-            added = pool.add(newk)
-            if np.array_equal(pool.keys, before):
-                pd.relink()  # the same rows (the merge made new arrays)
-            else:
-                pd.set_rows(before)  # new rows (dual 0), forgotten ones (dual 0): the method goes on
-            if sinfo["capped"]:
-                scan_every = 1
-            elif added <= max(50, 0.002 * pool.size):
-                scan_every = min(2 * scan_every, 16)
-            else:
-                scan_every = max(1, scan_every // 2)
-        else:
-            since_scan += 1
-        # iterations per round: about a scan's work, and at least four certificates' (work counts: reproducible)
-        tb = time.perf_counter()
-        per = max(C.scan_cost(S), 4.0 * C.certificate_cost(S)) / pd.iteration_cost()
-        pd.run(int(min(max(per, 2 * pd.CHECK), 64 * pd.CHECK)), budget)
-        t_iter += time.perf_counter() - tb
-        rounds += 1
-        tc = time.perf_counter()
-        Y, _ = C.feasible_point(pd.x_matrix(), S, descent=False)
-        p = C.objective_l1(Y, S)
-        g = _bound_at(pool, pd.duals(), S, budget)
-        budget.charge(C.certificate_cost(S))
-        best_g = max(best_g, g)
-        Y, p = descent(Y, p, best_g, S, rounds, budget)
-        t_cert += time.perf_counter() - tc
-        if p < best_p:
-            best_p, best_Y = p, Y
-        rel = C.relative_gap(best_p, best_g)
-        gap0 = rel if gap0 is None else gap0
-        log(f"round {rounds}: {pd.iterations} iterations, {pd.restarts} restarts, omega {pd.omega:.3g}, pool "
-            f"{pool.size} ({pool.nonzero} positive), feasible {best_p:.12g}, bound {best_g:.12g}, gap {rel:.3e}")
-        if problem.progress is not None and rel > 0 and gap0 and gap0 > gap_tol:
-            frac = np.log(gap0 / rel) / np.log(gap0 / gap_tol)
-            problem.report(float(np.clip(frac, 0.0, 0.99)), f"gap {rel:.1e}")
-        if rel <= gap_tol:
-            status = "gap closed"
-            break
-        if budget.exhausted():
-            status = "time limit"
-            break
-        if rounds >= max_rounds:
-            status = "round limit"
-            break
-    if status not in ("gap closed", "metric input"):
-        Y2 = C.descend(best_Y, S)
-        p2 = C.objective_l1(Y2, S)
-        if p2 < best_p:
-            best_p, best_Y = p2, Y2
-    return {"p": best_p, "Y": best_Y, "g": best_g, "rounds": rounds, "scans": scans, "status": status,
-            "sweeps": warm["sweeps"], "active": pool.nonzero, "pool": pool.size, "iterations": pd.iterations,
-            "restarts": pd.restarts, "descent_passes": descent.passes,
-            "method": "proximal point with exact dual coordinate ascent, then restarted primal-dual hybrid gradient",
-            "seconds": {"scan": round(t_scan, 3), "iterations": round(t_iter, 3), "certificate": round(t_cert, 3)}}
+    res = C.primal_dual_phase(problem, S, pd, (warm["p"], warm["Y"], warm["g"]), budget, gap_tol, max_rounds, log,
+                              C.objective_l1, lambda y: _bound_at(pool, y, S, budget), warm["descent"],
+                              warm["rounds"], warm["scans"])
+    return dict(res, sweeps=warm["sweeps"],
+                method="proximal point with exact dual coordinate ascent, then restarted primal-dual hybrid gradient")
 
 
 # ------------------------------------------------------------------ entry point
