@@ -18,7 +18,8 @@ it the general solvers that finish on that size:
   triangle row, built as one sparse matrix (so building is not what is timed);
 * l1: scipy ``linprog`` (HiGHS) with every triangle row; seqdist's own ``lp``
   method is the lazy-row route (only violated rows, re-check, add), and its
-  ``projection`` method the route beyond n = 100.
+  default beyond n = 100 (``auto``: the projection method, then the
+  primal-dual method where that applies; the method column says which ran).
 
 Each row also gives the load average (1 minute) when the case finished: on
 a shared machine the seconds mean little without it.
@@ -120,6 +121,14 @@ def ref_l1_linprog(D):
     return float(res.fun), time.perf_counter() - t
 
 
+def short(details):
+    """A short name of the method that ran (from the report's details)."""
+    m = details.get("method", "")
+    if m.startswith("linear program"):
+        return "lp"
+    return ("projection" if m.startswith("proximal") else "hildreth") + ("+pdhg" if "primal-dual" in m else "")
+
+
 def run_ours(obj, D, limit=None, **opts):
     t = time.perf_counter()
     p = problem(D, **opts)
@@ -157,13 +166,13 @@ def main() -> int:
     for obj in a.objectives.split(","):
         print(f"\n## {obj}")
         if obj == "l2":
-            print("| matrix | n | objective | rel. gap | seqdist s | cvxpy CLARABEL value | CLARABEL s | "
-                  "rel. diff | CLARABEL / seqdist | load |")
-            print("|---|---|---|---|---|---|---|---|---|---|")
+            print("| matrix | n | method | objective | rel. gap | seqdist s | work | cvxpy CLARABEL value | "
+                  "CLARABEL s | rel. diff | CLARABEL / seqdist | load |")
+            print("|---|---|---|---|---|---|---|---|---|---|---|---|")
         else:
-            print("| matrix | n | method | objective | rel. gap | seqdist s | linprog all rows value | "
+            print("| matrix | n | method | objective | rel. gap | seqdist s | work | linprog all rows value | "
                   "linprog s | rel. diff | linprog / seqdist | load |")
-            print("|---|---|---|---|---|---|---|---|---|---|---|")
+            print("|---|---|---|---|---|---|---|---|---|---|---|---|")
         for kind in a.kinds.split(","):
             for n in sizes:
                 D = matrix(kind, n, a.seed + n)
@@ -175,20 +184,21 @@ def main() -> int:
                         cells = [f"{rv:.10g}", f"{rt:.2f}", f"{abs(s.objective_value - rv) / rv:.1e}",
                                  f"{rt / ts:.1f}"]
                     limit = "" if s.optimal else " (limit)"
-                    print(f"| {kind} | {n} | {s.objective_value:.10g} | {s.details['relative_gap']:.1e}{limit} | "
-                          f"{ts:.2f} | " + " | ".join(cells) + f" | {os.getloadavg()[0]:.1f} |", flush=True)
+                    print(f"| {kind} | {n} | {short(s.details)} | {s.objective_value:.10g} | "
+                          f"{s.details['relative_gap']:.1e}{limit} | {ts:.2f} | {s.details.get('work', 0):.1f} | "
+                          + " | ".join(cells) + f" | {os.getloadavg()[0]:.1f} |", flush=True)
                 else:
-                    method = "lp" if n <= a.lp_max else "projection"
-                    s, ts = run_ours("l1", D, a.limit_l1, method=method)
+                    opts = {"method": "lp"} if n <= a.lp_max else {}  # beyond: the default (auto)
+                    s, ts = run_ours("l1", D, a.limit_l1, **opts)
                     cells = ["-", "-", "-", "-"]
                     if n <= a.ref_max_l1:
                         rv, rt = ref_l1_linprog(D)
                         cells = [f"{rv:.10g}", f"{rt:.2f}", f"{abs(s.objective_value - rv) / rv:.1e}",
                                  f"{rt / ts:.1f}"]
                     limit = "" if s.optimal else " (limit)"
-                    print(f"| {kind} | {n} | {method} | {s.objective_value:.10g} | "
-                          f"{s.details['relative_gap']:.1e}{limit} | {ts:.2f} | " + " | ".join(cells) +
-                          f" | {os.getloadavg()[0]:.1f} |", flush=True)
+                    print(f"| {kind} | {n} | {short(s.details)} | {s.objective_value:.10g} | "
+                          f"{s.details['relative_gap']:.1e}{limit} | {ts:.2f} | {s.details.get('work', 0):.1f} | "
+                          + " | ".join(cells) + f" | {os.getloadavg()[0]:.1f} |", flush=True)
     return 0
 
 
