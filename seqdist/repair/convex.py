@@ -149,8 +149,8 @@ SCAN_CAP_MIN = 1_000_000
 
 __all__ = ["Setup", "rescale_solution", "setup", "scan_cap", "count_cost", "scan_cost", "certificate_cost",
            "sweep_cost", "sweeps_per_round", "run_context", "Pool", "find_violations", "feasible_point", "descend",
-           "descend_cost", "Descent", "PrimalDual", "primal_dual_phase", "objective_l2", "objective_l1", "bound_l2",
-           "bound_l1", "relative_gap", "output_matrix"]
+           "descend_cost", "Descent", "PrimalDual", "hand_over", "primal_dual_phase", "objective_l2", "objective_l1",
+           "bound_l2", "bound_l1", "relative_gap", "output_matrix"]
 
 
 def scan_cap(n: int) -> int:
@@ -661,6 +661,21 @@ class PrimalDual:
         return X
 
 
+def hand_over(S: Setup, pool: Pool, rel: float, last_rel: float | None, from_gap: float) -> bool:
+    """Whether the earlier method (projection, Hildreth) hands over to :class:`PrimalDual` after a round.
+
+    When every entry is a variable, the relative gap is at most ``from_gap``,
+    the pool holds at most :data:`PDHG_MAX_ROWS` rows per entry, and the
+    last round lowered the gap by less than a factor of 10 (the earlier
+    method is in its slow tail: on random matrices Hildreth's method goes from
+    1e-3 to 1e-11 in two rounds, and handing over there cost l2 at n = 1000 half
+    again its time). A function of computed values only.
+    """
+    if not S.full or rel > from_gap or pool.size > PDHG_MAX_ROWS * S.gi.size:
+        return False
+    return last_rel is not None and rel > 0.1 * last_rel
+
+
 def primal_dual_phase(problem: RepairProblem, S: Setup, pd: PrimalDual, best: tuple, budget: Budget,
                       gap_tol: float, max_rounds: int, log: Callable[[str], None],
                       objective: Callable[[np.ndarray, Setup], float], bound: Callable[[np.ndarray], float],
@@ -700,7 +715,7 @@ def primal_dual_phase(problem: RepairProblem, S: Setup, pd: PrimalDual, best: tu
                 # rows near their bound are kept even with dual 0: the iterates move around the boundary,
                 # and rows dropped and added again at every scan stalled the method (measured)
                 near = pool.keys[(K.apply_tri(pool.keys, x) > -margin) | (pool.lam != 0)]
-                newk = np.union1d(newk, near)
+                newk, _, _ = K.merge_active(near, np.ones(near.size), newk)  # the union, in linear time
             added = pool.add(newk)
             if np.array_equal(pool.keys, before):
                 pd.relink()  # the same rows (the merge made new arrays)

@@ -252,6 +252,7 @@ def _solve_projection(problem, S, budget, gap_tol, max_rounds, log, opts, stop_g
     gap0 = None
     scan_every, since_scan, scans = 1, 0, 0
     descent = C.Descent(C.objective_l1, gap_tol)
+    last_rel = None
     while True:
         if since_scan + 1 >= scan_every or rounds == 0:
             x = _x_prox(c, Adiff, S, iw, h)
@@ -322,9 +323,10 @@ def _solve_projection(problem, S, budget, gap_tol, max_rounds, log, opts, stop_g
         if rel <= gap_tol:
             status = "gap closed"
             break
-        if stop_gap is not None and rel <= stop_gap and pool.size <= C.PDHG_MAX_ROWS * S.gi.size:
+        if stop_gap is not None and C.hand_over(S, pool, rel, last_rel, stop_gap):
             status = "warm"  # the primal-dual method goes on from here
             break
+        last_rel = rel
         if since_centre >= inner:
             # proximal point: the next centre is the current primal point
             x = _x_prox(c, Adiff, S, iw, h)

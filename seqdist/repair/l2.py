@@ -278,6 +278,7 @@ def _solve(problem: RepairProblem) -> Solution:
     max_sweeps = opts["max_sweeps"]
     descent = C.Descent(C.objective_l2, gap_tol)
     use_pd = opts["pdhg"]
+    last_rel = None
     while True:
         # separation: a full scan, less often once scans stop finding new constraints
         if since_scan + 1 >= scan_every or rounds == 0:
@@ -338,9 +339,10 @@ def _solve(problem: RepairProblem) -> Solution:
         if rel <= gap_tol:
             status = "gap closed"
             break
-        if use_pd and S.full and rel <= opts["pdhg_from_gap"] and pool.size <= C.PDHG_MAX_ROWS * S.gi.size:
+        if use_pd and C.hand_over(S, pool, rel, last_rel, opts["pdhg_from_gap"]):
             status = "primal-dual"
             break
+        last_rel = rel
         # polish once the pool is near the optimal active set
         if use_polish and rel < 2e-4 and rel < 0.3 * last_polish_gap and polish_calls < _MAX_POLISH:
             polish_calls += 1
